@@ -1,0 +1,15 @@
+"""Subcommands of the ``emsource`` command line, one module each.
+
+A command module defines ``register(subparsers)``, which adds its parser and sets
+``run=<function(args) -> int>`` as the parser default. :mod:`emsource.cli` finds every module
+in this package by itself, so adding a command means adding a file here and nothing else.
+
+Exit codes, the same for every command so that scripts can rely on them:
+"""
+
+EXIT_OK = 0  #: the work was done and every check passed
+EXIT_CHECK_FAILED = 1  #: the work was done but a physics check failed (a diagnostic's verdict)
+EXIT_USAGE = 2  #: the command line was wrong (argparse's own code)
+EXIT_BAD_INPUT = 3  #: an input file, dataset, mapping or value was missing or invalid
+EXIT_OUTPUT_ERROR = 4  #: an output could not be written (exists without --force, unwritable)
+EXIT_INTERRUPTED = 130  #: stopped by Ctrl-C; no partial output is left behind
