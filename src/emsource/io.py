@@ -279,6 +279,11 @@ class SnapshotFile:
         self.levels = levels
         self.mapping_path = mapping_path
 
+    @property
+    def description(self) -> str:
+        """The root attribute ``description`` (free text about the scenario), or ""."""
+        return _text(self._file.attrs.get("description", ""))
+
     def close(self):
         self._file.close()
 
@@ -471,7 +476,7 @@ def atomic_output(path, *, force: bool = False):
     if os.path.isdir(path):
         raise OutputError(f"output {path!r} is a directory")
     if os.path.exists(path) and not force:
-        raise OutputError(f"output {path!r} exists; use --force (force=True) to replace it")
+        raise OutputError(f"output {path!r} exists; use --force (force=True in Python) to replace it")
     if not os.path.isdir(directory):
         raise OutputError(f"output directory {directory!r} does not exist")
     try:
@@ -482,6 +487,10 @@ def atomic_output(path, *, force: bool = False):
     os.close(handle)
     try:
         yield temporary
+        # mkstemp makes the file private (0600); give it the permissions of a normal new file.
+        umask = os.umask(0)
+        os.umask(umask)
+        os.chmod(temporary, 0o666 & ~umask)
         os.replace(temporary, path)
     except BaseException:
         try:
