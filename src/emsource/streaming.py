@@ -201,10 +201,9 @@ def compute_sources(input_file, output_file, *, mapping=None, memory_limit=DEFAU
         report.axis_order = plans[0][0].axis_order
         report.units = plans[0][0].units
         report.dtype = str(plans[0][1])
-        report.rows_per_slab = plans[0][2]
         total = sum(len(slabs(lv.storage_shape[0], n)) for lv, _, n in plans)
         datasets_read = []
-        options = {"memory_limit_bytes": int(memory_limit), "rows_per_slab": report.rows_per_slab,
+        options = {"memory_limit_bytes": int(memory_limit), "rows_per_slab": int(plans[0][2]),
                    "compression": compression or "none", "check": bool(check),
                    "levels": [lv.label for lv, _, _ in plans]}
         for level, _, _ in plans:
@@ -213,7 +212,7 @@ def compute_sources(input_file, output_file, *, mapping=None, memory_limit=DEFAU
         bar = progress_bar(total, "sources", progress)
         try:
             with atomic_output(output_file, force=force) as temporary:
-                with h5py.File(temporary, "w") as out:
+                with h5py.File(temporary, "w", rdcc_nbytes=CHUNK_CACHE_BYTES) as out:
                     write_root_attributes(out, provenance_attributes(
                         input_file, datasets_read, options, snap.mapping_path))
                     group = out.create_group(LEVELS_GROUP)
@@ -225,7 +224,6 @@ def compute_sources(input_file, output_file, *, mapping=None, memory_limit=DEFAU
                      * int(np.prod(lv.storage_shape[1:]))) for lv, dt, n in plans)
         finally:
             bar.close()
-    report.slabs = total
     report.bytes_written = os.path.getsize(report.output_file)
     report.seconds = _time.perf_counter() - began
     return report
@@ -248,16 +246,23 @@ def _level_sources(level, dtype, rows, group, compression, check, report, bar):
     write_level_attributes(g, time=level.time, grid=level.grid, units=level.units,
                            axis_order=level.axis_order)
     stored = level.storage_shape
+    # Chunks of whole planes, a divisor of the slab so that every write fills whole chunks
+    # (a partial write of a compressed chunk would read and re-compress it).
+    chunk_rows = min(chunk_shape(stored, dtype.itemsize)[0], rows)
+    rows = max(chunk_rows, rows // chunk_rows * chunk_rows)
     datasets = {}
     for q in SOURCE_OUTPUTS:
         ncomp = QUANTITIES[q]
         shape = ((ncomp,) if ncomp else ()) + stored
-        datasets[q] = g.create_dataset(q, shape=shape, dtype=dtype,
-                                       chunks=chunk_shape(shape, dtype.itemsize),
+        chunks = ((1,) if ncomp else ()) + (chunk_rows,) + stored[1:]
+        datasets[q] = g.create_dataset(q, shape=shape, dtype=dtype, chunks=chunks,
                                        compression=compression)
     inputs = SlabBuffers(level, SOURCE_INPUTS, rows, dtype)
     outputs = SlabBuffers(level, SOURCE_OUTPUTS, rows, dtype)
     low, high = report.energy_density_range
+    if report.slabs == 0:
+        report.rows_per_slab = rows  # as adjusted to whole chunks
+    report.slabs += len(slabs(stored[0], rows))
     for start, stop in slabs(stored[0], rows):
         gamma = inputs.read("spatial_metric", start, stop)
         E = inputs.read("electric_field", start, stop)
