@@ -5,7 +5,7 @@ component axis first, symmetric tensors packed (xx, xy, xz, yy, yz, zz), fields 
 normal observer, contravariant E and B, Gaussian units unless a generator says otherwise.
 """
 
-from .rotating_dipole import rotating_dipole, rotating_dipole_luminosity
+from .rotating_dipole import rotating_dipole, rotating_dipole_fields, rotating_dipole_luminosity
 from .slice_fields import SliceFields
 
-__all__ = ["SliceFields", "rotating_dipole", "rotating_dipole_luminosity"]
+__all__ = ["SliceFields", "rotating_dipole", "rotating_dipole_fields", "rotating_dipole_luminosity"]
