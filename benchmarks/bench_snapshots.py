@@ -14,8 +14,8 @@ run, medians of ``repeat`` repetitions:
 
 and reports wall time, MB/s of input (1 MB = 1e6 bytes), the ratios (c)/(a) and (c)/(b), and
 peak memory: tracemalloc's peak of Python and NumPy allocations during (c) (the slab buffers),
-and the peak resident set size of a separate child process running ``emsource sources`` (this
-includes the interpreter, NumPy, h5py and Numba, about 150-250 MB here).
+and the peak resident set size of a child process running ``emsource sources``, minus that of
+the same command on an 8^3 file (the interpreter, NumPy, h5py and Numba's kernels alone).
 The file stays in the page cache (24 GiB machine), so these are cached-I/O figures; the machine is
 shared and noisy, so read the ratios.
 """
@@ -24,7 +24,6 @@ from __future__ import annotations
 
 import argparse
 import os
-import resource
 import statistics
 import subprocess
 import sys
@@ -88,7 +87,7 @@ def plain_read_write(path, out_path, rows):
         buffers = SlabBuffers(level, INPUTS, rows, np.float64)
         outputs = SlabBuffers(level, SOURCE_OUTPUTS, rows, np.float64)
         shape = level.storage_shape
-        with h5py.File(out_path, "w", rdcc_nbytes=CHUNK_CACHE_BYTES) as out:
+        with h5py.File(out_path, "w", rdcc_nbytes=0) as out:
             datasets = {}
             for q in SOURCE_OUTPUTS:
                 c = io.QUANTITIES[q]
@@ -108,14 +107,17 @@ def plain_read_write(path, out_path, rows):
     os.unlink(out_path)
 
 
-def child_peak_rss(path, out_path, memory_limit_mib):
-    """Peak RSS (bytes) of a child process running the command line on the snapshot."""
-    before = resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss
-    subprocess.run([sys.executable, "-m", "emsource.cli", "sources", path, "-o", out_path,
-                    "--memory-limit", str(memory_limit_mib), "--force", "--quiet"], check=True)
-    after = resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss
-    os.unlink(out_path)
-    return max(before, after) * 1024  # ru_maxrss is in KiB on Linux
+_PEAK_RSS = ("import resource, sys\n"
+             "from emsource.cli import main\n"
+             "code = main(sys.argv[1:]) if len(sys.argv) > 1 else 0\n"
+             "print(resource.getrusage(resource.RUSAGE_SELF).ru_maxrss)\n")
+
+
+def child_peak_rss(*arguments):
+    """Peak RSS (bytes) of a fresh interpreter that imports the CLI and runs ``arguments``."""
+    result = subprocess.run([sys.executable, "-c", _PEAK_RSS, *arguments], check=True,
+                            capture_output=True, text=True)
+    return int(result.stdout.split()[-1]) * 1024  # ru_maxrss is in KiB on Linux
 
 
 def main():
@@ -136,7 +138,7 @@ def main():
               f"(written in {time.perf_counter() - began:.1f} s); memory limit {args.memory_limit:g} MiB")
         with io.open_snapshot(path) as snap:
             rows = slab_rows(snap.levels[0], values_per_point(SOURCE_INPUTS + SOURCE_OUTPUTS), 8,
-                             limit, fixed=CHUNK_CACHE_BYTES * 16 + CONVERSION_BUFFER_BYTES)
+                             limit, fixed=CHUNK_CACHE_BYTES * 12 + CONVERSION_BUFFER_BYTES)
         compute_sources(path, out_path, memory_limit=limit, force=True)  # warm-up: kernels, cache
         plain_read(path, rows)
         t_read = median_seconds(lambda: plain_read(path, rows), args.repeat)
@@ -148,7 +150,13 @@ def main():
         _, traced_peak = tracemalloc.get_traced_memory()
         tracemalloc.stop()
         os.unlink(out_path)
-        rss = child_peak_rss(path, out_path, args.memory_limit)
+        rss = child_peak_rss("sources", path, "-o", out_path, "--memory-limit",
+                             str(args.memory_limit), "--force", "--quiet")
+        os.unlink(out_path)
+        # the same interpreter running a tiny problem: libraries and compiled kernels loaded
+        small = os.path.join(directory, "small.h5")
+        write_snapshot(small, 8)
+        baseline = child_peak_rss("sources", small, "-o", out_path, "--quiet")
     mb = input_bytes / 1e6
     print(f"slab: {report.rows_per_slab} planes of {n}x{n}, {report.slabs} slabs; "
           f"medians of {args.repeat}")
@@ -158,8 +166,9 @@ def main():
     print(f"  ratio (c)/(a) = {t_read / t_pipe:.2f}   (c)/(b) = {t_copy / t_pipe:.2f}")
     print(f"  peak NumPy/Python memory during (c) (tracemalloc): {traced_peak / 2**20:.1f} MiB "
           f"(limit {args.memory_limit:g} MiB)")
-    print(f"  peak RSS of a child running 'emsource sources': {rss / 2**20:.0f} MiB "
-          "(includes interpreter and libraries)")
+    print(f"  peak RSS of a child running 'emsource sources': {rss / 2**20:.0f} MiB; the same on "
+          f"an 8^3 file: {baseline / 2**20:.0f} MiB; difference {(rss - baseline) / 2**20:.0f} MiB "
+          f"(limit {args.memory_limit:g} MiB)")
 
 
 if __name__ == "__main__":
