@@ -107,17 +107,22 @@ def plain_read_write(path, out_path, rows):
     os.unlink(out_path)
 
 
-_PEAK_RSS = ("import resource, sys\n"
+_PEAK_RSS = ("import sys\n"
              "from emsource.cli import main\n"
-             "code = main(sys.argv[1:]) if len(sys.argv) > 1 else 0\n"
-             "print(resource.getrusage(resource.RUSAGE_SELF).ru_maxrss)\n")
+             "main(sys.argv[1:])\n"
+             "status = open('/proc/self/status').read().split('VmHWM:')[1]\n"
+             "print(int(status.split()[0]))\n")
 
 
 def child_peak_rss(*arguments):
-    """Peak RSS (bytes) of a fresh interpreter that imports the CLI and runs ``arguments``."""
+    """Peak RSS (bytes, VmHWM) of a fresh interpreter that runs the CLI with ``arguments``.
+
+    VmHWM belongs to the new process image; getrusage's ru_maxrss would not do here, because
+    Linux carries the parent's high-water mark across fork and exec.
+    """
     result = subprocess.run([sys.executable, "-c", _PEAK_RSS, *arguments], check=True,
                             capture_output=True, text=True)
-    return int(result.stdout.split()[-1]) * 1024  # ru_maxrss is in KiB on Linux
+    return int(result.stdout.split()[-1]) * 1024  # kB
 
 
 def main():
