@@ -12,9 +12,8 @@ from typing import Callable
 import numpy as np
 
 from ..grid import UniformGrid
+from ..unit_systems import UNIT_SYSTEMS
 from .slice_fields import SliceFields
-
-UNIT_SYSTEMS = ("gaussian", "heaviside_lorentz")
 
 # Largest |cos| between the polarization and the wave vector accepted as "orthogonal": a few
 # hundred float64 epsilons, so vectors typed with 16 digits pass and real mistakes do not.
