@@ -208,3 +208,10 @@ def test_bad_arguments_are_named(kwargs, message):
     args.update(kwargs)
     with pytest.raises(ValueError, match=message):
         boosted_gaussian_charge(box(4), 0.0, **args)
+
+
+def test_sphere_factors_reject_bad_input():
+    with pytest.raises(ValueError, match=r"r must be finite and >= 0, found -1.0 at index \(1,\)"):
+        gaussian_sphere_field_factors(np.array([0.5, -1.0]), 0.3)
+    with pytest.raises(ValueError, match="sigma must be positive"):
+        gaussian_sphere_field_factors(np.array([0.5]), 0.0)

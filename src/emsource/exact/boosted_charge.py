@@ -65,7 +65,13 @@ def gaussian_sphere_field_factors(r, sigma):
     g, h : ndarray
         Same shape as r; units 1/length^3 and 1/length^5 (per unit charge).
     """
+    who = "gaussian_sphere_field_factors"
+    sigma = _common.check_scalar(sigma, "sigma", who, positive=True)
     r = np.asarray(r, dtype=float)
+    good = np.isfinite(r) & (r >= 0.0)
+    if not np.all(good):
+        bad = np.argwhere(~good)[0]
+        raise ValueError(f"{who}: r must be finite and >= 0, found {r[tuple(bad)]} at index {tuple(bad.tolist())}")
     x = r / (math.sqrt(2.0) * sigma)
     near = x < _SERIES_LIMIT
     c = 1.0 / (math.sqrt(2.0 * math.pi) * sigma**3)

@@ -46,21 +46,23 @@ def periodic_wave_vector(grid, modes) -> np.ndarray:
     """
     who = "periodic_wave_vector"
     grid = _common.check_grid(grid, who)
-    m = np.asarray(modes)
+    try:
+        m = np.asarray(modes, dtype=float)
+    except (TypeError, ValueError):
+        raise TypeError(f"{who}: modes must be a sequence of integers, found {modes!r}") from None
     if m.shape != (grid.ndim,):
         raise ValueError(
             f"{who}: modes must hold one integer per grid axis, {grid.ndim} here, found shape {m.shape}"
         )
-    if not np.issubdtype(m.dtype, np.integer):
-        if not (np.all(np.isfinite(m.astype(float))) and np.all(m.astype(float) == np.round(m.astype(float)))):
-            raise ValueError(f"{who}: modes must be whole numbers, found {tuple(m.tolist())}")
+    if not np.all(np.isfinite(m) & (m == np.round(m))):
+        raise ValueError(f"{who}: modes must be whole numbers, found {tuple(m.tolist())}")
     k = np.zeros(3)
     for i in range(grid.ndim):
         k[i] = 2.0 * math.pi * float(m[i]) / (grid.shape[i] * grid.spacing[i])
     return k
 
 
-def plane_wave_pattern(x, y, z, t, *, wave_vector, polarization, amplitude, profile, width, phase, who):
+def _plane_wave_pattern(x, y, z, t, *, wave_vector, polarization, amplitude, profile, width, phase, who):
     """Minkowski plane wave at events (t, x, y, z): E, B and their derivatives along the phase.
 
     Returns (E, B, dE_ds, dB_ds, s, omega, k) with E, B of shape (3, *x.shape); d/ds is the
@@ -140,7 +142,7 @@ def plane_wave(grid, t, *, wave_vector, polarization, amplitude=1.0, profile="si
     t = _common.check_time(t, who)
     units = _common.check_units(units, who)
     x, y, z = grid.coordinates()
-    E, B, dE, dB, _, omega, _ = plane_wave_pattern(
+    E, B, dE, dB, _, omega, _ = _plane_wave_pattern(
         x, y, z, t, wave_vector=wave_vector, polarization=polarization, amplitude=amplitude,
         profile=profile, width=width, phase=phase, who=who,
     )
