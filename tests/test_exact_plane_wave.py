@@ -6,6 +6,7 @@ the 3+1 Maxwell equations as written in maxwell_3p1_reference.py (Baumgarte & Sh
 Numerical Relativity (2010), sec. 11.1, re-derived from nabla_b F^ab = 4 pi J^a).
 """
 
+import dataclasses
 import math
 
 import numpy as np
@@ -13,7 +14,7 @@ import pytest
 
 from emsource.exact import periodic_wave_vector, plane_wave
 from emsource.grid import UniformGrid
-from maxwell_3p1_reference import residual_convergence, time_derivative_errors
+from maxwell_3p1_reference import normalised_max_residuals, residual_convergence, time_derivative_errors
 
 MODES = (1, 2, 1)  # oblique in all three axes, so every derivative term of the equations works
 
@@ -49,19 +50,41 @@ def test_satisfies_3p1_maxwell_at_stencil_order(order, profile):
         assert abs(orders[-1] - order) < 0.3, (name, errors, orders)
 
 
-def test_time_derivatives_match_time_differences():
-    """dt_E, dt_B (and dt_gamma = 0) agree with centred differences in t, converging at order 2.
+@pytest.mark.parametrize("profile", ["sine", "periodic_gaussian", "gaussian"])
+def test_time_derivatives_match_time_differences(profile):
+    """dt_E, dt_B (and dt_gamma = 0) agree with centred differences in t, converging at order 2,
+    for each built-in profile (so each analytic f' is the derivative of its f).
 
     dt is 2e-3 and 1e-3, far from h (trap 1), and the error dt^2 omega^2 |dt_E| / 6 ~ 1e-4
     relative sits far above the round-off eps |E| / dt ~ 1e-13.
     """
     grid = box(8)
-    errs = time_derivative_errors(lambda t: oblique_wave(grid, t), 0.37)
+    errs = time_derivative_errors(lambda t: oblique_wave(grid, t, profile=profile, width=0.7), 0.37)
     for name in ("E", "B"):
         (e1, e2), scale = errs[name]
         assert e1 / scale < 1e-3
         assert abs(math.log2(e1 / e2) - 2.0) < 0.3, (name, e1, e2)
     assert errs["gamma"][0] == [0.0, 0.0]
+
+
+def test_reference_sees_a_static_divergence_error():
+    """Negative control of the reference residual (trap 4 of the testing notes): B_x += 0.3 x is
+    static and curl-free, so both evolution equations still hold, but div B = 0.3 fails at every
+    resolution."""
+    errors = []
+    for n in (12, 24):
+        data = oblique_wave(box(n), 0.37)
+        B = data.B.copy()
+        B[0] += 0.3 * box(n).coordinates()[0]
+        wrong = normalised_max_residuals(dataclasses.replace(data, B=B), 4)
+        errors.append(wrong["div_B"])
+        right = normalised_max_residuals(data, 4)
+        # The centred curl of a linear field is exact, so the evolution residuals do not change
+        # (up to the renormalisation by the largest term): the error is invisible to them.
+        assert wrong["ampere"] == pytest.approx(right["ampere"], rel=1e-6)
+        assert wrong["faraday"] == pytest.approx(right["faraday"], rel=1e-6)
+    assert min(errors) > 0.01
+    assert abs(math.log2(errors[0] / errors[1])) < 0.3
 
 
 def test_null_field_energy_and_poynting_flux():
