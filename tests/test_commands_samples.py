@@ -20,3 +20,16 @@ def test_writes_the_samples_and_keeps_existing_ones(tmp_path, capsys):
     assert {n: os.stat(directory / n).st_mtime_ns for n in NAMES} == stamps
     assert main(["samples", "--output-dir", str(directory), "--force"]) == EXIT_OK
     assert sorted(os.listdir(directory)) == NAMES
+
+
+def test_help_lists_every_snapshot_command(capsys):
+    import pytest
+
+    with pytest.raises(SystemExit) as stop:
+        main(["--help"])
+    assert stop.value.code == 0
+    text = capsys.readouterr().out
+    assert all(name in text for name in ("sources", "integrate", "samples"))
+    with pytest.raises(SystemExit) as stop:
+        main(["samples", "--help"])
+    assert stop.value.code == 0 and "--output-dir" in capsys.readouterr().out
