@@ -11,6 +11,7 @@ run, medians of ``repeat`` repetitions:
   (b) plain read + write: (a) plus writing 11 values per point to a new chunked file, the I/O
       that any sources pipeline must do, without computing anything;
   (c) the pipeline, :func:`emsource.streaming.compute_sources` with the given memory limit;
+  (d) the same writing only energy_density and momentum_density (4 of the 11 values per point);
 
 and reports wall time, MB/s of input (1 MB = 1e6 bytes), the ratios (c)/(a) and (c)/(b), and
 peak memory: tracemalloc's peak of Python and NumPy allocations during (c) (the slab buffers),
@@ -150,6 +151,9 @@ def main():
         t_copy = median_seconds(lambda: plain_read_write(path, out_path, rows), args.repeat)
         t_pipe = median_seconds(lambda: compute_sources(path, out_path, memory_limit=limit,
                                                         force=True), args.repeat)
+        t_two = median_seconds(lambda: compute_sources(
+            path, out_path, memory_limit=limit, force=True,
+            outputs=("energy_density", "momentum_density")), args.repeat)
         tracemalloc.start()
         report = compute_sources(path, out_path, memory_limit=limit, force=True)
         _, traced_peak = tracemalloc.get_traced_memory()
@@ -168,7 +172,9 @@ def main():
     print(f"  (a) plain read            {t_read:8.3f} s  {mb / t_read:8.0f} MB/s of input")
     print(f"  (b) plain read + write    {t_copy:8.3f} s  {mb / t_copy:8.0f} MB/s of input")
     print(f"  (c) emsource sources      {t_pipe:8.3f} s  {mb / t_pipe:8.0f} MB/s of input")
-    print(f"  ratio (c)/(a) = {t_read / t_pipe:.2f}   (c)/(b) = {t_copy / t_pipe:.2f}")
+    print(f"  (d) sources, rho and S_i  {t_two:8.3f} s  {mb / t_two:8.0f} MB/s of input")
+    print(f"  ratio (c)/(a) = {t_read / t_pipe:.2f}   (c)/(b) = {t_copy / t_pipe:.2f}   "
+          f"(d)/(a) = {t_read / t_two:.2f}")
     print(f"  peak NumPy/Python memory during (c) (tracemalloc): {traced_peak / 2**20:.1f} MiB "
           f"(limit {args.memory_limit:g} MiB)")
     print(f"  peak RSS of a child running 'emsource sources': {rss / 2**20:.0f} MiB; the same on "

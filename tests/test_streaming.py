@@ -137,3 +137,19 @@ def test_existing_output_needs_force(tmp_path, rng):
     assert out.read_bytes() == first
     compute_sources(path, out, force=True, compression="gzip")
     assert io.read_level(out)["energy_density"].shape == (9, 8, 7)
+
+
+def test_chosen_outputs_only(tmp_path, rng):
+    path = tmp_path / "snap.h5"
+    levels = curved_levels(rng)
+    io.write_snapshot(path, levels)
+    out = tmp_path / "out.h5"
+    compute_sources(path, out, outputs=("momentum_density", "energy_density"), rows=3)
+    back = io.read_level(out, 1)
+    assert {"energy_density", "momentum_density"} <= set(back) and "spatial_stress" not in back
+    ref = emsource.adm_sources(levels[1]["spatial_metric"], levels[1]["electric_field"],
+                               levels[1]["magnetic_field"])
+    assert np.array_equal(back["momentum_density"], ref.S_i)
+    with pytest.raises(ValueError, match="outputs must be some of"):
+        compute_sources(path, tmp_path / "x.h5", outputs=("pressure",))
+    assert not (tmp_path / "x.h5").exists()

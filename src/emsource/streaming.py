@@ -148,7 +148,7 @@ class SourcesReport:
 
 def compute_sources(input_file, output_file, *, mapping=None, memory_limit=DEFAULT_MEMORY_LIMIT,
                     rows=None, force=False, compression=None, levels=None, check=True,
-                    progress=False) -> SourcesReport:
+                    outputs=SOURCE_OUTPUTS, progress=False) -> SourcesReport:
     """Energy density, momentum density, stress and trace for every level of a snapshot file.
 
     Parameters
@@ -171,6 +171,10 @@ def compute_sources(input_file, output_file, *, mapping=None, memory_limit=DEFAU
         Indices of the time levels to process (default: all).
     check : bool
         Passed to :func:`emsource.adm_sources` (point checks of every input value).
+    outputs : sequence of str
+        Which of energy_density, momentum_density, spatial_stress, stress_trace to write
+        (default all). Writing is most of the cost: energy and momentum density alone are
+        4 of the 11 values per point.
     progress : bool
         Show a tqdm bar on stderr.
 
@@ -186,6 +190,10 @@ def compute_sources(input_file, output_file, *, mapping=None, memory_limit=DEFAU
         The output exists without ``force`` or cannot be written.
     """
     began = _time.perf_counter()
+    unknown = sorted(set(outputs) - set(SOURCE_OUTPUTS))
+    if unknown or not outputs:
+        raise ValueError(f"outputs must be some of {', '.join(SOURCE_OUTPUTS)}; found {list(outputs)}")
+    outputs = tuple(q for q in SOURCE_OUTPUTS if q in set(outputs))
     report = SourcesReport(os.fspath(input_file), os.path.abspath(os.fspath(output_file)))
     with open_snapshot(input_file, mapping) as snap:
         chosen = _choose_levels(snap.levels, levels)
@@ -207,6 +215,7 @@ def compute_sources(input_file, output_file, *, mapping=None, memory_limit=DEFAU
         datasets_read = []
         options = {"memory_limit_bytes": int(memory_limit), "rows_per_slab": int(plans[0][2]),
                    "compression": compression or "none", "check": bool(check),
+                   "outputs": list(outputs),
                    "levels": [lv.label for lv, _, _ in plans]}
         for level, _, _ in plans:
             for q in SOURCE_INPUTS:
@@ -222,7 +231,8 @@ def compute_sources(input_file, output_file, *, mapping=None, memory_limit=DEFAU
                         input_file, datasets_read, options, snap.mapping_path))
                     group = out.create_group(LEVELS_GROUP)
                     for level, dtype, n in plans:
-                        _level_sources(level, dtype, n, group, compression, check, report, bar)
+                        _level_sources(level, dtype, n, group, compression, check, outputs,
+                                       report, bar)
                         report.times.append(level.time)
                 report.planned_bytes = max(
                     (values_per_point(SOURCE_INPUTS + SOURCE_OUTPUTS) * dt.itemsize * n
@@ -246,7 +256,7 @@ def _choose_levels(all_levels, wanted):
     return chosen
 
 
-def _level_sources(level, dtype, rows, group, compression, check, report, bar):
+def _level_sources(level, dtype, rows, group, compression, check, written, report, bar):
     g = group.create_group(level.label)
     write_level_attributes(g, time=level.time, grid=level.grid, units=level.units,
                            axis_order=level.axis_order)
@@ -256,7 +266,7 @@ def _level_sources(level, dtype, rows, group, compression, check, report, bar):
     chunk_rows = min(chunk_shape(stored, dtype.itemsize)[0], rows)
     rows = max(chunk_rows, rows // chunk_rows * chunk_rows)
     datasets = {}
-    for q in SOURCE_OUTPUTS:
+    for q in written:
         ncomp = QUANTITIES[q]
         shape = ((ncomp,) if ncomp else ()) + stored
         chunks = ((1,) if ncomp else ()) + (chunk_rows,) + stored[1:]
@@ -280,6 +290,8 @@ def _level_sources(level, dtype, rows, group, compression, check, report, bar):
         except GridPointError as error:
             raise slab_error(error, level, start, stop) from None
         for q, a in zip(SOURCE_OUTPUTS, out_stored):
+            if q not in datasets:
+                continue
             if a.ndim == 4:
                 datasets[q][:, start:stop] = a
             else:

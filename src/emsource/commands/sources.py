@@ -20,6 +20,10 @@ def register(subparsers):
     parser.add_argument("-o", "--output", required=True, help="output HDF5 file")
     parser.add_argument("--force", action="store_true", help="replace an existing output")
     parser.add_argument("--compress", action="store_true", help="gzip-compress the output datasets")
+    parser.add_argument("--outputs", metavar="NAME", nargs="+",
+                        choices=("energy_density", "momentum_density", "spatial_stress", "stress_trace"),
+                        default=["energy_density", "momentum_density", "spatial_stress", "stress_trace"],
+                        help="datasets to write (default all four); writing dominates the time")
     parser.add_argument("--no-check", action="store_true",
                         help="skip the point checks (finite values, positive-definite metric)")
     parser.set_defaults(run=lambda args: run_guarded(_run, args))
@@ -31,7 +35,7 @@ def _run(args) -> int:
     report = compute_sources(
         args.snapshot, args.output, mapping=args.mapping, memory_limit=args.memory_limit,
         force=args.force, compression="gzip" if args.compress else None, levels=args.levels,
-        check=not args.no_check, progress=show_progress(args))
+        check=not args.no_check, outputs=args.outputs, progress=show_progress(args))
     if not args.quiet:
         print(summary(report, args))
     return EXIT_OK
@@ -46,7 +50,8 @@ def summary(report, args) -> str:
         "emsource sources: done",
         f"  input           {report.input_file}"
         + (f"  (mapping {args.mapping})" if args.mapping else "  (native layout)"),
-        f"  output          {report.output_file}  ({size_text(report.bytes_written)})",
+        f"  output          {report.output_file}  ({size_text(report.bytes_written)}: "
+        f"{', '.join(args.outputs)})",
         f"  time levels     {report.levels}  (t = {min(times):g} ... {max(times):g})",
         f"  grid            {nx} x {ny} x {nz} points, {report.axis_order} storage, "
         f"{report.dtype}, {report.units} units",
