@@ -463,8 +463,11 @@ def read_level(path, index: int = 0, mapping=None) -> dict:
 def atomic_output(path, *, force: bool = False):
     """Yield a temporary path beside ``path``; rename it to ``path`` only on success.
 
-    The temporary file is removed on any exception, including KeyboardInterrupt, so an output
-    is complete or absent. An existing ``path`` is replaced only with ``force``.
+    The temporary file (``.<name>.<random>.partial`` in the same directory, so that the rename
+    is atomic) is removed on any exception, including KeyboardInterrupt, so an output is
+    complete or absent. Only a process killed outright (SIGKILL, power loss) can leave such a
+    hidden ``.partial`` file behind, never a half-written ``path``. An existing ``path`` is
+    replaced only with ``force``.
 
     Raises
     ------
