@@ -112,15 +112,15 @@ def summary(args, results, scale, description, units, grid, count, outputs) -> s
     if scale is not None:
         lines.append(f"  physical units for M = {scale.mass_solar:g} M_sun (length unit "
                      f"{scale.length_cm:.4g} cm, time unit {scale.time_s:.4g} s), last level:")
-        lines.append(f"    energy           {last.energy * scale.energy_erg:.4g} erg = "
+        lines.append(f"    {'energy':<17}{last.energy * scale.energy_erg:.4g} erg = "
                      f"{last.energy * scale.energy_J:.4g} J")
         for radius in radii:
             value = last.luminosity[radius]
-            lines.append(f"    L(r={radius:g})          {value * scale.luminosity_erg_s:.4g} erg/s = "
+            lines.append(f"    {'L(r=' + format(radius, 'g') + ')':<17}{value * scale.luminosity_erg_s:.4g} erg/s = "
                          f"{value * scale.luminosity_W:.4g} W   (r = {radius * scale.length_cm:.4g} cm)")
-        lines.append(f"    max |B|          {last.max_magnetic_field * scale.magnetic_field_G:.4g} G "
+        lines.append(f"    {'max |B|':<17}{last.max_magnetic_field * scale.magnetic_field_G:.4g} G "
                      f"= {last.max_magnetic_field * scale.magnetic_field_T:.4g} T")
-        lines.append(f"    max |E|          {last.max_electric_field * scale.electric_field_statV_cm:.4g}"
+        lines.append(f"    {'max |E|':<17}{last.max_electric_field * scale.electric_field_statV_cm:.4g}"
                      f" statV/cm = {last.max_electric_field * scale.electric_field_V_m:.4g} V/m")
     else:
         lines.append("  (give --mass MSUN for cgs and SI values)")
