@@ -47,6 +47,7 @@ def test_summary_csv_hdf5_and_plot(dipole, tmp_path, capsys):
         float(rows[1]["luminosity_r2.5"]) * 3.628e59, rel=1e-3)  # c^5/G in erg/s, from memory
     with h5py.File(h5_path, "r") as f:
         assert f.attrs["mass_scale_solar"] == 1.4
+        assert "/time_levels/1/magnetic_field" in f.attrs["input_datasets"]
         assert list(f["energy"][:]) == [float(r["energy"]) for r in rows]
     assert png.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
 

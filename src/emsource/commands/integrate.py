@@ -60,6 +60,11 @@ def _run(args) -> int:
         units = snap.levels[0].units
         grid = snap.levels[0].grid
         count = len(snap.levels)
+        chosen = snap.levels if args.levels is None else [
+            snap.levels[i] for i in args.levels if -count <= i < count]
+        used = [path for level in chosen
+                for q in ("spatial_metric", "electric_field", "magnetic_field", "lapse", "shift",
+                          "valid_mask") if level.has(q) for path in level.dataset_paths(q)]
     results = integrate_snapshot(
         args.snapshot, mapping=args.mapping, radii=args.radius, n_theta=args.angular_points,
         interpolation_points=args.interpolation_points, memory_limit=args.memory_limit,
@@ -69,7 +74,7 @@ def _run(args) -> int:
     options = {"radii": args.radius, "angular_points": args.angular_points,
                "interpolation_points": args.interpolation_points, "mass_solar": args.mass,
                "memory_limit_bytes": args.memory_limit, "levels": [r.label for r in results]}
-    attributes = provenance_attributes(args.snapshot, [], options, args.mapping)
+    attributes = provenance_attributes(args.snapshot, used, options, args.mapping)
     attributes["mass_scale_solar"] = float(args.mass or 0.0)
     attributes["units"] = units
     if args.csv:
