@@ -204,6 +204,11 @@ def _metric_like(function, name, value, grid):
     )
 
 
+def _common_dtype(function, named: dict):
+    """The one dtype of all ``named`` arrays (mixed dtypes are an error, nothing is cast)."""
+    return arg.common_dtype(function, tuple(named), tuple(named.values()))
+
+
 def _field(level, name):
     if isinstance(level, dict):
         return level[name]
@@ -239,7 +244,7 @@ def _prepare(function, alpha, beta, gamma, K, E, B, charge_density, current_dens
         named["charge_density"] = arg.scalar(function, "charge_density", charge_density, grid)
         named["current_density"] = arg.vector(function, "current_density", current_density, grid,
                                               "component_first")
-    dtype = arg.common_dtype(function, named)
+    dtype = _common_dtype(function, named)
     if "charge_density" not in named:
         named["charge_density"] = np.zeros(grid, dtype)
         named["current_density"] = np.zeros((3,) + grid, dtype)
@@ -294,19 +299,39 @@ def _norms(r, s, inner, component_axis):
     return ResidualNorms(l2, mx, nl2, nmx)
 
 
-def _raise_non_finite(function, residual, inner, grid, named_inputs):
-    """Name the first interior point whose residual is not finite, and the inputs there."""
+def _raise_non_finite(function, residual, inner, grid, named_inputs, metric=None, gidx=()):
+    """Name the first non-finite input value (argument and grid index), else the first
+    interior point whose residual is not finite. Runs only on this error path."""
     bad = ~np.isfinite(residual[(slice(None),) + inner]).all(axis=0)
     count = int(bad.sum())
+    for name, a in named_inputs.items():
+        if a is None:
+            continue
+        a = np.asarray(a)
+        finite = np.isfinite(a.reshape((-1,) + grid)).all(axis=0)
+        if not finite.all():
+            index = tuple(int(i) for i in np.unravel_index(int(np.argmin(finite)), grid))
+            raise ValueError(
+                f"{function}: the residual is not finite at {count} interior grid points: "
+                f"{name} is not finite at grid index {index}"
+            )
+    if metric is not None:
+        g = [metric[c].reshape(grid) for c in gidx]
+        minor = g[0] * g[3] - g[1] * g[1]
+        det = g[0] * (g[3] * g[5] - g[4] ** 2) + g[1] * (g[2] * g[4] - g[1] * g[5]) + g[2] * (
+            g[1] * g[4] - g[2] * g[3])
+        positive = (g[0] > 0) & (minor > 0) & (det > 0)  # Sylvester's criterion
+        if not positive.all():
+            index = tuple(int(i) for i in np.unravel_index(int(np.argmin(positive)), grid))
+            raise ValueError(
+                f"{function}: the residual is not finite at {count} interior grid points: "
+                f"gamma is not positive definite at grid index {index}"
+            )
     first_local = np.unravel_index(int(np.argmax(bad)), bad.shape)
     index = tuple(int(i + s.start) for i, s in zip(first_local, inner))
-    suspects = [name for name, a in named_inputs.items()
-                if a is not None and not np.all(np.isfinite(a[(Ellipsis,) + index]))]
-    reason = ("non-finite input at this point: " + ", ".join(suspects)) if suspects else (
-        "non-finite input within the stencil, or a metric that is not positive definite")
     raise ValueError(
         f"{function}: the residual is not finite at {count} interior grid points; the first is "
-        f"grid index {index} ({reason})"
+        f"grid index {index} (is the metric positive definite there and in its stencil?)"
     )
 
 
@@ -399,7 +424,7 @@ def conservation_residual(alpha, beta, gamma, K, E, B, *, spacing, order=4, unit
         de = _padded(arg.vector(function, "dt_E", dt_E, p.grid, "component_first"), 1, p.grid)
         db = _padded(arg.vector(function, "dt_B", dt_B, p.grid, "component_first"), 1, p.grid)
         dg, dgidx = _metric_like(function, "dt_gamma", dt_gamma, p.grid)
-        arg.common_dtype(function, {"E": E, "dt_E": dt_E, "dt_B": dt_B, "dt_gamma": dt_gamma})
+        _common_dtype(function, {"E": E, "dt_E": dt_E, "dt_B": dt_B, "dt_gamma": dt_gamma})
         rates = (_padded(dg, 1, p.grid), np.array(dgidx, np.int64), de, db,
                  v["gamma"], p.gidx, v["E"], v["B"])
         inv_2dt = 0.0
@@ -413,7 +438,7 @@ def conservation_residual(alpha, beta, gamma, K, E, B, *, spacing, order=4, unit
             g_l, gidx_l = _metric_like(function, f"{which}.gamma", _field(level, "gamma"), p.grid)
             e_l = arg.vector(function, f"{which}.E", _field(level, "E"), p.grid, "component_first")
             b_l = arg.vector(function, f"{which}.B", _field(level, "B"), p.grid, "component_first")
-            arg.common_dtype(function, {"E": E, f"{which}.gamma": g_l, f"{which}.E": e_l,
+            _common_dtype(function, {"E": E, f"{which}.gamma": g_l, f"{which}.E": e_l,
                                         f"{which}.B": b_l})
             level_views += [_padded(g_l, 1, p.grid), np.array(gidx_l, np.int64),
                             _padded(e_l, 1, p.grid), _padded(b_l, 1, p.grid)]
@@ -429,7 +454,8 @@ def conservation_residual(alpha, beta, gamma, K, E, B, *, spacing, order=4, unit
         _raise_non_finite(function, residual, inner, p.grid,
                           {"alpha": alpha, "beta": beta, "gamma": gamma, "K": K, "E": E, "B": B,
                            "charge_density": charge_density, "current_density": current_density,
-                           "dt_E": dt_E, "dt_B": dt_B, "dt_gamma": dt_gamma})
+                           "dt_E": dt_E, "dt_B": dt_B, "dt_gamma": dt_gamma},
+                          v["gamma"], p.gidx)
     interior = np.zeros(p.grid, bool)
     interior[inner] = True
     return ConservationResidual(
