@@ -32,10 +32,10 @@ from __future__ import annotations
 
 import math
 
+import numpy as np
 from numba import prange
 
 from ._compile import grid_kernel, point_function
-from .stencils import d1
 
 
 @point_function
@@ -194,25 +194,111 @@ def fluxes_and_rates(alpha, beta, gamma, gidx, E, B, rate_mode,
 
 
 @point_function
+def _column_derivative(f, c, i, j, axis, radius, weights, inv_h, zero, out, row, k0, k1):
+    """out[row, k0:k1] = d f[c, i, j, k] / d x^axis for the column (i, j), or 0 if radius is 0.
+
+    The centred sum of :func:`emsource.kernels.stencils.d1` with its weights, written with the
+    stencil radius resolved outside the loop over k (one pass over contiguous k, which
+    vectorises), and the axis as an index offset instead of a branch, so that one call site in
+    a loop serves every axis and component.
+    """
+    if radius == 0:
+        for k in range(k0, k1):
+            out[row, k] = zero
+    else:
+        oi = 1 if axis == 0 else 0
+        oj = 1 if axis == 1 else 0
+        ok = 1 if axis == 2 else 0
+        w1 = weights[0] * inv_h
+        if radius == 1:
+            for k in range(k0, k1):
+                out[row, k] = w1 * (f[c, i + oi, j + oj, k + ok] - f[c, i - oi, j - oj, k - ok])
+        elif radius == 2:
+            w2 = weights[1] * inv_h
+            for k in range(k0, k1):
+                out[row, k] = (w1 * (f[c, i + oi, j + oj, k + ok] - f[c, i - oi, j - oj, k - ok])
+                               + w2 * (f[c, i + 2 * oi, j + 2 * oj, k + 2 * ok]
+                                       - f[c, i - 2 * oi, j - 2 * oj, k - 2 * ok]))
+        else:
+            w2 = weights[1] * inv_h
+            w3 = weights[2] * inv_h
+            for k in range(k0, k1):
+                out[row, k] = (w1 * (f[c, i + oi, j + oj, k + ok] - f[c, i - oi, j - oj, k - ok])
+                               + w2 * (f[c, i + 2 * oi, j + 2 * oj, k + 2 * ok]
+                                       - f[c, i - 2 * oi, j - 2 * oj, k - 2 * ok])
+                               + w3 * (f[c, i + 3 * oi, j + 3 * oj, k + 3 * ok]
+                                       - f[c, i - 3 * oi, j - 3 * oj, k - 3 * ok]))
+
+
+@point_function
 def _max3(a, b, c):
     m = a if a > b else b
     return m if m > c else c
 
 
+@point_function
+def _momentum_terms(q, sg, a, coef, half, energy2, rho, rho_e, e_low, lorentz_b, s_low, fields,
+                    inverse, dt_m, der, k):
+    """Residual, largest term and source of momentum equation q at point k of the column.
+
+    sg [(alpha/2) S^ik d_q gamma_ik + S_i d_q beta^i - rho d_q alpha
+        - alpha (rho_e E_q + epsilon_qkl j^k B^l)],
+    S^ik dg_ik = coef (-E^i E^k dg_ik - B^i B^k dg_ik + 1/2 (E^2 + B^2) gamma^ik dg_ik).
+    Derivatives come from the rows of ``der`` (see :func:`residuals`).
+    """
+    two = half * 4
+    ex, ey, ez, bx, by, bz = fields
+    ixx, ixy, ixz, iyy, iyz, izz = inverse
+    sx, sy, sz = s_low
+    g0 = 15 + 6 * q
+    hxx = der[g0, k]
+    hxy = der[g0 + 1, k]
+    hxz = der[g0 + 2, k]
+    hyy = der[g0 + 3, k]
+    hyz = der[g0 + 4, k]
+    hzz = der[g0 + 5, k]
+    b0 = 33 + 3 * q
+    div_a = der[3 + q, k]
+    div_b = der[6 + q, k]
+    div_c = der[9 + q, k]
+    trace_h = ixx * hxx + iyy * hyy + izz * hzz + two * (ixy * hxy + ixz * hxz + iyz * hyz)
+    heb = (hxx * (ex * ex + bx * bx) + hyy * (ey * ey + by * by) + hzz * (ez * ez + bz * bz)
+           + two * (hxy * (ex * ey + bx * by) + hxz * (ex * ez + bx * bz) + hyz * (ey * ez + by * bz)))
+    metric_q = sg * half * a * coef * (half * energy2 * trace_h - heb)
+    shift_q = sg * (sx * der[b0, k] + sy * der[b0 + 1, k] + sz * der[b0 + 2, k])
+    lapse_q = -sg * rho * der[12 + q, k]
+    charge_q = -sg * a * rho_e * e_low
+    current_q = -sg * a * lorentz_b
+    src_q = metric_q + shift_q + lapse_q + charge_q + current_q
+    big = _max3(_max3(abs(dt_m), abs(div_a), abs(div_b)),
+                _max3(abs(div_c), abs(metric_q), abs(shift_q)),
+                _max3(abs(lapse_q), abs(charge_q), abs(current_q)))
+    return dt_m + (div_a + div_b + div_c) - src_q, big, src_q
+
+
 @grid_kernel
 def residuals(alpha, beta, gamma, gidx, K, kidx, E, B, charge, current, work,
               weights, inv_hx, inv_hy, inv_hz, rx, ry, rz, coef, half,
-              residual, scale, sources, write_sources):
+              residual, scale, sources, write_sources, partials):
     """Residuals of the energy (component 0) and momentum (1..3) equations.
+
+    ``partials`` (nx * ny, 16) receives per grid column the sums of squares of the residuals
+    (0..3) and of the scales (4..7) and the largest |residual| (8..11) and scale (12..15) over
+    the column's interior points, so that norms need no whole-grid temporaries (a max
+    reduction across prange would be slow: measured in the source kernels). NaN residuals make
+    the sums NaN and are skipped by the maxima.
 
     ``residual`` and ``scale`` are (4, nx, ny, nz); points within ``rx``, ``ry``, ``rz`` of a face
     get NaN. ``scale`` is the largest absolute value among the terms of each equation at the
     point (time term, each d_i of the flux, each source term). With ``write_sources`` the right-
     hand sides are written to ``sources`` (4, nx, ny, nz) too (else ``sources`` is not touched).
 
-    Each stencil is one call site of :func:`stencils.d1` inside a loop over axes and components
-    (not one call per derivative): Numba inlines at the IR level, and 24 inlined copies took
-    over a minute to compile (measured), a few copies take seconds.
+    Per grid column (i, j) the 42 first derivatives the equations need are first written into a
+    small (42, nz) buffer (it stays in cache; no whole-grid temporary), one call site of
+    :func:`_column_derivative` per kind of derivative: Numba inlines at the IR level, and one
+    inlined stencil per derivative (42 copies) took over a minute to compile (measured). Rows:
+    0..2 d_a F^a, 3 + 3a + q d_a M^a_q, 12 + q d_q alpha, 15 + 6q + c d_q gamma_c,
+    33 + 3q + c d_q beta^c.
     """
     nx = alpha.shape[1]
     ny = alpha.shape[2]
@@ -223,19 +309,58 @@ def residuals(alpha, beta, gamma, gidx, K, kidx, E, B, charge, current, work,
     nan = zero / zero
     radius = (rx, ry, rz)
     inv_hs = (inv_hx, inv_hy, inv_hz)
+    k0 = rz
+    k1 = nz - rz
     for column in prange(nx * ny):
         i = column // ny
         j = column - i * ny
         edge = (i < rx) | (i >= nx - rx) | (j < ry) | (j >= ny - ry)
-        for k in range(nz):
-            if edge | (k < rz) | (k >= nz - rz):
-                for c in range(4):
+        for c in range(4):
+            for k in range(nz):
+                if edge | (k < k0) | (k >= k1):
                     residual[c, i, j, k] = nan
                     scale[c, i, j, k] = nan
                     if write_sources:
                         sources[c, i, j, k] = nan
-                continue
-            # Point values.
+        for c in range(16):
+            partials[column, c] = zero
+        if edge:
+            continue
+        q0 = zero
+        q1 = zero
+        q2 = zero
+        q3 = zero
+        p0 = zero
+        p1 = zero
+        p2 = zero
+        p3 = zero
+        m0 = zero
+        m1 = zero
+        m2 = zero
+        m3 = zero
+        n0 = zero
+        n1 = zero
+        n2 = zero
+        n3 = zero
+        der = np.empty((42, nz), dtype=work.dtype)
+        for a in range(3):
+            _column_derivative(work, a, i, j, a, radius[a], weights, inv_hs[a], zero, der, a, k0, k1)
+        for a in range(3):
+            for q in range(3):
+                _column_derivative(work, 3 + 3 * a + q, i, j, a, radius[a], weights, inv_hs[a],
+                                   zero, der, 3 + 3 * a + q, k0, k1)
+        for q in range(3):
+            _column_derivative(alpha, 0, i, j, q, radius[q], weights, inv_hs[q], zero, der,
+                               12 + q, k0, k1)
+        for q in range(3):
+            for c in range(6):
+                _column_derivative(gamma, gidx[c], i, j, q, radius[q], weights, inv_hs[q], zero,
+                                   der, 15 + 6 * q + c, k0, k1)
+        for q in range(3):
+            for c in range(3):
+                _column_derivative(beta, c, i, j, q, radius[q], weights, inv_hs[q], zero, der,
+                                   33 + 3 * q + c, k0, k1)
+        for k in range(k0, k1):
             gxx = gamma[gidx[0], i, j, k]
             gxy = gamma[gidx[1], i, j, k]
             gxz = gamma[gidx[2], i, j, k]
@@ -267,23 +392,7 @@ def residuals(alpha, beta, gamma, gidx, K, kidx, E, B, charge, current, work,
             jy = current[1, i, j, k]
             jz = current[2, i, j, k]
             rho_e = charge[0, i, j, k]
-            # Per component of the momentum equation q: coefficients in homogeneous tuples, so
-            # that one stencil call site serves every component.
-            e_low = (exl, eyl, ezl)
-            s_low = (sx, sy, sz)
-            # epsilon_qkl j^k B^l = sg [qkl] j^k B^l.
-            lorentz_b = (sg * (jy * bz - jz * by), sg * (jz * bx - jx * bz), sg * (jx * by - jy * bx))
-            # S^ik d gamma_ik = coef (-E^i E^k dg_ik - B^i B^k dg_ik + 1/2 (E^2 + B^2) gamma^ik dg_ik),
-            # summed over packed components with the off-diagonal ones counted twice.
-            packed_weight = (sg * half * a * coef * (half * energy2 * ixx - (ex * ex + bx * bx)),
-                             sg * half * a * coef * (energy2 * ixy - two * (ex * ey + bx * by)),
-                             sg * half * a * coef * (energy2 * ixz - two * (ex * ez + bx * bz)),
-                             sg * half * a * coef * (half * energy2 * iyy - (ey * ey + by * by)),
-                             sg * half * a * coef * (energy2 * iyz - two * (ey * ez + by * bz)),
-                             sg * half * a * coef * (half * energy2 * izz - (ez * ez + bz * bz)))
-            u_up = (ux, uy, uz)
-            # Energy equation: time term, d_i F^i, and sources
-            # sg [alpha K_ij S^ij - S^i d_i alpha - alpha j^i E_i], with
+            # Energy: sg [alpha K_ij S^ij - S^i d_i alpha - alpha j^i E_i], with
             # K_ij S^ij = coef (-K_ij E^i E^j - K_ij B^i B^j + 1/2 K (E^2 + B^2)).
             kxx = K[kidx[0], i, j, k]
             kxy = K[kidx[1], i, j, k]
@@ -297,53 +406,74 @@ def residuals(alpha, beta, gamma, gidx, K, kidx, E, B, charge, current, work,
             kbb = (kxx * bx * bx + kyy * by * by + kzz * bz * bz
                    + two * (kxy * bx * by + kxz * bx * bz + kyz * by * bz))
             curvature = sg * a * coef * (half * trace_k * energy2 - kee - kbb)
+            da0 = der[12, k]
+            da1 = der[13, k]
+            da2 = der[14, k]
+            lapse_e = -sg * (ux * da0 + uy * da1 + uz * da2)
             work_e = -sg * a * (jx * exl + jy * eyl + jz * ezl)
             dt_e = work[12, i, j, k]
-            div_e = zero
-            lapse_e = zero
-            big_e = _max3(abs(dt_e), abs(curvature), abs(work_e))
-            for axis in range(3):
-                if radius[axis] == 0:
-                    continue
-                term = d1(work, axis, i, j, k, axis, weights, inv_hs[axis])
-                div_e += term
-                big_e = big_e if big_e > abs(term) else abs(term)
-                lapse_e -= sg * u_up[axis] * d1(alpha, 0, i, j, k, axis, weights, inv_hs[axis])
-            big_e = big_e if big_e > abs(lapse_e) else abs(lapse_e)
+            fe0 = der[0, k]
+            fe1 = der[1, k]
+            fe2 = der[2, k]
             src_e = curvature + lapse_e + work_e
-            residual[0, i, j, k] = dt_e + div_e - src_e
-            scale[0, i, j, k] = big_e
+            r0 = dt_e + (fe0 + fe1 + fe2) - src_e
+            s0 = _max3(_max3(abs(dt_e), abs(fe0), abs(fe1)),
+                       _max3(abs(fe2), abs(curvature), abs(lapse_e)), abs(work_e))
+            residual[0, i, j, k] = r0
+            scale[0, i, j, k] = s0
+            # Momentum: epsilon_qkl j^k B^l = sg [qkl] j^k B^l.
+            fields = (ex, ey, ez, bx, by, bz)
+            inverse = (ixx, ixy, ixz, iyy, iyz, izz)
+            s_low = (sx, sy, sz)
+            r1, s1, src1 = _momentum_terms(0, sg, a, coef, half, energy2, rho, rho_e, exl,
+                                           sg * (jy * bz - jz * by), s_low, fields, inverse,
+                                           work[13, i, j, k], der, k)
+            r2, s2, src2 = _momentum_terms(1, sg, a, coef, half, energy2, rho, rho_e, eyl,
+                                           sg * (jz * bx - jx * bz), s_low, fields, inverse,
+                                           work[14, i, j, k], der, k)
+            r3, s3, src3 = _momentum_terms(2, sg, a, coef, half, energy2, rho, rho_e, ezl,
+                                           sg * (jx * by - jy * bx), s_low, fields, inverse,
+                                           work[15, i, j, k], der, k)
+            residual[1, i, j, k] = r1
+            residual[2, i, j, k] = r2
+            residual[3, i, j, k] = r3
+            scale[1, i, j, k] = s1
+            scale[2, i, j, k] = s2
+            scale[3, i, j, k] = s3
             if write_sources:
                 sources[0, i, j, k] = src_e
-            # Momentum equation q: time term, d_i M^i_q, and sources
-            # sg [(alpha/2) S^ik d_q gamma_ik + S_i d_q beta^i - rho d_q alpha
-            #     - alpha (rho_e E_q + epsilon_qkl j^k B^l)].
-            for q in range(3):
-                dt_m = work[13 + q, i, j, k]
-                charge_q = -sg * a * rho_e * e_low[q]
-                current_q = -sg * a * lorentz_b[q]
-                big = _max3(abs(dt_m), abs(charge_q), abs(current_q))
-                div_m = zero
-                for axis in range(3):
-                    if radius[axis] == 0:
-                        continue
-                    term = d1(work, 3 + 3 * axis + q, i, j, k, axis, weights, inv_hs[axis])
-                    div_m += term
-                    big = big if big > abs(term) else abs(term)
-                metric_q = zero
-                shift_q = zero
-                lapse_q = zero
-                if radius[q] > 0:
-                    inv_h = inv_hs[q]
-                    for c in range(6):
-                        metric_q += packed_weight[c] * d1(gamma, gidx[c], i, j, k, q, weights, inv_h)
-                    for c in range(3):
-                        shift_q += s_low[c] * d1(beta, c, i, j, k, q, weights, inv_h)
-                    shift_q *= sg
-                    lapse_q = -sg * rho * d1(alpha, 0, i, j, k, q, weights, inv_h)
-                big = _max3(big, _max3(abs(metric_q), abs(shift_q), abs(lapse_q)), zero)
-                src_q = metric_q + shift_q + lapse_q + charge_q + current_q
-                residual[1 + q, i, j, k] = dt_m + div_m - src_q
-                scale[1 + q, i, j, k] = big
-                if write_sources:
-                    sources[1 + q, i, j, k] = src_q
+                sources[1, i, j, k] = src1
+                sources[2, i, j, k] = src2
+                sources[3, i, j, k] = src3
+            q0 += r0 * r0
+            q1 += r1 * r1
+            q2 += r2 * r2
+            q3 += r3 * r3
+            p0 += s0 * s0
+            p1 += s1 * s1
+            p2 += s2 * s2
+            p3 += s3 * s3
+            m0 = abs(r0) if abs(r0) > m0 else m0
+            m1 = abs(r1) if abs(r1) > m1 else m1
+            m2 = abs(r2) if abs(r2) > m2 else m2
+            m3 = abs(r3) if abs(r3) > m3 else m3
+            n0 = s0 if s0 > n0 else n0
+            n1 = s1 if s1 > n1 else n1
+            n2 = s2 if s2 > n2 else n2
+            n3 = s3 if s3 > n3 else n3
+        partials[column, 0] = q0
+        partials[column, 1] = q1
+        partials[column, 2] = q2
+        partials[column, 3] = q3
+        partials[column, 4] = p0
+        partials[column, 5] = p1
+        partials[column, 6] = p2
+        partials[column, 7] = p3
+        partials[column, 8] = m0
+        partials[column, 9] = m1
+        partials[column, 10] = m2
+        partials[column, 11] = m3
+        partials[column, 12] = n0
+        partials[column, 13] = n1
+        partials[column, 14] = n2
+        partials[column, 15] = n3

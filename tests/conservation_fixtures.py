@@ -117,7 +117,9 @@ def distorted_wave(grid, t, eps=0.04, k=K_OBLIQUE, pol=POL_Z):
     Jm = np.moveaxis(J, (0, 1), (-2, -1))
     Jinv = np.moveaxis(np.linalg.inv(Jm), (-2, -1), (0, 1))
     Ec, Bc, dEc, dBc = wave_fields(X, Y, Z, t, k, pol)
-    to_grid = lambda v: np.einsum("ia...,a...->i...", Jinv, v)  # noqa: E731
+    # C order, like a solver's arrays (einsum may return other strides, which would make the
+    # kernels compile a second, strided specialisation).
+    to_grid = lambda v: np.ascontiguousarray(np.einsum("ia...,a...->i...", Jinv, v))  # noqa: E731
     alpha = np.ones(grid.shape)
     beta = np.zeros((3,) + grid.shape)
     K = np.zeros((6,) + grid.shape)

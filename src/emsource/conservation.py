@@ -257,46 +257,65 @@ def _prepare(function, alpha, beta, gamma, K, E, B, charge_density, current_dens
                      radii, inv_h, stress_energy_prefactor(units))
 
 
-def _run_kernels(p: _Prepared, order, rate_mode, rate_arrays, inv_2dt, write_sources):
-    """The two kernel passes; returns (residual, scale, sources) as (4, *grid) arrays."""
+def _work_array(function, work, shape, dtype):
+    """The (16, *grid) scratch array: a fresh one, or the caller's ``work`` after checks."""
+    if work is None:
+        return np.empty(shape, dtype)
+    if not isinstance(work, np.ndarray) or work.shape != shape or work.dtype != dtype:
+        found = (f"shape {work.shape} and dtype {work.dtype}" if isinstance(work, np.ndarray)
+                 else type(work).__name__)
+        raise ValueError(f"{function}: work must be an ndarray of shape {shape} and dtype {dtype}, "
+                         f"found {found}")
+    if not work.flags.writeable:
+        raise ValueError(f"{function}: work is read-only")
+    return work
+
+
+def _run_kernels(p: _Prepared, order, rate_mode, rate_arrays, inv_2dt, write_sources, work=None,
+                 function="conservation_residual"):
+    """The two kernel passes; returns (residual, scale, sources, partials).
+
+    residual, scale, sources: (4, *grid); partials: per-column sums and maxima, see
+    :func:`emsource.kernels.conservation.residuals`.
+    """
     v = p.views
     dt = p.dtype.type
     padded_shape = v["alpha"].shape[1:]
-    work = np.empty((16,) + padded_shape, p.dtype)
+    work = _work_array(function, work, (16,) + p.grid, p.dtype)
+    work4 = work[(Ellipsis,) + (None,) * (3 - len(p.grid))]
     g_a, gidx_a, e_a, b_a, g_b, gidx_b, e_b, b_b = rate_arrays
     kernels.fluxes_and_rates(v["alpha"], v["beta"], v["gamma"], p.gidx, v["E"], v["B"], rate_mode,
                              g_a, gidx_a, e_a, b_a, g_b, gidx_b, e_b, b_b, dt(inv_2dt),
-                             dt(p.coef), dt(0.5), work)
+                             dt(p.coef), dt(0.5), work4)
     residual = np.empty((4,) + p.grid, p.dtype)
     scale = np.empty((4,) + p.grid, p.dtype)
     sources = np.empty((4,) + p.grid, p.dtype) if write_sources else residual
+    partials = np.empty((padded_shape[0] * padded_shape[1], 16), p.dtype)
     pad = (Ellipsis,) + (None,) * (3 - len(p.grid))
     rx, ry, rz = p.radii
     kernels.residuals(v["alpha"], v["beta"], v["gamma"], p.gidx, v["K"], p.kidx, v["E"], v["B"],
-                      v["charge_density"], v["current_density"], work,
+                      v["charge_density"], v["current_density"], work4,
                       first_derivative_weights(order, p.dtype),
                       dt(p.inv_h[0]), dt(p.inv_h[1]), dt(p.inv_h[2]), rx, ry, rz,
                       dt(p.coef), dt(0.5), residual[pad], scale[pad], sources[pad],
-                      bool(write_sources))
-    return residual, scale, (sources if write_sources else None)
+                      bool(write_sources), partials)
+    return residual, scale, (sources if write_sources else None), partials, work4
 
 
-def _norms(r, s, inner, component_axis):
-    """ResidualNorms of residual r and scale s (component first if ``component_axis``)."""
-    sl = (slice(None),) + inner if component_axis else inner
-    ri = r[sl]
-    si = s[sl]
-    axes = tuple(range(1, ri.ndim)) if component_axis else None
-    l2 = np.sqrt(np.mean(np.square(ri, dtype=np.float64), axis=axes))
-    mx = np.max(np.abs(ri), axis=axes).astype(np.float64)
-    sl2 = np.sqrt(np.mean(np.square(si, dtype=np.float64), axis=axes))
-    smx = np.max(si, axis=axes).astype(np.float64)
+def _norms_from_partials(partials, count):
+    """(energy, momentum) ResidualNorms from the kernel's per-column sums and maxima."""
+    sums = partials[:, :8].sum(axis=0, dtype=np.float64)
+    maxima = partials[:, 8:].max(axis=0).astype(np.float64)
+    l2 = np.sqrt(sums[:4] / count)
+    scale_l2 = np.sqrt(sums[4:] / count)
+    mx = maxima[:4]
+    scale_mx = maxima[4:]
     with np.errstate(invalid="ignore", divide="ignore"):
-        nl2 = np.where(sl2 > 0, l2 / sl2, 0.0)
-        nmx = np.where(smx > 0, mx / smx, 0.0)
-    if not component_axis:
-        return ResidualNorms(float(l2), float(mx), float(nl2), float(nmx))
-    return ResidualNorms(l2, mx, nl2, nmx)
+        nl2 = np.where(scale_l2 > 0, l2 / scale_l2, 0.0)
+        nmx = np.where(scale_mx > 0, mx / scale_mx, 0.0)
+    energy = ResidualNorms(float(l2[0]), float(mx[0]), float(nl2[0]), float(nmx[0]))
+    momentum = ResidualNorms(l2[1:], mx[1:], nl2[1:], nmx[1:])
+    return energy, momentum, bool(np.isfinite(sums[:4]).all())
 
 
 def _raise_non_finite(function, residual, inner, grid, named_inputs, metric=None, gidx=()):
@@ -341,7 +360,7 @@ def conservation_residual(alpha, beta, gamma, K, E, B, *, spacing, order=4, unit
                           charge_density=None, current_density=None,
                           dt_E=None, dt_B=None, dt_gamma=None,
                           before=None, after=None, time_step=None,
-                          check=True) -> ConservationResidual:
+                          check=True, work=None) -> ConservationResidual:
     r"""Pointwise residuals of the 3+1 energy and momentum equations, with norms.
 
     Evaluates left minus right side of the two equations in the module docstring at every
@@ -382,6 +401,9 @@ def conservation_residual(alpha, beta, gamma, K, E, B, *, spacing, order=4, unit
     check : bool
         Raise a ValueError naming the first interior grid index where the residual is not finite
         (non-finite input, or a metric that is not positive definite there).
+    work : (16, *grid) ndarray, optional
+        Scratch array in the inputs' dtype, reused between calls (an evolution loop then
+        allocates only the outputs); it holds the fluxes and time terms afterwards.
 
     Returns
     -------
@@ -448,9 +470,11 @@ def conservation_residual(alpha, beta, gamma, K, E, B, *, spacing, order=4, unit
     else:
         raise ValueError(f"{function}: time derivatives needed: give all of dt_E, dt_B, dt_gamma "
                          "(exact in time) or all of before, after, time_step (three levels)")
-    residual, scale, _ = _run_kernels(p, order, rate_mode, rates, inv_2dt, False)
+    residual, scale, _, partials, _ = _run_kernels(p, order, rate_mode, rates, inv_2dt, False, work)
     inner = _interior_slices(p.radii, p.grid)
-    if check and not np.isfinite(residual[(slice(None),) + inner]).all():
+    count = int(np.prod([s.stop - s.start for s in inner]))
+    energy_norms, momentum_norms, finite = _norms_from_partials(partials, count)
+    if check and not finite:
         _raise_non_finite(function, residual, inner, p.grid,
                           {"alpha": alpha, "beta": beta, "gamma": gamma, "K": K, "E": E, "B": B,
                            "charge_density": charge_density, "current_density": current_density,
@@ -461,8 +485,7 @@ def conservation_residual(alpha, beta, gamma, K, E, B, *, spacing, order=4, unit
     return ConservationResidual(
         energy=residual[0], momentum=residual[1:], energy_scale=scale[0], momentum_scale=scale[1:],
         interior=interior,
-        energy_norms=_norms(residual[0], scale[0], inner, False),
-        momentum_norms=_norms(residual[1:], scale[1:], inner, True),
+        energy_norms=energy_norms, momentum_norms=momentum_norms,
         order=order, radius=stencil_radius(order), time_derivatives=mode_name)
 
 
@@ -609,19 +632,8 @@ def global_balance(slices, *, order=4, spacing=None, units=None, include_charges
         v = p.views
         rates = (v["gamma"], p.gidx, v["E"], v["B"], v["gamma"], p.gidx, v["E"], v["B"])
         # Pass 1 in mode 0 leaves fluxes and densities in its work array; pass 2 the sources.
-        work = np.empty((16,) + v["alpha"].shape[1:], p.dtype)
-        dt = p.dtype.type
-        kernels.fluxes_and_rates(v["alpha"], v["beta"], v["gamma"], p.gidx, v["E"], v["B"], 0,
-                                 *rates, dt(0.0), dt(p.coef), dt(0.5), work)
-        residual = np.empty((4,) + work.shape[1:], p.dtype)
-        scale = np.empty_like(residual)
-        src = np.empty_like(residual)
-        rx, ry, rz = p.radii
-        kernels.residuals(v["alpha"], v["beta"], v["gamma"], p.gidx, v["K"], p.kidx, v["E"],
-                          v["B"], v["charge_density"], v["current_density"], work,
-                          first_derivative_weights(order, p.dtype),
-                          dt(p.inv_h[0]), dt(p.inv_h[1]), dt(p.inv_h[2]), rx, ry, rz,
-                          dt(p.coef), dt(0.5), residual, scale, src, True)
+        _, _, src, _, work = _run_kernels(p, order, 0, rates, 0.0, True, function=function)
+        src = src[(Ellipsis,) + (None,) * (3 - len(p.grid))]
         h = tuple(1.0 / x if x else 1.0 for x in p.inv_h)
         shape3 = work.shape[1:]
         lo = [r for r in p.radii]
