@@ -13,6 +13,13 @@ import numpy as np
 FULL_METRIC_INDEX = (0, 1, 2, 4, 5, 8)
 PACKED_METRIC_INDEX = (0, 1, 2, 3, 4, 5)
 
+
+def _owner(a: np.ndarray):
+    """The array that owns ``a``'s memory, or None when that is not a plain owning ndarray."""
+    owner = a if a.base is None else a.base
+    return owner if type(owner) is np.ndarray and owner.base is None else None
+
+
 LAYOUTS = ("component_first", "component_last")
 FIELD_INDICES = ("upper", "lower")
 FLOAT_DTYPES = (np.dtype(np.float32), np.dtype(np.float64))
@@ -122,24 +129,39 @@ def spatial_metric(function: str, value, grid, layout: str):
     )
 
 
-def output(function: str, argument: str, value, shape: tuple, dtype, layout: str, ncomp_axes: int,
-           inputs: tuple, input_names: tuple) -> np.ndarray:
-    """Check a caller-supplied output array and return its component-first view."""
-    if not isinstance(value, np.ndarray):
-        raise TypeError(f"{function}: out {argument} must be a NumPy array, found {type(value).__name__}")
-    if value.shape != shape or value.dtype != dtype:
-        raise ValueError(
-            f"{function}: out {argument} must have shape {shape} and dtype {dtype}, "
-            f"found shape {value.shape} and dtype {value.dtype}"
-        )
-    if not value.flags.writeable:
-        raise ValueError(f"{function}: out {argument} is read-only")
-    for name, a in zip(input_names, inputs):
-        if np.may_share_memory(value, a):
+def outputs(function: str, names: tuple, values: tuple, shapes: tuple, component_axes: tuple,
+            dtype, layout: str, input_names: tuple, inputs: tuple) -> list:
+    """Check caller-supplied output arrays and return their component-first views.
+
+    Each must be a writeable ndarray of the expected shape and dtype that shares no memory with
+    any input (inputs are never overwritten). This runs on every call of an evolution loop, so
+    the overlap test is cheap in the common case: arrays that own their memory, or views of
+    them, cannot overlap arrays with another owner. Anything else (views of one array, arrays
+    over foreign buffers) goes to ``np.may_share_memory``.
+    """
+    input_owners = [_owner(a) for a in inputs]
+    views = []
+    for name, value, shape, ncomp in zip(names, values, shapes, component_axes):
+        if not isinstance(value, np.ndarray):
+            raise TypeError(f"{function}: out {name} must be a NumPy array, found {type(value).__name__}")
+        if value.shape != shape or value.dtype != dtype:
             raise ValueError(
-                f"{function}: out {argument} overlaps input {name}; inputs are never overwritten"
+                f"{function}: out {name} must have shape {shape} and dtype {dtype}, "
+                f"found shape {value.shape} and dtype {value.dtype}"
             )
-    return value if ncomp_axes == 0 else component_first(value, ncomp_axes, layout)
+        if not value.flags.writeable:
+            raise ValueError(f"{function}: out {name} is read-only")
+        owner = _owner(value)
+        if owner is None or any(o is None or o is owner for o in input_owners):
+            for input_name, a in zip(input_names, inputs):
+                if np.may_share_memory(value, a):
+                    raise ValueError(
+                        f"{function}: out {name} overlaps input {input_name}; "
+                        "inputs are never overwritten"
+                    )
+        views.append(value if ncomp == 0 or layout == "component_first"
+                     else component_first(value, ncomp, layout))
+    return views
 
 
 def kernel_views(arrays, grid):
@@ -149,11 +171,17 @@ def kernel_views(arrays, grid):
     flat loop. Otherwise each becomes (ncomp, nx, ny, nz) with trailing length-1 axes added
     for 1D and 2D grids, for the strided loop. Either way no data are copied.
     """
-    if all(a.flags.c_contiguous for a in arrays):
+    contiguous = True
+    for a in arrays:
+        contiguous = contiguous and a.flags.c_contiguous
+    if contiguous:
+        if len(grid) == 1:
+            return arrays, True
         npoints = 1
         for n in grid:
             npoints *= n
-        return [a.reshape(a.shape[: a.ndim - len(grid)] + (npoints,)) for a in arrays], True
+        scalar, vector = (npoints,), (-1, npoints)
+        return [a.reshape(vector if a.ndim > len(grid) else scalar) for a in arrays], True
     pad = (Ellipsis,) + (None,) * (3 - len(grid))
     return [a[pad] for a in arrays], False
 
