@@ -105,3 +105,17 @@ def test_command_verdicts(registered_cases, capsys):
     assert main(["converge", "--list"]) == commands.EXIT_OK
     assert "fixture_wave" in capsys.readouterr().out
     assert main(["converge", "--no-plot"]) == commands.EXIT_BAD_INPUT
+
+
+def test_builtin_cases_run_from_the_command_line(tmp_path, capsys):
+    """The named cases on the package's exact data (emsource.exact; sources in its docstrings)."""
+    assert main(["converge", "--list"]) == commands.EXIT_OK
+    listed = capsys.readouterr().out
+    for name in ("plane_wave", "boosted_charge", "moving_frame", "gauge_wave"):
+        assert name in listed
+    plot = tmp_path / "gauge.png"
+    assert main(["converge", "--case", "gauge_wave", "--order", "4", "--plot", str(plot)]) == commands.EXIT_OK
+    out = capsys.readouterr().out
+    assert "design order 4" in out and "ok" in out and plot.exists()
+    assert main(["converge", "--case", "plane_wave", "--order", "2", "--time-levels",
+                 "--no-plot"]) == commands.EXIT_OK

@@ -79,6 +79,10 @@ class ResidualNorms(NamedTuple):
         l2 of the residual over l2 of the pointwise scale (the largest term of the equation).
     normalised_max : float or (3,) ndarray
         max of the residual over max of the scale.
+    scale_l2, scale_max : float or (3,) ndarray
+        RMS and largest value of the scale itself. Where these are at round-off level (an
+        equation whose every term vanishes, such as the z momentum of a wave in the x-y plane)
+        the normalised norms compare round-off with round-off and mean nothing.
 
     Energy norms are floats, momentum norms have one entry per component j.
     """
@@ -87,6 +91,8 @@ class ResidualNorms(NamedTuple):
     max: object
     normalised_l2: object
     normalised_max: object
+    scale_l2: object
+    scale_max: object
 
 
 @dataclass(frozen=True)
@@ -313,8 +319,9 @@ def _norms_from_partials(partials, count):
     with np.errstate(invalid="ignore", divide="ignore"):
         nl2 = np.where(scale_l2 > 0, l2 / scale_l2, 0.0)
         nmx = np.where(scale_mx > 0, mx / scale_mx, 0.0)
-    energy = ResidualNorms(float(l2[0]), float(mx[0]), float(nl2[0]), float(nmx[0]))
-    momentum = ResidualNorms(l2[1:], mx[1:], nl2[1:], nmx[1:])
+    energy = ResidualNorms(float(l2[0]), float(mx[0]), float(nl2[0]), float(nmx[0]),
+                           float(scale_l2[0]), float(scale_mx[0]))
+    momentum = ResidualNorms(l2[1:], mx[1:], nl2[1:], nmx[1:], scale_l2[1:], scale_mx[1:])
     return energy, momentum, bool(np.isfinite(sums[:4]).all())
 
 
