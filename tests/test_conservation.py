@@ -21,7 +21,8 @@ import pytest
 import emsource
 import conservation_fixtures as F
 from emsource import exact
-from emsource.conservation import (conservation_residual, global_balance, slice_residual)
+from emsource.conservation import (conservation_residual, global_balance, new_work_array,
+                                   slice_residual)
 from emsource.convergence import significant_normalised_l2
 from emsource.grid import UniformGrid
 from emsource.kernels.stencils import first_derivative_weights, stencil_radius
@@ -436,6 +437,21 @@ def test_boundary_is_marked_and_norms_are_over_the_interior():
     ratio = r.normalised_energy[r.interior]
     assert np.all(np.abs(ratio) <= 9) and np.all(np.isnan(r.normalised_energy[~r.interior]))
     assert r.momentum_norms.l2.shape == (3,)
+
+
+def test_work_array_is_reusable_and_checked():
+    """A caller's scratch array (padded or plain) gives the same residual as a fresh one."""
+    g = F.square_grid(16)
+    s = package_wave(g, 0.2)
+    fresh = slice_residual(s, order=4)
+    args = (s.alpha, s.beta, s.gamma, s.K, s.E, s.B)
+    rates = dict(dt_E=s.dt_E, dt_B=s.dt_B, dt_gamma=s.dt_gamma, spacing=g.spacing, order=4)
+    for work in (new_work_array(g.shape), np.zeros((16,) + g.shape)):
+        again = conservation_residual(*args, **rates, work=work)
+        np.testing.assert_array_equal(again.energy, fresh.energy)
+        np.testing.assert_array_equal(again.momentum, fresh.momentum)
+    with pytest.raises(ValueError, match=r"work must be an ndarray of shape \(16, 16, 16\)"):
+        conservation_residual(*args, **rates, work=np.zeros((16, 16, 15)))
 
 
 def test_an_axis_of_length_one_has_no_extent():
