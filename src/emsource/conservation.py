@@ -27,6 +27,11 @@ Derivation (ours, following the sources below). With :math:`\sqrt{-g} = \alpha\s
   :math:`\tfrac12 T^{cd}\partial_j g_{cd}` evaluates to the first three source terms divided by
   :math:`\alpha`, and :math:`F_{jc}J^c = \rho_e E_j + \epsilon_{jkl} j^k B^l`.
 
+The kernels evaluate rho, S_i, S^i_j and S^ij with the formulas of :func:`emsource.adm_sources`
+inside their own pass (calling it first would add eleven whole-grid temporaries and a pass);
+``tests/test_conservation.py`` checks the residual against a NumPy evaluation built on
+:func:`emsource.adm_sources` itself.
+
 No unit factor multiplies the Lorentz-force terms: in Gaussian units both Maxwell's
 :math:`\nabla_b F^{ab} = 4\pi J^a` and :math:`T^{ab}` carry the 4 pi, which cancels; in
 Heaviside-Lorentz units neither does. The charge density rho_e and current j^i are those
