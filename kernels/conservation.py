@@ -197,10 +197,11 @@ def fluxes_and_rates(alpha, beta, gamma, gidx, E, B, rate_mode,
 def _column_derivative(f, c, i, j, axis, radius, weights, inv_h, zero, out, row, k0, k1):
     """out[row, k0:k1] = d f[c, i, j, k] / d x^axis for the column (i, j), or 0 if radius is 0.
 
-    The centred sum of :func:`emsource.kernels.stencils.d1` with its weights, written with the
-    stencil radius resolved outside the loop over k (one pass over contiguous k, which
-    vectorises), and the axis as an index offset instead of a branch, so that one call site in
-    a loop serves every axis and component.
+    The centred sum of :func:`emsource.kernels.stencils.d1` with its weights
+    (:func:`~emsource.kernels.stencils.first_derivative_weights`), written with the stencil
+    radius resolved outside the loop over k (one pass over contiguous k) and the axis as an
+    index offset instead of d1's branches, so that one call site in a loop serves every axis and
+    component (d1 itself, inlined once per derivative, compiled for over a minute).
     """
     if radius == 0:
         for k in range(k0, k1):
