@@ -16,7 +16,8 @@ tests have something outside the code under test to converge to:
   exp(-r'^2/(2 sigma^2))] / r'^3; lab fields E_par = E'_par, E_perp = gamma_v E'_perp,
   B = v x E (Jackson sec. 11.10); lab charge density gamma_v rho'(r'), current rho_lab v.
   Exact time derivatives by the complex-step method (J. N. Lyness and C. B. Moler, SIAM J.
-  Numer. Anal. 4, 202 (1967)): d f/dt = Im f(t + i eps)/eps, exact to round-off for analytic f.
+  Numer. Anal. 4, 202 (1967), citation from memory): d f/dt = Im f(t + i eps)/eps, exact to
+  round-off for analytic f.
 
 All in Gaussian units; arrays component first, metric and K packed (xx, xy, xz, yy, yz, zz).
 """

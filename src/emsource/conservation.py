@@ -40,11 +40,13 @@ measured by the normal observer, in the unit system of the fields.
 References
 ----------
 E. Gourgoulhon, 3+1 Formalism in General Relativity, Lecture Notes in Physics 846 (2012),
-sec. 6 (energy and momentum conservation; eqs. for (d_t - L_beta) E and p_i) and sec. 3.4
-(nabla_a n_b in terms of K_ab and the lapse). T. W. Baumgarte and S. L. Shapiro, Numerical
-Relativity (2010), sec. 5.2 (3+1 sources) and the flux-conservative form of the conservation
-laws in their relativistic-hydrodynamics chapter. J. D. Jackson, Classical Electrodynamics,
-3rd ed. (1999), sec. 6.7-6.8 (Poynting's theorem and the Maxwell stress tensor, the flat limit).
+sec. 6 (energy and momentum conservation; the equations for (d_t - L_beta) E and p_i) and
+ch. 3 (nabla_a n_b in terms of K_ab and the lapse). T. W. Baumgarte and S. L. Shapiro,
+Numerical Relativity (2010), sec. 5.2 (3+1 sources) and the flux-conservative form of the
+conservation laws in their relativistic-hydrodynamics chapter. J. D. Jackson, Classical
+Electrodynamics, 3rd ed. (1999), sec. 6.7-6.8 (Poynting's theorem and the Maxwell stress
+tensor, the flat limit). Section numbers are from memory; the equations above were derived
+here as shown and are checked by the tests on exact solutions.
 """
 
 from __future__ import annotations
