@@ -1,8 +1,9 @@
 """Tests of emsource.convergence and the ``emsource converge`` command.
 
 Observed order p = log(e1/e2)/log(h1/h2) (common practice; P. J. Roache, Verification and
-Validation in Computational Science and Engineering (1998), ch. 5, from memory). Physics cases use the
-flat-space fixtures of ``conservation_fixtures.py`` (Jackson 1999, sec. 7.1).
+Validation in Computational Science and Engineering (1998), ch. 5, from memory). Physics
+cases use the flat-space fixtures of ``conservation_fixtures.py`` (Jackson 1999, sec. 7.1)
+and the package's exact data (``emsource.exact``).
 """
 
 from __future__ import annotations

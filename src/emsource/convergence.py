@@ -6,8 +6,9 @@ The observed order between two resolutions with spacings h1 > h2 and errors e1, 
 
 which tends to the design order p of a method with error C h^p (common practice; e.g.
 P. J. Roache, Verification and Validation in Computational Science and Engineering (1998),
-ch. 5, chapter from memory). An order means something only where the error is well above round-off, so every table
-also carries the residual relative to the largest term of the equation (``normalised``).
+ch. 5, chapter from memory). An order means something only where the error is well above
+round-off, so every table also carries the residual relative to the largest term of the
+equation (``normalised``).
 
 Two levels of use:
 
