@@ -164,7 +164,7 @@ def main(argv=None):
     # (b1) the two kernel passes with preallocated buffers.
     v = {k: (a[None] if a.ndim == 3 else a) for k, a in d.items()}
     gidx = np.arange(6, dtype=np.int64)
-    work = new_work_array((n, n, n))  # padded against cache-set conflicts, as the API does
+    work = new_work_array((n, n, n))  # the layout the public call uses
     residual = np.empty((4, n, n, n))
     scale = np.empty_like(residual)
     partials = np.empty((n * n, 16))

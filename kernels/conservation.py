@@ -36,6 +36,7 @@ import numpy as np
 from numba import prange
 
 from ._compile import grid_kernel, point_function
+from .stencils import d1_column
 
 
 @point_function
@@ -60,15 +61,18 @@ def _lower(gxx, gxy, gxz, gyy, gyz, gzz, vx, vy, vz):
 
 
 @point_function
-def _densities(g, gidx, e, b, i, j, k, coef, half):
-    """sg rho and sg S_j at one point of the level (g, e, b): the conserved densities."""
+def _densities(g, g0, g1, g2, g3, g4, g5, e, b, i, j, k, coef, half):
+    """sg rho and sg S_j at one point of the level (g, e, b): the conserved densities.
+
+    ``g0..g5`` are the six component indices of the metric (xx, xy, xz, yy, yz, zz) in ``g``.
+    """
     one = half + half
-    gxx = g[gidx[0], i, j, k]
-    gxy = g[gidx[1], i, j, k]
-    gxz = g[gidx[2], i, j, k]
-    gyy = g[gidx[3], i, j, k]
-    gyz = g[gidx[4], i, j, k]
-    gzz = g[gidx[5], i, j, k]
+    gxx = g[g0, i, j, k]
+    gxy = g[g1, i, j, k]
+    gxz = g[g2, i, j, k]
+    gyy = g[g3, i, j, k]
+    gyz = g[g4, i, j, k]
+    gzz = g[g5, i, j, k]
     _ixx, _ixy, _ixz, _iyy, _iyz, _izz, det = _inverse_metric(gxx, gxy, gxz, gyy, gyz, gzz, one)
     ex = e[0, i, j, k]
     ey = e[1, i, j, k]
@@ -92,23 +96,50 @@ def fluxes_and_rates(alpha, beta, gamma, gidx, E, B, rate_mode,
 
     ``rate_mode`` 0: densities; 1: (D(level b) - D(level a)) * inv_2dt with level a = t - dt,
     level b = t + dt; 2: d_t D from d_t gamma = g_a, d_t E = e_a, d_t B = b_a (level b unused).
+
+    Loop shape: per grid column, one loop over k writes the fluxes and the densities, and for
+    modes 1 and 2 a second loop overwrites rows 12..15 with the rates, recomputing the few point
+    values it needs from the column that the first loop has just brought into cache. Each loop
+    is branch-free, and with a C-ordered ``work`` they vectorise along z (LLVM's remarks and
+    the machine code show it; the earlier single loop with the mode branch inside, writing a
+    padded work array, ran scalar, 2x slower on 128^3). Component indices are read into
+    scalars before the loops.
     """
     nx = alpha.shape[1]
     ny = alpha.shape[2]
     nz = alpha.shape[3]
     one = half + half
     two = one + one
+    c0 = gidx[0]
+    c1 = gidx[1]
+    c2 = gidx[2]
+    c3 = gidx[3]
+    c4 = gidx[4]
+    c5 = gidx[5]
+    a0 = gidx_a[0]
+    a1 = gidx_a[1]
+    a2 = gidx_a[2]
+    a3 = gidx_a[3]
+    a4 = gidx_a[4]
+    a5 = gidx_a[5]
+    b0 = gidx_b[0]
+    b1 = gidx_b[1]
+    b2 = gidx_b[2]
+    b3 = gidx_b[3]
+    b4 = gidx_b[4]
+    b5 = gidx_b[5]
     for column in prange(nx * ny):
         i = column // ny
         j = column - i * ny
         for k in range(nz):
-            gxx = gamma[gidx[0], i, j, k]
-            gxy = gamma[gidx[1], i, j, k]
-            gxz = gamma[gidx[2], i, j, k]
-            gyy = gamma[gidx[3], i, j, k]
-            gyz = gamma[gidx[4], i, j, k]
-            gzz = gamma[gidx[5], i, j, k]
-            ixx, ixy, ixz, iyy, iyz, izz, det = _inverse_metric(gxx, gxy, gxz, gyy, gyz, gzz, one)
+            gxx = gamma[c0, i, j, k]
+            gxy = gamma[c1, i, j, k]
+            gxz = gamma[c2, i, j, k]
+            gyy = gamma[c3, i, j, k]
+            gyz = gamma[c4, i, j, k]
+            gzz = gamma[c5, i, j, k]
+            _ixx, _ixy, _ixz, _iyy, _iyz, _izz, det = _inverse_metric(gxx, gxy, gxz, gyy, gyz,
+                                                                      gzz, one)
             sg = math.sqrt(det)
             ex = E[0, i, j, k]
             ey = E[1, i, j, k]
@@ -131,42 +162,68 @@ def fluxes_and_rates(alpha, beta, gamma, gidx, E, B, rate_mode,
             uy = cinv * (ezl * bxl - exl * bzl)
             uz = cinv * (exl * byl - eyl * bxl)
             a = alpha[0, i, j, k]
-            b1 = beta[0, i, j, k]
-            b2 = beta[1, i, j, k]
-            b3 = beta[2, i, j, k]
-            work[0, i, j, k] = sg * (a * ux - b1 * rho)
-            work[1, i, j, k] = sg * (a * uy - b2 * rho)
-            work[2, i, j, k] = sg * (a * uz - b3 * rho)
+            s1 = beta[0, i, j, k]
+            s2 = beta[1, i, j, k]
+            s3 = beta[2, i, j, k]
+            work[0, i, j, k] = sg * (a * ux - s1 * rho)
+            work[1, i, j, k] = sg * (a * uy - s2 * rho)
+            work[2, i, j, k] = sg * (a * uz - s3 * rho)
             # S^i_j = coef (-E^i E_j - B^i B_j + 1/2 delta^i_j (E^2 + B^2)).
             asg = a * sg
-            work[3, i, j, k] = asg * coef * (pressure - ex * exl - bx * bxl) - sg * b1 * sx
-            work[4, i, j, k] = asg * coef * (-ex * eyl - bx * byl) - sg * b1 * sy
-            work[5, i, j, k] = asg * coef * (-ex * ezl - bx * bzl) - sg * b1 * sz
-            work[6, i, j, k] = asg * coef * (-ey * exl - by * bxl) - sg * b2 * sx
-            work[7, i, j, k] = asg * coef * (pressure - ey * eyl - by * byl) - sg * b2 * sy
-            work[8, i, j, k] = asg * coef * (-ey * ezl - by * bzl) - sg * b2 * sz
-            work[9, i, j, k] = asg * coef * (-ez * exl - bz * bxl) - sg * b3 * sx
-            work[10, i, j, k] = asg * coef * (-ez * eyl - bz * byl) - sg * b3 * sy
-            work[11, i, j, k] = asg * coef * (pressure - ez * ezl - bz * bzl) - sg * b3 * sz
-            if rate_mode == 0:
-                work[12, i, j, k] = sg * rho
-                work[13, i, j, k] = sg * sx
-                work[14, i, j, k] = sg * sy
-                work[15, i, j, k] = sg * sz
-            elif rate_mode == 1:
-                da0, da1, da2, da3 = _densities(g_a, gidx_a, e_a, b_a, i, j, k, coef, half)
-                db0, db1, db2, db3 = _densities(g_b, gidx_b, e_b, b_b, i, j, k, coef, half)
+            work[3, i, j, k] = asg * coef * (pressure - ex * exl - bx * bxl) - sg * s1 * sx
+            work[4, i, j, k] = asg * coef * (-ex * eyl - bx * byl) - sg * s1 * sy
+            work[5, i, j, k] = asg * coef * (-ex * ezl - bx * bzl) - sg * s1 * sz
+            work[6, i, j, k] = asg * coef * (-ey * exl - by * bxl) - sg * s2 * sx
+            work[7, i, j, k] = asg * coef * (pressure - ey * eyl - by * byl) - sg * s2 * sy
+            work[8, i, j, k] = asg * coef * (-ey * ezl - by * bzl) - sg * s2 * sz
+            work[9, i, j, k] = asg * coef * (-ez * exl - bz * bxl) - sg * s3 * sx
+            work[10, i, j, k] = asg * coef * (-ez * eyl - bz * byl) - sg * s3 * sy
+            work[11, i, j, k] = asg * coef * (pressure - ez * ezl - bz * bzl) - sg * s3 * sz
+            work[12, i, j, k] = sg * rho
+            work[13, i, j, k] = sg * sx
+            work[14, i, j, k] = sg * sy
+            work[15, i, j, k] = sg * sz
+        if rate_mode == 1:
+            for k in range(nz):
+                da0, da1, da2, da3 = _densities(g_a, a0, a1, a2, a3, a4, a5, e_a, b_a, i, j, k,
+                                                coef, half)
+                db0, db1, db2, db3 = _densities(g_b, b0, b1, b2, b3, b4, b5, e_b, b_b, i, j, k,
+                                                coef, half)
                 work[12, i, j, k] = (db0 - da0) * inv_2dt
                 work[13, i, j, k] = (db1 - da1) * inv_2dt
                 work[14, i, j, k] = (db2 - da2) * inv_2dt
                 work[15, i, j, k] = (db3 - da3) * inv_2dt
-            else:
-                hxx = g_a[gidx_a[0], i, j, k]
-                hxy = g_a[gidx_a[1], i, j, k]
-                hxz = g_a[gidx_a[2], i, j, k]
-                hyy = g_a[gidx_a[3], i, j, k]
-                hyz = g_a[gidx_a[4], i, j, k]
-                hzz = g_a[gidx_a[5], i, j, k]
+        elif rate_mode == 2:
+            for k in range(nz):
+                gxx = gamma[c0, i, j, k]
+                gxy = gamma[c1, i, j, k]
+                gxz = gamma[c2, i, j, k]
+                gyy = gamma[c3, i, j, k]
+                gyz = gamma[c4, i, j, k]
+                gzz = gamma[c5, i, j, k]
+                ixx, ixy, ixz, iyy, iyz, izz, det = _inverse_metric(gxx, gxy, gxz, gyy, gyz, gzz,
+                                                                    one)
+                sg = math.sqrt(det)
+                ex = E[0, i, j, k]
+                ey = E[1, i, j, k]
+                ez = E[2, i, j, k]
+                bx = B[0, i, j, k]
+                by = B[1, i, j, k]
+                bz = B[2, i, j, k]
+                exl, eyl, ezl = _lower(gxx, gxy, gxz, gyy, gyz, gzz, ex, ey, ez)
+                bxl, byl, bzl = _lower(gxx, gxy, gxz, gyy, gyz, gzz, bx, by, bz)
+                energy2 = ex * exl + ey * eyl + ez * ezl + bx * bxl + by * byl + bz * bzl
+                rho = coef * half * energy2
+                csg = coef * sg
+                sx = csg * (ey * bz - ez * by)
+                sy = csg * (ez * bx - ex * bz)
+                sz = csg * (ex * by - ey * bx)
+                hxx = g_a[a0, i, j, k]
+                hxy = g_a[a1, i, j, k]
+                hxz = g_a[a2, i, j, k]
+                hyy = g_a[a3, i, j, k]
+                hyz = g_a[a4, i, j, k]
+                hzz = g_a[a5, i, j, k]
                 fx = e_a[0, i, j, k]
                 fy = e_a[1, i, j, k]
                 fz = e_a[2, i, j, k]
@@ -194,44 +251,6 @@ def fluxes_and_rates(alpha, beta, gamma, gidx, E, B, rate_mode,
 
 
 @point_function
-def _column_derivative(f, c, i, j, axis, radius, weights, inv_h, zero, out, row, k0, k1):
-    """out[row, k0:k1] = d f[c, i, j, k] / d x^axis for the column (i, j), or 0 if radius is 0.
-
-    The centred sum of :func:`emsource.kernels.stencils.d1` with its weights
-    (:func:`~emsource.kernels.stencils.first_derivative_weights`), written with the stencil
-    radius resolved outside the loop over k (one pass over contiguous k) and the axis as an
-    index offset instead of d1's branches, so that one call site in a loop serves every axis and
-    component (d1 itself, inlined once per derivative, compiled for over a minute).
-    """
-    if radius == 0:
-        for k in range(k0, k1):
-            out[row, k] = zero
-    else:
-        oi = 1 if axis == 0 else 0
-        oj = 1 if axis == 1 else 0
-        ok = 1 if axis == 2 else 0
-        w1 = weights[0] * inv_h
-        if radius == 1:
-            for k in range(k0, k1):
-                out[row, k] = w1 * (f[c, i + oi, j + oj, k + ok] - f[c, i - oi, j - oj, k - ok])
-        elif radius == 2:
-            w2 = weights[1] * inv_h
-            for k in range(k0, k1):
-                out[row, k] = (w1 * (f[c, i + oi, j + oj, k + ok] - f[c, i - oi, j - oj, k - ok])
-                               + w2 * (f[c, i + 2 * oi, j + 2 * oj, k + 2 * ok]
-                                       - f[c, i - 2 * oi, j - 2 * oj, k - 2 * ok]))
-        else:
-            w2 = weights[1] * inv_h
-            w3 = weights[2] * inv_h
-            for k in range(k0, k1):
-                out[row, k] = (w1 * (f[c, i + oi, j + oj, k + ok] - f[c, i - oi, j - oj, k - ok])
-                               + w2 * (f[c, i + 2 * oi, j + 2 * oj, k + 2 * ok]
-                                       - f[c, i - 2 * oi, j - 2 * oj, k - 2 * ok])
-                               + w3 * (f[c, i + 3 * oi, j + 3 * oj, k + 3 * ok]
-                                       - f[c, i - 3 * oi, j - 3 * oj, k - 3 * ok]))
-
-
-@point_function
 def _max3(a, b, c):
     m = a if a > b else b
     return m if m > c else c
@@ -240,7 +259,7 @@ def _max3(a, b, c):
 @point_function
 def _momentum_terms(q, sg, a, coef, half, energy2, rho, rho_e, e_low, lorentz_b, s_low, fields,
                     inverse, dt_m, der, k):
-    """Residual, largest term and source of momentum equation q at point k of the column.
+    """Residual, largest term and source of momentum equation q at row k of ``der``.
 
     sg [(alpha/2) S^ik d_q gamma_ik + S_i d_q beta^i - rho d_q alpha
         - alpha (rho_e E_q + epsilon_qkl j^k B^l)],
@@ -277,6 +296,23 @@ def _momentum_terms(q, sg, a, coef, half, energy2, rho, rho_e, e_low, lorentz_b,
     return dt_m + (div_a + div_b + div_c) - src_q, big, src_q
 
 
+#: Points along z per strip of pass 2 (the row length of its per-column buffer). A literal, so
+#: that LLVM sees the buffer's row stride as a constant (see :func:`residuals`).
+_STRIP = 128
+
+#: Rows of the pass-2 buffer: 42 derivatives, 27 point values, 12 results.
+_ROWS = 81
+
+
+@point_function
+def _copy_column(f, c, i, j, k0, count, out, row):
+    """out[row, n] = f[c, i, j, k0 + n] for n = 0..count-1 (unsigned index: see d1_column)."""
+    u = np.uint64
+    base = u(k0)
+    for n in range(count):
+        out[row, n] = f[c, i, j, base + u(n)]
+
+
 @grid_kernel
 def residuals(alpha, beta, gamma, gidx, K, kidx, E, B, charge, current, work,
               weights, inv_hx, inv_hy, inv_hz, rx, ry, rz, coef, half,
@@ -294,13 +330,28 @@ def residuals(alpha, beta, gamma, gidx, K, kidx, E, B, charge, current, work,
     point (time term, each d_i of the flux, each source term). With ``write_sources`` the right-
     hand sides are written to ``sources`` (4, nx, ny, nz) too (else ``sources`` is not touched).
 
-    Per grid column (i, j) the 42 first derivatives the equations need are first written into a
-    small (42, nz) buffer (it stays in cache; no whole-grid temporary), one call site of
-    :func:`_column_derivative` per kind of derivative: Numba inlines at the IR level, and one
-    inlined stencil per derivative (42 copies) took over a minute to compile (measured). Rows:
-    0..2 d_a F^a, 3 + 3a + q d_a M^a_q, 12 + q d_q alpha, 15 + 6q + c d_q gamma_c,
-    33 + 3q + c d_q beta^c.
+    Each grid column (i, j) is done in strips of up to ``_STRIP`` interior points along z, with
+    one small (``_ROWS``, ``_STRIP``) buffer per column (it stays in cache; no whole-grid
+    temporary). Per strip:
+
+    1. the 42 first derivatives the equations need go to rows 0..41, one call site of
+       :func:`emsource.kernels.stencils.d1_column` per kind of derivative (Numba inlines at the
+       IR level: one inlined stencil per derivative, 42 copies, took over a minute to compile,
+       measured). Rows: 0..2 d_a F^a, 3 + 3a + q d_a M^a_q, 12 + q d_q alpha, 15 + 6q + c
+       d_q gamma_c, 33 + 3q + c d_q beta^c;
+    2. the 27 point values the equations read are copied to rows 42..68;
+    3. one loop over the strip reads only the buffer and writes residual, scale and source
+       terms to rows 69..80;
+    4. short loops copy those rows to the outputs and reduce them into ``partials``.
+
+    Why this shape (measured, 128^3, order 4): LLVM vectorises a loop only if it can prove, or
+    check at run time with at most 8 comparisons, that its stores do not overlap its loads.
+    Step 3 read 9 arrays (35 rows at unknown distances) and wrote 3, so it stayed scalar; now
+    it touches one buffer whose row stride is a compile-time constant, and every other loop
+    copies from one array to one other. Indices along z are unsigned for the reason given in
+    ``d1_column``.
     """
+    u = np.uint64
     nx = alpha.shape[1]
     ny = alpha.shape[2]
     nz = alpha.shape[3]
@@ -323,158 +374,150 @@ def residuals(alpha, beta, gamma, gidx, K, kidx, E, B, charge, current, work,
                     scale[c, i, j, k] = nan
                     if write_sources:
                         sources[c, i, j, k] = nan
-        for c in range(16):
+        for c in range(8):
             partials[column, c] = zero
+            partials[column, 8 + c] = zero
         if edge:
             continue
-        q0 = zero
-        q1 = zero
-        q2 = zero
-        q3 = zero
-        p0 = zero
-        p1 = zero
-        p2 = zero
-        p3 = zero
-        m0 = zero
-        m1 = zero
-        m2 = zero
-        m3 = zero
-        n0 = zero
-        n1 = zero
-        n2 = zero
-        n3 = zero
-        der = np.empty((42, nz), dtype=work.dtype)
-        for a in range(3):
-            _column_derivative(work, a, i, j, a, radius[a], weights, inv_hs[a], zero, der, a, k0, k1)
-        for a in range(3):
+        buf = np.empty((_ROWS, _STRIP), dtype=work.dtype)
+        for start in range(k0, k1, _STRIP):
+            count = min(_STRIP, k1 - start)
+            base = u(start)
+            for a in range(3):
+                d1_column(work, a, i, j, start, count, a, radius[a], weights, inv_hs[a], buf, a)
+            for a in range(3):
+                for q in range(3):
+                    d1_column(work, 3 + 3 * a + q, i, j, start, count, a, radius[a], weights,
+                              inv_hs[a], buf, 3 + 3 * a + q)
             for q in range(3):
-                _column_derivative(work, 3 + 3 * a + q, i, j, a, radius[a], weights, inv_hs[a],
-                                   zero, der, 3 + 3 * a + q, k0, k1)
-        for q in range(3):
-            _column_derivative(alpha, 0, i, j, q, radius[q], weights, inv_hs[q], zero, der,
-                               12 + q, k0, k1)
-        for q in range(3):
+                d1_column(alpha, 0, i, j, start, count, q, radius[q], weights, inv_hs[q], buf,
+                          12 + q)
+            for q in range(3):
+                for c in range(6):
+                    d1_column(gamma, gidx[c], i, j, start, count, q, radius[q], weights,
+                              inv_hs[q], buf, 15 + 6 * q + c)
+            for q in range(3):
+                for c in range(3):
+                    d1_column(beta, c, i, j, start, count, q, radius[q], weights, inv_hs[q],
+                              buf, 33 + 3 * q + c)
             for c in range(6):
-                _column_derivative(gamma, gidx[c], i, j, q, radius[q], weights, inv_hs[q], zero,
-                                   der, 15 + 6 * q + c, k0, k1)
-        for q in range(3):
+                _copy_column(gamma, gidx[c], i, j, start, count, buf, 42 + c)
+                _copy_column(K, kidx[c], i, j, start, count, buf, 59 + c)
             for c in range(3):
-                _column_derivative(beta, c, i, j, q, radius[q], weights, inv_hs[q], zero, der,
-                                   33 + 3 * q + c, k0, k1)
-        for k in range(k0, k1):
-            gxx = gamma[gidx[0], i, j, k]
-            gxy = gamma[gidx[1], i, j, k]
-            gxz = gamma[gidx[2], i, j, k]
-            gyy = gamma[gidx[3], i, j, k]
-            gyz = gamma[gidx[4], i, j, k]
-            gzz = gamma[gidx[5], i, j, k]
-            ixx, ixy, ixz, iyy, iyz, izz, det = _inverse_metric(gxx, gxy, gxz, gyy, gyz, gzz, one)
-            sg = math.sqrt(det)
-            ex = E[0, i, j, k]
-            ey = E[1, i, j, k]
-            ez = E[2, i, j, k]
-            bx = B[0, i, j, k]
-            by = B[1, i, j, k]
-            bz = B[2, i, j, k]
-            exl, eyl, ezl = _lower(gxx, gxy, gxz, gyy, gyz, gzz, ex, ey, ez)
-            bxl, byl, bzl = _lower(gxx, gxy, gxz, gyy, gyz, gzz, bx, by, bz)
-            energy2 = ex * exl + ey * eyl + ez * ezl + bx * bxl + by * byl + bz * bzl
-            rho = coef * half * energy2
-            csg = coef * sg
-            sx = csg * (ey * bz - ez * by)
-            sy = csg * (ez * bx - ex * bz)
-            sz = csg * (ex * by - ey * bx)
-            cinv = coef / sg
-            ux = cinv * (eyl * bzl - ezl * byl)
-            uy = cinv * (ezl * bxl - exl * bzl)
-            uz = cinv * (exl * byl - eyl * bxl)
-            a = alpha[0, i, j, k]
-            jx = current[0, i, j, k]
-            jy = current[1, i, j, k]
-            jz = current[2, i, j, k]
-            rho_e = charge[0, i, j, k]
-            # Energy: sg [alpha K_ij S^ij - S^i d_i alpha - alpha j^i E_i], with
-            # K_ij S^ij = coef (-K_ij E^i E^j - K_ij B^i B^j + 1/2 K (E^2 + B^2)).
-            kxx = K[kidx[0], i, j, k]
-            kxy = K[kidx[1], i, j, k]
-            kxz = K[kidx[2], i, j, k]
-            kyy = K[kidx[3], i, j, k]
-            kyz = K[kidx[4], i, j, k]
-            kzz = K[kidx[5], i, j, k]
-            trace_k = ixx * kxx + iyy * kyy + izz * kzz + two * (ixy * kxy + ixz * kxz + iyz * kyz)
-            kee = (kxx * ex * ex + kyy * ey * ey + kzz * ez * ez
-                   + two * (kxy * ex * ey + kxz * ex * ez + kyz * ey * ez))
-            kbb = (kxx * bx * bx + kyy * by * by + kzz * bz * bz
-                   + two * (kxy * bx * by + kxz * bx * bz + kyz * by * bz))
-            curvature = sg * a * coef * (half * trace_k * energy2 - kee - kbb)
-            da0 = der[12, k]
-            da1 = der[13, k]
-            da2 = der[14, k]
-            lapse_e = -sg * (ux * da0 + uy * da1 + uz * da2)
-            work_e = -sg * a * (jx * exl + jy * eyl + jz * ezl)
-            dt_e = work[12, i, j, k]
-            fe0 = der[0, k]
-            fe1 = der[1, k]
-            fe2 = der[2, k]
-            src_e = curvature + lapse_e + work_e
-            r0 = dt_e + (fe0 + fe1 + fe2) - src_e
-            s0 = _max3(_max3(abs(dt_e), abs(fe0), abs(fe1)),
-                       _max3(abs(fe2), abs(curvature), abs(lapse_e)), abs(work_e))
-            residual[0, i, j, k] = r0
-            scale[0, i, j, k] = s0
-            # Momentum: epsilon_qkl j^k B^l = sg [qkl] j^k B^l.
-            fields = (ex, ey, ez, bx, by, bz)
-            inverse = (ixx, ixy, ixz, iyy, iyz, izz)
-            s_low = (sx, sy, sz)
-            r1, s1, src1 = _momentum_terms(0, sg, a, coef, half, energy2, rho, rho_e, exl,
-                                           sg * (jy * bz - jz * by), s_low, fields, inverse,
-                                           work[13, i, j, k], der, k)
-            r2, s2, src2 = _momentum_terms(1, sg, a, coef, half, energy2, rho, rho_e, eyl,
-                                           sg * (jz * bx - jx * bz), s_low, fields, inverse,
-                                           work[14, i, j, k], der, k)
-            r3, s3, src3 = _momentum_terms(2, sg, a, coef, half, energy2, rho, rho_e, ezl,
-                                           sg * (jx * by - jy * bx), s_low, fields, inverse,
-                                           work[15, i, j, k], der, k)
-            residual[1, i, j, k] = r1
-            residual[2, i, j, k] = r2
-            residual[3, i, j, k] = r3
-            scale[1, i, j, k] = s1
-            scale[2, i, j, k] = s2
-            scale[3, i, j, k] = s3
+                _copy_column(E, c, i, j, start, count, buf, 48 + c)
+                _copy_column(B, c, i, j, start, count, buf, 51 + c)
+                _copy_column(current, c, i, j, start, count, buf, 55 + c)
+            _copy_column(alpha, 0, i, j, start, count, buf, 54)
+            _copy_column(charge, 0, i, j, start, count, buf, 58)
+            for c in range(4):
+                _copy_column(work, 12 + c, i, j, start, count, buf, 65 + c)
+            for n in range(count):
+                gxx = buf[42, n]
+                gxy = buf[43, n]
+                gxz = buf[44, n]
+                gyy = buf[45, n]
+                gyz = buf[46, n]
+                gzz = buf[47, n]
+                ixx, ixy, ixz, iyy, iyz, izz, det = _inverse_metric(gxx, gxy, gxz, gyy, gyz, gzz,
+                                                                    one)
+                sg = math.sqrt(det)
+                ex = buf[48, n]
+                ey = buf[49, n]
+                ez = buf[50, n]
+                bx = buf[51, n]
+                by = buf[52, n]
+                bz = buf[53, n]
+                exl, eyl, ezl = _lower(gxx, gxy, gxz, gyy, gyz, gzz, ex, ey, ez)
+                bxl, byl, bzl = _lower(gxx, gxy, gxz, gyy, gyz, gzz, bx, by, bz)
+                energy2 = ex * exl + ey * eyl + ez * ezl + bx * bxl + by * byl + bz * bzl
+                rho = coef * half * energy2
+                csg = coef * sg
+                sx = csg * (ey * bz - ez * by)
+                sy = csg * (ez * bx - ex * bz)
+                sz = csg * (ex * by - ey * bx)
+                cinv = coef / sg
+                ux = cinv * (eyl * bzl - ezl * byl)
+                uy = cinv * (ezl * bxl - exl * bzl)
+                uz = cinv * (exl * byl - eyl * bxl)
+                a = buf[54, n]
+                jx = buf[55, n]
+                jy = buf[56, n]
+                jz = buf[57, n]
+                rho_e = buf[58, n]
+                # Energy: sg [alpha K_ij S^ij - S^i d_i alpha - alpha j^i E_i], with
+                # K_ij S^ij = coef (-K_ij E^i E^j - K_ij B^i B^j + 1/2 K (E^2 + B^2)).
+                kxx = buf[59, n]
+                kxy = buf[60, n]
+                kxz = buf[61, n]
+                kyy = buf[62, n]
+                kyz = buf[63, n]
+                kzz = buf[64, n]
+                trace_k = (ixx * kxx + iyy * kyy + izz * kzz
+                           + two * (ixy * kxy + ixz * kxz + iyz * kyz))
+                kee = (kxx * ex * ex + kyy * ey * ey + kzz * ez * ez
+                       + two * (kxy * ex * ey + kxz * ex * ez + kyz * ey * ez))
+                kbb = (kxx * bx * bx + kyy * by * by + kzz * bz * bz
+                       + two * (kxy * bx * by + kxz * bx * bz + kyz * by * bz))
+                curvature = sg * a * coef * (half * trace_k * energy2 - kee - kbb)
+                da0 = buf[12, n]
+                da1 = buf[13, n]
+                da2 = buf[14, n]
+                lapse_e = -sg * (ux * da0 + uy * da1 + uz * da2)
+                work_e = -sg * a * (jx * exl + jy * eyl + jz * ezl)
+                dt_e = buf[65, n]
+                fe0 = buf[0, n]
+                fe1 = buf[1, n]
+                fe2 = buf[2, n]
+                src_e = curvature + lapse_e + work_e
+                buf[69, n] = dt_e + (fe0 + fe1 + fe2) - src_e
+                buf[73, n] = _max3(_max3(abs(dt_e), abs(fe0), abs(fe1)),
+                                   _max3(abs(fe2), abs(curvature), abs(lapse_e)), abs(work_e))
+                buf[77, n] = src_e
+                # Momentum: epsilon_qkl j^k B^l = sg [qkl] j^k B^l.
+                fields = (ex, ey, ez, bx, by, bz)
+                inverse = (ixx, ixy, ixz, iyy, iyz, izz)
+                s_low = (sx, sy, sz)
+                r1, s1, src1 = _momentum_terms(0, sg, a, coef, half, energy2, rho, rho_e, exl,
+                                               sg * (jy * bz - jz * by), s_low, fields, inverse,
+                                               buf[66, n], buf, n)
+                r2, s2, src2 = _momentum_terms(1, sg, a, coef, half, energy2, rho, rho_e, eyl,
+                                               sg * (jz * bx - jx * bz), s_low, fields, inverse,
+                                               buf[67, n], buf, n)
+                r3, s3, src3 = _momentum_terms(2, sg, a, coef, half, energy2, rho, rho_e, ezl,
+                                               sg * (jx * by - jy * bx), s_low, fields, inverse,
+                                               buf[68, n], buf, n)
+                buf[70, n] = r1
+                buf[71, n] = r2
+                buf[72, n] = r3
+                buf[74, n] = s1
+                buf[75, n] = s2
+                buf[76, n] = s3
+                buf[78, n] = src1
+                buf[79, n] = src2
+                buf[80, n] = src3
+            for c in range(4):
+                for n in range(count):
+                    residual[c, i, j, base + u(n)] = buf[69 + c, n]
+                for n in range(count):
+                    scale[c, i, j, base + u(n)] = buf[73 + c, n]
             if write_sources:
-                sources[0, i, j, k] = src_e
-                sources[1, i, j, k] = src1
-                sources[2, i, j, k] = src2
-                sources[3, i, j, k] = src3
-            q0 += r0 * r0
-            q1 += r1 * r1
-            q2 += r2 * r2
-            q3 += r3 * r3
-            p0 += s0 * s0
-            p1 += s1 * s1
-            p2 += s2 * s2
-            p3 += s3 * s3
-            m0 = abs(r0) if abs(r0) > m0 else m0
-            m1 = abs(r1) if abs(r1) > m1 else m1
-            m2 = abs(r2) if abs(r2) > m2 else m2
-            m3 = abs(r3) if abs(r3) > m3 else m3
-            n0 = s0 if s0 > n0 else n0
-            n1 = s1 if s1 > n1 else n1
-            n2 = s2 if s2 > n2 else n2
-            n3 = s3 if s3 > n3 else n3
-        partials[column, 0] = q0
-        partials[column, 1] = q1
-        partials[column, 2] = q2
-        partials[column, 3] = q3
-        partials[column, 4] = p0
-        partials[column, 5] = p1
-        partials[column, 6] = p2
-        partials[column, 7] = p3
-        partials[column, 8] = m0
-        partials[column, 9] = m1
-        partials[column, 10] = m2
-        partials[column, 11] = m3
-        partials[column, 12] = n0
-        partials[column, 13] = n1
-        partials[column, 14] = n2
-        partials[column, 15] = n3
+                for c in range(4):
+                    for n in range(count):
+                        sources[c, i, j, base + u(n)] = buf[77 + c, n]
+            # Norm sums and maxima of the strip, from the rows just written (still in cache).
+            for c in range(4):
+                sum_r = zero
+                sum_s = zero
+                max_r = partials[column, 8 + c]
+                max_s = partials[column, 12 + c]
+                for n in range(count):
+                    r = buf[69 + c, n]
+                    s = buf[73 + c, n]
+                    sum_r += r * r
+                    sum_s += s * s
+                    max_r = abs(r) if abs(r) > max_r else max_r
+                    max_s = s if s > max_s else max_s
+                partials[column, c] += sum_r
+                partials[column, 4 + c] += sum_s
+                partials[column, 8 + c] = max_r
+                partials[column, 12 + c] = max_s

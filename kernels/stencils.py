@@ -17,6 +17,10 @@ The point functions take a (ncomp, nx, ny, nz) array, a component, a grid index 
 weights come as float arrays built once per call by :func:`first_derivative_weights` and
 :func:`second_derivative_weights` (Python level, in the data's dtype), so one compiled kernel
 serves every order. Callers keep ``radius`` points away from the faces.
+
+:func:`d1_column` is the first derivative for a whole grid column (i, j, k0..k0+count-1) at once,
+written so that LLVM vectorises it along z (see its docstring); use it where a kernel needs many
+derivatives per point.
 """
 
 from __future__ import annotations
@@ -33,6 +37,7 @@ __all__ = [
     "d1",
     "d2",
     "d11",
+    "d1_column",
 ]
 
 SUPPORTED_ORDERS = (2, 4, 6)
@@ -119,3 +124,54 @@ def d11(f, c, i, j, k, axis_a, axis_b, weights, inv_ha, inv_hb):
                                        - (f[c, imp, jmp, kmp] - f[c, imm, jmm, kmm]))
         total += weights[m - 1] * inner
     return total * inv_ha * inv_hb
+
+
+@point_function
+def d1_column(f, c, i, j, k0, count, axis, radius, weights, inv_h, out, row):
+    """out[row, n] = d f[c] / d x^axis at (i, j, k0 + n) for n = 0..count-1; 0 if ``radius`` is 0.
+
+    The centred sum of :func:`d1` (``radius`` = len(weights) points on each side, or 0 for an
+    axis without extent), with ``f`` a (ncomp, nx, ny, nz) array and ``out`` a 2D buffer. The
+    caller keeps the stencil inside the array: k0 >= radius along z, i and j likewise.
+
+    Why it is written this way (measured on a 128^3 grid, 42 derivatives per point): the index
+    along the column is unsigned. Numba adds a negative-index wraparound (a select) to every
+    access with a signed index it cannot prove non-negative, such as ``k - m``; with the select
+    LLVM reads the column with gathers or not vectorised at all, and the same 42 derivatives
+    ran 3x slower. The order (radius) and the axis are resolved once per column, outside the
+    loop over k, so the loop body is straight-line code.
+    """
+    u = np.uint64
+    if radius == 0:
+        for n in range(count):
+            out[row, n] = weights[0] * 0
+        return
+    oi = 1 if axis == 0 else 0
+    oj = 1 if axis == 1 else 0
+    ok = u(1) if axis == 2 else u(0)
+    base = u(k0)
+    w1 = weights[0] * inv_h
+    if radius == 1:
+        for n in range(count):
+            k = base + u(n)
+            out[row, n] = w1 * (f[c, i + oi, j + oj, k + ok] - f[c, i - oi, j - oj, k - ok])
+    elif radius == 2:
+        w2 = weights[1] * inv_h
+        ok2 = ok + ok
+        for n in range(count):
+            k = base + u(n)
+            out[row, n] = (w1 * (f[c, i + oi, j + oj, k + ok] - f[c, i - oi, j - oj, k - ok])
+                           + w2 * (f[c, i + 2 * oi, j + 2 * oj, k + ok2]
+                                   - f[c, i - 2 * oi, j - 2 * oj, k - ok2]))
+    else:
+        w2 = weights[1] * inv_h
+        w3 = weights[2] * inv_h
+        ok2 = ok + ok
+        ok3 = ok2 + ok
+        for n in range(count):
+            k = base + u(n)
+            out[row, n] = (w1 * (f[c, i + oi, j + oj, k + ok] - f[c, i - oi, j - oj, k - ok])
+                           + w2 * (f[c, i + 2 * oi, j + 2 * oj, k + ok2]
+                                   - f[c, i - 2 * oi, j - 2 * oj, k - ok2])
+                           + w3 * (f[c, i + 3 * oi, j + 3 * oj, k + ok3]
+                                   - f[c, i - 3 * oi, j - 3 * oj, k - ok3]))

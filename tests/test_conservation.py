@@ -442,8 +442,8 @@ def test_boundary_is_marked_and_norms_are_over_the_interior():
 def test_work_array_is_reusable_and_checked():
     """A caller's scratch array gives the same residual as a fresh one, also when reused.
 
-    (A plain C-ordered array works too but runs another compiled specialisation, whose fused
-    multiply-adds may round differently; not exercised here to keep compile time down.)"""
+    (An array with other strides works too but runs another compiled specialisation, whose
+    fused multiply-adds may round differently; not exercised here to keep compile time down.)"""
     g = F.square_grid(16)
     s = package_wave(g, 0.2)
     fresh = slice_residual(s, order=4)

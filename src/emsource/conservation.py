@@ -271,23 +271,18 @@ def _prepare(function, alpha, beta, gamma, K, E, B, charge_density, current_dens
                      radii, inv_h, stress_energy_prefactor(units))
 
 
-#: Padding, in elements, added to the component stride of the scratch array (one cache line).
-_COMPONENT_PAD = 8
-
-
 def new_work_array(grid, dtype=np.float64) -> np.ndarray:
     """A (16, *grid) scratch array for :func:`conservation_residual` (its ``work`` argument).
 
-    Each component is contiguous, but consecutive components are one cache line further apart
-    than the grid size. On grids whose size in bytes is a multiple of 4 KiB (any n^3 with n a
-    multiple of 8) the 16 components would otherwise map to the same cache sets; the padding
-    made the first kernel pass 3-4x faster on a 96^3 grid (measured: 155 ms unpadded against
-    40 ms on 97^3, one thread).
+    A plain C-ordered array. The kernels are compiled per memory layout, and only with a layout
+    that Numba knows to be C-contiguous do their loops over z vectorise: an earlier version
+    padded the component stride by one cache line (against cache-set conflicts), which Numba
+    types as a general strided array, and its first pass then ran 2x slower on 128^3 (measured,
+    one thread: 180 ms padded against 92 ms; 96^3: 71 ms against 26 ms). Any other (16, *grid)
+    array works too, through another, slower compiled specialisation.
     """
     grid = tuple(int(n) for n in grid)
-    size = int(np.prod(grid))
-    buffer = np.empty((16, size + _COMPONENT_PAD), dtype)
-    return buffer[:, :size].reshape((16,) + grid)
+    return np.empty((16,) + grid, dtype)
 
 
 def _work_array(function, work, shape, dtype):
@@ -438,7 +433,7 @@ def conservation_residual(alpha, beta, gamma, K, E, B, *, spacing, order=4, unit
     work : (16, *grid) ndarray, optional
         Scratch array in the inputs' dtype, reused between calls (an evolution loop then
         allocates only the outputs); it holds the fluxes and time terms afterwards. Make it with
-        :func:`new_work_array` (padded against cache-set conflicts; any (16, *grid) array works).
+        :func:`new_work_array` (C-ordered; any (16, *grid) array works, more slowly).
 
     Returns
     -------
