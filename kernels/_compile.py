@@ -11,7 +11,9 @@ Why these options:
   first call of each signature compiles; later processes (tests, benchmarks) load it.
 - ``FASTMATH_FLAGS`` is an explicit set *without* ``nnan`` and ``ninf``. With those two, LLVM
   may assume that no value is NaN or Inf and compiles ``np.isfinite`` to "true", which would
-  silently delete the point checks that the kernels fold into their pass.
+  silently delete the point checks that the kernels fold into their pass. Even without them,
+  Numba's own ``math.isfinite`` (``x - x`` tested for NaN) is folded away by "reassoc":
+  use :func:`emsource.kernels.point_checks.is_finite` instead.
 - ``error_model="numpy"``: division by zero gives inf/nan like NumPy instead of raising,
   so the loop body has no Python-exception branch and can vectorise.
 - Thread count is Numba's own (``NUMBA_NUM_THREADS``, ``numba.set_num_threads``).
