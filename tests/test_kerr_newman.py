@@ -13,7 +13,7 @@ import pytest
 import sympy as sp
 from scipy.optimize import brentq
 
-from emsource.exact import kerr_newman as kn
+import emsource.exact.kerr_newman as kn
 from emsource.grid import UniformGrid
 
 M, A, Q = 1.0, 0.6, 0.5  # r+ = 1 + sqrt(1 - 0.36 - 0.25) = 1.6245

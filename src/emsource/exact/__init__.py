@@ -5,6 +5,24 @@ component axis first, symmetric tensors packed (xx, xy, xz, yy, yz, zz), fields 
 normal observer, contravariant E and B, Gaussian units unless a generator says otherwise.
 """
 
+from .kerr_newman import (
+    inner_horizon_radius,
+    kerr,
+    kerr_newman,
+    kerr_newman_arrays,
+    kerr_schild_radius,
+    outer_horizon_radius,
+    reissner_nordstrom,
+)
 from .slice_fields import SliceFields
 
-__all__ = ["SliceFields"]
+__all__ = [
+    "SliceFields",
+    "kerr",
+    "kerr_newman",
+    "kerr_newman_arrays",
+    "kerr_schild_radius",
+    "inner_horizon_radius",
+    "outer_horizon_radius",
+    "reissner_nordstrom",
+]
