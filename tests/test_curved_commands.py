@@ -64,3 +64,49 @@ def test_audit_units_command_none_fits(tmp_path, capsys):
         f["magnetic_field"][...] *= 0.5
     assert main(["audit-units", path]) == commands.EXIT_CHECK_FAILED
     assert "none fits" in capsys.readouterr().out
+
+
+def test_constraint_convergence_command_table_and_plot(tmp_path, capsys):
+    # Order 4 with Gaussian sources: between the runs h goes 1/12 -> 1/16, so the normalised
+    # residual must fall by about (4/3)^4 = 3.16 (we ask for > 2.5); without sources it stays
+    # at ~4e-2 (ratio within 10 % of 1).
+    png = tmp_path / "conv.png"
+    rc = main(["constraint-convergence", "--points", "13", "17", "--orders", "4",
+               "--plot", str(png)])
+    assert rc == commands.EXIT_OK
+    rows = [line.split(",") for line in capsys.readouterr().out.splitlines()
+            if line.startswith("4,")]
+    with_em = [float(r[4]) for r in rows if r[1] == "gaussian"]
+    without = [float(r[4]) for r in rows if r[1] == "none"]
+    assert with_em[0] / with_em[1] > 2.5
+    assert abs(without[0] / without[1] - 1.0) < 0.1
+    assert png.stat().st_size > 10_000 and png.read_bytes()[:4] == b"\x89PNG"
+
+
+def test_committed_sample_grid_is_what_the_tool_writes():
+    # Guards the on-disk layout of sample_grids/ (datasets, attributes, values): the file must
+    # equal a fresh sample of the same Kerr-Newman hole, and the audit must call it Gaussian.
+    import pathlib
+
+    from emsource.unit_audit import audit_units
+
+    path = pathlib.Path(__file__).parents[1] / "sample_grids" / "kerr_newman_m1_a0.7_q0.4.h5"
+    grid = UniformGrid.from_bounds((-6.0,) * 3, (6.0,) * 3, (32, 32, 32))
+    d = kerr_newman(grid, mass=1.0, spin=0.7, charge=0.4)
+    with h5py.File(path, "r") as f:
+        for name, attr in (("lapse", "alpha"), ("shift", "beta"), ("spatial_metric", "gamma"),
+                           ("extrinsic_curvature", "K"), ("electric_field", "E"),
+                           ("magnetic_field", "B")):
+            # Bit-for-bit on this machine; 1e-13 relative leaves room for another CPU's
+            # rounding in NumPy's summation loops, far below any change of formula.
+            assert np.allclose(f[name][()], getattr(d, attr), rtol=1e-13, atol=1e-15,
+                               equal_nan=True), name
+        assert np.array_equal(f["mask"][()].astype(bool), d.mask)
+        assert (f.attrs["mass"], f.attrs["spin"], f.attrs["charge"]) == (1.0, 0.7, 0.4)
+        spacing = tuple(f.attrs["spacing"])
+        data = {k: f[k][()] for k in ("spatial_metric", "extrinsic_curvature",
+                                      "electric_field", "magnetic_field")}
+    audit = audit_units(data["spatial_metric"], data["extrinsic_curvature"],
+                        data["electric_field"], data["magnetic_field"], spacing=spacing,
+                        mask=d.mask)
+    assert audit.verdict == "gaussian"
