@@ -238,3 +238,36 @@ def test_bad_inputs_are_named():
     before = d.gamma.copy()
     adm_constraints(d.gamma, d.K, d.E, d.B, spacing=grid.spacing)
     assert np.array_equal(before, d.gamma)  # inputs are never modified
+
+
+def test_sign_of_K_is_fixed_by_the_poynting_term():
+    # M_i is linear in K and S_i: vacuum Kerr cannot see a flipped sign convention of K
+    # (M -> -M = 0), but Kerr-Newman's S_i = E x B / 4 pi != 0 can. With K -> -K the momentum
+    # residual converges to -2 * 8 pi S_i instead of zero (order ~0, O(1e-3) of its terms),
+    # while H, quadratic in K, is unchanged.
+    out = []
+    for n in (17, 33):
+        grid = _box(n)
+        d = kerr_newman(grid, mass=1.0, spin=0.6, charge=0.5)
+        right = adm_constraints(d.gamma, d.K, d.E, d.B, spacing=grid.spacing, order=4)
+        flipped = adm_constraints(d.gamma, -d.K, d.E, d.B, spacing=grid.spacing, order=4)
+        assert np.allclose(flipped.hamiltonian[right.evaluated], right.hamiltonian[right.evaluated],
+                           rtol=0, atol=1e-12)
+        out.append(flipped.momentum_norms)
+    assert out[1].normalised > 1e-3
+    assert abs(math.log2(out[0].l2 / out[1].l2)) < 0.3
+
+
+def test_float32_data_are_evaluated_in_float64():
+    # float32 data carry a rounding of 6e-8 relative; the second-difference weights of order 4
+    # sum to 2.5 + 2 (4/3 + 1/12) = 5.3 in absolute value, h = 1/16, so one O(1) metric term
+    # moves by up to 6e-8 * 5.3 * 256 = 8e-5; with a few such terms in R we allow 1e-3
+    # (measured 2e-4). The residuals themselves are float64 arrays.
+    grid = _box(17)
+    d64 = kerr_newman(grid, mass=1.0, spin=0.6, charge=0.5)
+    d32 = kerr_newman(grid, mass=1.0, spin=0.6, charge=0.5, dtype=np.float32)
+    r64 = adm_constraints(d64.gamma, d64.K, d64.E, d64.B, spacing=grid.spacing)
+    r32 = adm_constraints(d32.gamma, d32.K, d32.E, d32.B, spacing=grid.spacing)
+    assert r32.hamiltonian.dtype == np.float64
+    ev = r64.evaluated
+    assert np.abs(r32.hamiltonian[ev] - r64.hamiltonian[ev]).max() < 1e-3
