@@ -37,13 +37,14 @@ def float_array(function: str, argument: str, value) -> np.ndarray:
     return value
 
 
-def common_dtype(function: str, arrays: dict) -> np.dtype:
+def common_dtype(function: str, names: tuple, arrays: tuple) -> np.dtype:
     """The one dtype all ``arrays`` share; mixed dtypes are an error (nothing is cast silently)."""
-    dtypes = {name: a.dtype for name, a in arrays.items()}
-    if len(set(dtypes.values())) > 1:
-        found = ", ".join(f"{name}: {dt}" for name, dt in dtypes.items())
-        raise TypeError(f"{function}: all inputs must share one float dtype, found {found}")
-    return next(iter(dtypes.values()))
+    dtype = arrays[0].dtype
+    for a in arrays:
+        if a.dtype != dtype:
+            found = ", ".join(f"{name}: {a.dtype}" for name, a in zip(names, arrays))
+            raise TypeError(f"{function}: all inputs must share one float dtype, found {found}")
+    return dtype
 
 
 def component_first(array: np.ndarray, ncomp_axes: int, layout: str) -> np.ndarray:
@@ -122,7 +123,7 @@ def spatial_metric(function: str, value, grid, layout: str):
 
 
 def output(function: str, argument: str, value, shape: tuple, dtype, layout: str, ncomp_axes: int,
-           inputs: tuple) -> np.ndarray:
+           inputs: tuple, input_names: tuple) -> np.ndarray:
     """Check a caller-supplied output array and return its component-first view."""
     if not isinstance(value, np.ndarray):
         raise TypeError(f"{function}: out {argument} must be a NumPy array, found {type(value).__name__}")
@@ -133,12 +134,12 @@ def output(function: str, argument: str, value, shape: tuple, dtype, layout: str
         )
     if not value.flags.writeable:
         raise ValueError(f"{function}: out {argument} is read-only")
-    for name, a in inputs:
+    for name, a in zip(input_names, inputs):
         if np.may_share_memory(value, a):
             raise ValueError(
                 f"{function}: out {argument} overlaps input {name}; inputs are never overwritten"
             )
-    return component_first(value, ncomp_axes, layout)
+    return value if ncomp_axes == 0 else component_first(value, ncomp_axes, layout)
 
 
 def kernel_views(arrays, grid):

@@ -188,7 +188,7 @@ def adm_sources(gamma, E, B, *, units="gaussian", field_index="upper",
     function = "adm_sources"
     grid, metric, gidx, e, b, prefactor, fields_lower = _common_inputs(
         function, gamma, E, B, units, field_index, layout)
-    dtype = arg.common_dtype(function, {"gamma": gamma, "E": E, "B": B})
+    dtype = arg.common_dtype(function, ("gamma", "E", "B"), (gamma, E, B))
     if out is None:
         result = AdmSources(
             np.empty(grid, dtype),
@@ -201,13 +201,15 @@ def adm_sources(gamma, E, B, *, units="gaussian", field_index="upper",
     else:
         if not isinstance(out, tuple) or len(out) != 4:
             raise TypeError(f"{function}: out must be an AdmSources or a tuple (rho, S_i, S_ij, S)")
-        inputs = (("gamma", gamma), ("E", E), ("B", B))
+        inputs, names = (gamma, E, B), ("gamma", "E", "B")
         result = AdmSources(*out)
         views = [
-            arg.output(function, "rho", result.rho, grid, dtype, layout, 0, inputs),
-            arg.output(function, "S_i", result.S_i, arg.shape_for(grid, (3,), layout), dtype, layout, 1, inputs),
-            arg.output(function, "S_ij", result.S_ij, arg.shape_for(grid, (6,), layout), dtype, layout, 1, inputs),
-            arg.output(function, "S", result.S, grid, dtype, layout, 0, inputs),
+            arg.output(function, "rho", result.rho, grid, dtype, layout, 0, inputs, names),
+            arg.output(function, "S_i", result.S_i, arg.shape_for(grid, (3,), layout), dtype,
+                       layout, 1, inputs, names),
+            arg.output(function, "S_ij", result.S_ij, arg.shape_for(grid, (6,), layout), dtype,
+                       layout, 1, inputs, names),
+            arg.output(function, "S", result.S, grid, dtype, layout, 0, inputs, names),
         ]
     (g, ev, bv, rho, s_i, s_ij, s), flat = arg.kernel_views([metric, e, b] + views, grid)
     driver = kernels.adm_sources_flat if flat else kernels.adm_sources_grid
@@ -269,15 +271,16 @@ def stress_energy_4d(alpha, beta, gamma, E, B, *, units="gaussian", index="lower
         function, gamma, E, B, units, field_index, layout)
     lapse = arg.scalar(function, "alpha", alpha, grid)
     shift = arg.vector(function, "beta", beta, grid, layout)
-    dtype = arg.common_dtype(function, {"alpha": alpha, "beta": beta, "gamma": gamma, "E": E, "B": B})
+    names = ("alpha", "beta", "gamma", "E", "B")
+    inputs = (alpha, beta, gamma, E, B)
+    dtype = arg.common_dtype(function, names, inputs)
     shape = arg.shape_for(grid, (10,), layout)
     if out is None:
         result = np.empty(shape, dtype)
         t_view = arg.component_first(result, 1, layout)
     else:
-        inputs = (("alpha", alpha), ("beta", beta), ("gamma", gamma), ("E", E), ("B", B))
         result = out
-        t_view = arg.output(function, "", out, shape, dtype, layout, 1, inputs)
+        t_view = arg.output(function, "", out, shape, dtype, layout, 1, inputs, names)
     (a, be, g, ev, bv, t), flat = arg.kernel_views([lapse, shift, metric, e, b, t_view], grid)
     driver = kernels.stress_energy_flat if flat else kernels.stress_energy_grid
     bad_count = driver(a, be, g, gidx, ev, bv, t, dtype.type(prefactor), dtype.type(0.5),

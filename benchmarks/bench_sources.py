@@ -1,0 +1,142 @@
+"""Speed of the source kernels, measured side by side with a memory-bandwidth yardstick.
+
+Run:  python benchmarks/bench_sources.py [--quick] [--repeat N]
+
+In one run and on the same Numba threads it measures
+  (a) a STREAM-style triad a = b + s c (bandwidth counted as 3 arrays moved, the usual way),
+  (b) emsource.adm_sources on 128^3 and 256^3 grids, float64 and float32, into preallocated
+      ``out`` arrays, with the point checks on and off, and on a strided ghost-zone view,
+  (c) a plain-NumPy implementation of the same formulas (einsum, linalg.det), 128^3 float64,
+  (d) the per-call time on an 8^3 grid, through the public API with ``out``.
+It prints medians of several repetitions: points per second, the effective bandwidth counting
+each input and output array once (12 in, 11 out), that bandwidth as a share of the triad, and
+ratios. The machine is shared and noisy: read ratios, not absolute figures.
+"""
+
+from __future__ import annotations
+
+import argparse
+import math
+import statistics
+import time
+
+import numba
+import numpy as np
+
+import emsource
+
+ARRAYS_MOVED = 12 + 11  # gamma 6, E 3, B 3 in; rho, S_i 3, S_ij 6, S out
+
+
+@numba.njit(parallel=True, cache=True)
+def _triad(a, b, c, scalar):
+    for i in numba.prange(a.shape[0]):
+        a[i] = b[i] + scalar * c[i]
+
+
+def median_seconds(function, repeat):
+    function()  # warm-up (compilation, page faults)
+    times = []
+    for _ in range(repeat):
+        start = time.perf_counter()
+        function()
+        times.append(time.perf_counter() - start)
+    return statistics.median(times)
+
+
+def triad_bandwidth(repeat):
+    n = 2**25  # 256 MiB per array: far beyond the last-level cache
+    a, b, c = np.zeros(n), np.ones(n), np.full(n, 2.0)
+    seconds = median_seconds(lambda: _triad(a, b, c, 3.0), repeat)
+    return 3 * a.itemsize * n / seconds
+
+
+def flat_space_fields(shape, dtype, seed=1):
+    rng = np.random.default_rng(seed)
+    gamma = np.zeros((6,) + shape, dtype)
+    gamma[[0, 3, 5]] = 1.0
+    gamma += (0.05 * rng.standard_normal((6,) + shape)).astype(dtype)
+    gamma[[0, 3, 5]] += 0.5
+    E = rng.standard_normal((3,) + shape).astype(dtype)
+    B = rng.standard_normal((3,) + shape).astype(dtype)
+    return gamma, E, B
+
+
+def numpy_sources(gamma, E, B):
+    """The same formulas in plain NumPy (what a user would write without the package)."""
+    idx = np.array([[0, 1, 2], [1, 3, 4], [2, 4, 5]])
+    full = gamma[idx]
+    E_low = np.einsum("ij...,j...->i...", full, E)
+    B_low = np.einsum("ij...,j...->i...", full, B)
+    energy2 = np.einsum("i...,i...->...", E, E_low) + np.einsum("i...,i...->...", B, B_low)
+    rho = energy2 / (8 * math.pi)
+    sqrt_det = np.sqrt(np.linalg.det(np.moveaxis(full, (0, 1), (-2, -1))))
+    S_i = sqrt_det * np.cross(E, B, axis=0) / (4 * math.pi)
+    S_ij = np.stack([
+        (0.5 * energy2 * gamma[c] - E_low[a] * E_low[b] - B_low[a] * B_low[b]) / (4 * math.pi)
+        for c, (a, b) in enumerate([(0, 0), (0, 1), (0, 2), (1, 1), (1, 2), (2, 2)])
+    ])
+    return rho, S_i, S_ij, rho.copy()
+
+
+def measure_kernel(shape, dtype, repeat, check=True, ghost=0):
+    full_shape = tuple(n + 2 * ghost for n in shape)
+    gamma, E, B = flat_space_fields(full_shape, dtype)
+    if ghost:
+        inner = (slice(None),) + (slice(ghost, -ghost),) * len(shape)
+        gamma, E, B = gamma[inner], E[inner], B[inner]
+    out = emsource.adm_sources(gamma, E, B)  # allocates once; the loop below reuses it
+    seconds = median_seconds(lambda: emsource.adm_sources(gamma, E, B, out=out, check=check), repeat)
+    points = math.prod(shape)
+    return points / seconds, ARRAYS_MOVED * np.dtype(dtype).itemsize * points / seconds
+
+
+def main(argv=None):
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--repeat", type=int, default=11, help="repetitions per median (default 11)")
+    parser.add_argument("--quick", action="store_true", help="skip the 256^3 grids")
+    args = parser.parse_args(argv)
+    print(f"emsource {emsource.__version__}, numba {numba.__version__}, numpy {np.__version__}, "
+          f"{numba.get_num_threads()} threads, medians of {args.repeat}")
+
+    triad = triad_bandwidth(args.repeat)
+    print(f"\n(a) triad bandwidth: {triad / 1e9:.1f} GB/s")
+
+    print("\n(b) adm_sources into preallocated out arrays")
+    print(f"{'grid':>8} {'dtype':>8} {'checks':>7} {'layout':>10} {'Mpoints/s':>10} {'GB/s':>6} {'% triad':>8}")
+    rates = {}
+    sizes = (128,) if args.quick else (128, 256)
+    for n in sizes:
+        for dtype in (np.float64, np.float32):
+            for check in (True, False):
+                rate, bandwidth = measure_kernel((n, n, n), dtype, args.repeat, check)
+                rates[(n, np.dtype(dtype).name, check)] = rate
+                print(f"{n:>6}^3 {np.dtype(dtype).name:>8} {str(check):>7} {'contiguous':>10} "
+                      f"{rate / 1e6:>10.1f} {bandwidth / 1e9:>6.1f} {100 * bandwidth / triad:>7.0f}%")
+    for dtype in (np.float64, np.float32):
+        rate, bandwidth = measure_kernel((128, 128, 128), dtype, args.repeat, True, ghost=3)
+        print(f"{128:>6}^3 {np.dtype(dtype).name:>8} {'True':>7} {'ghost view':>10} "
+              f"{rate / 1e6:>10.1f} {bandwidth / 1e9:>6.1f} {100 * bandwidth / triad:>7.0f}%")
+
+    gamma, E, B = flat_space_fields((128, 128, 128), np.float64)
+    numpy_seconds = median_seconds(lambda: numpy_sources(gamma, E, B), max(3, args.repeat // 3))
+    numpy_rate = 128**3 / numpy_seconds
+    print(f"\n(c) plain NumPy, 128^3 float64: {numpy_rate / 1e6:.2f} Mpoints/s; "
+          f"kernel speed-up {rates[(128, 'float64', True)] / numpy_rate:.0f}x (checks on)")
+    reference = numpy_sources(gamma, E, B)
+    ours = emsource.adm_sources(gamma, E, B)
+    worst = max(float(np.max(np.abs(a - b)) / np.max(np.abs(b))) for a, b in zip(ours, reference))
+    print(f"    largest relative difference kernel vs NumPy: {worst:.1e}")
+
+    for n in sizes:
+        print(f"    float32 / float64 points per second at {n}^3: "
+              f"{rates[(n, 'float32', True)] / rates[(n, 'float64', True)]:.2f} (checks on)")
+
+    small = flat_space_fields((8, 8, 8), np.float64)
+    out = emsource.adm_sources(*small)
+    call = median_seconds(lambda: emsource.adm_sources(*small, out=out), 20 * args.repeat * 50)
+    print(f"\n(d) per-call time on an 8^3 grid (public API, out given): {call * 1e6:.1f} us")
+
+
+if __name__ == "__main__":
+    main()

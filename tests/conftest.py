@@ -1,0 +1,42 @@
+"""Shared fixtures: seeded random generators and random curved 3+1 data.
+
+Kernels compile once per signature and are cached on disk (``cache=True``), so the suite pays
+for compilation only on its first run on a machine; tests reuse a few dtypes and layouts.
+"""
+
+import numpy as np
+import pytest
+
+
+@pytest.fixture
+def rng():
+    return np.random.default_rng(20261202)
+
+
+def random_curved_data(rng, grid, dtype=np.float64):
+    """alpha > 0, beta, positive-definite gamma (packed), E^i, B^i of order one on ``grid``.
+
+    gamma = A A^T with A = I + 0.3 * noise keeps the eigenvalues within about [0.3, 3], so the
+    condition number stays small and round-off in the inverse stays near float epsilon. With
+    alpha > 0 and gamma positive definite the 4-metric is Lorentzian for any shift.
+    """
+    A = np.eye(3)[:, :, None] + 0.3 * rng.standard_normal((3, 3, int(np.prod(grid))))
+    full = np.einsum("ikn,jkn->ijn", A, A).reshape((3, 3) + tuple(grid))
+    gamma = np.stack([full[0, 0], full[0, 1], full[0, 2], full[1, 1], full[1, 2], full[2, 2]])
+    alpha = rng.uniform(0.5, 2.0, grid)
+    beta = 0.5 * rng.standard_normal((3,) + tuple(grid))
+    E = rng.standard_normal((3,) + tuple(grid))
+    B = rng.standard_normal((3,) + tuple(grid))
+    return tuple(a.astype(dtype) for a in (alpha, beta, gamma, E, B))
+
+
+def unpack_symmetric(packed):
+    """(6, ...) packed (xx, xy, xz, yy, yz, zz) -> full (3, 3, ...)."""
+    idx = np.array([[0, 1, 2], [1, 3, 4], [2, 4, 5]])
+    return packed[idx]
+
+
+def unpack_symmetric4(packed):
+    """(10, ...) packed (tt, tx, ty, tz, xx, xy, xz, yy, yz, zz) -> full (4, 4, ...)."""
+    idx = np.array([[0, 1, 2, 3], [1, 4, 5, 6], [2, 5, 7, 8], [3, 6, 8, 9]])
+    return packed[idx]
