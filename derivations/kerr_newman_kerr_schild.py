@@ -1,4 +1,4 @@
-"""Development-time derivation of the closed forms used by emsource.exact.kerr_newman.
+"""Development-time derivation of the closed forms used by emsource.exact.kerr_schild.
 
 Run:  python derivations/kerr_newman_kerr_schild.py
 It derives, with sympy, the first derivatives of the spheroidal radius r, of H, of l_i and of
@@ -88,7 +88,7 @@ g_tt = -alpha**2 + (beta_low.T * beta_up)[0]
 check("g_tt = -1 + 2H", sp.trigsimp(sp.simplify(g_tt)) - (-1 + 2 * h))
 check("beta^i = 2H l_i / (1 + 2H)", sp.trigsimp(sp.simplify(beta_up - beta_low / (1 + 2 * h))))
 
-print("closed forms used by emsource.exact.kerr_newman:")
+print("closed forms used by emsource.exact.kerr_schild:")
 print("  d_i r =", closed_dr)
 print("  dH/dr|z =", sp.factor(H_r))
 print("  dH/dz|r =", sp.factor(H_z))

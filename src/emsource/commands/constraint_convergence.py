@@ -1,6 +1,6 @@
 """``emsource constraint-convergence``: constraint residuals of Kerr-Newman data versus h.
 
-Samples the exact Kerr-Newman data (emsource.exact.kerr_newman) on a box at several
+Samples the exact Kerr-Newman data (emsource.exact.kerr_schild) on a box at several
 resolutions, evaluates the Hamiltonian and momentum constraints at each finite-difference order
 with Gaussian electromagnetic sources and without them, prints the table (CSV) and, with
 ``--plot``, draws it (needs matplotlib, the ``plot`` extra).

@@ -5,7 +5,7 @@ component axis first, symmetric tensors packed (xx, xy, xz, yy, yz, zz), fields 
 normal observer, contravariant E and B, Gaussian units unless a generator says otherwise.
 """
 
-from .kerr_newman import (
+from .kerr_schild import (
     inner_horizon_radius,
     kerr,
     kerr_newman,

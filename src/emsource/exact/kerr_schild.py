@@ -16,7 +16,7 @@ potential is
 so A_t -> -Q / r far away (a charge Q > 0 has an outward E). Reissner-Nordstrom is a = 0,
 Kerr is Q = 0. H, l and A are quoted from memory in the form of C. W. Misner, K. S. Thorne,
 J. A. Wheeler, Gravitation (1973), ch. 33 (Kerr-Newman geometry, horizon at
-r+ = M + sqrt(M^2 - a^2 - Q^2)); ``tests/test_kerr_newman.py`` checks that the data solve the
+r+ = M + sqrt(M^2 - a^2 - Q^2)); ``tests/test_kerr_schild.py`` checks that the data solve the
 Einstein-Maxwell constraints, where the horizon sits, and the asymptotic charge.
 
 3+1 split (l is null, so its flat-space norm l_i l_i is 1 and l_t = 1):

@@ -2,7 +2,7 @@
 
 Sources: C. W. Misner, K. S. Thorne, J. A. Wheeler, Gravitation (1973), ch. 33 (Kerr-Newman
 geometry, horizons at r = M +- sqrt(M^2 - a^2 - Q^2), asymptotic charge Q); the Kerr-Schild
-form g = eta + 2 H l l with H, l, A as in emsource/exact/kerr_newman.py (from memory).
+form g = eta + 2 H l l with H, l, A as in emsource/exact/kerr_schild.py (from memory).
 The constraint checks (Einstein-Maxwell) are in tests/test_constraints.py.
 """
 
@@ -13,7 +13,7 @@ import pytest
 import sympy as sp
 from scipy.optimize import brentq
 
-import emsource.exact.kerr_newman as kn
+from emsource.exact import kerr_schild as kn
 from emsource.grid import UniformGrid
 
 M, A, Q = 1.0, 0.6, 0.5  # r+ = 1 + sqrt(1 - 0.36 - 0.25) = 1.6245
