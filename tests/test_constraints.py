@@ -58,16 +58,18 @@ def test_vacuum_kerr_constraints_converge_at_design_order(order):
         assert order - 0.5 < q < order + 0.7
 
 
+@pytest.mark.parametrize("order", [2, 4, 6])
 @pytest.mark.parametrize("spin, charge", [(0.0, 0.8), (0.6, 0.5)])
-def test_charged_holes_converge_only_with_gaussian_em_sources(spin, charge):
+def test_charged_holes_converge_with_gaussian_em_sources(spin, charge, order):
     # MTW ch. 33: Reissner-Nordstrom (spin 0) and Kerr-Newman solve the Einstein-Maxwell
     # equations with the Gaussian stress-energy (T^ab = (F^ac F^b_c - g^ab F^2 / 4) / 4 pi), so
-    # with rho and S_i from emsource.adm_sources(units="gaussian") H and M_i converge at order 4.
-    _, fine, p = _observed_orders(1.0, spin, charge, 4, "gaussian")
+    # with rho and S_i from emsource.adm_sources(units="gaussian") H and M_i converge at the
+    # design order (same bounds as for Kerr; measured 1.98, 3.89-3.90, 5.66-5.83).
+    _, fine, p = _observed_orders(1.0, spin, charge, order, "gaussian")
     for f, q in zip(fine, p):
         assert f.normalised > 1e-13
-        assert 3.5 < q < 4.7
-    assert fine[0].normalised < 1e-5
+        assert order - 0.5 < q < order + 0.7
+    assert fine[0].normalised < 1e-3
 
 
 @pytest.mark.parametrize("spin, charge", [(0.0, 0.8), (0.6, 0.5)])
