@@ -9,6 +9,22 @@ from __future__ import annotations
 
 import numpy as np
 
+
+def _may_overlap(a: np.ndarray, b: np.ndarray) -> bool:
+    """Whether two arrays may share memory, cheaply for the common case.
+
+    Two different arrays that each own their memory (``base is None``), or views of two such
+    arrays, cannot overlap; that takes a few attribute reads. Anything else (views of one
+    array, arrays over foreign buffers) goes to ``np.may_share_memory`` (about 0.3 us a call,
+    which twelve times per call was a third of the per-call overhead on small grids).
+    """
+    owner_a = a if a.base is None else a.base
+    owner_b = b if b.base is None else b.base
+    if (owner_a is not owner_b and type(owner_a) is np.ndarray and type(owner_b) is np.ndarray
+            and owner_a.base is None and owner_b.base is None):
+        return False
+    return np.may_share_memory(a, b)
+
 #: Flat indices, into a full (3, 3) block seen as 9, of the packed (xx, xy, xz, yy, yz, zz).
 FULL_METRIC_INDEX = (0, 1, 2, 4, 5, 8)
 PACKED_METRIC_INDEX = (0, 1, 2, 3, 4, 5)
@@ -122,24 +138,33 @@ def spatial_metric(function: str, value, grid, layout: str):
     )
 
 
-def output(function: str, argument: str, value, shape: tuple, dtype, layout: str, ncomp_axes: int,
-           inputs: tuple, input_names: tuple) -> np.ndarray:
-    """Check a caller-supplied output array and return its component-first view."""
-    if not isinstance(value, np.ndarray):
-        raise TypeError(f"{function}: out {argument} must be a NumPy array, found {type(value).__name__}")
-    if value.shape != shape or value.dtype != dtype:
-        raise ValueError(
-            f"{function}: out {argument} must have shape {shape} and dtype {dtype}, "
-            f"found shape {value.shape} and dtype {value.dtype}"
-        )
-    if not value.flags.writeable:
-        raise ValueError(f"{function}: out {argument} is read-only")
-    for name, a in zip(input_names, inputs):
-        if np.may_share_memory(value, a):
+def outputs(function: str, names: tuple, values: tuple, shapes: tuple, component_axes: tuple,
+            dtype, layout: str, input_names: tuple, inputs: tuple) -> list:
+    """Check caller-supplied output arrays and return their component-first views.
+
+    Each must be a writeable ndarray of the expected shape and dtype that shares no memory with
+    any input (inputs are never overwritten). This runs on every call of an evolution loop, so
+    it is written as one plain loop (about 1 microsecond per output array).
+    """
+    views = []
+    for name, value, shape, ncomp in zip(names, values, shapes, component_axes):
+        if not isinstance(value, np.ndarray):
+            raise TypeError(f"{function}: out {name} must be a NumPy array, found {type(value).__name__}")
+        if value.shape != shape or value.dtype != dtype:
             raise ValueError(
-                f"{function}: out {argument} overlaps input {name}; inputs are never overwritten"
+                f"{function}: out {name} must have shape {shape} and dtype {dtype}, "
+                f"found shape {value.shape} and dtype {value.dtype}"
             )
-    return value if ncomp_axes == 0 else component_first(value, ncomp_axes, layout)
+        if not value.flags.writeable:
+            raise ValueError(f"{function}: out {name} is read-only")
+        for input_name, a in zip(input_names, inputs):
+            if _may_overlap(value, a):
+                raise ValueError(
+                    f"{function}: out {name} overlaps input {input_name}; inputs are never overwritten"
+                )
+        views.append(value if ncomp == 0 or layout == "component_first"
+                     else component_first(value, ncomp, layout))
+    return views
 
 
 def kernel_views(arrays, grid):
@@ -149,11 +174,17 @@ def kernel_views(arrays, grid):
     flat loop. Otherwise each becomes (ncomp, nx, ny, nz) with trailing length-1 axes added
     for 1D and 2D grids, for the strided loop. Either way no data are copied.
     """
-    if all(a.flags.c_contiguous for a in arrays):
+    contiguous = True
+    for a in arrays:
+        contiguous = contiguous and a.flags.c_contiguous
+    if contiguous:
+        if len(grid) == 1:
+            return arrays, True
         npoints = 1
         for n in grid:
             npoints *= n
-        return [a.reshape(a.shape[: a.ndim - len(grid)] + (npoints,)) for a in arrays], True
+        scalar, vector = (npoints,), (-1, npoints)
+        return [a.reshape(vector if a.ndim > len(grid) else scalar) for a in arrays], True
     pad = (Ellipsis,) + (None,) * (3 - len(grid))
     return [a[pad] for a in arrays], False
 

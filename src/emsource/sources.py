@@ -201,16 +201,11 @@ def adm_sources(gamma, E, B, *, units="gaussian", field_index="upper",
     else:
         if not isinstance(out, tuple) or len(out) != 4:
             raise TypeError(f"{function}: out must be an AdmSources or a tuple (rho, S_i, S_ij, S)")
-        inputs, names = (gamma, E, B), ("gamma", "E", "B")
         result = AdmSources(*out)
-        views = [
-            arg.output(function, "rho", result.rho, grid, dtype, layout, 0, inputs, names),
-            arg.output(function, "S_i", result.S_i, arg.shape_for(grid, (3,), layout), dtype,
-                       layout, 1, inputs, names),
-            arg.output(function, "S_ij", result.S_ij, arg.shape_for(grid, (6,), layout), dtype,
-                       layout, 1, inputs, names),
-            arg.output(function, "S", result.S, grid, dtype, layout, 0, inputs, names),
-        ]
+        views = arg.outputs(
+            function, AdmSources._fields, result,
+            (grid, arg.shape_for(grid, (3,), layout), arg.shape_for(grid, (6,), layout), grid),
+            (0, 1, 1, 0), dtype, layout, ("gamma", "E", "B"), (gamma, E, B))
     (g, ev, bv, rho, s_i, s_ij, s), flat = arg.kernel_views([metric, e, b] + views, grid)
     driver = kernels.adm_sources_flat if flat else kernels.adm_sources_grid
     bad_count = driver(g, gidx, ev, bv, rho, s_i, s_ij, s,
@@ -280,7 +275,7 @@ def stress_energy_4d(alpha, beta, gamma, E, B, *, units="gaussian", index="lower
         t_view = arg.component_first(result, 1, layout)
     else:
         result = out
-        t_view = arg.output(function, "", out, shape, dtype, layout, 1, inputs, names)
+        (t_view,) = arg.outputs(function, ("",), (out,), (shape,), (1,), dtype, layout, names, inputs)
     (a, be, g, ev, bv, t), flat = arg.kernel_views([lapse, shift, metric, e, b, t_view], grid)
     driver = kernels.stress_energy_flat if flat else kernels.stress_energy_grid
     bad_count = driver(a, be, g, gidx, ev, bv, t, dtype.type(prefactor), dtype.type(0.5),

@@ -2,9 +2,28 @@
 
 Every generator returns a :class:`SliceFields` with the conventions of the package:
 component axis first, symmetric tensors packed (xx, xy, xz, yy, yz, zz), fields measured by the
-normal observer, contravariant E and B, Gaussian units unless a generator says otherwise.
+normal observer, contravariant E and B, Gaussian units unless a generator says otherwise, and
+the exact coordinate-time derivatives dt_E, dt_B, dt_gamma of the slicing.
+
+Flat spacetime:
+
+- :func:`plane_wave`: vacuum plane wave, any direction, polarization and profile, inertial
+  coordinates; :func:`periodic_wave_vector` makes it periodic in a box.
+- :func:`boosted_gaussian_charge`: a Gaussian ball of charge moving at constant velocity.
+- :func:`plane_wave_moving_frame`: the plane wave in drifting coordinates x' = x - V t
+  (lapse 1, shift V).
+- :func:`plane_wave_gauge_wave`: the plane wave on the gauge-wave slicing of flat spacetime
+  (lapse, metric and extrinsic curvature all nontrivial).
+
+Curved spacetime (electrovacuum black holes, Kerr-Schild coordinates, stationary slices):
+
+- :func:`kerr_newman` (mass, spin, charge), :func:`reissner_nordstrom` (spin 0),
+  :func:`kerr` (charge 0); :func:`kerr_newman_arrays` evaluates the same at arbitrary points;
+  :func:`kerr_schild_radius`, :func:`outer_horizon_radius`, :func:`inner_horizon_radius`.
 """
 
+from .boosted_charge import boosted_gaussian_charge, gaussian_sphere_field_factors
+from .gauge_wave import plane_wave_gauge_wave
 from .kerr_schild import (
     inner_horizon_radius,
     kerr,
@@ -14,15 +33,23 @@ from .kerr_schild import (
     outer_horizon_radius,
     reissner_nordstrom,
 )
+from .moving_frame import plane_wave_moving_frame
+from .plane_wave import periodic_wave_vector, plane_wave
 from .slice_fields import SliceFields
 
 __all__ = [
     "SliceFields",
+    "boosted_gaussian_charge",
+    "gaussian_sphere_field_factors",
+    "periodic_wave_vector",
+    "plane_wave",
+    "plane_wave_gauge_wave",
+    "plane_wave_moving_frame",
+    "inner_horizon_radius",
     "kerr",
     "kerr_newman",
     "kerr_newman_arrays",
     "kerr_schild_radius",
-    "inner_horizon_radius",
     "outer_horizon_radius",
     "reissner_nordstrom",
 ]
