@@ -13,8 +13,8 @@ with the Ricci tensor of gamma written through metric derivatives,
     Gamma_kij = 1/2 (d_i g_kj + d_j g_ki - d_k g_ij),   Gamma^m_ij = gamma^mk Gamma_kij,
     D_c K_ab  = d_c K_ab - Gamma^m_ca K_mb - Gamma^m_cb K_am.
 
-References: E. Gourgoulhon, 3+1 Formalism in General Relativity (2012), sec. 4.4 (constraints);
-T. W. Baumgarte and S. L. Shapiro, Numerical Relativity (2010), ch. 2 (constraints; the Ricci
+References: E. Gourgoulhon, 3+1 Formalism in General Relativity (2012), ch. 4 (constraints; from memory);
+T. W. Baumgarte and S. L. Shapiro, Numerical Relativity (2010), ch. 2 (constraints, from memory; the Ricci
 formula above is quoted from memory, and ``tests/test_constraints.py`` checks it against sympy).
 
 Every derivative goes through :mod:`emsource.kernels.stencils` (centred, order 2, 4 or 6 as

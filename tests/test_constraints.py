@@ -1,6 +1,6 @@
 """Tests of emsource.constraints: the ADM constraint monitor with electromagnetic sources.
 
-Sources: E. Gourgoulhon, 3+1 Formalism in General Relativity (2012), sec. 4.4 (Hamiltonian and
+Sources: E. Gourgoulhon, 3+1 Formalism in General Relativity (2012), ch. 4, from memory (Hamiltonian and
 momentum constraints, H = R + K^2 - K_ij K^ij - 16 pi rho, M_i = D_j K^j_i - D_i K - 8 pi S_i);
 C. W. Misner, K. S. Thorne, J. A. Wheeler, Gravitation (1973), ch. 33 (Kerr, Reissner-Nordstrom
 and Kerr-Newman are exact solutions of the Einstein(-Maxwell) equations, so their constraints
@@ -137,7 +137,7 @@ def _reference_constraints(metric, curvature, point, rho=0.0, S=(0.0, 0.0, 0.0))
 def test_kernel_matches_textbook_definitions_on_generic_data():
     # Generic (non-solution) smooth data: a non-diagonal, non-conformally-flat metric and a
     # curvature tensor of our own. The kernel must reproduce H and M_i of the textbook
-    # definitions (Gourgoulhon 2012, sec. 4.4; Ricci from the Christoffel symbols, common
+    # definitions (Gourgoulhon 2012, ch. 4, from memory; Ricci from the Christoffel symbols, common
     # practice) with an error that falls as h^6 at order 6 (observed order 5.3 - 6.7).
     x, y, z = sp.symbols("x y z", real=True)
     metric = [[1 + 0.2 * sp.sin(x + 2 * y), 0.1 * sp.cos(y - z), 0.05 * x * z],

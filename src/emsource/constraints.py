@@ -9,7 +9,8 @@ field is given. R is the Ricci scalar of gamma_ij and D its covariant derivative
 centred finite differences of order 2, 4 or 6 (:mod:`emsource.kernels.stencils`).
 
 References: E. Gourgoulhon, 3+1 Formalism in General Relativity, Lecture Notes in Physics 846
-(2012), sec. 4.4; T. W. Baumgarte and S. L. Shapiro, Numerical Relativity (2010), ch. 2.
+(2012), ch. 4 (constraint equations; section from memory); T. W. Baumgarte and S. L. Shapiro,
+Numerical Relativity (2010), ch. 2 (from memory).
 """
 
 from __future__ import annotations
@@ -135,7 +136,7 @@ def adm_constraints(gamma, K, E=None, B=None, *, spacing, order=4, units="gaussi
     """Hamiltonian and momentum constraints with electromagnetic sources, by finite differences.
 
     Implements H = R + K^2 - K_ij K^ij - 16 pi rho and M_i = D_j K^j_i - D_i K - 8 pi S_i
-    (Gourgoulhon 2012, sec. 4.4), rho and S_i from :func:`emsource.adm_sources` (zero when
+    (Gourgoulhon 2012, ch. 4, from memory), rho and S_i from :func:`emsource.adm_sources` (zero when
     ``E`` and ``B`` are None), on interior points whose whole stencil is unmasked.
 
     Parameters

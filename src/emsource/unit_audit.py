@@ -21,7 +21,7 @@ when the data are inconsistent with every system ("none fits": other matter, a d
 rescaling of the fields, or wrong data).
 
 Reference: the constraints as in E. Gourgoulhon, 3+1 Formalism in General Relativity (2012),
-sec. 4.4; unit systems as in J. D. Jackson, Classical Electrodynamics, 3rd ed. (1999), appendix
+ch. 4 (from memory); unit systems as in J. D. Jackson, Classical Electrodynamics, 3rd ed. (1999), appendix
 on units and dimensions.
 """
 

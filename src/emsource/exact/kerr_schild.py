@@ -76,12 +76,12 @@ def _check_parameters(mass, spin, charge):
     spin = float(spin)
     charge = float(charge)
     if not (math.isfinite(mass) and mass > 0):
-        raise ValueError(f"mass must be finite and positive, found {mass!r}")
+        raise ValueError(f"kerr_newman: mass must be finite and positive, found {mass!r}")
     if not (math.isfinite(spin) and math.isfinite(charge)):
-        raise ValueError(f"spin and charge must be finite, found spin={spin!r}, charge={charge!r}")
+        raise ValueError(f"kerr_newman: spin and charge must be finite, found spin={spin!r}, charge={charge!r}")
     if spin * spin + charge * charge > mass * mass:
         raise ValueError(
-            "spin^2 + charge^2 must not exceed mass^2 (no horizon otherwise): found "
+            "kerr_newman: spin^2 + charge^2 must not exceed mass^2 (no horizon otherwise): found "
             f"mass={mass!r}, spin={spin!r}, charge={charge!r}"
         )
     return mass, spin, charge
@@ -138,7 +138,7 @@ def kerr_newman_arrays(x, y, z, *, mass, spin=0.0, charge=0.0, units="gaussian")
     """
     mass, spin, charge = _check_parameters(mass, spin, charge)
     if units not in _UNITS:
-        raise ValueError(f"units must be one of {_UNITS}, found {units!r}")
+        raise ValueError(f"kerr_newman: units must be one of {_UNITS}, found {units!r}")
     x, y, z = np.broadcast_arrays(*(np.asarray(c, dtype=np.float64) for c in (x, y, z)))
     a = spin
     a2 = a * a
@@ -252,15 +252,15 @@ def kerr_newman(grid: UniformGrid, *, mass, spin=0.0, charge=0.0, mask_radius=No
     """
     mass, spin, charge = _check_parameters(mass, spin, charge)
     if not isinstance(grid, UniformGrid):
-        raise TypeError(f"grid must be a UniformGrid, found {type(grid).__name__}")
+        raise TypeError(f"kerr_newman: grid must be a UniformGrid, found {type(grid).__name__}")
     dtype = np.dtype(dtype)
     if dtype not in (np.dtype(np.float32), np.dtype(np.float64)):
-        raise ValueError(f"dtype must be float32 or float64, found {dtype}")
+        raise ValueError(f"kerr_newman: dtype must be float32 or float64, found {dtype}")
     if mask_radius is None:
         mask_radius = outer_horizon_radius(mass, spin, charge)
     mask_radius = float(mask_radius)
     if not (math.isfinite(mask_radius) and mask_radius >= 0):
-        raise ValueError(f"mask_radius must be finite and >= 0, found {mask_radius!r}")
+        raise ValueError(f"kerr_newman: mask_radius must be finite and >= 0, found {mask_radius!r}")
     x, y, z = grid.coordinates(np.float64)
     v = kerr_newman_arrays(x, y, z, mass=mass, spin=spin, charge=charge, units=units)
     finite = np.isfinite(v["alpha"])
