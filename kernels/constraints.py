@@ -22,7 +22,8 @@ the weights say). Arrays are float64: ``gamma`` and ``K`` (6, nx, ny, nz) packed
 (xx, xy, xz, yy, yz, zz), ``rho`` (nx, ny, nz), ``S`` (3, nx, ny, nz) covariant, ``evaluate``
 uint8 (nx, ny, nz), 1 where the whole stencil lies on valid data (the caller guarantees it
 stays ``radius`` points away from the faces). Outputs are written at every point: the residuals
-and the sizes of their separate terms where ``evaluate`` is 1, NaN elsewhere.
+and the absolute value of their largest term (R, K^2, K_ij K^ij, 16 pi rho for H; D_j K^j_i,
+D_i K, 8 pi S_i for M_i) where ``evaluate`` is 1, NaN elsewhere.
 ``sym`` (3, 3) int64 maps a pair of indices to its packed component.
 """
 
@@ -39,8 +40,8 @@ from .stencils import d1, d2, d11
 
 @grid_kernel
 def adm_constraints_grid(gamma, K, rho, S, evaluate, w1, w2, inv_h, sym, sixteen_pi, eight_pi,
-                         H, M, H_terms, M_terms):
-    """H, M_i and the summed absolute sizes of their terms; see the module docstring."""
+                         H, M, H_scale, M_scale):
+    """H, M_i and the size of their largest term; see the module docstring."""
     nx, ny, nz = rho.shape
     for column in prange(nx * ny):
         i = column // ny
@@ -59,10 +60,10 @@ def adm_constraints_grid(gamma, K, rho, S, evaluate, w1, w2, inv_h, sym, sixteen
         for k in range(nz):
             if evaluate[i, j, k] == 0:
                 H[i, j, k] = math.nan
-                H_terms[i, j, k] = math.nan
+                H_scale[i, j, k] = math.nan
                 for a in range(3):
                     M[a, i, j, k] = math.nan
-                    M_terms[a, i, j, k] = math.nan
+                    M_scale[a, i, j, k] = math.nan
                 continue
             for a in range(3):
                 for b in range(a, 3):
@@ -144,7 +145,7 @@ def adm_constraints_grid(gamma, K, rho, S, evaluate, w1, w2, inv_h, sym, sixteen
                     k_sq += ku[a, b] * kl[a, b]
             matter = sixteen_pi * rho[i, j, k]
             H[i, j, k] = ricci + trace_k * trace_k - k_sq - matter
-            H_terms[i, j, k] = abs(ricci) + trace_k * trace_k + k_sq + abs(matter)
+            H_scale[i, j, k] = max(max(abs(ricci), trace_k * trace_k), max(k_sq, abs(matter)))
             # M_i = gamma^jk D_j K_ki - gamma^jk D_i K_jk - 8 pi S_i
             for a in range(3):
                 div_k = 0.0
@@ -161,4 +162,4 @@ def adm_constraints_grid(gamma, K, rho, S, evaluate, w1, w2, inv_h, sym, sixteen
                         grad_k += gi[b, c] * dabc
                 source = eight_pi * S[a, i, j, k]
                 M[a, i, j, k] = div_k - grad_k - source
-                M_terms[a, i, j, k] = abs(div_k) + abs(grad_k) + abs(source)
+                M_scale[a, i, j, k] = max(max(abs(div_k), abs(grad_k)), abs(source))

@@ -17,6 +17,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass, field
+from typing import NamedTuple
 
 import numpy as np
 from scipy import ndimage
@@ -57,35 +58,49 @@ def evaluable_points(mask, order):
     return ndimage.binary_erosion(mask, structure=structure, border_value=0)
 
 
-@dataclass(frozen=True)
-class ResidualNorms:
-    """Norms of one residual over the evaluated points.
+class ResidualNorms(NamedTuple):
+    """Norms of a residual over the evaluated points (the same norms as emsource.conservation).
 
-    ``l2`` is the root mean square over the points (for M_i, of sum_i M_i^2: the coordinate
-    norm of the covector), ``max`` the largest magnitude, and ``normalised`` the l2 norm of the
-    residual over the l2 norm of the summed absolute sizes of its terms (1 means the terms do
-    not cancel at all, round-off is about 1e-15).
+    Attributes
+    ----------
+    l2 : float or (3,) ndarray
+        Root mean square over the evaluated points, sqrt(mean R^2).
+    max : float or (3,) ndarray
+        Largest absolute value over the evaluated points.
+    normalised_l2 : float or (3,) ndarray
+        l2 of the residual over l2 of its pointwise scale (the largest term of the equation).
+    normalised_max : float or (3,) ndarray
+        max of the residual over max of the scale.
+
+    Hamiltonian norms are floats, momentum norms have one entry per component i.
     """
 
-    l2: float
-    max: float
-    normalised: float
+    l2: object
+    max: object
+    normalised_l2: object
+    normalised_max: object
 
 
-def residual_norms(residual, terms, evaluated) -> ResidualNorms:
-    """:class:`ResidualNorms` of ``residual`` (grid or (3, *grid)) over ``evaluated`` points."""
-    if residual.ndim == evaluated.ndim:
-        residual = residual[None]
-        terms = terms[None]
-    count = int(evaluated.sum())
-    if count == 0:
-        return ResidualNorms(math.nan, math.nan, math.nan)
-    res2 = np.sum(residual[:, evaluated] ** 2, axis=0)
-    term2 = np.sum(terms[:, evaluated] ** 2, axis=0)
-    l2 = math.sqrt(float(res2.mean()))
-    scale = math.sqrt(float(term2.mean()))
-    return ResidualNorms(l2=l2, max=math.sqrt(float(res2.max())),
-                         normalised=l2 / scale if scale > 0 else math.nan)
+def _ratio(a, b):
+    with np.errstate(divide="ignore", invalid="ignore"):
+        r = np.where(b > 0, a / np.where(b > 0, b, 1.0), np.nan)
+    return float(r) if np.ndim(r) == 0 else r
+
+
+def residual_norms(residual, scale, evaluated) -> ResidualNorms:
+    """:class:`ResidualNorms` of ``residual`` ((*grid) or (3, *grid)) over ``evaluated``."""
+    vector = residual.ndim == evaluated.ndim + 1
+    r = residual[:, evaluated] if vector else residual[evaluated][None]
+    s = scale[:, evaluated] if vector else scale[evaluated][None]
+    if r.shape[1] == 0:
+        nan = np.full(3, np.nan) if vector else math.nan
+        return ResidualNorms(nan, nan, nan, nan)
+    l2 = np.sqrt(np.mean(r**2, axis=1))
+    mx = np.max(np.abs(r), axis=1)
+    out = (l2, mx, _ratio(l2, np.sqrt(np.mean(s**2, axis=1))), _ratio(mx, np.max(s, axis=1)))
+    if not vector:
+        out = tuple(float(np.ravel(v)[0]) for v in out)
+    return ResidualNorms(*out)
 
 
 @dataclass(frozen=True)
@@ -98,9 +113,9 @@ class ConstraintResiduals:
         H at evaluated points, NaN elsewhere.
     momentum : (3, nx, ny, nz) float64 ndarray
         M_i (covariant) at evaluated points, NaN elsewhere.
-    hamiltonian_terms, momentum_terms : ndarray
-        |R| + K^2 + K_ij K^ij + 16 pi |rho|, and |D_j K^j_i| + |D_i K| + 8 pi |S_i|: the size
-        the residual is measured against.
+    hamiltonian_scale, momentum_scale : ndarray
+        max(|R|, K^2, K_ij K^ij, 16 pi |rho|) and max(|D_j K^j_i|, |D_i K|, 8 pi |S_i|): the
+        largest term of each equation at each point, NaN where not evaluated.
     evaluated : (nx, ny, nz) bool ndarray
         Where the residuals were computed (see :func:`evaluable_points`).
     hamiltonian_norms, momentum_norms : ResidualNorms
@@ -111,8 +126,8 @@ class ConstraintResiduals:
 
     hamiltonian: np.ndarray
     momentum: np.ndarray
-    hamiltonian_terms: np.ndarray
-    momentum_terms: np.ndarray
+    hamiltonian_scale: np.ndarray
+    momentum_scale: np.ndarray
     evaluated: np.ndarray
     order: int
     units: str | None
@@ -121,9 +136,9 @@ class ConstraintResiduals:
 
     def __post_init__(self):
         object.__setattr__(self, "hamiltonian_norms",
-                           residual_norms(self.hamiltonian, self.hamiltonian_terms, self.evaluated))
+                           residual_norms(self.hamiltonian, self.hamiltonian_scale, self.evaluated))
         object.__setattr__(self, "momentum_norms",
-                           residual_norms(self.momentum, self.momentum_terms, self.evaluated))
+                           residual_norms(self.momentum, self.momentum_scale, self.evaluated))
 
 
 def _first_bad(condition):
@@ -179,7 +194,7 @@ def adm_constraints(gamma, K, E=None, B=None, *, spacing, order=4, units="gaussi
     >>> grid = UniformGrid.from_bounds((3, 1, 0.5), (4, 2, 1.5), (12, 12, 12))
     >>> d = kerr_newman(grid, mass=1.0, spin=0.6, charge=0.5)
     >>> res = adm_constraints(d.gamma, d.K, d.E, d.B, spacing=grid.spacing, order=4)
-    >>> bool(res.hamiltonian_norms.normalised < 1e-4)
+    >>> bool(res.hamiltonian_norms.normalised_l2 < 1e-4)
     True
     """
     args.choice(_FUNC, "order", order, (2, 4, 6))
@@ -249,12 +264,12 @@ def adm_constraints(gamma, K, E=None, B=None, *, spacing, order=4, units="gaussi
     evaluated = evaluable_points(mask, order)
     H = np.empty(grid)
     M = np.empty((3,) + grid)
-    H_terms = np.empty(grid)
-    M_terms = np.empty((3,) + grid)
+    H_scale = np.empty(grid)
+    M_scale = np.empty((3,) + grid)
     adm_constraints_grid(gamma64, K64, rho, S_i, evaluated.view(np.uint8),
                          first_derivative_weights(order), second_derivative_weights(order),
                          1.0 / spacing, _SYM, 16.0 * math.pi, 8.0 * math.pi,
-                         H, M, H_terms, M_terms)
-    return ConstraintResiduals(hamiltonian=H, momentum=M, hamiltonian_terms=H_terms,
-                               momentum_terms=M_terms, evaluated=evaluated, order=order,
+                         H, M, H_scale, M_scale)
+    return ConstraintResiduals(hamiltonian=H, momentum=M, hamiltonian_scale=H_scale,
+                               momentum_scale=M_scale, evaluated=evaluated, order=order,
                                units=None if vacuum else units)

@@ -49,8 +49,9 @@ ROUND_OFF = 1e-12
 class HypothesisResult:
     """Residuals under one hypothesis, on the points both the h and the 2 h grid evaluate.
 
-    ``*_fine`` and ``*_coarse`` are normalised l2 norms (residual over its terms) at spacing h
-    and 2 h; ``*_order`` the observed order log2(l2(2h) / l2(h)) of the raw residuals.
+    ``*_fine`` and ``*_coarse`` are normalised l2 norms (residual over its largest term; for
+    M_i, sum_i M_i^2 over the same for the scales) at spacing h and 2 h; ``*_order`` the
+    observed order log2(l2(2h) / l2(h)) of the raw residuals.
     """
 
     name: str
@@ -103,7 +104,8 @@ class UnitAudit:
                 f"{r.name:<18} {r.hamiltonian_fine:10.3e} {r.hamiltonian_coarse:10.3e} "
                 f"{r.hamiltonian_order:6.2f} {r.momentum_fine:10.3e} {r.momentum_coarse:10.3e} "
                 f"{r.momentum_order:6.2f}  {'yes' if r.fits else 'no'}")
-        lines.append("(H, M: l2 norm of the residual over the l2 norm of its terms; p: observed order)")
+        lines.append("(H, M: l2 norm of the residual over the l2 norm of its largest term; "
+                     "p: observed order)")
         lines.append(self.message)
         return "\n".join(lines)
 
@@ -189,10 +191,10 @@ def audit_units(gamma, K, E, B, *, spacing, order=4, field_index="upper", mask=N
         if not common.any():
             raise ValueError("audit_units: no point is evaluated on both the h and the 2h grid "
                              "(mask too large for this grid)")
-        fh, fhn = _norm(fine.hamiltonian[sub], fine.hamiltonian_terms[sub], common)
-        ch, chn = _norm(coarse.hamiltonian, coarse.hamiltonian_terms, common)
-        fm, fmn = _norm(fine.momentum[every_other], fine.momentum_terms[every_other], common)
-        cm, cmn = _norm(coarse.momentum, coarse.momentum_terms, common)
+        fh, fhn = _norm(fine.hamiltonian[sub], fine.hamiltonian_scale[sub], common)
+        ch, chn = _norm(coarse.hamiltonian, coarse.hamiltonian_scale, common)
+        fm, fmn = _norm(fine.momentum[every_other], fine.momentum_scale[every_other], common)
+        cm, cmn = _norm(coarse.momentum, coarse.momentum_scale, common)
         p_h, p_m = _order(ch, fh), _order(cm, fm)
 
         def ok(p, normalised):
