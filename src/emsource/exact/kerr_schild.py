@@ -14,10 +14,13 @@ potential is
     A_a = -(Q r^3 / (r^4 + a^2 z^2)) l_a,
 
 so A_t -> -Q / r far away (a charge Q > 0 has an outward E). Reissner-Nordstrom is a = 0,
-Kerr is Q = 0. H, l and A are quoted from memory in the form of C. W. Misner, K. S. Thorne,
-J. A. Wheeler, Gravitation (1973), ch. 33 (Kerr-Newman geometry, horizon at
-r+ = M + sqrt(M^2 - a^2 - Q^2)); ``tests/test_kerr_schild.py`` checks that the data solve the
-Einstein-Maxwell constraints, where the horizon sits, and the asymptotic charge.
+Kerr is Q = 0. This Kerr-Schild form of H, l and A is quoted from memory; the geometry is the
+Kerr-Newman one of C. W. Misner, K. S. Thorne, J. A. Wheeler, Gravitation (1973), ch. 33 (given
+there in Boyer-Lindquist coordinates, with horizons at r = M +- sqrt(M^2 - a^2 - Q^2) and
+charge Q). Because the form is recalled, the tests check the data against physics rather than
+against the formula: ``tests/test_constraints.py`` (the Einstein-Maxwell constraints converge to
+zero only with the Gaussian stress-energy) and ``tests/test_kerr_schild.py`` (horizon location,
+flux of E = 4 pi Q, the field invariants, div E = div B = 0, an independent sympy route).
 
 3+1 split (l is null, so its flat-space norm l_i l_i is 1 and l_t = 1):
 
