@@ -110,3 +110,25 @@ def test_committed_sample_grid_is_what_the_tool_writes():
                         data["electric_field"], data["magnetic_field"], spacing=spacing,
                         mask=d.mask)
     assert audit.verdict == "gaussian"
+
+
+def test_audit_reads_a_native_snapshot_level_stored_zyx(tmp_path, capsys):
+    # The native snapshot layout (group time_levels/<n>, attributes origin, spacing, axis_order,
+    # units, dataset valid_mask), written here with h5py in "zyx" storage order: the commands
+    # must return the arrays in (x, y, z) order and find the Heaviside-Lorentz data as such.
+    grid = UniformGrid.from_bounds((2.5, 0.5, -0.5), (3.5, 1.5, 0.5), (21, 23, 25))
+    d = kerr_newman(grid, mass=1.0, spin=0.6, charge=0.5, units="heaviside_lorentz")
+    path = tmp_path / "snap.h5"
+    with h5py.File(path, "w") as f:
+        g = f.create_group("time_levels").create_group("0")
+        g.attrs.update(time=0.0, origin=grid.origin, spacing=grid.spacing, axis_order="zyx",
+                       units="heaviside_lorentz")
+        for name, a in (("lapse", d.alpha), ("shift", d.beta), ("spatial_metric", d.gamma),
+                        ("extrinsic_curvature", d.K), ("electric_field", d.E),
+                        ("magnetic_field", d.B)):
+            g[name] = a.T if a.ndim == 3 else a.transpose(0, 3, 2, 1)
+        g["valid_mask"] = d.mask.T.astype(np.uint8)
+    assert main(["audit-units", str(path)]) == commands.EXIT_OK
+    assert "heaviside_lorentz fits" in capsys.readouterr().out
+    assert main(["constraints", str(path), "--tolerance", "1e-4"]) == commands.EXIT_OK
+    assert main(["constraints", str(path), "--level", "1"]) == commands.EXIT_BAD_INPUT

@@ -52,24 +52,52 @@ def write_slice(path, data, *, attributes=None, force=False, compression="gzip")
             os.remove(tmp)
 
 
-def read_slice(path):
-    """The arrays and grid attributes of a slice file, as a dict keyed like SliceFields."""
+def _text(value):
+    return value.decode() if isinstance(value, bytes) else (None if value is None else str(value))
+
+
+def read_slice(path, level=0):
+    """The arrays and grid attributes of a slice file, as a dict keyed like SliceFields.
+
+    Reads the plain layout above, or one time level of a snapshot in the package's native
+    layout (group ``time_levels/<level>`` with the same dataset names, ``valid_mask`` and
+    ``axis_order``; "zyx" storage is returned in (x, y, z) axis order).
+    """
     try:
         f = h5py.File(path, "r")
     except (OSError, FileNotFoundError) as exc:
         raise SliceFileError(f"cannot open {path} as HDF5: {exc}") from None
     with f:
+        if "time_levels" in f:
+            levels = f["time_levels"]
+            if str(level) not in levels:
+                raise SliceFileError(f"{path}: time level {level} not found "
+                                     f"(levels: {sorted(levels)})")
+            group = levels[str(level)]
+            where = f"{path}:/time_levels/{level}"
+            mask_name = "valid_mask"
+        else:
+            group = f
+            where = path
+            mask_name = "mask"
+        reverse = _text(group.attrs.get("axis_order", "xyz")) == "zyx"
+
+        def load(name):
+            a = group[name][()]
+            if reverse:  # storage (c, z, y, x) -> (c, x, y, z)
+                a = np.ascontiguousarray(a.transpose((0,) * (a.ndim == 4) + (a.ndim - 1, a.ndim - 2,
+                                                                          a.ndim - 3)))
+            return a
+
         out = {}
         for name, key in DATASETS.items():
-            if name not in f:
-                raise SliceFileError(f"{path}: dataset '{name}' is missing (found {sorted(f)})")
-            out[key] = f[name][()]
-        for attr in ("spacing",):
-            if attr not in f.attrs:
-                raise SliceFileError(f"{path}: root attribute '{attr}' is missing")
-        out["spacing"] = tuple(float(h) for h in np.atleast_1d(f.attrs["spacing"]))
-        out["origin"] = tuple(float(o) for o in np.atleast_1d(f.attrs.get("origin", (0.0,) * 3)))
-        units = f.attrs.get("units", None)
-        out["units"] = units.decode() if isinstance(units, bytes) else units
-        out["mask"] = f["mask"][()].astype(bool) if "mask" in f else None
+            if name not in group:
+                raise SliceFileError(f"{where}: dataset '{name}' is missing (found {sorted(group)})")
+            out[key] = load(name)
+        if "spacing" not in group.attrs:
+            raise SliceFileError(f"{where}: attribute 'spacing' is missing")
+        out["spacing"] = tuple(float(h) for h in np.atleast_1d(group.attrs["spacing"]))
+        out["origin"] = tuple(float(o) for o in np.atleast_1d(group.attrs.get("origin", (0.0,) * 3)))
+        out["units"] = _text(group.attrs.get("units", None))
+        out["mask"] = load(mask_name).astype(bool) if mask_name in group else None
     return out

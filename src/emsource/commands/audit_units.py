@@ -15,7 +15,10 @@ def register(subparsers):
                     "without sources, at the file's spacing h and at 2h, and report which "
                     "makes them converge. Exit code 0 when exactly one fits, 1 otherwise.",
     )
-    p.add_argument("input", help="HDF5 slice file")
+    p.add_argument("input", help="HDF5 slice file (plain layout of 'emsource black-hole', or a "
+                                 "snapshot in the native layout)")
+    p.add_argument("--level", type=int, default=0,
+                   help="time level of a native snapshot (default 0)")
     p.add_argument("--order", type=int, choices=(2, 4, 6), default=4,
                    help="finite-difference order (default 4)")
     p.set_defaults(run=run)
@@ -25,7 +28,7 @@ def run(args) -> int:
     from ..unit_audit import audit_units
 
     try:
-        d = read_slice(args.input)
+        d = read_slice(args.input, args.level)
         audit = audit_units(d["gamma"], d["K"], d["E"], d["B"], spacing=d["spacing"],
                             order=args.order, mask=d["mask"])
     except (SliceFileError, ValueError, TypeError) as exc:

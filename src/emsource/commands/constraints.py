@@ -15,7 +15,10 @@ def register(subparsers):
                     "(datasets spatial_metric, extrinsic_curvature, electric_field, "
                     "magnetic_field, optional mask; attribute spacing) and print their norms.",
     )
-    p.add_argument("input", help="HDF5 slice file")
+    p.add_argument("input", help="HDF5 slice file (plain layout of 'emsource black-hole', or a "
+                                 "snapshot in the native layout)")
+    p.add_argument("--level", type=int, default=0,
+                   help="time level of a native snapshot (default 0)")
     p.add_argument("--order", type=int, choices=(2, 4, 6), default=4,
                    help="finite-difference order (default 4)")
     p.add_argument("--sources", choices=("file", "gaussian", "heaviside_lorentz", "none"),
@@ -31,7 +34,7 @@ def run(args) -> int:
     from ..constraints import adm_constraints
 
     try:
-        d = read_slice(args.input)
+        d = read_slice(args.input, args.level)
         units = (d["units"] or "gaussian") if args.sources == "file" else args.sources
         if units == "none":
             res = adm_constraints(d["gamma"], d["K"], spacing=d["spacing"], order=args.order,
