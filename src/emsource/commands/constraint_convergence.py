@@ -93,7 +93,7 @@ def run(args) -> int:
                 ax.loglog(hs, [v0 * (h / h0) ** order for h in hs], color="grey", lw=0.6)
             ax.set_title(title)
             ax.set_xlabel("grid spacing h / M")
-            ax.grid(True, which="both", lw=0.3)
+            ax.grid(True, which="major", lw=0.3)
         axes[0].set_ylabel("l2 of residual / l2 of its largest term")
         axes[1].legend(fontsize=7, loc="lower right")
         fig.suptitle(f"Kerr-Newman (M = {args.mass:g}, a = {args.spin:g}, Q = {args.charge:g}), "
