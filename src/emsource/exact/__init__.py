@@ -14,6 +14,9 @@ Flat spacetime:
   (lapse 1, shift V).
 - :func:`plane_wave_gauge_wave`: the plane wave on the gauge-wave slicing of flat spacetime
   (lapse, metric and extrinsic curvature all nontrivial).
+- :func:`rotating_dipole`: the vacuum field of a rotating point magnetic dipole (all zones),
+  a model of a spinning magnetized compact star; :func:`rotating_dipole_fields` at arbitrary
+  points and :func:`rotating_dipole_luminosity`, its radiated power.
 
 Curved spacetime (electrovacuum black holes, Kerr-Schild coordinates, stationary slices):
 
@@ -35,6 +38,7 @@ from .kerr_schild import (
 )
 from .moving_frame import plane_wave_moving_frame
 from .plane_wave import periodic_wave_vector, plane_wave
+from .rotating_dipole import rotating_dipole, rotating_dipole_fields, rotating_dipole_luminosity
 from .slice_fields import SliceFields
 
 __all__ = [
@@ -45,6 +49,9 @@ __all__ = [
     "plane_wave",
     "plane_wave_gauge_wave",
     "plane_wave_moving_frame",
+    "rotating_dipole",
+    "rotating_dipole_fields",
+    "rotating_dipole_luminosity",
     "inner_horizon_radius",
     "kerr",
     "kerr_newman",

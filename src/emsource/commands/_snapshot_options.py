@@ -1,0 +1,78 @@
+"""Options and error handling shared by the snapshot commands (not a command itself)."""
+
+from __future__ import annotations
+
+import argparse
+import os
+import sys
+
+from . import EXIT_BAD_INPUT, EXIT_OUTPUT_ERROR
+
+MIB = 2**20
+
+
+def memory_limit(text: str) -> int:
+    """``--memory-limit`` in MiB (a positive number) -> bytes."""
+    try:
+        value = float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"expected a number of MiB, found {text!r}") from None
+    if not value > 0:
+        raise argparse.ArgumentTypeError(f"memory limit must be positive, found {text!r}")
+    return int(value * MIB)
+
+
+def add_input_options(parser):
+    parser.add_argument("snapshot", help="HDF5 snapshot file (native layout, or any with --mapping)")
+    parser.add_argument("--mapping", metavar="TOML",
+                        help="layout mapping file for a snapshot in another code's layout")
+    parser.add_argument("--memory-limit", metavar="MIB", type=memory_limit, default=512 * MIB,
+                        help="bound on working memory in MiB (default 512); slabs are sized to fit")
+    parser.add_argument("--levels", metavar="I", type=int, nargs="+",
+                        help="indices of the time levels to process (default: all)")
+    parser.add_argument("--quiet", action="store_true", help="no progress bar and no summary")
+
+
+def show_progress(args) -> bool:
+    return not args.quiet and sys.stderr.isatty()
+
+
+def fail(code: int, message: str) -> int:
+    print(f"emsource: error: {message}", file=sys.stderr)
+    return code
+
+
+def run_guarded(function, args) -> int:
+    """Run ``function(args)`` and turn the package's errors into messages and exit codes."""
+    from ..io import OutputError, SnapshotError
+
+    try:
+        return function(args)
+    except SnapshotError as error:
+        return fail(EXIT_BAD_INPUT, str(error))
+    except OutputError as error:
+        return fail(EXIT_OUTPUT_ERROR, str(error))
+    except ValueError as error:  # e.g. a memory limit too small for one plane
+        return fail(EXIT_BAD_INPUT, str(error))
+
+
+def check_new_output(path, force) -> None:
+    """Fail before any work if an output exists (without --force) or cannot be created."""
+    from ..io import OutputError
+
+    path = os.path.abspath(path)
+    if os.path.exists(path) and not force:
+        raise OutputError(f"output {path!r} exists; use --force to replace it")
+    directory = os.path.dirname(path)
+    if not os.path.isdir(directory):
+        raise OutputError(f"output directory {directory!r} does not exist")
+    if not os.access(directory, os.W_OK):
+        raise OutputError(f"output directory {directory!r} is not writable")
+
+
+def size_text(nbytes: float) -> str:
+    for unit in ("B", "KiB", "MiB", "GiB"):
+        if nbytes < 1024 or unit == "GiB":
+            return f"{nbytes:.3g} {unit}" if unit != "B" else f"{int(nbytes)} B"
+        nbytes /= 1024
+    return f"{nbytes:.3g} GiB"

@@ -1,0 +1,104 @@
+"""Time series of integrated quantities across time levels: CSV, HDF5 and an optional plot.
+
+One row per time level. Columns (code units, G = c = 1, the snapshot's unit system):
+``level, time, energy, momentum_x, momentum_y, momentum_z, flux_x_lower, flux_x_upper,
+flux_y_lower, flux_y_upper, flux_z_lower, flux_z_upper, net_flux, max_electric_field,
+max_magnetic_field`` and ``luminosity_r<R>`` for each sphere radius R. With a mass scale, the
+physical columns ``energy_erg, energy_J, luminosity_r<R>_erg_s, luminosity_r<R>_W,
+max_magnetic_field_G, max_magnetic_field_T`` follow.
+
+The HDF5 file holds one 1D dataset per column under the root, with attributes ``columns`` (the
+order), ``mass_scale_solar`` (0 if none) and the provenance attributes of
+:func:`emsource.io.provenance_attributes`. Files are written atomically.
+"""
+
+from __future__ import annotations
+
+import csv
+
+import h5py
+import numpy as np
+
+from .integrals import FACES
+from .io import atomic_output
+
+__all__ = ["time_series_table", "write_csv", "write_hdf5", "write_plot"]
+
+
+def _radius_name(r: float) -> str:
+    return f"luminosity_r{r:g}"
+
+
+def time_series_table(results, scale=None) -> dict:
+    """Column name -> list of values (strings for ``level``), in column order."""
+    table = {"level": [r.label for r in results], "time": [r.time for r in results],
+             "energy": [r.energy for r in results]}
+    for i, axis in enumerate("xyz"):
+        table[f"momentum_{axis}"] = [float(r.momentum[i]) for r in results]
+    for face in FACES:
+        table[f"flux_{face}"] = [r.face_flux[face] for r in results]
+    table["net_flux"] = [r.net_flux for r in results]
+    table["max_electric_field"] = [r.max_electric_field for r in results]
+    table["max_magnetic_field"] = [r.max_magnetic_field for r in results]
+    radii = list(results[0].luminosity) if results else []
+    for radius in radii:
+        table[_radius_name(radius)] = [r.luminosity[radius] for r in results]
+    if scale is not None:
+        table["energy_erg"] = [v * scale.energy_erg for v in table["energy"]]
+        table["energy_J"] = [v * scale.energy_J for v in table["energy"]]
+        for radius in radii:
+            name = _radius_name(radius)
+            table[f"{name}_erg_s"] = [v * scale.luminosity_erg_s for v in table[name]]
+            table[f"{name}_W"] = [v * scale.luminosity_W for v in table[name]]
+        table["max_magnetic_field_G"] = [v * scale.magnetic_field_G for v in table["max_magnetic_field"]]
+        table["max_magnetic_field_T"] = [v * scale.magnetic_field_T for v in table["max_magnetic_field"]]
+    return table
+
+
+def write_csv(path, table, *, force=False):
+    """One header line, then one row per time level (``repr`` precision floats)."""
+    columns = list(table)
+    with atomic_output(path, force=force) as temporary:
+        with open(temporary, "w", newline="") as handle:
+            writer = csv.writer(handle)
+            writer.writerow(columns)
+            for row in zip(*(table[c] for c in columns)):
+                writer.writerow([v if isinstance(v, str) else repr(float(v)) for v in row])
+
+
+def write_hdf5(path, table, attributes, *, force=False):
+    columns = list(table)
+    with atomic_output(path, force=force) as temporary:
+        with h5py.File(temporary, "w") as f:
+            for key, value in attributes.items():
+                f.attrs[key] = value
+            f.attrs["columns"] = columns
+            for c in columns:
+                values = table[c]
+                if c == "level":
+                    f.create_dataset(c, data=np.array(values, dtype=h5py.string_dtype()))
+                else:
+                    f.create_dataset(c, data=np.asarray(values, dtype=np.float64))
+
+
+def write_plot(path, table, *, force=False):
+    """Energy and luminosities against time (needs matplotlib, the ``plot`` extra)."""
+    import matplotlib
+
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+
+    figure, (top, bottom) = plt.subplots(2, 1, sharex=True, figsize=(6, 5))
+    top.plot(table["time"], table["energy"], "o-")
+    top.set_ylabel("energy (code units)")
+    for name in table:
+        if name.startswith("luminosity_r") and not name.endswith(("_W", "_erg_s")):
+            bottom.plot(table["time"], table[name], "o-", label=f"sphere r = {name[12:]}")
+    bottom.plot(table["time"], table["net_flux"], "s--", label="box faces")
+    bottom.set_ylabel("energy flux out (code units)")
+    bottom.set_xlabel("time (code units)")
+    bottom.legend()
+    figure.tight_layout()
+    with atomic_output(path, force=force) as temporary:
+        figure.savefig(temporary, format="png", dpi=100)
+    plt.close(figure)
