@@ -8,7 +8,7 @@ import h5py
 import numpy as np
 import pytest
 
-from emsource import commands
+from emsource import commands, io
 from emsource.cli import main
 from emsource.exact import kerr_newman
 from emsource.grid import UniformGrid
@@ -28,11 +28,15 @@ def test_black_hole_file_matches_the_python_data(tmp_path):
     path = _write(tmp_path, "kn.h5")
     grid = UniformGrid.from_bounds((2.5, 0.5, -0.5), (3.5, 1.5, 0.5), (21, 21, 21))
     d = kerr_newman(grid, mass=1.0, spin=0.6, charge=0.5)
+    level = io.read_level(path, 0)  # the package's native snapshot layout
+    assert np.array_equal(level["spatial_metric"], d.gamma)
+    assert np.array_equal(level["extrinsic_curvature"], d.K)
+    assert np.array_equal(level["electric_field"], d.E)
+    assert np.array_equal(level["valid_mask"].astype(bool), d.mask)
+    assert np.allclose(level["grid"].spacing, grid.spacing, rtol=1e-15)
+    assert level["units"] == "gaussian"
     with h5py.File(path, "r") as f:
-        assert np.array_equal(f["spatial_metric"][()], d.gamma)
-        assert np.array_equal(f["electric_field"][()], d.E)
-        assert np.allclose(f.attrs["spacing"], grid.spacing, rtol=1e-15)
-        assert f.attrs["units"] == "gaussian"
+        assert (f.attrs["mass"], f.attrs["spin"], f.attrs["charge"]) == (1.0, 0.6, 0.5)
     assert main(["black-hole", path, *BOX]) == commands.EXIT_OUTPUT_ERROR  # exists, no --force
     assert main(["black-hole", str(tmp_path / "x.h5"), "--spin", "0.9", "--charge", "0.9"]) \
         == commands.EXIT_BAD_INPUT
@@ -60,8 +64,8 @@ def test_audit_units_command_names_the_system(tmp_path, capsys, units):
 def test_audit_units_command_none_fits(tmp_path, capsys):
     path = _write(tmp_path, "kn.h5")
     with h5py.File(path, "r+") as f:
-        f["electric_field"][...] *= 0.5
-        f["magnetic_field"][...] *= 0.5
+        f["time_levels/0/electric_field"][...] *= 0.5
+        f["time_levels/0/magnetic_field"][...] *= 0.5
     assert main(["audit-units", path]) == commands.EXIT_CHECK_FAILED
     assert "none fits" in capsys.readouterr().out
 
@@ -84,51 +88,48 @@ def test_constraint_convergence_command_table_and_plot(tmp_path, capsys):
 
 
 def test_committed_sample_grid_is_what_the_tool_writes():
-    # Guards the on-disk layout of sample_grids/ (datasets, attributes, values): the file must
-    # equal a fresh sample of the same Kerr-Newman hole, and the audit must call it Gaussian.
+    # Guards the committed sample (native snapshot, float32, gzip): its arrays must equal a
+    # fresh float32 sample of the same Kerr-Newman hole, and the audit must call it Gaussian.
     import pathlib
 
     from emsource.unit_audit import audit_units
 
-    path = pathlib.Path(__file__).parents[1] / "sample_grids" / "kerr_newman_m1_a0.7_q0.4.h5"
+    path = pathlib.Path(__file__).parents[1] / "sample_grids" / "kerr_newman.h5"
     grid = UniformGrid.from_bounds((-6.0,) * 3, (6.0,) * 3, (32, 32, 32))
-    d = kerr_newman(grid, mass=1.0, spin=0.7, charge=0.4)
+    d = kerr_newman(grid, mass=1.0, spin=0.7, charge=0.4, dtype=np.float32)
+    level = io.read_level(path, 0)
+    for name, attr in (("lapse", "alpha"), ("shift", "beta"), ("spatial_metric", "gamma"),
+                       ("extrinsic_curvature", "K"), ("electric_field", "E"),
+                       ("magnetic_field", "B")):
+        # Computed in float64 and rounded to float32: equal here; one float32 ulp (6e-8)
+        # leaves room for another CPU's rounding in NumPy's summation loops.
+        assert level[name].dtype == np.float32
+        assert np.allclose(level[name], getattr(d, attr), rtol=1.2e-7, atol=1e-12), name
+    assert np.array_equal(level["valid_mask"].astype(bool), d.mask)
     with h5py.File(path, "r") as f:
-        for name, attr in (("lapse", "alpha"), ("shift", "beta"), ("spatial_metric", "gamma"),
-                           ("extrinsic_curvature", "K"), ("electric_field", "E"),
-                           ("magnetic_field", "B")):
-            # Bit-for-bit on this machine; 1e-13 relative leaves room for another CPU's
-            # rounding in NumPy's summation loops, far below any change of formula.
-            assert np.allclose(f[name][()], getattr(d, attr), rtol=1e-13, atol=1e-15,
-                               equal_nan=True), name
-        assert np.array_equal(f["mask"][()].astype(bool), d.mask)
         assert (f.attrs["mass"], f.attrs["spin"], f.attrs["charge"]) == (1.0, 0.7, 0.4)
-        spacing = tuple(f.attrs["spacing"])
-        data = {k: f[k][()] for k in ("spatial_metric", "extrinsic_curvature",
-                                      "electric_field", "magnetic_field")}
-    audit = audit_units(data["spatial_metric"], data["extrinsic_curvature"],
-                        data["electric_field"], data["magnetic_field"], spacing=spacing,
-                        mask=d.mask)
+    # float32 storage adds ~6e-8 * 5.3 / h^2 = 2e-6 to R at h = 0.39, far below the order-4
+    # truncation error there (~3e-4), so the audit still sees order-4 convergence.
+    audit = audit_units(level["spatial_metric"], level["extrinsic_curvature"],
+                        level["electric_field"], level["magnetic_field"],
+                        spacing=level["grid"].spacing, mask=d.mask)
     assert audit.verdict == "gaussian"
 
 
-def test_audit_reads_a_native_snapshot_level_stored_zyx(tmp_path, capsys):
-    # The native snapshot layout (group time_levels/<n>, attributes origin, spacing, axis_order,
-    # units, dataset valid_mask), written here with h5py in "zyx" storage order: the commands
-    # must return the arrays in (x, y, z) order and find the Heaviside-Lorentz data as such.
+def test_audit_reads_a_snapshot_stored_zyx(tmp_path, capsys):
+    # A native snapshot in "zyx" storage order, written by emsource.io: the commands must get
+    # the arrays back in (x, y, z) order (non-cubic grid, unequal spacings) and find the
+    # Heaviside-Lorentz data as such.
     grid = UniformGrid.from_bounds((2.5, 0.5, -0.5), (3.5, 1.5, 0.5), (21, 23, 25))
     d = kerr_newman(grid, mass=1.0, spin=0.6, charge=0.5, units="heaviside_lorentz")
     path = tmp_path / "snap.h5"
-    with h5py.File(path, "w") as f:
-        g = f.create_group("time_levels").create_group("0")
-        g.attrs.update(time=0.0, origin=grid.origin, spacing=grid.spacing, axis_order="zyx",
-                       units="heaviside_lorentz")
-        for name, a in (("lapse", d.alpha), ("shift", d.beta), ("spatial_metric", d.gamma),
-                        ("extrinsic_curvature", d.K), ("electric_field", d.E),
-                        ("magnetic_field", d.B)):
-            g[name] = a.T if a.ndim == 3 else a.transpose(0, 3, 2, 1)
-        g["valid_mask"] = d.mask.T.astype(np.uint8)
+    io.write_snapshot(path, [d], axis_order="zyx")
     assert main(["audit-units", str(path)]) == commands.EXIT_OK
     assert "heaviside_lorentz fits" in capsys.readouterr().out
     assert main(["constraints", str(path), "--tolerance", "1e-4"]) == commands.EXIT_OK
     assert main(["constraints", str(path), "--level", "1"]) == commands.EXIT_BAD_INPUT
+    lonely = tmp_path / "metric_only.h5"
+    io.write_snapshot(lonely, [{"time": 0.0, "grid": grid, "units": "gaussian",
+                                "spatial_metric": d.gamma}])
+    assert main(["constraints", str(lonely)]) == commands.EXIT_BAD_INPUT
+    assert "needs extrinsic_curvature" in capsys.readouterr().out

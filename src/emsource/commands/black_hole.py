@@ -1,11 +1,10 @@
-"""``emsource black-hole``: write a Kerr-Newman slice (Kerr-Schild coordinates) to HDF5."""
+"""``emsource black-hole``: write a Kerr-Newman slice (Kerr-Schild coordinates) as a snapshot."""
 
 from __future__ import annotations
 
 import numpy as np
 
 from . import EXIT_BAD_INPUT, EXIT_OK, EXIT_OUTPUT_ERROR
-from ._slice_file import write_slice
 
 
 def register(subparsers):
@@ -13,10 +12,10 @@ def register(subparsers):
         "black-hole",
         help="write a charged, spinning black hole (Kerr-Newman, Kerr-Schild slicing) to HDF5",
         description="Sample the exact Kerr-Newman data (lapse, shift, spatial metric, extrinsic "
-                    "curvature, Eulerian E and B) on a uniform Cartesian grid and write them "
-                    "to a plain HDF5 file. Code units, G = c = 1.",
+                    "curvature, Eulerian E and B, valid_mask) on a uniform Cartesian grid and "
+                    "write them as one time level of a native snapshot. Code units, G = c = 1.",
     )
-    p.add_argument("output", help="HDF5 file to write")
+    p.add_argument("output", help="snapshot file to write (HDF5, native layout)")
     p.add_argument("--mass", type=float, default=1.0, help="mass M (default 1)")
     p.add_argument("--spin", type=float, default=0.0, help="spin parameter a = J/M along +z")
     p.add_argument("--charge", type=float, default=0.0, help="charge Q (Gaussian, geometrized)")
@@ -51,13 +50,17 @@ def run(args) -> int:
         print(f"emsource black-hole: {exc}")
         return EXIT_BAD_INPUT
     attributes = {
-        "description": "Kerr-Newman black hole, Kerr-Schild Cartesian coordinates, t = 0 slice",
+        "description": "Kerr-Newman black hole, Kerr-Schild Cartesian coordinates, t = 0 slice "
+                       "(stationary); written by emsource black-hole",
         "mass": args.mass, "spin": args.spin, "charge": args.charge,
         "mask_radius": -1.0 if args.mask_radius is None else args.mask_radius,
     }
+    from ..io import OutputError, write_snapshot
+
     try:
-        write_slice(args.output, data, attributes=attributes, force=args.force)
-    except (OSError, FileExistsError) as exc:
+        write_snapshot(args.output, [data], force=args.force, compression="gzip",
+                       attributes=attributes)
+    except (OSError, OutputError) as exc:
         print(f"emsource black-hole: cannot write {args.output}: {exc}")
         return EXIT_OUTPUT_ERROR
     print(f"wrote {args.output}: grid {grid.shape}, spacing {grid.spacing}, "

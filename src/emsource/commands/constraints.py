@@ -1,24 +1,21 @@
-"""``emsource constraints``: Hamiltonian and momentum constraint norms of a slice file."""
+"""``emsource constraints``: Hamiltonian and momentum constraint norms of a snapshot."""
 
 from __future__ import annotations
 
 from . import EXIT_BAD_INPUT, EXIT_CHECK_FAILED, EXIT_OK
-from ._slice_file import SliceFileError, read_slice
+from ._slice_file import add_snapshot_arguments, read_slice
 
 
 def register(subparsers):
     p = subparsers.add_parser(
         "constraints",
-        help="ADM Hamiltonian and momentum constraints of a slice file, with EM sources",
+        help="ADM Hamiltonian and momentum constraints of a snapshot, with EM sources",
         description="Evaluate H = R + K^2 - K_ij K^ij - 16 pi rho and "
-                    "M_i = D_j K^j_i - D_i K - 8 pi S_i by centred differences on a slice file "
+                    "M_i = D_j K^j_i - D_i K - 8 pi S_i by centred differences on a snapshot "
                     "(datasets spatial_metric, extrinsic_curvature, electric_field, "
-                    "magnetic_field, optional mask; attribute spacing) and print their norms.",
+                    "magnetic_field, optional valid_mask) and print their norms.",
     )
-    p.add_argument("input", help="HDF5 slice file (plain layout of 'emsource black-hole', or a "
-                                 "snapshot in the native layout)")
-    p.add_argument("--level", type=int, default=0,
-                   help="time level of a native snapshot (default 0)")
+    add_snapshot_arguments(p)
     p.add_argument("--order", type=int, choices=(2, 4, 6), default=4,
                    help="finite-difference order (default 4)")
     p.add_argument("--sources", choices=("file", "gaussian", "heaviside_lorentz", "none"),
@@ -34,7 +31,7 @@ def run(args) -> int:
     from ..constraints import adm_constraints
 
     try:
-        d = read_slice(args.input, args.level)
+        d = read_slice(args.snapshot, args.level, args.mapping)
         units = (d["units"] or "gaussian") if args.sources == "file" else args.sources
         if units == "none":
             res = adm_constraints(d["gamma"], d["K"], spacing=d["spacing"], order=args.order,
@@ -42,10 +39,10 @@ def run(args) -> int:
         else:
             res = adm_constraints(d["gamma"], d["K"], d["E"], d["B"], spacing=d["spacing"],
                                   order=args.order, units=units, mask=d["mask"])
-    except (SliceFileError, ValueError, TypeError) as exc:
+    except (ValueError, TypeError, IndexError) as exc:
         print(f"emsource constraints: {exc}")
         return EXIT_BAD_INPUT
-    print(f"{args.input}: order {args.order}, sources {units}, "
+    print(f"{args.snapshot}: order {args.order}, sources {units}, "
           f"{int(res.evaluated.sum())} points evaluated")
     print(f"{'constraint':<12} {'l2':>11} {'max':>11} {'norm. l2':>11} {'norm. max':>11}")
     h, m = res.hamiltonian_norms, res.momentum_norms
