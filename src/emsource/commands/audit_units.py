@@ -3,7 +3,7 @@
 from __future__ import annotations
 
 from . import EXIT_BAD_INPUT, EXIT_CHECK_FAILED, EXIT_OK
-from ._slice_file import add_snapshot_arguments, read_slice
+from ._snapshot_level import add_snapshot_arguments, read_slice
 
 
 def register(subparsers):
