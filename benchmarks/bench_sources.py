@@ -10,7 +10,9 @@ In one run and on the same Numba threads it measures
   (d) the per-call time on an 8^3 grid, through the public API with ``out``.
 It prints medians of several repetitions: points per second, the effective bandwidth counting
 each input and output array once (12 in, 11 out), that bandwidth as a share of the triad, and
-ratios. The machine is shared and noisy: read ratios, not absolute figures.
+ratios. The machine is shared and noisy, so every kernel timing is taken right after a triad
+timing and the share of the triad is the median of those paired ratios: load that comes and
+goes affects both members of a pair alike. Read ratios, not absolute figures.
 """
 
 from __future__ import annotations
@@ -44,11 +46,32 @@ def median_seconds(function, repeat):
     return statistics.median(times)
 
 
-def triad_bandwidth(repeat):
-    n = 2**25  # 256 MiB per array: far beyond the last-level cache
-    a, b, c = np.zeros(n), np.ones(n), np.full(n, 2.0)
-    seconds = median_seconds(lambda: _triad(a, b, c, 3.0), repeat)
-    return 3 * a.itemsize * n / seconds
+class Triad:
+    """STREAM-style triad on 256 MiB arrays (far beyond the last-level cache)."""
+
+    def __init__(self, n=2**25):
+        self.a, self.b, self.c = np.zeros(n), np.ones(n), np.full(n, 2.0)
+        _triad(self.a, self.b, self.c, 3.0)
+
+    def bandwidth_once(self):
+        start = time.perf_counter()
+        _triad(self.a, self.b, self.c, 3.0)
+        return 3 * self.a.itemsize * self.a.size / (time.perf_counter() - start)
+
+
+def paired_rates(function, points, bytes_moved, triad, repeat):
+    """Median points/s, bytes/s and share of a triad timed just before each repetition."""
+    function()
+    rates, shares = [], []
+    for _ in range(repeat):
+        reference = triad.bandwidth_once()
+        start = time.perf_counter()
+        function()
+        seconds = time.perf_counter() - start
+        rates.append(points / seconds)
+        shares.append(bytes_moved / seconds / reference)
+    rate = statistics.median(rates)
+    return rate, rate * bytes_moved / points, statistics.median(shares)
 
 
 def flat_space_fields(shape, dtype, seed=1):
@@ -79,16 +102,16 @@ def numpy_sources(gamma, E, B):
     return rho, S_i, S_ij, rho.copy()
 
 
-def measure_kernel(shape, dtype, repeat, check=True, ghost=0):
+def measure_kernel(shape, dtype, triad, repeat, check=True, ghost=0):
     full_shape = tuple(n + 2 * ghost for n in shape)
     gamma, E, B = flat_space_fields(full_shape, dtype)
     if ghost:
         inner = (slice(None),) + (slice(ghost, -ghost),) * len(shape)
         gamma, E, B = gamma[inner], E[inner], B[inner]
     out = emsource.adm_sources(gamma, E, B)  # allocates once; the loop below reuses it
-    seconds = median_seconds(lambda: emsource.adm_sources(gamma, E, B, out=out, check=check), repeat)
     points = math.prod(shape)
-    return points / seconds, ARRAYS_MOVED * np.dtype(dtype).itemsize * points / seconds
+    return paired_rates(lambda: emsource.adm_sources(gamma, E, B, out=out, check=check),
+                        points, ARRAYS_MOVED * np.dtype(dtype).itemsize * points, triad, repeat)
 
 
 def main(argv=None):
@@ -99,8 +122,10 @@ def main(argv=None):
     print(f"emsource {emsource.__version__}, numba {numba.__version__}, numpy {np.__version__}, "
           f"{numba.get_num_threads()} threads, medians of {args.repeat}")
 
-    triad = triad_bandwidth(args.repeat)
-    print(f"\n(a) triad bandwidth: {triad / 1e9:.1f} GB/s")
+    triad = Triad()
+    triad_rates = [triad.bandwidth_once() for _ in range(args.repeat)]
+    print(f"\n(a) triad bandwidth: {statistics.median(triad_rates) / 1e9:.1f} GB/s "
+          f"(median; range {min(triad_rates) / 1e9:.1f}-{max(triad_rates) / 1e9:.1f})")
 
     print("\n(b) adm_sources into preallocated out arrays")
     print(f"{'grid':>8} {'dtype':>8} {'checks':>7} {'layout':>10} {'Mpoints/s':>10} {'GB/s':>6} {'% triad':>8}")
@@ -109,20 +134,26 @@ def main(argv=None):
     for n in sizes:
         for dtype in (np.float64, np.float32):
             for check in (True, False):
-                rate, bandwidth = measure_kernel((n, n, n), dtype, args.repeat, check)
+                rate, bandwidth, share = measure_kernel((n, n, n), dtype, triad, args.repeat, check)
                 rates[(n, np.dtype(dtype).name, check)] = rate
                 print(f"{n:>6}^3 {np.dtype(dtype).name:>8} {str(check):>7} {'contiguous':>10} "
-                      f"{rate / 1e6:>10.1f} {bandwidth / 1e9:>6.1f} {100 * bandwidth / triad:>7.0f}%")
+                      f"{rate / 1e6:>10.1f} {bandwidth / 1e9:>6.1f} {100 * share:>7.0f}%")
     for dtype in (np.float64, np.float32):
-        rate, bandwidth = measure_kernel((128, 128, 128), dtype, args.repeat, True, ghost=3)
+        rate, bandwidth, share = measure_kernel((128, 128, 128), dtype, triad, args.repeat, True, ghost=3)
         print(f"{128:>6}^3 {np.dtype(dtype).name:>8} {'True':>7} {'ghost view':>10} "
-              f"{rate / 1e6:>10.1f} {bandwidth / 1e9:>6.1f} {100 * bandwidth / triad:>7.0f}%")
+              f"{rate / 1e6:>10.1f} {bandwidth / 1e9:>6.1f} {100 * share:>7.0f}%")
+    del triad
 
     gamma, E, B = flat_space_fields((128, 128, 128), np.float64)
-    numpy_seconds = median_seconds(lambda: numpy_sources(gamma, E, B), max(3, args.repeat // 3))
+    out = emsource.adm_sources(gamma, E, B)
+    ratios = []
+    for _ in range(max(3, args.repeat // 2)):  # paired, like the triad shares
+        numpy_seconds = median_seconds(lambda: numpy_sources(gamma, E, B), 1)
+        kernel_seconds = median_seconds(lambda: emsource.adm_sources(gamma, E, B, out=out), 3)
+        ratios.append(numpy_seconds / kernel_seconds)
     numpy_rate = 128**3 / numpy_seconds
     print(f"\n(c) plain NumPy, 128^3 float64: {numpy_rate / 1e6:.2f} Mpoints/s; "
-          f"kernel speed-up {rates[(128, 'float64', True)] / numpy_rate:.0f}x (checks on)")
+          f"kernel speed-up {statistics.median(ratios):.0f}x (checks on, median of paired runs)")
     reference = numpy_sources(gamma, E, B)
     ours = emsource.adm_sources(gamma, E, B)
     worst = max(float(np.max(np.abs(a - b)) / np.max(np.abs(b))) for a, b in zip(ours, reference))
