@@ -142,7 +142,7 @@ def _flux_over_4pi(radius, units, n_theta=48, n_phi=96):
     nrm = np.stack((sin_t * np.cos(PHI), sin_t * np.sin(PHI), MU))
     p = radius * nrm
     v = kn.kerr_newman_arrays(*p, mass=M, spin=A, charge=Q, units=units)
-    sqrt_gamma = 1.0 / v["alpha"]  # det gamma = 1 + 2H = 1 / alpha^2 (checked in derivations/)
+    sqrt_gamma = 1.0 / v["alpha"]  # det gamma = 1 + 2H = 1 / alpha^2 (checked in tests/derivations/)
     integrand = sqrt_gamma * np.einsum("i...,i...->...", v["E"], nrm) * radius**2
     total = np.einsum("i,ij->", w_mu, integrand) * (2.0 * math.pi / n_phi)
     return total / (4.0 * math.pi)

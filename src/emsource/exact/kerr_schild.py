@@ -40,7 +40,7 @@ Eulerian fields (n^a = (1, -beta^i) / alpha, F_ab = d_a A_b - d_b A_a, stationar
     E^i = gamma^ij E_j,     B^i = [ijk] F_jk / (2 sqrt(gamma)).
 
 The closed-form first derivatives that these need (derived with sympy in
-``derivations/kerr_newman_kerr_schild.py``, which also checks them) are, with
+``tests/derivations/kerr_newman_kerr_schild.py``, which also checks them) are, with
 s = r^2 + a^2 and D = r^4 + a^2 z^2,
 
     d_i r = (x r^3, y r^3, z r s) / D,

@@ -1,6 +1,6 @@
 """Development-time derivation of the closed forms used by emsource.exact.kerr_schild.
 
-Run:  python derivations/kerr_newman_kerr_schild.py
+Run:  python tests/derivations/kerr_newman_kerr_schild.py
 It derives, with sympy, the first derivatives of the spheroidal radius r, of H, of l_i and of
 the potential P = Q r^3 / (r^4 + a^2 z^2), simplifies them, and checks them against the closed
 forms written in the module docstring; it also checks the algebraic facts that the 3+1 split
