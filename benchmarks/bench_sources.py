@@ -36,6 +36,21 @@ def _triad(a, b, c, scalar):
         a[i] = b[i] + scalar * c[i]
 
 
+@numba.njit(parallel=True, cache=True)
+def _same_traffic_copy(gamma, E, B, rho, S_i, S_ij, S):
+    """Reads the kernel's 12 input arrays and writes its 11 outputs, with no physics: the
+    attainable bandwidth for this pattern of 23 streams (the kernel cannot beat it)."""
+    for n in numba.prange(rho.shape[0]):
+        a = gamma[0, n] + gamma[1, n] + gamma[2, n] + gamma[3, n] + gamma[4, n] + gamma[5, n]
+        b = E[0, n] + E[1, n] + E[2, n] + B[0, n] + B[1, n] + B[2, n]
+        rho[n] = a
+        S[n] = b
+        for c in range(3):
+            S_i[c, n] = a
+        for c in range(6):
+            S_ij[c, n] = b
+
+
 def median_seconds(function, repeat):
     function()  # warm-up (compilation, page faults)
     times = []
@@ -114,6 +129,16 @@ def measure_kernel(shape, dtype, triad, repeat, check=True, ghost=0):
                         points, ARRAYS_MOVED * np.dtype(dtype).itemsize * points, triad, repeat)
 
 
+def measure_copy(shape, dtype, triad, repeat):
+    gamma, E, B = flat_space_fields(shape, dtype)
+    points = math.prod(shape)
+    out = [a.reshape(a.shape[0], points) if a.ndim > len(shape) else a.reshape(points)
+           for a in emsource.adm_sources(gamma, E, B)]
+    flat = [a.reshape(a.shape[0], points) for a in (gamma, E, B)]
+    return paired_rates(lambda: _same_traffic_copy(*flat, *out), points,
+                        ARRAYS_MOVED * np.dtype(dtype).itemsize * points, triad, repeat)
+
+
 def main(argv=None):
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--repeat", type=int, default=11, help="repetitions per median (default 11)")
@@ -141,6 +166,11 @@ def main(argv=None):
     for dtype in (np.float64, np.float32):
         rate, bandwidth, share = measure_kernel((128, 128, 128), dtype, triad, args.repeat, True, ghost=3)
         print(f"{128:>6}^3 {np.dtype(dtype).name:>8} {'True':>7} {'ghost view':>10} "
+              f"{rate / 1e6:>10.1f} {bandwidth / 1e9:>6.1f} {100 * share:>7.0f}%")
+    print("  same traffic, no physics (12 arrays read, 11 written): the ceiling of this access pattern")
+    for n in sizes:
+        rate, bandwidth, share = measure_copy((n, n, n), np.float64, triad, args.repeat)
+        print(f"{n:>6}^3 {'float64':>8} {'-':>7} {'copy only':>10} "
               f"{rate / 1e6:>10.1f} {bandwidth / 1e9:>6.1f} {100 * share:>7.0f}%")
     del triad
 

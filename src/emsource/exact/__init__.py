@@ -17,10 +17,25 @@ Flat spacetime:
 - :func:`rotating_dipole`: the vacuum field of a rotating point magnetic dipole (all zones),
   a model of a spinning magnetized compact star; :func:`rotating_dipole_fields` at arbitrary
   points and :func:`rotating_dipole_luminosity`, its radiated power.
+
+Curved spacetime (electrovacuum black holes, Kerr-Schild coordinates, stationary slices):
+
+- :func:`kerr_newman` (mass, spin, charge), :func:`reissner_nordstrom` (spin 0),
+  :func:`kerr` (charge 0); :func:`kerr_newman_arrays` evaluates the same at arbitrary points;
+  :func:`kerr_schild_radius`, :func:`outer_horizon_radius`, :func:`inner_horizon_radius`.
 """
 
 from .boosted_charge import boosted_gaussian_charge, gaussian_sphere_field_factors
 from .gauge_wave import plane_wave_gauge_wave
+from .kerr_schild import (
+    inner_horizon_radius,
+    kerr,
+    kerr_newman,
+    kerr_newman_arrays,
+    kerr_schild_radius,
+    outer_horizon_radius,
+    reissner_nordstrom,
+)
 from .moving_frame import plane_wave_moving_frame
 from .plane_wave import periodic_wave_vector, plane_wave
 from .rotating_dipole import rotating_dipole, rotating_dipole_fields, rotating_dipole_luminosity
@@ -37,4 +52,11 @@ __all__ = [
     "rotating_dipole",
     "rotating_dipole_fields",
     "rotating_dipole_luminosity",
+    "inner_horizon_radius",
+    "kerr",
+    "kerr_newman",
+    "kerr_newman_arrays",
+    "kerr_schild_radius",
+    "outer_horizon_radius",
+    "reissner_nordstrom",
 ]

@@ -1,0 +1,59 @@
+"""``emsource constraints``: Hamiltonian and momentum constraint norms of a snapshot."""
+
+from __future__ import annotations
+
+from . import EXIT_BAD_INPUT, EXIT_CHECK_FAILED, EXIT_OK
+from ._snapshot_level import add_snapshot_arguments, read_slice
+
+
+def register(subparsers):
+    p = subparsers.add_parser(
+        "constraints",
+        help="ADM Hamiltonian and momentum constraints of a snapshot, with EM sources",
+        description="Evaluate H = R + K^2 - K_ij K^ij - 16 pi rho and "
+                    "M_i = D_j K^j_i - D_i K - 8 pi S_i by centred differences on a snapshot "
+                    "(datasets spatial_metric, extrinsic_curvature, electric_field, "
+                    "magnetic_field, optional valid_mask) and print their norms.",
+    )
+    add_snapshot_arguments(p)
+    p.add_argument("--order", type=int, choices=(2, 4, 6), default=4,
+                   help="finite-difference order (default 4)")
+    p.add_argument("--sources", choices=("file", "gaussian", "heaviside_lorentz", "none"),
+                   default="file",
+                   help="unit system of the EM sources: the file's 'units' attribute (default), "
+                        "a named one, or none (vacuum)")
+    p.add_argument("--tolerance", type=float, default=None,
+                   help="exit with code 1 if a normalised l2 residual exceeds this")
+    p.set_defaults(run=run)
+
+
+def run(args) -> int:
+    from ..constraints import adm_constraints
+
+    try:
+        d = read_slice(args.snapshot, args.level, args.mapping)
+        units = (d["units"] or "gaussian") if args.sources == "file" else args.sources
+        if units == "none":
+            res = adm_constraints(d["gamma"], d["K"], spacing=d["spacing"], order=args.order,
+                                  mask=d["mask"])
+        else:
+            res = adm_constraints(d["gamma"], d["K"], d["E"], d["B"], spacing=d["spacing"],
+                                  order=args.order, units=units, mask=d["mask"])
+    except (ValueError, TypeError, IndexError) as exc:
+        print(f"emsource constraints: {exc}")
+        return EXIT_BAD_INPUT
+    print(f"{args.snapshot}: order {args.order}, sources {units}, "
+          f"{int(res.evaluated.sum())} points evaluated")
+    print(f"{'constraint':<12} {'l2':>11} {'max':>11} {'norm. l2':>11} {'norm. max':>11}")
+    h, m = res.hamiltonian_norms, res.momentum_norms
+    rows = [("hamiltonian", h.l2, h.max, h.normalised_l2, h.normalised_max)]
+    rows += [(f"momentum_{'xyz'[i]}", m.l2[i], m.max[i], m.normalised_l2[i], m.normalised_max[i])
+             for i in range(3)]
+    worst = 0.0
+    for name, l2, mx, nl2, nmx in rows:
+        print(f"{name:<12} {l2:11.4e} {mx:11.4e} {nl2:11.4e} {nmx:11.4e}")
+        worst = max(worst, nl2)
+    if args.tolerance is not None and not worst <= args.tolerance:
+        print(f"a normalised l2 residual exceeds the tolerance {args.tolerance:g}")
+        return EXIT_CHECK_FAILED
+    return EXIT_OK
