@@ -1,0 +1,114 @@
+"""Finite-difference weights and stencil point functions against an independent derivation.
+
+The weights in kernels/stencils.py are quoted from B. Fornberg, "Generation of finite difference
+formulas on arbitrarily spaced grids", Math. Comp. 51, 699 (1988), Table 1 (from memory). Here
+they are derived again with sympy from Taylor series: the centred stencil of order p is the one
+whose Taylor expansion matches the derivative through order p (a Vandermonde system, common
+practice). The compiled point functions must then differentiate polynomials of degree p (first
+derivative) and p + 1 (second, by symmetry) exactly, up to float64 round-off of the sums.
+"""
+
+import numpy as np
+import pytest
+import sympy as sp
+
+from emsource.kernels import stencils
+from emsource.kernels._compile import search_kernel
+
+
+def taylor_weights(order, derivative):
+    """Weights c_m, m = -r..r, with sum_m c_m f(m h) = h^d f^(d)(0) + O(h^(order + d))."""
+    r = order // 2
+    offsets = list(range(-r, r + 1))
+    c = sp.symbols(f"c0:{len(offsets)}")
+    equations = [sum(ci * sp.Integer(m) ** q for ci, m in zip(c, offsets)) - (sp.factorial(derivative) if q == derivative else 0)
+                 for q in range(len(offsets))]
+    solution = sp.solve(equations, c)
+    return {m: solution[ci] for ci, m in zip(c, offsets)}
+
+
+@pytest.mark.parametrize("order", stencils.SUPPORTED_ORDERS)
+def test_weights_match_a_taylor_series_derivation(order):
+    first = taylor_weights(order, 1)
+    second = taylor_weights(order, 2)
+    r = order // 2
+    np.testing.assert_allclose(stencils.first_derivative_weights(order),
+                               [float(first[m]) for m in range(1, r + 1)], rtol=1e-15)
+    np.testing.assert_allclose(stencils.second_derivative_weights(order),
+                               [float(second[0])] + [float(second[m]) for m in range(1, r + 1)],
+                               rtol=1e-15)
+    # Antisymmetry / symmetry that the point functions rely on.
+    assert all(first[-m] == -first[m] for m in range(1, r + 1))
+    assert all(second[-m] == second[m] for m in range(1, r + 1))
+
+
+def test_unsupported_order_is_rejected():
+    with pytest.raises(ValueError, match=r"order must be one of \(2, 4, 6\), found 3"):
+        stencils.first_derivative_weights(3)
+
+
+@search_kernel
+def _apply_all(f, w1, w2, inv_h, i, j, k):
+    out = np.empty((3, 3))
+    for a in range(3):
+        out[a, 0] = stencils.d1(f, 0, i, j, k, a, w1, inv_h[a])
+        out[a, 1] = stencils.d2(f, 0, i, j, k, a, w2, inv_h[a] * inv_h[a])
+        b = (a + 1) % 3
+        out[a, 2] = stencils.d11(f, 0, i, j, k, a, b, w1, inv_h[a], inv_h[b])
+    return out
+
+
+@pytest.mark.parametrize("order", stencils.SUPPORTED_ORDERS)
+def test_point_functions_are_exact_on_polynomials(order):
+    h = np.array([0.11, 0.07, 0.13])
+    shape = (9, 10, 11)
+    x, y, z = np.meshgrid(*(0.3 + h[a] * np.arange(shape[a]) for a in range(3)), indexing="ij")
+    p = order
+    X, Y, Z = sp.symbols("X Y Z")
+    symbols = (X, Y, Z)
+    # First and mixed derivatives are exact up to degree p in each variable (error ~ h^p
+    # f^(p+1)); the symmetric second derivative up to degree p + 1.
+    first_poly = X**p * Y + Y**p - 2 * Z**p * X + X * Y * Z
+    second_poly = X ** (p + 1) + Y ** (p + 1) * Z - 3 * Z ** (p + 1) * X
+    i, j, k = 4, 5, 5
+    point = {X: x[i, j, k], Y: y[i, j, k], Z: z[i, j, k]}
+    results = []
+    for poly in (first_poly, second_poly):
+        f = sp.lambdify(symbols, poly)(x, y, z)[None]
+        results.append((poly, float(np.max(np.abs(f))), _apply_all(
+            f, stencils.first_derivative_weights(order), stencils.second_derivative_weights(order),
+            1.0 / h, i, j, k)))
+    (p1, scale1, r1), (p2, scale2, r2) = results
+    for a in range(3):
+        b = (a + 1) % 3
+        # Round-off: sums of O(10) terms of size |f| over h (h^2): 1e-11 |f| / h_min^2 bounds it.
+        tolerance = 1e-11 * max(scale1, scale2) / h.min() ** 2
+        np.testing.assert_allclose(r1[a, 0], float(sp.diff(p1, symbols[a]).subs(point)), rtol=0, atol=tolerance)
+        np.testing.assert_allclose(r1[a, 2], float(sp.diff(p1, symbols[a], symbols[b]).subs(point)),
+                                   rtol=0, atol=tolerance)
+        np.testing.assert_allclose(r2[a, 1], float(sp.diff(p2, symbols[a], 2).subs(point)), rtol=0, atol=tolerance)
+    # And they are not exact one degree higher, so the test can tell the orders apart.
+    f = sp.lambdify(symbols, Y ** (p + 1))(x, y, z)[None]
+    over = _apply_all(f, stencils.first_derivative_weights(order), stencils.second_derivative_weights(order),
+                      1.0 / h, i, j, k)[1, 0]
+    assert abs(over - float(sp.diff(Y ** (p + 1), Y).subs(point))) > 1e-6
+
+
+@search_kernel
+def _column(f, c, i, j, k0, count, axis, radius, weights, inv_h):
+    out = np.empty((1, count))
+    stencils.d1_column(f, c, i, j, k0, count, axis, radius, weights, inv_h, out, 0)
+    return out
+
+
+@pytest.mark.parametrize("order", stencils.SUPPORTED_ORDERS)
+def test_column_derivative_equals_point_derivative(rng, order):
+    f = rng.standard_normal((2, 9, 10, 16))
+    w = stencils.first_derivative_weights(order)
+    r = order // 2
+    inv_h = 1.0 / 0.2
+    for axis in range(3):
+        column = _column(f, 1, 4, 5, r, 16 - 2 * r, axis, r, w, inv_h)[0]
+        points = [_apply_all(f[1:], w, stencils.second_derivative_weights(order),
+                             np.full(3, inv_h), 4, 5, k)[axis, 0] for k in range(r, 16 - r)]
+        np.testing.assert_allclose(column, points, rtol=1e-14, atol=1e-13)
