@@ -36,28 +36,9 @@ import numpy as np
 from numba import prange
 
 from ._compile import grid_kernel, point_function
+from .metric import inverse_metric as _inverse_metric
+from .metric import lower_index as _lower
 from .stencils import d1_column
-
-
-@point_function
-def _inverse_metric(gxx, gxy, gxz, gyy, gyz, gzz, one):
-    """Inverse metric gamma^ij (packed) and det gamma, by cofactors."""
-    cxx = gyy * gzz - gyz * gyz
-    cxy = gxz * gyz - gxy * gzz
-    cxz = gxy * gyz - gxz * gyy
-    cyy = gxx * gzz - gxz * gxz
-    cyz = gxy * gxz - gxx * gyz
-    czz = gxx * gyy - gxy * gxy
-    det = gxx * cxx + gxy * cxy + gxz * cxz
-    inv_det = one / det
-    return cxx * inv_det, cxy * inv_det, cxz * inv_det, cyy * inv_det, cyz * inv_det, czz * inv_det, det
-
-
-@point_function
-def _lower(gxx, gxy, gxz, gyy, gyz, gzz, vx, vy, vz):
-    return (gxx * vx + gxy * vy + gxz * vz,
-            gxy * vx + gyy * vy + gyz * vz,
-            gxz * vx + gyz * vy + gzz * vz)
 
 
 @point_function

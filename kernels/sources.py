@@ -41,6 +41,7 @@ import math
 from numba import prange
 
 from ._compile import grid_kernel, point_function, search_kernel
+from .metric import inverse_metric, lower_index
 from .point_checks import is_finite
 
 
@@ -50,40 +51,17 @@ def _em_projections(gxx, gxy, gxz, gyy, gyz, gzz, e1, e2, e3, b1, b2, b3, coef, 
 
     ``e*``, ``b*`` are contravariant components, or covariant when ``fields_lower``.
     """
-    one = half + half
-    # Cofactors of gamma: the inverse is cofactor / det.
-    cxx = gyy * gzz - gyz * gyz
-    cxy = gxz * gyz - gxy * gzz
-    cxz = gxy * gyz - gxz * gyy
-    cyy = gxx * gzz - gxz * gxz
-    cyz = gxy * gxz - gxx * gyz
-    czz = gxx * gyy - gxy * gxy
-    det = gxx * cxx + gxy * cxy + gxz * cxz
-    inv_det = one / det
-    ixx = cxx * inv_det
-    ixy = cxy * inv_det
-    ixz = cxz * inv_det
-    iyy = cyy * inv_det
-    iyz = cyz * inv_det
-    izz = czz * inv_det
+    ixx, ixy, ixz, iyy, iyz, izz, det = inverse_metric(gxx, gxy, gxz, gyy, gyz, gzz, half + half)
     if fields_lower:
         exl, eyl, ezl = e1, e2, e3
         bxl, byl, bzl = b1, b2, b3
-        ex = ixx * e1 + ixy * e2 + ixz * e3
-        ey = ixy * e1 + iyy * e2 + iyz * e3
-        ez = ixz * e1 + iyz * e2 + izz * e3
-        bx = ixx * b1 + ixy * b2 + ixz * b3
-        by = ixy * b1 + iyy * b2 + iyz * b3
-        bz = ixz * b1 + iyz * b2 + izz * b3
+        ex, ey, ez = lower_index(ixx, ixy, ixz, iyy, iyz, izz, e1, e2, e3)  # raised with gamma^ij
+        bx, by, bz = lower_index(ixx, ixy, ixz, iyy, iyz, izz, b1, b2, b3)
     else:
         ex, ey, ez = e1, e2, e3
         bx, by, bz = b1, b2, b3
-        exl = gxx * e1 + gxy * e2 + gxz * e3
-        eyl = gxy * e1 + gyy * e2 + gyz * e3
-        ezl = gxz * e1 + gyz * e2 + gzz * e3
-        bxl = gxx * b1 + gxy * b2 + gxz * b3
-        byl = gxy * b1 + gyy * b2 + gyz * b3
-        bzl = gxz * b1 + gyz * b2 + gzz * b3
+        exl, eyl, ezl = lower_index(gxx, gxy, gxz, gyy, gyz, gzz, e1, e2, e3)
+        bxl, byl, bzl = lower_index(gxx, gxy, gxz, gyy, gyz, gzz, b1, b2, b3)
     energy2 = ex * exl + ey * eyl + ez * ezl + bx * bxl + by * byl + bz * bzl
     rho = coef * half * energy2
     # S_i = coef sqrt(gamma) [ijk] E^j B^k: the Levi-Civita tensor carries sqrt(gamma).
