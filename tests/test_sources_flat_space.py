@@ -18,9 +18,6 @@ import pytest
 
 import emsource
 
-FLAT = None
-
-
 def flat_metric(grid):
     gamma = np.zeros((6,) + grid)
     gamma[[0, 3, 5]] = 1.0

@@ -7,7 +7,6 @@ Gaussian ones over sqrt(4 pi), the stress-energy loses its 1/(4 pi)).
 Box [2.5, 3.5] x [0.5, 1.5] x [-0.5, 0.5], 21^3 points (h = 1/20), outside r+ = 1.62.
 """
 
-import numpy as np
 import pytest
 
 from emsource.exact import kerr, kerr_newman

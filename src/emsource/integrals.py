@@ -31,13 +31,12 @@ O(h^4)) grid points per axis.
 
 from __future__ import annotations
 
-import os
 from dataclasses import dataclass, field
 
 import numpy as np
 
 from . import adm_sources
-from .io import CHUNK_CACHE_BYTES, QUANTITIES, SnapshotError, open_snapshot
+from .io import CHUNK_CACHE_BYTES, SnapshotError, open_snapshot
 from .sources import GridPointError
 from .streaming import (CONVERSION_BUFFER_BYTES, DEFAULT_MEMORY_LIMIT, SlabBuffers, _choose_levels,
                         progress_bar, slab_error, slab_rows, slabs)

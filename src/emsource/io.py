@@ -54,7 +54,6 @@ import json
 import os
 import tempfile
 from contextlib import contextmanager
-from dataclasses import dataclass
 
 import h5py
 import numpy as np

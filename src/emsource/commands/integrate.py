@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import math
 
-from . import EXIT_OK, EXIT_OUTPUT_ERROR
+from . import EXIT_BAD_INPUT, EXIT_OK, EXIT_OUTPUT_ERROR
 from ._snapshot_options import add_input_options, check_new_output, fail, run_guarded, show_progress
 
 HELP = "integrate energy, momentum, face fluxes and sphere luminosities over a snapshot file"
@@ -54,7 +54,7 @@ def _run(args) -> int:
         except ImportError:
             return fail(EXIT_OUTPUT_ERROR, "--plot needs matplotlib: pip install 'emsource[plot]'")
     if args.mass is not None and not (math.isfinite(args.mass) and args.mass > 0):
-        return fail(3, f"--mass must be a positive number of solar masses, found {args.mass}")
+        return fail(EXIT_BAD_INPUT, f"--mass must be a positive number of solar masses, found {args.mass}")
     with open_snapshot(args.snapshot, args.mapping) as snap:
         description = snap.description
         units = snap.levels[0].units
