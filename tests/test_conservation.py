@@ -19,6 +19,7 @@ import numpy as np
 import pytest
 
 import emsource
+from emsource import GridPointError
 import conservation_fixtures as F
 from emsource import exact
 from emsource.conservation import (conservation_residual, global_balance, new_work_array,
@@ -496,12 +497,24 @@ def test_errors_name_the_argument_and_the_grid_index():
         call(E=fields["E"].astype(np.float32))
     bad = fields["E"].copy()
     bad[1, 4, 6] = np.nan
-    with pytest.raises(ValueError, match=r"E is not finite at grid index \(4, 6\)"):
+    with pytest.raises(GridPointError, match=r"grid index \(4, 6\): non-finite value\(s\): E\[1\] = nan") as error:
         call(E=bad)
+    assert error.value.first_index == (4, 6) and error.value.bad_count == 1
     metric = fields["gamma"].copy()
     metric[0, 5, 5] = -1.0  # not positive definite: sqrt(det) is NaN there
-    with pytest.raises(ValueError, match=r"gamma is not positive definite at grid index \(5, 5\)"):
+    with pytest.raises(GridPointError, match=r"grid index \(5, 5\): gamma is not positive definite"):
         call(gamma=metric)
+    lapse = fields["alpha"].copy()
+    lapse[3, 7] = -0.5  # finite residual, but a lapse that is not positive is not a 3+1 slicing
+    with pytest.raises(GridPointError, match=r"grid index \(3, 7\): lapse alpha = -0.5 is not positive"):
+        call(alpha=lapse)
+    # The same bad points are neither checked nor used where the mask excludes them.
+    mask = np.ones((10, 10), bool)
+    mask[4, 6] = mask[5, 5] = mask[3, 7] = False
+    bad_gamma = metric.copy()
+    bad_gamma[0, 4, 6] = np.nan
+    r = call(E=bad, gamma=bad_gamma, alpha=lapse, mask=mask)
+    assert not r.interior[4, 6] and not r.interior[4, 7] and np.isnan(r.energy[4, 7])
 
 
 def test_order_six_on_a_short_axis_is_rejected():

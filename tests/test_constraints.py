@@ -14,6 +14,7 @@ import numpy as np
 import pytest
 import sympy as sp
 
+from emsource import GridPointError
 from emsource.constraints import adm_constraints, evaluable_points
 from emsource.exact import kerr_newman, outer_horizon_radius
 from emsource.grid import UniformGrid
@@ -249,11 +250,15 @@ def test_bad_inputs_are_named():
         adm_constraints(d.gamma, d.K, d.E, d.B, spacing=grid.spacing, units="si")
     bad = d.gamma.copy()
     bad[3, 4, 5, 6] = np.nan
-    with pytest.raises(ValueError, match=r"gamma is not finite at grid index \(4, 5, 6\)"):
+    with pytest.raises(GridPointError, match=r"grid index \(4, 5, 6\): non-finite value\(s\): gamma\[3\] = nan") as error:
         adm_constraints(bad, d.K, spacing=grid.spacing)
+    assert error.value.first_index == (4, 5, 6)
+    mask = np.ones(grid.shape, bool)
+    mask[4, 5, 6] = False
+    adm_constraints(bad, d.K, spacing=grid.spacing, mask=mask)  # a masked point is not checked
     bad = d.gamma.copy()
     bad[0, 1, 2, 3] = -1.0
-    with pytest.raises(ValueError, match=r"positive definite at grid index \(1, 2, 3\)"):
+    with pytest.raises(GridPointError, match=r"grid index \(1, 2, 3\): gamma is not positive definite"):
         adm_constraints(bad, d.K, spacing=grid.spacing)
     before = d.gamma.copy()
     adm_constraints(d.gamma, d.K, d.E, d.B, spacing=grid.spacing)

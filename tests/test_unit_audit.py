@@ -68,3 +68,33 @@ def test_too_small_grid_is_refused():
     d = kerr_newman(small, mass=1.0, spin=0.6, charge=0.5)
     with pytest.raises(ValueError, match="at least 10 points"):
         audit_units(d.gamma, d.K, d.E, d.B, spacing=small.spacing)
+
+
+def test_a_coarse_spacing_that_was_not_doubled_does_not_fit():
+    # Every second point evaluated with the fine spacing h instead of 2 h: the coarse second
+    # derivatives are 4x too large, so the coarse residual is O(1) and the "observed order"
+    # log2(res(2h) / res(h)) comes out far above the design order 4 (measured 18.4 for H
+    # and 13.8 for M). Such a ratio is no evidence of convergence: it must not fit, however
+    # small the fine residual. The same data with the genuine 2 h fit (control).
+    from emsource.constraints import adm_constraints
+    from emsource.unit_audit import ORDER_TOLERANCE, hypothesis_result
+
+    d = kerr_newman(GRID, mass=1.0, spin=0.6, charge=0.5)
+    sub = (slice(None),) + (slice(None, None, 2),) * 3
+    fine = adm_constraints(d.gamma, d.K, d.E, d.B, spacing=GRID.spacing, order=4)
+    coarse_args = (d.gamma[sub], d.K[sub], d.E[sub], d.B[sub])
+    wrong = adm_constraints(*coarse_args, spacing=GRID.spacing, order=4)
+    right = adm_constraints(*coarse_args, spacing=tuple(2 * h for h in GRID.spacing), order=4)
+    bad = hypothesis_result("gaussian", fine, wrong, order=4)
+    assert bad.hamiltonian_order > 4 + ORDER_TOLERANCE + 5 and not bad.fits
+    good = hypothesis_result("gaussian", fine, right, order=4)
+    assert good.fits and abs(good.hamiltonian_order - 4) < ORDER_TOLERANCE
+
+
+def test_fit_is_bounded_on_both_sides_of_the_design_order():
+    from emsource.unit_audit import order_fits
+
+    # Derived window [p - 0.81, p + 0.42] (module docstring) inside |p_obs - p| <= 1.
+    assert order_fits(3.2, 1e-6, 4) and order_fits(4.4, 1e-6, 4)
+    assert not order_fits(2.5, 1e-6, 4) and not order_fits(17.0, 1e-6, 4)
+    assert not order_fits(12.0, 1e-6, 4) and order_fits(12.0, 1e-13, 4)  # round-off fits

@@ -191,3 +191,94 @@ def as_grid_views(arrays, flat: bool):
     if not flat:
         return arrays
     return [a.reshape(a.shape[:-1] + (1, 1, a.shape[-1])) for a in arrays]
+
+
+#: Orders of the centred finite differences the diagnostics offer (kernels/stencils.py).
+DIFFERENCE_ORDERS = (2, 4, 6)
+
+
+def grid_spacing(function: str, value, ndim: int) -> tuple:
+    """``spacing`` as one positive finite float per grid axis (one number is repeated)."""
+    try:
+        h = np.atleast_1d(np.asarray(value, dtype=float))
+    except (TypeError, ValueError):
+        h = np.array([np.nan])
+    if h.shape == (1,):
+        h = np.repeat(h, ndim)
+    if h.shape != (ndim,) or not np.all(np.isfinite(h)) or not np.all(h > 0):
+        raise ValueError(
+            f"{function}: spacing must be one positive number or one per grid axis "
+            f"({ndim} here), found {value!r}"
+        )
+    return tuple(float(x) for x in h)
+
+
+def point_mask(function: str, mask, grid) -> np.ndarray:
+    """``mask`` (True or nonzero where the data are valid) as a bool array of shape ``grid``.
+
+    None means every point is valid. Integer masks (a file's uint8 ``valid_mask``) are read as
+    nonzero = valid; the caller's array is not changed.
+    """
+    if mask is None:
+        return np.ones(grid, dtype=bool)
+    m = np.asarray(mask)
+    if m.shape != tuple(grid) or not (m.dtype == np.bool_ or np.issubdtype(m.dtype, np.integer)):
+        raise ValueError(f"{function}: mask must be a bool (or integer) array of shape "
+                         f"{tuple(grid)}, found {m.dtype} of shape {m.shape}")
+    return m.astype(bool, copy=False)
+
+
+def check_points(function: str, grid, named: dict, *, valid=None, lapse=None, metric=None):
+    """Raise :class:`emsource.GridPointError` at the first bad valid point, else return.
+
+    ``named`` maps argument names to component-first arrays on ``grid`` (scalars of shape
+    ``grid``) that must be finite; ``lapse`` names an entry of ``named`` that must be positive;
+    ``metric`` is ``(name, array, six indices)`` of a symmetric tensor that must be positive
+    definite (Sylvester's criterion on the leading minors). Only points where ``valid`` is True
+    are looked at (all when None). This is a NumPy pass over the arrays: callers run it where a
+    check is asked for, or on an error path.
+    """
+    from .sources import GridPointError
+
+    grid = tuple(grid)
+    where = np.ones(grid, bool) if valid is None else valid
+    bad = np.zeros(grid, bool)
+    views = {}
+    for name, a in named.items():
+        if a is None:
+            continue
+        a = np.asarray(a)
+        v = a.reshape((-1,) + grid)
+        views[name] = v
+        bad |= ~np.isfinite(v).all(axis=0)
+    if lapse is not None and named.get(lapse) is not None:
+        with np.errstate(invalid="ignore"):
+            bad |= ~(np.asarray(named[lapse]).reshape(grid) > 0)
+    if metric is not None:
+        mname, m, index = metric
+        g = [np.asarray(m).reshape((-1,) + grid)[c] for c in index]
+        with np.errstate(invalid="ignore", over="ignore"):
+            minor = g[0] * g[3] - g[1] * g[1]
+            det = (g[0] * (g[3] * g[5] - g[4] ** 2) + g[1] * (g[2] * g[4] - g[1] * g[5])
+                   + g[2] * (g[1] * g[4] - g[2] * g[3]))
+            bad |= ~((g[0] > 0) & (minor > 0) & (det > 0))
+    bad &= where
+    count = int(np.count_nonzero(bad))
+    if count == 0:
+        return
+    first = tuple(int(i) for i in np.unravel_index(int(np.argmax(bad)), grid))
+    reasons = []
+    for name, v in views.items():
+        values = v[(slice(None),) + first]
+        for c, x in enumerate(values):
+            if not np.isfinite(x):
+                reasons.append(f"{name}[{c}] = {x}" if values.size > 1 else f"{name} = {x}")
+    if reasons:
+        reason = "non-finite value(s): " + ", ".join(reasons)
+    elif lapse is not None and not views[lapse][(0,) + first] > 0:
+        reason = f"lapse {lapse} = {views[lapse][(0,) + first]} is not positive"
+    else:
+        values = [float(x[first]) for x in g]
+        reason = (f"{mname} is not positive definite ({mname}_xx, xy, xz, yy, yz, zz = "
+                  + ", ".join(f"{x:.6g}" for x in values) + ")")
+    raise GridPointError(function, count, int(np.count_nonzero(where)), first, reason)

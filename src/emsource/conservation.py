@@ -56,9 +56,14 @@ from typing import NamedTuple
 
 import numpy as np
 
+from scipy import ndimage
+
 from . import _arguments as arg
 from .kernels import conservation as kernels
 from .kernels.stencils import first_derivative_weights, stencil_radius
+from .reductions import (BalancePartial, BalanceTerms, GlobalBalance, NormPartial, ResidualNorms,
+                         Sum, combine_all)
+from .sources import GridPointError
 from .unit_systems import check_unit_system, stress_energy_prefactor
 
 __all__ = [
@@ -69,38 +74,9 @@ __all__ = [
     "slice_residual",
     "BalanceTerms",
     "GlobalBalance",
+    "balance_partial",
     "global_balance",
 ]
-
-
-class ResidualNorms(NamedTuple):
-    """Norms of a residual over the interior points.
-
-    Attributes
-    ----------
-    l2 : float or (3,) ndarray
-        Root mean square over the interior points, sqrt(mean R^2) (a discrete L2 norm divided by
-        the square root of the box volume, so that it does not grow with the box).
-    max : float or (3,) ndarray
-        Largest absolute value over the interior points.
-    normalised_l2 : float or (3,) ndarray
-        l2 of the residual over l2 of the pointwise scale (the largest term of the equation).
-    normalised_max : float or (3,) ndarray
-        max of the residual over max of the scale.
-    scale_l2, scale_max : float or (3,) ndarray
-        RMS and largest value of the scale itself. Where these are at round-off level (an
-        equation whose every term vanishes, such as the z momentum of a wave in the x-y plane)
-        the normalised norms compare round-off with round-off and mean nothing.
-
-    Energy norms are floats, momentum norms have one entry per component j.
-    """
-
-    l2: object
-    max: object
-    normalised_l2: object
-    normalised_max: object
-    scale_l2: object
-    scale_max: object
 
 
 @dataclass(frozen=True)
@@ -118,9 +94,10 @@ class ConservationResidual:
         Absolute value of the largest term of each equation at each point (the time term, each
         d_i of the flux, each source term); NaN on the boundary.
     interior : (*grid) bool ndarray
-        True where residuals are defined.
+        True where residuals are defined: interior points whose whole stencil is valid
+        (``mask``).
     energy_norms, momentum_norms : ResidualNorms
-        Norms over the interior points.
+        Norms over the points of ``interior``.
     order : int
         Order of the centred differences in space.
     radius : int
@@ -128,6 +105,9 @@ class ConservationResidual:
     time_derivatives : str
         "supplied" (d_t E, d_t B, d_t gamma given: exact in time) or "levels" (centred
         difference of three time levels: second order in time).
+    norm_partial : NormPartial
+        The mergeable partial of the norms (components: energy, momentum x, y, z); combine it
+        with those of other patches (:mod:`emsource.reductions`) for norms over their union.
     """
 
     energy: np.ndarray
@@ -140,6 +120,7 @@ class ConservationResidual:
     order: int
     radius: int
     time_derivatives: str
+    norm_partial: NormPartial = None
 
     @property
     def normalised_energy(self) -> np.ndarray:
@@ -168,18 +149,11 @@ def _padded(a, ncomp_axes, grid):
 
 
 def _spacing(function, spacing, grid):
-    h = np.atleast_1d(np.asarray(spacing, dtype=float))
-    if h.shape == (1,):
-        h = np.repeat(h, len(grid))
-    if h.shape != (len(grid),) or not np.all(np.isfinite(h)) or not np.all(h > 0):
-        raise ValueError(
-            f"{function}: spacing must be one positive number or one per grid axis "
-            f"({len(grid)} for grid {grid}), found {spacing!r}"
-        )
-    return tuple(float(x) for x in h)
+    return arg.grid_spacing(function, spacing, len(grid))
 
 
 def _radii(function, order, grid):
+    arg.choice(function, "order", order, arg.DIFFERENCE_ORDERS)
     r = stencil_radius(order)
     radii = []
     for axis, n in enumerate(grid):
@@ -330,57 +304,48 @@ def _run_kernels(p: _Prepared, order, rate_mode, rate_arrays, inv_2dt, write_sou
     return residual, scale, (sources if write_sources else None), partials, work4
 
 
-def _norms_from_partials(partials, count):
-    """(energy, momentum) ResidualNorms from the kernel's per-column sums and maxima."""
-    sums = partials[:, :8].sum(axis=0, dtype=np.float64)
-    maxima = partials[:, 8:].max(axis=0).astype(np.float64)
-    l2 = np.sqrt(sums[:4] / count)
-    scale_l2 = np.sqrt(sums[4:] / count)
-    mx = maxima[:4]
-    scale_mx = maxima[4:]
-    with np.errstate(invalid="ignore", divide="ignore"):
-        nl2 = np.where(scale_l2 > 0, l2 / scale_l2, 0.0)
-        nmx = np.where(scale_mx > 0, mx / scale_mx, 0.0)
-    energy = ResidualNorms(float(l2[0]), float(mx[0]), float(nl2[0]), float(nmx[0]),
-                           float(scale_l2[0]), float(scale_mx[0]))
-    momentum = ResidualNorms(l2[1:], mx[1:], nl2[1:], nmx[1:], scale_l2[1:], scale_mx[1:])
-    return energy, momentum, bool(np.isfinite(sums[:4]).all())
+def _norm_partial_of_columns(partials, count):
+    """NormPartial (energy, momentum x, y, z) from the kernel's per-column sums and maxima."""
+    return NormPartial.of_column_sums(count, partials[:, :4], partials[:, 8:12],
+                                      partials[:, 4:8], partials[:, 12:16])
 
 
-def _raise_non_finite(function, residual, inner, grid, named_inputs, metric=None, gidx=()):
-    """Name the first non-finite input value (argument and grid index), else the first
-    interior point whose residual is not finite. Runs only on this error path."""
-    bad = ~np.isfinite(residual[(slice(None),) + inner]).all(axis=0)
-    count = int(bad.sum())
-    for name, a in named_inputs.items():
-        if a is None:
-            continue
-        a = np.asarray(a)
-        finite = np.isfinite(a.reshape((-1,) + grid)).all(axis=0)
-        if not finite.all():
-            index = tuple(int(i) for i in np.unravel_index(int(np.argmin(finite)), grid))
-            raise ValueError(
-                f"{function}: the residual is not finite at {count} interior grid points: "
-                f"{name} is not finite at grid index {index}"
-            )
-    if metric is not None:
-        g = [metric[c].reshape(grid) for c in gidx]
-        minor = g[0] * g[3] - g[1] * g[1]
-        det = g[0] * (g[3] * g[5] - g[4] ** 2) + g[1] * (g[2] * g[4] - g[1] * g[5]) + g[2] * (
-            g[1] * g[4] - g[2] * g[3])
-        positive = (g[0] > 0) & (minor > 0) & (det > 0)  # Sylvester's criterion
-        if not positive.all():
-            index = tuple(int(i) for i in np.unravel_index(int(np.argmin(positive)), grid))
-            raise ValueError(
-                f"{function}: the residual is not finite at {count} interior grid points: "
-                f"gamma is not positive definite at grid index {index}"
-            )
-    first_local = np.unravel_index(int(np.argmax(bad)), bad.shape)
-    index = tuple(int(i + s.start) for i, s in zip(first_local, inner))
-    raise ValueError(
-        f"{function}: the residual is not finite at {count} interior grid points; the first is "
-        f"grid index {index} (is the metric positive definite there and in its stencil?)"
-    )
+def _split_norms(partial):
+    """(energy, momentum) ResidualNorms of a four-component NormPartial."""
+    return partial.finalise(0), partial.finalise(slice(1, 4))
+
+
+def _evaluable(valid, radii, grid):
+    """Interior points whose centred first-derivative stencils (the cross of radius r along
+    every axis with extent) lie on valid points."""
+    radii = radii[: len(grid)]
+    inner = _interior_slices(radii, grid)
+    interior = np.zeros(grid, bool)
+    interior[inner] = True
+    if valid is None or valid.all():
+        return interior
+    shape = tuple(2 * r + 1 for r in radii)
+    structure = np.zeros(shape, bool)
+    centre = tuple(radii)
+    for axis, r in enumerate(radii):
+        line = list(centre)
+        line[axis] = slice(None)
+        structure[tuple(line)] = True
+    return interior & ndimage.binary_erosion(valid, structure=structure, border_value=1)
+
+
+def _raise_bad_points(function, grid, named_inputs, valid, metric, gidx, residual=None,
+                      evaluated=None):
+    """GridPointError at the first valid point with a non-finite input, a lapse that is not
+    positive or a metric that is not positive definite; failing those, at the first evaluated
+    point whose residual is not finite (an overflow). Runs only on the error path."""
+    arg.check_points(function, grid, named_inputs, valid=valid, lapse="alpha",
+                     metric=("gamma", metric, gidx))
+    bad = evaluated & ~np.isfinite(residual).all(axis=0)
+    first = tuple(int(i) for i in np.unravel_index(int(np.argmax(bad)), grid))
+    raise GridPointError(function, int(bad.sum()), int(evaluated.sum()), first,
+                         "the residual is not finite although the inputs there are (an overflow "
+                         "of very large values?)")
 
 
 # --------------------------------------------------------------------------- public functions
@@ -389,7 +354,7 @@ def conservation_residual(alpha, beta, gamma, K, E, B, *, spacing, order=4, unit
                           charge_density=None, current_density=None,
                           dt_E=None, dt_B=None, dt_gamma=None,
                           before=None, after=None, time_step=None,
-                          check=True, work=None) -> ConservationResidual:
+                          mask=None, check=True, work=None) -> ConservationResidual:
     r"""Pointwise residuals of the 3+1 energy and momentum equations, with norms.
 
     Evaluates left minus right side of the two equations in the module docstring at every
@@ -427,9 +392,14 @@ def conservation_residual(alpha, beta, gamma, K, E, B, *, spacing, order=4, unit
         Objects with ``gamma``, ``E`` and ``B`` at t - time_step and t + time_step.
     time_step : float, optional
         The step between the levels.
+    mask : (*grid) bool or integer ndarray, optional
+        True (nonzero) where the data are valid. Residuals are evaluated only at interior
+        points whose whole stencil is valid (NaN elsewhere, ``interior`` False), and the norms
+        are taken over those points; masked points are never checked.
     check : bool
-        Raise a ValueError naming the first interior grid index where the residual is not finite
-        (non-finite input, or a metric that is not positive definite there).
+        Raise :class:`emsource.GridPointError` with the first bad valid grid index and what is
+        wrong there (a non-finite input, a lapse that is not positive, a metric that is not
+        positive definite) when a residual is not finite or a valid lapse is not positive.
     work : (16, *grid) ndarray, optional
         Scratch array in the inputs' dtype, reused between calls (an evolution loop then
         allocates only the outputs); it holds the fluxes and time terms afterwards. Make it with
@@ -500,33 +470,47 @@ def conservation_residual(alpha, beta, gamma, K, E, B, *, spacing, order=4, unit
     else:
         raise ValueError(f"{function}: time derivatives needed: give all of dt_E, dt_B, dt_gamma "
                          "(exact in time) or all of before, after, time_step (three levels)")
+    valid = None if mask is None else arg.point_mask(function, mask, p.grid)
+    named_inputs = {"alpha": alpha, "beta": beta, "gamma": gamma, "K": K, "E": E, "B": B,
+                    "charge_density": charge_density, "current_density": current_density,
+                    "dt_E": dt_E, "dt_B": dt_B, "dt_gamma": dt_gamma}
+    if check:
+        with np.errstate(invalid="ignore"):
+            lapse_ok = alpha > 0 if valid is None else (alpha > 0) | ~valid
+        if not lapse_ok.all():
+            _raise_bad_points(function, p.grid, named_inputs, valid, v["gamma"], p.gidx)
     residual, scale, _, partials, _ = _run_kernels(p, order, rate_mode, rates, inv_2dt, False, work)
-    inner = _interior_slices(p.radii, p.grid)
-    count = int(np.prod([s.stop - s.start for s in inner]))
-    energy_norms, momentum_norms, finite = _norms_from_partials(partials, count)
-    if check and not finite:
-        _raise_non_finite(function, residual, inner, p.grid,
-                          {"alpha": alpha, "beta": beta, "gamma": gamma, "K": K, "E": E, "B": B,
-                           "charge_density": charge_density, "current_density": current_density,
-                           "dt_E": dt_E, "dt_B": dt_B, "dt_gamma": dt_gamma},
-                          v["gamma"], p.gidx)
-    interior = np.zeros(p.grid, bool)
-    interior[inner] = True
+    interior = _evaluable(valid, p.radii, p.grid)
+    if valid is None or valid.all():
+        inner = _interior_slices(p.radii, p.grid)
+        count = int(np.prod([sl.stop - sl.start for sl in inner]))
+        partial = _norm_partial_of_columns(partials, count)
+    else:
+        # Residuals near masked points use masked values in their stencils: not defined.
+        residual[:, ~interior] = np.nan
+        scale[:, ~interior] = np.nan
+        partial = NormPartial.of_points(residual[:, interior], scale[:, interior])
+    if check and not partial.finite:
+        _raise_bad_points(function, p.grid, named_inputs, valid, v["gamma"], p.gidx,
+                          residual, interior)
+    energy_norms, momentum_norms = _split_norms(partial)
     return ConservationResidual(
         energy=residual[0], momentum=residual[1:], energy_scale=scale[0], momentum_scale=scale[1:],
         interior=interior,
         energy_norms=energy_norms, momentum_norms=momentum_norms,
-        order=order, radius=stencil_radius(order), time_derivatives=mode_name)
+        order=order, radius=stencil_radius(order), time_derivatives=mode_name,
+        norm_partial=partial)
 
 
 def slice_residual(now, *, order=4, before=None, after=None, spacing=None, units=None,
-                   include_charges=True, check=True) -> ConservationResidual:
+                   include_charges=True, mask=None, check=True) -> ConservationResidual:
     """:func:`conservation_residual` for :class:`emsource.exact.SliceFields` objects.
 
     With ``before`` and ``after`` (slices at now.t -+ the same step) the time terms come from the
     three levels; otherwise from ``now.dt_E``, ``now.dt_B``, ``now.dt_gamma``. ``spacing`` and
     ``units`` default to ``now.grid.spacing`` and ``now.units``. ``include_charges=False`` drops
     the charge and current terms (a diagnostic of their effect, not a physical option).
+    ``mask`` and ``check`` are passed on (``mask=now.mask`` skips an excised region).
     """
     function = "slice_residual"
     spacing = now.grid.spacing if spacing is None else spacing
@@ -543,59 +527,15 @@ def slice_residual(now, *, order=4, before=None, after=None, spacing=None, units
                              f"t = {before.t}, {now.t}, {after.t}")
         return conservation_residual(now.alpha, now.beta, now.gamma, now.K, now.E, now.B,
                                      spacing=spacing, order=order, units=units, **charges,
-                                     before=before, after=after, time_step=step, check=check)
+                                     before=before, after=after, time_step=step, mask=mask, check=check)
     if now.dt_E is None or now.dt_B is None or now.dt_gamma is None:
         raise ValueError(f"{function}: the slice carries no dt_E/dt_B/dt_gamma; give before and after")
     return conservation_residual(now.alpha, now.beta, now.gamma, now.K, now.E, now.B,
                                  spacing=spacing, order=order, units=units, **charges,
-                                 dt_E=now.dt_E, dt_B=now.dt_B, dt_gamma=now.dt_gamma, check=check)
+                                 dt_E=now.dt_E, dt_B=now.dt_B, dt_gamma=now.dt_gamma, mask=mask, check=check)
 
 
 # --------------------------------------------------------------------------- global balance
-
-class BalanceTerms(NamedTuple):
-    """One conservation law integrated over the box and over time.
-
-    ``change + outflow - source`` is zero for exact data; ``mismatch`` is that sum and
-    ``relative_mismatch`` is |mismatch| over the largest of |change|, |outflow|, |source|.
-    Floats for the energy, (3,) arrays for the momentum (covariant components).
-    """
-
-    change: object
-    outflow: object
-    source: object
-    mismatch: object
-    relative_mismatch: object
-
-
-@dataclass(frozen=True)
-class GlobalBalance:
-    """Energy and momentum in a box against the flux through its faces and the volume sources.
-
-    Attributes
-    ----------
-    times : (n,) ndarray
-        Times of the slices.
-    totals : (n, 4) ndarray
-        Integral of sqrt(gamma) rho and sqrt(gamma) S_j over the box (coordinate volume d^3x).
-    outflow_rates : (n, 4) ndarray
-        Net flux through the faces, sum over faces of the outward flux integral.
-    source_rates : (n, 4) ndarray
-        Integral over the box of the right-hand sides of the two equations.
-    energy, momentum : BalanceTerms
-        The time-integrated balance from times[0] to times[-1].
-    box : tuple of slice
-        Grid index ranges of the box (the interior: boundary width = stencil radius).
-    """
-
-    times: np.ndarray
-    totals: np.ndarray
-    outflow_rates: np.ndarray
-    source_rates: np.ndarray
-    energy: BalanceTerms
-    momentum: BalanceTerms
-    box: tuple
-
 
 def _trapezoid_weights(n, h):
     w = np.full(n, h)
@@ -606,7 +546,73 @@ def _trapezoid_weights(n, h):
     return w
 
 
-def global_balance(slices, *, order=4, spacing=None, units=None, include_charges=True) -> GlobalBalance:
+def balance_partial(s, times, k, *, order=4, spacing=None, units=None, include_charges=True,
+                    rows=None, check=True) -> BalancePartial:
+    """The contribution of slice ``s`` (number ``k`` of the series at ``times``) to a balance.
+
+    Sums the box integrals of the slice over the box rows ``rows = (start, stop)`` along the
+    first axis (default: the whole box; indices count box rows, 0 is the first interior row),
+    with the face fluxes of the faces in those rows. The partials of all slices and of
+    disjoint row ranges covering the box combine (:func:`emsource.reductions.combine`) into
+    the partial of the whole balance; :meth:`BalancePartial.finalise` takes the time integrals.
+    Arguments as for :func:`global_balance`; ``check`` raises :class:`emsource.GridPointError`
+    at the first point with a non-finite input, a lapse that is not positive or a metric that is
+    not positive definite.
+    """
+    function = "global_balance"
+    spacing = s.grid.spacing if spacing is None else spacing
+    units = s.units if units is None else units
+    charges = (s.charge_density, s.current_density) if include_charges else (None, None)
+    p = _prepare(function, s.alpha, s.beta, s.gamma, s.K, s.E, s.B, *charges,
+                 spacing, order, units, include_charges)
+    v = p.views
+    if check:
+        arg.check_points(function, p.grid,
+                         {"alpha": s.alpha, "beta": s.beta, "gamma": s.gamma, "K": s.K, "E": s.E,
+                          "B": s.B, "charge_density": charges[0], "current_density": charges[1]},
+                         lapse="alpha", metric=("gamma", v["gamma"], p.gidx))
+    rates = (v["gamma"], p.gidx, v["E"], v["B"], v["gamma"], p.gidx, v["E"], v["B"])
+    # Pass 1 in mode 0 leaves fluxes and densities in its work array; pass 2 the sources.
+    _, _, src, _, work = _run_kernels(p, order, 0, rates, 0.0, True, function=function)
+    src = src[(Ellipsis,) + (None,) * (3 - len(p.grid))]
+    h = tuple(1.0 / x if x else 1.0 for x in p.inv_h)
+    shape3 = work.shape[1:]
+    lo = list(p.radii)
+    hi = [n - 1 - r for n, r in zip(shape3, p.radii)]
+    weights = [_trapezoid_weights(hi[a] - lo[a] + 1, h[a]) for a in range(3)]
+    nrows = hi[0] - lo[0] + 1
+    start, stop = (0, nrows) if rows is None else (int(rows[0]), int(rows[1]))
+    if not 0 <= start <= stop <= nrows:
+        raise ValueError(f"{function}: rows must satisfy 0 <= start <= stop <= {nrows}, "
+                         f"found {rows!r}")
+    weights[0] = weights[0][start:stop]
+    box3 = (slice(lo[0] + start, lo[0] + stop),) + tuple(slice(lo[a], hi[a] + 1) for a in (1, 2))
+    wx, wy, wz = weights
+    cell = wx[:, None, None] * wy[None, :, None] * wz[None, None, :]
+    density = work[12:16][(slice(None),) + box3].astype(np.float64)
+    totals = Sum.of(density * cell, axis=(1, 2, 3))
+    source = Sum.of(src[(slice(None),) + box3].astype(np.float64) * cell, axis=(1, 2, 3))
+    terms = []
+    for axis in range(3):
+        if p.radii[axis] == 0:
+            continue  # no faces across an axis without extent
+        other = [w for a, w in enumerate(weights) if a != axis]
+        area = other[0][:, None] * other[1][None, :]
+        # Flux components across faces normal to ``axis``: F^axis (energy), M^axis_j.
+        comps = [axis] + [3 + 3 * axis + j for j in range(3)]
+        for index, sign in ((hi[axis], 1.0), (lo[axis], -1.0)):
+            if axis == 0 and not lo[0] + start <= index < lo[0] + stop:
+                continue  # this face lies in another piece's rows
+            face = list(box3)
+            face[axis] = index
+            f = work[comps][(slice(None),) + tuple(face)].astype(np.float64)
+            terms.append((sign * f * area).reshape(4, -1))
+    outflow = Sum.of(np.concatenate(terms, axis=1), axis=1) if terms else Sum.zero(4)
+    return BalancePartial.of_slice(times, k, totals, outflow, source)
+
+
+def global_balance(slices, *, order=4, spacing=None, units=None, include_charges=True,
+                   check=True) -> GlobalBalance:
     r"""Change of the total energy and momentum in a box against face fluxes and volume sources.
 
     Integrates the two conservation laws of the module docstring over the box of interior points
@@ -615,10 +621,10 @@ def global_balance(slices, *, order=4, spacing=None, units=None, include_charges
     .. math::
 
         Q(t_1) - Q(t_0) + \int_{t_0}^{t_1}\!\oint \mathcal F^i\, dA_i\, dt
-          - \int_{t_0}^{t_1}\!\int \mathcal S\, d^3x\, dt = 0,
+          - \int_{t_0}^{t_1}\!\int \Sigma\, d^3x\, dt = 0,
 
     with :math:`Q = \int\sqrt\gamma\rho\,d^3x` (energy) or :math:`\int\sqrt\gamma S_j\,d^3x`,
-    fluxes :math:`\mathcal F^i` and sources :math:`\mathcal S` as in the equations. Space and
+    fluxes :math:`\mathcal F^i` and volume sources :math:`\Sigma` (right-hand sides) as in the equations. Space and
     time integrals use the trapezoid rule (common practice), so the mismatch of smooth exact data
     falls as the second power of the spacing and of the time step; on a periodic direction it
     falls much faster. Axes of length 1 count as unit length.
@@ -633,10 +639,16 @@ def global_balance(slices, *, order=4, spacing=None, units=None, include_charges
         Default to the first slice's ``grid.spacing`` and ``units``.
     include_charges : bool
         Include the charge and current (Lorentz-force) terms.
+    check : bool
+        Raise :class:`emsource.GridPointError` at the first point of a slice with a non-finite
+        input, a lapse that is not positive or a metric that is not positive definite.
 
     Returns
     -------
     GlobalBalance
+        The mismatch of each law is reported absolute and relative to the largest field
+        energy in the box over the slices (:class:`emsource.reductions.BalanceTerms`).
+        Computed as a sum of :func:`balance_partial` over the slices.
 
     References
     ----------
@@ -653,53 +665,10 @@ def global_balance(slices, *, order=4, spacing=None, units=None, include_charges
     first = slices[0]
     spacing = first.grid.spacing if spacing is None else spacing
     units = first.units if units is None else units
-    totals, outflows, sources_t = [], [], []
-    box = None
-    for s in slices:
-        charges = (s.charge_density, s.current_density) if include_charges else (None, None)
-        p = _prepare(function, s.alpha, s.beta, s.gamma, s.K, s.E, s.B, *charges,
-                     spacing, order, units, include_charges)
-        v = p.views
-        rates = (v["gamma"], p.gidx, v["E"], v["B"], v["gamma"], p.gidx, v["E"], v["B"])
-        # Pass 1 in mode 0 leaves fluxes and densities in its work array; pass 2 the sources.
-        _, _, src, _, work = _run_kernels(p, order, 0, rates, 0.0, True, function=function)
-        src = src[(Ellipsis,) + (None,) * (3 - len(p.grid))]
-        h = tuple(1.0 / x if x else 1.0 for x in p.inv_h)
-        shape3 = work.shape[1:]
-        lo = [r for r in p.radii]
-        hi = [n - 1 - r for n, r in zip(shape3, p.radii)]
-        weights = [_trapezoid_weights(hi[a] - lo[a] + 1, h[a]) for a in range(3)]
-        box3 = tuple(slice(lo[a], hi[a] + 1) for a in range(3))
-        box = box3[: len(p.grid)]
-        wx, wy, wz = weights
-        density = work[12:16][(slice(None),) + box3].astype(np.float64)
-        totals.append(np.einsum("cijk,i,j,k->c", density, wx, wy, wz))
-        sources_t.append(np.einsum("cijk,i,j,k->c", src[(slice(None),) + box3].astype(np.float64),
-                                   wx, wy, wz))
-        out = np.zeros(4)
-        for axis in range(3):
-            if p.radii[axis] == 0:
-                continue  # no faces across an axis without extent
-            other = [w for a, w in enumerate(weights) if a != axis]
-            # Flux components across faces normal to ``axis``: F^axis (energy), M^axis_j.
-            comps = [axis] + [3 + 3 * axis + j for j in range(3)]
-            for index, sign in ((hi[axis], 1.0), (lo[axis], -1.0)):
-                face = [box3[a] for a in range(3)]
-                face[axis] = index
-                f = work[comps][(slice(None),) + tuple(face)].astype(np.float64)
-                out += sign * np.einsum("cab,a,b->c", f, other[0], other[1])
-        outflows.append(out)
-    totals = np.array(totals)
-    outflows = np.array(outflows)
-    sources_t = np.array(sources_t)
-    change = totals[-1] - totals[0]
-    outflow = np.trapezoid(outflows, times, axis=0)
-    source = np.trapezoid(sources_t, times, axis=0)
-    mismatch = change + outflow - source
-    size = np.maximum(np.maximum(np.abs(change), np.abs(outflow)), np.abs(source))
-    with np.errstate(invalid="ignore", divide="ignore"):
-        relative = np.where(size > 0, np.abs(mismatch) / size, 0.0)
-    energy = BalanceTerms(float(change[0]), float(outflow[0]), float(source[0]),
-                          float(mismatch[0]), float(relative[0]))
-    momentum = BalanceTerms(change[1:], outflow[1:], source[1:], mismatch[1:], relative[1:])
-    return GlobalBalance(times, totals, outflows, sources_t, energy, momentum, box)
+    partial = combine_all(balance_partial(s, times, k, order=order, spacing=spacing, units=units,
+                                          include_charges=include_charges, check=check)
+                          for k, s in enumerate(slices))
+    grid = first.E.shape[1:]
+    r = stencil_radius(order)
+    box = tuple(slice(r, n - r) if n > 1 else slice(0, 1) for n in grid)
+    return partial.finalise(box)

@@ -17,7 +17,6 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass, field
-from typing import NamedTuple
 
 import numpy as np
 from scipy import ndimage
@@ -25,10 +24,12 @@ from scipy import ndimage
 from . import _arguments as args
 from .kernels.constraints import adm_constraints_grid
 from .kernels.stencils import first_derivative_weights, second_derivative_weights, stencil_radius
+from .reductions import NormPartial, ResidualNorms
 from .sources import adm_sources
 from .unit_systems import check_unit_system
 
-__all__ = ["ConstraintResiduals", "adm_constraints", "evaluable_points", "residual_norms"]
+__all__ = ["ConstraintResiduals", "ResidualNorms", "adm_constraints", "evaluable_points",
+           "norm_partial", "residual_norms"]
 
 _SYM = np.array([[0, 1, 2], [1, 3, 4], [2, 4, 5]], dtype=np.int64)
 _FUNC = "adm_constraints"
@@ -58,49 +59,22 @@ def evaluable_points(mask, order):
     return ndimage.binary_erosion(mask, structure=structure, border_value=0)
 
 
-class ResidualNorms(NamedTuple):
-    """Norms of a residual over the evaluated points (the same norms as emsource.conservation).
-
-    Attributes
-    ----------
-    l2 : float or (3,) ndarray
-        Root mean square over the evaluated points, sqrt(mean R^2).
-    max : float or (3,) ndarray
-        Largest absolute value over the evaluated points.
-    normalised_l2 : float or (3,) ndarray
-        l2 of the residual over l2 of its pointwise scale (the largest term of the equation).
-    normalised_max : float or (3,) ndarray
-        max of the residual over max of the scale.
-
-    Hamiltonian norms are floats, momentum norms have one entry per component i.
-    """
-
-    l2: object
-    max: object
-    normalised_l2: object
-    normalised_max: object
-
-
-def _ratio(a, b):
-    with np.errstate(divide="ignore", invalid="ignore"):
-        r = np.where(b > 0, a / np.where(b > 0, b, 1.0), np.nan)
-    return float(r) if np.ndim(r) == 0 else r
+def norm_partial(hamiltonian, momentum, hamiltonian_scale, momentum_scale, evaluated) -> NormPartial:
+    """The mergeable :class:`NormPartial` (components H, M_x, M_y, M_z) over ``evaluated``."""
+    residual = np.concatenate([hamiltonian[evaluated][None], momentum[:, evaluated]])
+    scale = np.concatenate([hamiltonian_scale[evaluated][None], momentum_scale[:, evaluated]])
+    return NormPartial.of_points(residual, scale)
 
 
 def residual_norms(residual, scale, evaluated) -> ResidualNorms:
-    """:class:`ResidualNorms` of ``residual`` ((*grid) or (3, *grid)) over ``evaluated``."""
+    """:class:`ResidualNorms` of ``residual`` ((*grid) or (3, *grid)) over ``evaluated``.
+
+    Normalised norms are NaN where the scale is zero, and every norm is NaN without points.
+    """
     vector = residual.ndim == evaluated.ndim + 1
     r = residual[:, evaluated] if vector else residual[evaluated][None]
     s = scale[:, evaluated] if vector else scale[evaluated][None]
-    if r.shape[1] == 0:
-        nan = np.full(3, np.nan) if vector else math.nan
-        return ResidualNorms(nan, nan, nan, nan)
-    l2 = np.sqrt(np.mean(r**2, axis=1))
-    mx = np.max(np.abs(r), axis=1)
-    out = (l2, mx, _ratio(l2, np.sqrt(np.mean(s**2, axis=1))), _ratio(mx, np.max(s, axis=1)))
-    if not vector:
-        out = tuple(float(np.ravel(v)[0]) for v in out)
-    return ResidualNorms(*out)
+    return NormPartial.of_points(r, s).finalise(slice(None) if vector else 0, zero_scale=math.nan)
 
 
 @dataclass(frozen=True)
@@ -119,6 +93,10 @@ class ConstraintResiduals:
     evaluated : (nx, ny, nz) bool ndarray
         Where the residuals were computed (see :func:`evaluable_points`).
     hamiltonian_norms, momentum_norms : ResidualNorms
+        Norms over the evaluated points (normalised norms NaN where the scale is zero).
+    norm_partial : NormPartial
+        Their mergeable partial (components H, M_x, M_y, M_z): combine it with those of other
+        patches (:mod:`emsource.reductions`) for the norms over the union.
     order : int
     units : str or None
         Unit system of the electromagnetic sources, None for vacuum.
@@ -133,17 +111,15 @@ class ConstraintResiduals:
     units: str | None
     hamiltonian_norms: ResidualNorms = field(init=False)
     momentum_norms: ResidualNorms = field(init=False)
+    norm_partial: NormPartial = field(init=False)
 
     def __post_init__(self):
-        object.__setattr__(self, "hamiltonian_norms",
-                           residual_norms(self.hamiltonian, self.hamiltonian_scale, self.evaluated))
+        partial = norm_partial(self.hamiltonian, self.momentum, self.hamiltonian_scale,
+                               self.momentum_scale, self.evaluated)
+        object.__setattr__(self, "norm_partial", partial)
+        object.__setattr__(self, "hamiltonian_norms", partial.finalise(0, zero_scale=math.nan))
         object.__setattr__(self, "momentum_norms",
-                           residual_norms(self.momentum, self.momentum_scale, self.evaluated))
-
-
-def _first_bad(condition):
-    index = np.argwhere(condition)
-    return tuple(int(v) for v in index[0]) if len(index) else None
+                           partial.finalise(slice(1, 4), zero_scale=math.nan))
 
 
 def adm_constraints(gamma, K, E=None, B=None, *, spacing, order=4, units="gaussian",
@@ -172,8 +148,9 @@ def adm_constraints(gamma, K, E=None, B=None, *, spacing, order=4, units="gaussi
         Unit system of E and B.
     field_index : {"upper", "lower"}
         Whether E and B are contravariant or covariant.
-    mask : (nx, ny, nz) bool ndarray or None
-        True where the data are valid (False inside an excised region). None: all valid.
+    mask : (nx, ny, nz) bool or integer ndarray or None
+        True (nonzero) where the data are valid (False inside an excised region). None: all
+        valid. Masked points are neither checked nor used.
     check : bool
         Check that the data are finite and gamma positive definite wherever ``mask`` is True.
 
@@ -184,8 +161,10 @@ def adm_constraints(gamma, K, E=None, B=None, *, spacing, order=4, units="gaussi
     Raises
     ------
     TypeError, ValueError
-        With the argument, the expected and found shape, dtype or value, and the first bad
-        grid index where it matters.
+        With the argument, the expected and found shape, dtype or value.
+    emsource.GridPointError
+        With ``check``: the first valid grid index where an input is not finite or gamma is not
+        positive definite, and what is wrong there.
 
     Examples
     --------
@@ -197,7 +176,7 @@ def adm_constraints(gamma, K, E=None, B=None, *, spacing, order=4, units="gaussi
     >>> bool(res.hamiltonian_norms.normalised_l2 < 1e-4)
     True
     """
-    args.choice(_FUNC, "order", order, (2, 4, 6))
+    args.choice(_FUNC, "order", order, args.DIFFERENCE_ORDERS)
     args.choice(_FUNC, "field_index", field_index, args.FIELD_INDICES)
     gamma = args.float_array(_FUNC, "gamma", gamma)
     K = args.float_array(_FUNC, "K", K)
@@ -216,20 +195,12 @@ def adm_constraints(gamma, K, E=None, B=None, *, spacing, order=4, units="gaussi
         check_unit_system(units)
         E = args.vector(_FUNC, "E", E, grid, "component_first")
         B = args.vector(_FUNC, "B", B, grid, "component_first")
-    spacing = np.broadcast_to(np.asarray(spacing, dtype=np.float64), (3,)).copy()
-    if not np.all(np.isfinite(spacing) & (spacing > 0)):
-        raise ValueError(f"{_FUNC}: spacing must be finite and positive, found {tuple(spacing)}")
+    spacing = np.array(args.grid_spacing(_FUNC, spacing, 3))
     radius = stencil_radius(order)
     if min(grid) < 2 * radius + 1:
         raise ValueError(f"{_FUNC}: every axis needs at least {2 * radius + 1} points for order "
                          f"{order}, found grid {grid}")
-    if mask is None:
-        mask = np.ones(grid, dtype=bool)
-    else:
-        mask = np.asarray(mask)
-        if mask.shape != grid or mask.dtype != np.bool_:
-            raise ValueError(f"{_FUNC}: mask must be a bool array of shape {grid}, "
-                             f"found {mask.dtype} of shape {mask.shape}")
+    mask = args.point_mask(_FUNC, mask, grid)
 
     gamma64 = np.ascontiguousarray(gamma, dtype=np.float64)
     K64 = np.ascontiguousarray(K, dtype=np.float64)
@@ -237,19 +208,8 @@ def adm_constraints(gamma, K, E=None, B=None, *, spacing, order=4, units="gaussi
         named = {"gamma": gamma64, "K": K64}
         if not vacuum:
             named.update(E=E, B=B)
-        for name, a in named.items():
-            bad = _first_bad(mask & ~np.isfinite(a).all(axis=0))
-            if bad is not None:
-                raise ValueError(f"{_FUNC}: {name} is not finite at grid index {bad} "
-                                 "(an unmasked point)")
-        gxx, gxy, gxz, gyy, gyz, gzz = gamma64
-        minor = gxx * gyy - gxy * gxy
-        det = gxx * (gyy * gzz - gyz * gyz) + gxy * (gxz * gyz - gxy * gzz) + gxz * (gxy * gyz - gxz * gyy)
-        bad = _first_bad(mask & ~((gxx > 0) & (minor > 0) & (det > 0)))
-        if bad is not None:
-            raise ValueError(f"{_FUNC}: gamma is not positive definite at grid index {bad} "
-                             f"(gamma_xx, minor, det = {gxx[bad]:.6g}, {minor[bad]:.6g}, "
-                             f"{det[bad]:.6g})")
+        args.check_points(_FUNC, grid, named, valid=mask,
+                          metric=("gamma", gamma64, args.PACKED_METRIC_INDEX))
 
     if vacuum:
         rho = np.zeros(grid)

@@ -18,8 +18,13 @@ Per time level, streamed in slabs like :mod:`emsource.streaming` (bounded memory
   :math:`\partial_t(\sqrt{\gamma}\rho) + \partial_i F^i = \sqrt{\gamma}(\alpha K_{ij}S^{ij}
   - S^i \partial_i \alpha)` (E. Gourgoulhon, 3+1 Formalism in General Relativity (2012),
   sec. 6.3, energy conservation; the form is from memory). In flat space
-  :math:`F^i` is the Poynting vector. Points outside ``valid_mask`` are left out of the
-  volume integrals; a sphere whose interpolation stencil touches them is an error.
+  :math:`F^i` is the Poynting vector. Points outside ``valid_mask`` are neither checked nor
+  used (the file may hold any fill value there, NaN included); a sphere whose interpolation
+  stencil touches them is an error. At valid points a non-finite input, a metric that is not
+  positive definite or a lapse that is not positive is an error naming the grid index.
+
+Every level is the combination of per-slab partial results (:mod:`emsource.reductions`);
+:func:`level_partial` computes one.
 
 Luminosity quadrature: Gauss-Legendre in cos(theta) with ``n_theta`` nodes times the uniform
 rule with ``2 n_theta`` points in phi, both spectrally accurate for smooth integrands (the
@@ -31,17 +36,20 @@ O(h^4)) grid points per axis.
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass, field
 
 import numpy as np
 
+from . import _arguments as args
 from . import adm_sources
 from .io import CHUNK_CACHE_BYTES, SnapshotError, open_snapshot
+from .reductions import LevelPartial, Sum, combine
 from .sources import GridPointError
 from .streaming import (CONVERSION_BUFFER_BYTES, DEFAULT_MEMORY_LIMIT, SlabBuffers, _choose_levels,
-                        progress_bar, slab_error, slab_rows, slabs)
+                        progress_bar, slab_rows, slabs)
 
-__all__ = ["LevelIntegrals", "integrate_snapshot", "integrate_level_arrays",
+__all__ = ["LevelIntegrals", "integrate_snapshot", "integrate_level_arrays", "level_partial",
            "sphere_quadrature", "lagrange_weights", "FACES"]
 
 FACES = ("x_lower", "x_upper", "y_lower", "y_upper", "z_lower", "z_upper")
@@ -80,6 +88,17 @@ class LevelIntegrals:
     excluded_points: int = 0
     max_electric_field: float = 0.0
     max_magnetic_field: float = 0.0
+
+    @classmethod
+    def from_partial(cls, partial: LevelPartial, label, time, radii) -> "LevelIntegrals":
+        """Finalise the combined :class:`emsource.reductions.LevelPartial` of a whole level."""
+        faces = partial.face_flux.finalise()
+        luminosity = partial.luminosity.finalise()
+        return cls(str(label), float(time), partial.energy.finalise(), partial.momentum.finalise(),
+                   {f: float(v) for f, v in zip(FACES, faces)},
+                   {float(r): float(v) for r, v in zip(radii, luminosity)},
+                   partial.excluded_points, partial.max_electric_field,
+                   partial.max_magnetic_field)
 
     @property
     def net_flux(self) -> float:
@@ -127,12 +146,35 @@ def lagrange_weights(s: np.ndarray, npoints: int):
     return i0, weights
 
 
+def _check_radius(radius):
+    try:
+        r = float(radius)
+    except (TypeError, ValueError):
+        raise ValueError(f"sphere radius must be a positive finite number, found {radius!r}") from None
+    if not (math.isfinite(r) and r > 0):
+        raise ValueError(f"sphere radius must be a positive finite number, found {radius!r}")
+    return r
+
+
 class _Sphere:
-    """Quadrature nodes of one sphere with their interpolation stencils on the level's grid."""
+    """Quadrature nodes of one sphere with their interpolation stencils on the level's grid.
+
+    Immutable after construction: :meth:`slab_sum` returns a partial sum and changes nothing.
+    """
 
     def __init__(self, radius, grid, n_theta, npoints):
-        self.radius = float(radius)
-        points, self.normals, self.weights = sphere_quadrature(radius, n_theta)
+        self.radius = _check_radius(radius)
+        self.npoints = npoints
+        if npoints < 2 or npoints % 2:
+            raise ValueError(f"interpolation_points must be even and >= 2, found {npoints}")
+        for a in range(3):
+            # Checked before any node is placed, so that a huge radius is a clear error and
+            # not an overflow: every node has |x_a| <= R, and the extreme ones nearly R.
+            lo = grid.origin[a] + (npoints // 2 - 1) * grid.spacing[a]
+            hi = grid.origin[a] + (grid.shape[a] - npoints // 2) * grid.spacing[a]
+            if not (lo < 0 < hi) or self.radius >= max(abs(lo), abs(hi)):
+                self._does_not_fit(a, lo, hi)
+        points, self.normals, self.weights = sphere_quadrature(self.radius, n_theta)
         self.starts = []
         self.stencil = []
         for a in range(3):
@@ -141,19 +183,25 @@ class _Sphere:
             if i0.min() < 0 or i0.max() + npoints - 1 > grid.shape[a] - 1:
                 lo = grid.origin[a] + (npoints // 2 - 1) * grid.spacing[a]
                 hi = grid.origin[a] + (grid.shape[a] - npoints // 2) * grid.spacing[a]
-                raise SnapshotError(
-                    f"sphere of radius {radius} does not fit in the grid along {'xyz'[a]}: its "
-                    f"{npoints}-point interpolation needs |{'xyz'[a]}| within [{lo:.6g}, {hi:.6g}]")
+                self._does_not_fit(a, lo, hi)
             self.starts.append(i0)
             self.stencil.append(w)
-        self.npoints = npoints
-        self.value = 0.0
 
-    def add_slab(self, flux, mask, axis, start, stop):
-        """Add the nodes whose stencil starts in rows start:stop of ``axis``."""
+    def _does_not_fit(self, a, lo, hi):
+        raise SnapshotError(
+            f"sphere of radius {self.radius} does not fit in the grid along {'xyz'[a]}: its "
+            f"{self.npoints}-point interpolation needs {'xyz'[a]} within [{lo:.6g}, {hi:.6g}] "
+            "on both sides of the origin")
+
+    def slab_sum(self, flux, valid, axis, start, stop) -> Sum:
+        """Partial luminosity of the nodes whose stencil starts in rows start:stop of ``axis``.
+
+        ``flux`` and ``valid`` cover rows start: (with the stencils' halo). Each node belongs
+        to exactly one slab, the one holding its stencil start.
+        """
         chosen = np.nonzero((self.starts[axis] >= start) & (self.starts[axis] < stop))[0]
         if chosen.size == 0:
-            return
+            return Sum.zero()
         p = self.npoints
         offsets = np.arange(p)
         index = []
@@ -162,14 +210,14 @@ class _Sphere:
             shape = [chosen.size, 1, 1, 1]
             shape[1 + a] = p
             index.append(i.reshape(shape))
-        if mask is not None and not mask[index[0], index[1], index[2]].all():
+        if valid is not None and not valid[index[0], index[1], index[2]].all():
             raise SnapshotError(f"the interpolation stencil of the sphere of radius {self.radius} "
                                 "reaches excised points (valid_mask = 0); choose a larger radius")
         values = flux[:, index[0], index[1], index[2]]  # (3, n, p, p, p)
         wx, wy, wz = (w[chosen] for w in self.stencil)
         interpolated = np.einsum("cnijk,ni,nj,nk->cn", values, wx, wy, wz)
         normal_flux = np.einsum("cn,cn->n", interpolated, self.normals[:, chosen])
-        self.value += float(normal_flux @ self.weights[chosen])
+        return Sum.of(normal_flux * self.weights[chosen])
 
 
 def _trapezoid(n, h):
@@ -194,71 +242,155 @@ def _geometry(gamma, lapse, shift, rho, S_i):
     up = np.stack([cxx * S_i[0] + cxy * S_i[1] + cxz * S_i[2],
                    cxy * S_i[0] + cyy * S_i[1] + cyz * S_i[2],
                    cxz * S_i[0] + cyz * S_i[1] + czz * S_i[2]]) / det
-    if lapse is not None:
-        up *= lapse
-    if shift is not None:
-        up -= rho * shift
+    up *= lapse
+    up -= rho * shift
     up *= sqrtg
     return sqrtg, up
+
+
+def _flux_densities(alpha, beta, gamma, E, B, *, units):
+    """(sqrt(gamma) rho, sqrt(gamma) S_i, F^i) at every point of a slab (inputs checked here).
+
+    The one place the integrals evaluate the densities: F^i = sqrt(gamma) (alpha S^i - rho
+    beta^i), from :func:`emsource.adm_sources` and the NumPy :func:`_geometry`. Raises
+    :class:`emsource.GridPointError` for non-finite gamma, E, B or a metric that is not
+    positive definite (the lapse and shift are checked by the caller).
+    """
+    src = adm_sources(gamma, E, B, units=units)
+    sqrtg, flux = _geometry(gamma, alpha, beta, src.rho, src.S_i)
+    return src.rho * sqrtg, src.S_i * sqrtg, flux
+
+
+def _harmless(arrays, valid, in_place):
+    """Arrays with flat metric, zero field, unit lapse and zero shift at invalid points.
+
+    Masked points hold whatever the writer put there (NaN at a singularity): they are left out
+    of every sum, but the whole slab goes through one vectorised evaluation, which must not
+    see them. ``in_place`` overwrites the (caller-owned scratch) arrays; otherwise copies.
+    """
+    if valid is None or valid.all():
+        return arrays
+    invalid = ~valid
+    flat = {"spatial_metric": (1.0, 0.0, 0.0, 1.0, 0.0, 1.0), "lapse": 1.0}
+    out = {}
+    for name, a in arrays.items():
+        if a is None:
+            out[name] = a
+            continue
+        a = a if in_place else a.copy()
+        fill = flat.get(name, 0.0)
+        if a.ndim == invalid.ndim:
+            a[invalid] = fill
+        else:
+            for c in range(a.shape[0]):
+                a[c][invalid] = fill[c] if isinstance(fill, tuple) else fill
+        out[name] = a
+    return out
+
+
+def _shifted(error, axis, offset, npoints, function="integrate"):
+    """A GridPointError with its grid index moved by ``offset`` rows along ``axis`` (the
+    index in the whole grid; ``npoints`` points of this slab were checked)."""
+    index = list(error.first_index)
+    index[axis] += offset
+    return GridPointError(function, error.bad_count, npoints, tuple(index), error.reason)
+
+
+def level_partial(grid, gamma, E, B, *, units="gaussian", lapse=None, shift=None, mask=None,
+                  spheres=(), axis=0, start=0, stop=None, in_place=False) -> LevelPartial:
+    """Partial integrals of the rows ``start:stop`` along ``axis`` of a level on ``grid``.
+
+    The arrays ((x, y, z) order, float64) cover rows ``start`` to ``stop`` plus the halo the
+    spheres' interpolation stencils need (``interpolation_points - 1`` rows, where the grid
+    has them). Energy, momentum, face fluxes and extreme fields are summed over the rows
+    start:stop; each sphere node is counted by the piece that holds its stencil start. The
+    partials of pieces that tile the grid combine (:func:`emsource.reductions.combine`) into
+    the partial of the level, which :meth:`LevelIntegrals.from_partial` finalises.
+
+    Points where ``mask`` is 0 are neither checked nor used: they are replaced by a flat
+    metric, zero field, unit lapse and zero shift before the evaluation (in the arrays
+    themselves with ``in_place``, otherwise in copies) and left out of the sums. At valid
+    points gamma, E, B, the lapse and the shift must be finite, the metric positive definite
+    and the lapse positive (:class:`emsource.GridPointError`, with the index in the whole grid).
+    """
+    stop = grid.shape[axis] if stop is None else stop
+    nrows = stop - start
+    valid = None if mask is None else np.asarray(mask).astype(bool, copy=False)
+    shape = gamma.shape[1:]
+    try:
+        named = {"lapse": lapse, "shift": shift}
+        if any(v is not None for v in named.values()):
+            args.check_points("integrate", shape, named, valid=valid,
+                              lapse="lapse" if lapse is not None else None)
+        arrays = _harmless({"spatial_metric": gamma, "electric_field": E, "magnetic_field": B,
+                            "lapse": lapse, "shift": shift}, valid, in_place)
+        gamma, E, B = (arrays[q] for q in ("spatial_metric", "electric_field", "magnetic_field"))
+        alpha = arrays["lapse"] if lapse is not None else np.ones(shape)
+        beta = arrays["shift"] if shift is not None else np.zeros((3,) + shape)
+        energy, momentum, flux = _flux_densities(alpha, beta, gamma, E, B, units=units)
+    except GridPointError as error:
+        raise _shifted(error, axis, start, int(np.prod(shape))) from None
+    own = [slice(None)] * 3
+    own[axis] = slice(0, nrows)
+    own = tuple(own)
+    w = [_trapezoid(grid.shape[a], grid.spacing[a]) for a in range(3)]
+    w[axis] = w[axis][start:stop]
+    cell = (w[0][:, None, None] * w[1][None, :, None]) * w[2][None, None, :]
+    density = energy[own]
+    momentum = momentum[(slice(None),) + own]
+    excluded = 0
+    valid_own = None
+    if valid is not None:
+        valid_own = valid[own]
+        density = np.where(valid_own, density, 0.0)
+        momentum = np.where(valid_own, momentum, 0.0)
+        excluded = int(valid_own.size - np.count_nonzero(valid_own))
+    extremes = []
+    for vector in (E, B):
+        v = vector[(slice(None),) + own]
+        g = gamma[(slice(None),) + own]
+        square = (g[0] * v[0] ** 2 + g[3] * v[1] ** 2 + g[5] * v[2] ** 2
+                  + 2 * (g[1] * v[0] * v[1] + g[2] * v[0] * v[2] + g[4] * v[1] * v[2]))
+        if valid_own is not None:
+            square = np.where(valid_own, square, 0.0)
+        extremes.append(float(np.sqrt(square.max())) if square.size else 0.0)
+    faces = []
+    for a in range(3):
+        others = [b for b in range(3) if b != a]
+        for side in (0, 1):
+            if a == axis:
+                row = 0 if side == 0 else nrows - 1
+                if start + row != (0 if side == 0 else grid.shape[axis] - 1):
+                    faces.append(Sum.zero())  # this face lies in another piece's rows
+                    continue
+            else:
+                row = 0 if side == 0 else grid.shape[a] - 1
+            index = [slice(None)] * 3
+            index[axis] = slice(0, nrows)
+            index[a] = row
+            sheet = flux[a][tuple(index)]
+            area = w[others[0]][:, None] * w[others[1]][None, :]
+            faces.append(Sum.of((sheet * area) if side == 1 else -(sheet * area)))
+    face_flux = Sum(np.array([f.value for f in faces]), np.array([f.magnitude for f in faces]))
+    spheres_sum = [sphere.slab_sum(flux, valid, axis, start, stop) for sphere in spheres]
+    luminosity = Sum(np.array([x.value for x in spheres_sum]),
+                     np.array([x.magnitude for x in spheres_sum]))
+    return LevelPartial(Sum.of(density * cell), Sum.of(momentum * cell, axis=(1, 2, 3)),
+                        face_flux, luminosity, density.size - excluded, excluded, *extremes)
 
 
 def integrate_level_arrays(grid, gamma, E, B, *, units="gaussian", lapse=None, shift=None,
                            mask=None, radii=(), n_theta=32, interpolation_points=4,
                            label="0", time=0.0) -> LevelIntegrals:
-    """Integrated quantities of in-memory (x, y, z)-order arrays (one slab: the whole grid)."""
-    result = LevelIntegrals(label, float(time))
+    """Integrated quantities of in-memory (x, y, z)-order arrays (one slab: the whole grid).
+
+    ``mask`` (nonzero = valid) leaves points out of the sums and out of the checks; the
+    inputs are never modified.
+    """
     spheres = [_Sphere(r, grid, n_theta, interpolation_points) for r in radii]
-    _accumulate(result, spheres, grid, 0, grid.shape[0], grid.shape[0], gamma, E, B, lapse,
-                shift, mask, units)
-    result.luminosity = {s.radius: s.value for s in spheres}
-    return result
-
-
-def _accumulate(result, spheres, grid, start, stop, n_axis, gamma, E, B, lapse, shift, mask,
-                units, axis=0, halo_stop=None):
-    """Add the contribution of rows start:stop along ``axis`` (arrays cover start:halo_stop)."""
-    src = adm_sources(gamma, E, B, units=units)
-    sqrtg, flux = _geometry(gamma, lapse, shift, src.rho, src.S_i)
-    own = [slice(None)] * 3
-    own[axis] = slice(0, stop - start)
-    own = tuple(own)
-    w = [_trapezoid(grid.shape[a], grid.spacing[a]) for a in range(3)]
-    w[axis] = w[axis][start:stop]
-    density = src.rho[own] * sqrtg[own]
-    momentum = src.S_i[(slice(None),) + own] * sqrtg[own]
-    if mask is not None:
-        valid = mask[own].astype(bool)
-        density = np.where(valid, density, 0.0)
-        momentum = np.where(valid, momentum, 0.0)
-        result.excluded_points += int(valid.size - np.count_nonzero(valid))
-    for name, vector in (("max_electric_field", E), ("max_magnetic_field", B)):
-        v = vector[(slice(None),) + own]
-        g = gamma[(slice(None),) + own]
-        square = (g[0] * v[0] ** 2 + g[3] * v[1] ** 2 + g[5] * v[2] ** 2
-                  + 2 * (g[1] * v[0] * v[1] + g[2] * v[0] * v[2] + g[4] * v[1] * v[2]))
-        if mask is not None:
-            square = np.where(valid, square, 0.0)
-        setattr(result, name, max(getattr(result, name), float(np.sqrt(square.max()))))
-    result.energy += float(np.einsum("ijk,i,j,k->", density, *w))
-    result.momentum = result.momentum + np.einsum("cijk,i,j,k->c", momentum, *w)
-    for a in range(3):
-        others = [b for b in range(3) if b != a]
-        for side, face in ((0, f"{'xyz'[a]}_lower"), (1, f"{'xyz'[a]}_upper")):
-            if a == axis:
-                row = 0 if side == 0 else stop - start - 1
-                global_row = start + row
-                if global_row != (0 if side == 0 else n_axis - 1):
-                    continue
-            else:
-                row = 0 if side == 0 else grid.shape[a] - 1
-            index = [slice(None)] * 3
-            index[axis] = slice(0, stop - start)
-            index[a] = row
-            sheet = flux[a][tuple(index)]
-            value = float(np.einsum("ij,i,j->", sheet, w[others[0]], w[others[1]]))
-            result.face_flux[face] += value if side == 1 else -value
-    for sphere in spheres:
-        sphere.add_slab(flux, mask, axis, start, stop)
+    partial = level_partial(grid, gamma, E, B, units=units, lapse=lapse, shift=shift, mask=mask,
+                            spheres=spheres)
+    return LevelIntegrals.from_partial(partial, label, time, [s.radius for s in spheres])
 
 
 def integrate_snapshot(input_file, *, mapping=None, radii=(), n_theta=32, interpolation_points=4,
@@ -309,23 +441,26 @@ def integrate_snapshot(input_file, *, mapping=None, radii=(), n_theta=32, interp
 
 
 def _integrate_level(level, dtype, rows, halo, spheres, bar):
-    result = LevelIntegrals(level.label, level.time)
     wanted = ["spatial_metric", "electric_field", "magnetic_field"]
     optional = [q for q in ("lapse", "shift", "valid_mask") if level.has(q)]
     buffers = SlabBuffers(level, wanted + [q for q in optional if q != "valid_mask"],
                           rows + halo, dtype)
     masks = SlabBuffers(level, ["valid_mask"], rows + halo, np.uint8) if "valid_mask" in optional else None
     n0 = level.storage_shape[0]
+    partial = LevelPartial.zero(len(spheres))
     for start, stop in slabs(n0, rows):
         end = min(stop + halo, n0)
         arrays = {q: buffers.read(q, start, end) for q in wanted + optional if q != "valid_mask"}
         mask = masks.read("valid_mask", start, end) if masks else None
         try:
-            _accumulate(result, spheres, level.grid, start, stop, n0, arrays["spatial_metric"],
-                        arrays["electric_field"], arrays["magnetic_field"], arrays.get("lapse"),
-                        arrays.get("shift"), mask, level.units, axis=level.slab_axis)
+            piece = level_partial(level.grid, arrays["spatial_metric"], arrays["electric_field"],
+                                  arrays["magnetic_field"], units=level.units,
+                                  lapse=arrays.get("lapse"), shift=arrays.get("shift"), mask=mask,
+                                  spheres=spheres, axis=level.slab_axis, start=start, stop=stop,
+                                  in_place=True)
         except GridPointError as error:
-            raise slab_error(error, level, start, end) from None
+            raise SnapshotError(f"time level {level.label!r}: {error}") from None
+        partial = combine(partial, piece)
         bar.update(1)
-    result.luminosity = {s.radius: s.value for s in spheres}
-    return result
+    return LevelIntegrals.from_partial(partial, level.label, level.time,
+                                       [s.radius for s in spheres])
