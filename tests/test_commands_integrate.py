@@ -8,7 +8,7 @@ import pytest
 
 from emsource import io
 from emsource.cli import main
-from emsource.commands import EXIT_BAD_INPUT, EXIT_OK, EXIT_OUTPUT_ERROR
+from emsource.commands import EXIT_BAD_INPUT, EXIT_OK, EXIT_OUTPUT_ERROR, EXIT_USAGE
 from emsource.exact import rotating_dipole, rotating_dipole_luminosity
 from emsource.grid import UniformGrid
 
@@ -68,3 +68,24 @@ def test_sphere_that_does_not_fit_is_bad_input(dipole, capsys):
     assert main(["integrate", str(dipole), "--levels", "5", "--quiet"]) == EXIT_BAD_INPUT
     assert "out of range" in capsys.readouterr().err
     assert math.isfinite(rotating_dipole_luminosity())
+
+
+@pytest.mark.parametrize("radius", ["nan", "inf", "-1.5", "0"])
+def test_radius_that_is_not_a_positive_number_is_a_usage_error(dipole, radius, capsys):
+    with pytest.raises(SystemExit) as stop:
+        main(["integrate", str(dipole), "--radius", radius, "--quiet"])
+    assert stop.value.code == EXIT_USAGE
+    assert "positive and finite" in capsys.readouterr().err
+
+
+def test_huge_radius_is_a_sphere_that_does_not_fit(dipole, capsys):
+    assert main(["integrate", str(dipole), "--radius", "1e300", "--quiet"]) == EXIT_BAD_INPUT
+    assert "does not fit in the grid" in capsys.readouterr().err
+
+
+@pytest.mark.parametrize("limit", ["inf", "1e400", "nan", "-3"])
+def test_memory_limit_that_is_not_a_finite_positive_number_is_a_usage_error(dipole, limit, capsys):
+    with pytest.raises(SystemExit) as stop:
+        main(["integrate", str(dipole), "--memory-limit", limit, "--quiet"])
+    assert stop.value.code == EXIT_USAGE
+    assert "memory limit must be" in capsys.readouterr().err

@@ -3,12 +3,15 @@
 from __future__ import annotations
 
 import argparse
+import math
 import os
 import sys
 
 from . import EXIT_BAD_INPUT, EXIT_OUTPUT_ERROR
 
 MIB = 2**20
+#: Largest accepted --memory-limit: 1 EiB, far above any machine, well inside int range.
+MAX_MEMORY_LIMIT_MIB = float(2**40)
 
 
 def memory_limit(text: str) -> int:
@@ -17,8 +20,12 @@ def memory_limit(text: str) -> int:
         value = float(text)
     except ValueError:
         raise argparse.ArgumentTypeError(f"expected a number of MiB, found {text!r}") from None
-    if not value > 0:
-        raise argparse.ArgumentTypeError(f"memory limit must be positive, found {text!r}")
+    if not (math.isfinite(value) and value > 0):
+        raise argparse.ArgumentTypeError(f"memory limit must be a positive, finite number of MiB, "
+                                         f"found {text!r}")
+    if value > MAX_MEMORY_LIMIT_MIB:
+        raise argparse.ArgumentTypeError(f"memory limit must be at most {MAX_MEMORY_LIMIT_MIB:g} "
+                                         f"MiB (1 EiB), found {text!r}")
     return int(value * MIB)
 
 

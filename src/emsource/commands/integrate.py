@@ -2,12 +2,25 @@
 
 from __future__ import annotations
 
+import argparse
 import math
 
 from . import EXIT_BAD_INPUT, EXIT_OK, EXIT_OUTPUT_ERROR
 from ._snapshot_options import add_input_options, check_new_output, fail, run_guarded, show_progress
 
 HELP = "integrate energy, momentum, face fluxes and sphere luminosities over a snapshot file"
+
+
+def sphere_radius(text: str) -> float:
+    """``--radius``: a positive, finite number (whether the sphere fits is checked on the grid)."""
+    try:
+        value = float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"expected a number, found {text!r}") from None
+    if not (math.isfinite(value) and value > 0):
+        raise argparse.ArgumentTypeError(f"a sphere radius must be positive and finite, "
+                                         f"found {text!r}")
+    return value
 
 
 def register(subparsers):
@@ -21,7 +34,7 @@ def register(subparsers):
                "sphere that does not fit), 4 an output exists (use --force) or cannot be "
                "written, 130 interrupted.")
     add_input_options(parser)
-    parser.add_argument("--radius", metavar="R", type=float, action="append", default=[],
+    parser.add_argument("--radius", metavar="R", type=sphere_radius, action="append", default=[],
                         help="radius of a luminosity sphere (code units); repeat for several")
     parser.add_argument("--angular-points", metavar="N", type=int, default=32,
                         help="Gauss-Legendre nodes in theta (2N in phi); default 32")
