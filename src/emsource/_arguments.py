@@ -9,6 +9,8 @@ from __future__ import annotations
 
 import numpy as np
 
+from .errors import GridPointError
+
 #: Flat indices, into a full (3, 3) block seen as 9, of the packed (xx, xy, xz, yy, yz, zz).
 FULL_METRIC_INDEX = (0, 1, 2, 4, 5, 8)
 PACKED_METRIC_INDEX = (0, 1, 2, 3, 4, 5)
@@ -238,7 +240,6 @@ def check_points(function: str, grid, named: dict, *, valid=None, lapse=None, me
     are looked at (all when None). This is a NumPy pass over the arrays: callers run it where a
     check is asked for, or on an error path.
     """
-    from .sources import GridPointError
 
     grid = tuple(grid)
     where = np.ones(grid, bool) if valid is None else valid
