@@ -4,4 +4,5 @@ import sys
 
 from .cli import main
 
-sys.exit(main())
+if __name__ == "__main__":  # importing this module (documentation tools, tests) runs nothing
+    sys.exit(main())
