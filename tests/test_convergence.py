@@ -120,3 +120,16 @@ def test_builtin_cases_run_from_the_command_line(tmp_path, capsys):
     assert "design order 4" in out and "ok" in out and plot.exists()
     assert main(["converge", "--case", "plane_wave", "--order", "2", "--time-levels",
                  "--no-plot"]) == commands.EXIT_OK
+
+
+def test_command_without_plot_does_not_need_matplotlib(registered_cases, monkeypatch, capsys):
+    # README: "emsource converge --case gauge_wave --order 4" prints its table; no plot was
+    # asked for, so a machine without matplotlib must still exit 0 (None in sys.modules makes
+    # "import matplotlib" raise ImportError).
+    import sys
+
+    monkeypatch.setitem(sys.modules, "matplotlib", None)
+    assert main(["converge", "--case", "fixture_wave", "--order", "4"]) == commands.EXIT_OK
+    assert "plot written" not in capsys.readouterr().out
+    assert main(["converge", "--case", "fixture_wave", "--plot"]) == commands.EXIT_OUTPUT_ERROR
+    assert "matplotlib" in capsys.readouterr().err
