@@ -521,3 +521,31 @@ def test_order_six_on_a_short_axis_is_rejected():
     fields, rates = _flat_inputs((10, 6))
     with pytest.raises(ValueError, match="axis 1 has 6 points; order 6 needs more than 6"):
         conservation_residual(**fields, **rates, spacing=0.1, order=6)
+
+
+def test_global_balance_of_a_drifting_closed_box_is_relative_to_its_energy():
+    """A uniform static field whose amplitude drifts by 1 % between two slices: no face flux
+    (equal on opposite faces) and no volume source, so the whole change is mismatch. Relative
+    to the energy in the box it is 1 - 1/1.01^2 = 0.0197, not 1 (the size of the change itself)."""
+    from dataclasses import replace
+
+    grid = UniformGrid((9, 9, 9), (0.0, 0.0, 0.0), (0.1, 0.1, 0.1))
+    alpha, beta, gamma, K = F._flat_geometry(grid.shape)
+    E = np.zeros((3,) + grid.shape)
+    E[1] = 1.0
+    B = np.zeros_like(E)
+    B[2] = 0.5
+    zero = np.zeros_like(E)
+    first = exact.SliceFields(grid=grid, t=0.0, alpha=alpha, beta=beta, gamma=gamma, K=K, E=E,
+                              B=B, charge_density=np.zeros(grid.shape), current_density=zero,
+                              units="gaussian", dt_E=zero, dt_B=zero,
+                              dt_gamma=np.zeros_like(gamma))
+    second = replace(first, t=0.1, E=1.01 * E, B=1.01 * B)
+    balance = global_balance([first, second], order=2)
+    energy = balance.totals[:, 0]
+    # trapezoid box integral of a constant: exact up to a few roundings per point (729 terms)
+    volume = 0.6**3
+    assert energy[0] == pytest.approx((1.0 + 0.25) / (8 * np.pi) * volume, rel=1e-13)
+    assert abs(balance.energy.outflow) < 1e-15 * energy[0]
+    assert balance.energy.absolute_mismatch == pytest.approx(energy[1] - energy[0], rel=1e-12)
+    assert balance.energy.relative_mismatch == pytest.approx(1 - 1 / 1.01**2, rel=1e-12)

@@ -38,6 +38,7 @@ __all__ = [
     "Case",
     "CASES",
     "register_case",
+    "register_builtin_cases",
     "run_case",
 ]
 
@@ -272,7 +273,7 @@ def register_case(case: Case) -> Case:
 
 def run_case(name: str, *, order=4, resolutions=None, time_derivatives="supplied") -> ConvergenceTable:
     """:func:`residual_convergence` of the named case of :data:`CASES`."""
-    _register_builtin_cases()
+    register_builtin_cases()
     if name not in CASES:
         raise ValueError(f"run_case: unknown case {name!r}; known cases: {sorted(CASES)}")
     case = CASES[name]
@@ -286,7 +287,7 @@ _CHARGE = {"charge": 1.0, "width": 0.35, "velocity": (0.4, 0.3, 0.2), "center": 
 _FRAME = {"frame_velocity": (0.3, -0.2, 0.1), **_WAVE}
 
 
-def _register_builtin_cases():
+def register_builtin_cases():
     """Register the cases built on :mod:`emsource.exact` (each once).
 
     Boxes: the waves on the unit square (x, y) in [0, 1]^2 (fields independent of z, so a 2D

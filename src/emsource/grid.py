@@ -75,8 +75,3 @@ class UniformGrid:
         while len(coords) < 3:
             coords.append(np.zeros(self.shape, dtype=dtype))
         return tuple(coords)
-
-    @property
-    def cell_volume(self) -> float:
-        """Coordinate volume (length, area) of one cell, product of the spacings."""
-        return float(np.prod(self.spacing))

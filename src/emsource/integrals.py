@@ -53,9 +53,10 @@ __all__ = ["LevelIntegrals", "integrate_snapshot", "integrate_level_arrays", "le
            "sphere_quadrature", "lagrange_weights", "FACES"]
 
 FACES = ("x_lower", "x_upper", "y_lower", "y_upper", "z_lower", "z_upper")
-#: Values per grid point the integration holds at once: 16 inputs + mask, 11 sources, and about
-#: 20 NumPy temporaries for sqrt(gamma), the inverse metric and F^i.
-INTEGRATION_VALUES_PER_POINT = 48
+#: Values per grid point the integration holds at once: 16 inputs + mask, 11 sources, about
+#: 20 NumPy temporaries for sqrt(gamma), the inverse metric and F^i, and about 8 for the unit
+#: lapse and zero shift of a file without them, the cell weights and the weighted terms.
+INTEGRATION_VALUES_PER_POINT = 56
 
 
 @dataclass

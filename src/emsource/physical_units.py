@@ -98,10 +98,6 @@ class PhysicalScale:
         return self.mass_kg * _C
 
     @property
-    def momentum_g_cm_s(self) -> float:
-        return 1e5 * self.momentum_kg_m_s
-
-    @property
     def luminosity_W(self) -> float:
         """c^5 / G: the code unit of power, the same for every mass scale."""
         return self.energy_J / self.time_s

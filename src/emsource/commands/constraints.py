@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from .._arguments import DIFFERENCE_ORDERS
 from . import EXIT_BAD_INPUT, EXIT_CHECK_FAILED, EXIT_OK
 from ._snapshot_level import add_snapshot_arguments, read_slice
 
@@ -16,7 +17,7 @@ def register(subparsers):
                     "magnetic_field, optional valid_mask) and print their norms.",
     )
     add_snapshot_arguments(p)
-    p.add_argument("--order", type=int, choices=(2, 4, 6), default=4,
+    p.add_argument("--order", type=int, choices=DIFFERENCE_ORDERS, default=4,
                    help="finite-difference order (default 4)")
     p.add_argument("--sources", choices=("file", "gaussian", "heaviside_lorentz", "none"),
                    default="file",

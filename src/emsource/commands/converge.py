@@ -1,8 +1,8 @@
 """``emsource converge``: convergence of the energy-momentum conservation residual on exact data.
 
 Runs a named case at three or more resolutions, prints the errors and observed orders as a
-table, writes a log-log plot with reference slopes (needs matplotlib), and optionally the table
-as JSON. The exit code is 0 if the finest observed order of every error is within the tolerance
+table, with ``--plot`` writes a log-log plot with reference slopes (needs matplotlib), and
+optionally the table as JSON. The exit code is 0 if the finest observed order of every error is within the tolerance
 of the design order (the stencil order with supplied time derivatives, min(order, 2) with three
 time levels), 1 if not.
 """
@@ -13,6 +13,7 @@ import json
 import sys
 from pathlib import Path
 
+from .._arguments import DIFFERENCE_ORDERS
 from . import EXIT_BAD_INPUT, EXIT_CHECK_FAILED, EXIT_OK, EXIT_OUTPUT_ERROR
 
 
@@ -23,15 +24,17 @@ def register(subparsers):
         description=__doc__,
     )
     parser.add_argument("--case", help="name of the case (required unless --list)")
-    parser.add_argument("--order", type=int, choices=(2, 4, 6), default=4,
+    parser.add_argument("--order", type=int, choices=DIFFERENCE_ORDERS, default=4,
                         help="order of the centred differences (default 4)")
     parser.add_argument("--resolutions", type=int, nargs="+", metavar="N",
                         help="points per axis, coarsest first (default: the case's own)")
     parser.add_argument("--time-levels", action="store_true",
                         help="take time derivatives from three time levels instead of the exact ones")
-    parser.add_argument("--plot", metavar="PATH",
-                        help="where to write the plot (default converge-<case>-order<p>.png)")
-    parser.add_argument("--no-plot", action="store_true", help="do not write a plot")
+    parser.add_argument("--plot", metavar="PATH", nargs="?", const="",
+                        help="write a log-log plot (needs matplotlib), to PATH or by default "
+                             "to converge-<case>-order<p>.png")
+    parser.add_argument("--no-plot", action="store_true",
+                        help="write no plot (also the default without --plot)")
     parser.add_argument("--json", metavar="PATH", help="also write the table as JSON")
     parser.add_argument("--tolerance", type=float, default=0.3,
                         help="allowed distance of the observed from the design order (default 0.3)")
@@ -42,7 +45,7 @@ def register(subparsers):
 def run(args) -> int:
     from .. import convergence
 
-    convergence._register_builtin_cases()
+    convergence.register_builtin_cases()
     if args.list:
         for name, case in sorted(convergence.CASES.items()):
             print(f"{name:24s} {case.description}")
@@ -66,7 +69,7 @@ def run(args) -> int:
         print(f"emsource converge: {error}", file=sys.stderr)
         return EXIT_BAD_INPUT
     print(table.format())
-    if not args.no_plot:
+    if args.plot is not None and not args.no_plot:
         path = Path(args.plot or f"converge-{args.case}-order{args.order}.png")
         try:
             table.plot(path)

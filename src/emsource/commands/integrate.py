@@ -11,14 +11,14 @@ from ._snapshot_options import add_input_options, check_new_output, fail, run_gu
 HELP = "integrate energy, momentum, face fluxes and sphere luminosities over a snapshot file"
 
 
-def sphere_radius(text: str) -> float:
-    """``--radius``: a positive, finite number (whether the sphere fits is checked on the grid)."""
+def radius(text: str) -> float:
+    """``--radius``: a positive finite number (anything else is a usage error, exit 2)."""
     try:
         value = float(text)
     except ValueError:
         raise argparse.ArgumentTypeError(f"expected a number, found {text!r}") from None
     if not (math.isfinite(value) and value > 0):
-        raise argparse.ArgumentTypeError(f"a sphere radius must be positive and finite, "
+        raise argparse.ArgumentTypeError(f"a sphere radius must be a positive finite number, "
                                          f"found {text!r}")
     return value
 
@@ -30,11 +30,14 @@ def register(subparsers):
         "fluxes use F^i = sqrt(gamma) (alpha S^i - rho beta^i); a luminosity is the flux out "
         "through a coordinate sphere centred on the origin (Lagrange interpolation, "
         "Gauss-Legendre in theta times uniform in phi).",
-        epilog="Exit codes: 0 done, 3 bad input (message says what the file holds, or a "
-               "sphere that does not fit), 4 an output exists (use --force) or cannot be "
-               "written, 130 interrupted.")
+        epilog="Exit codes: 0 done, 2 usage (for instance a --radius that is not a positive "
+               "finite number), 3 bad input (message says what the file holds: a non-finite "
+               "value, a metric that is not positive definite or a lapse that is not positive "
+               "at a valid point, or a sphere that does not fit in the grid), 4 an output "
+               "exists (use --force) or cannot be written, 130 interrupted. Points with "
+               "valid_mask = 0 are neither checked nor used.")
     add_input_options(parser)
-    parser.add_argument("--radius", metavar="R", type=sphere_radius, action="append", default=[],
+    parser.add_argument("--radius", metavar="R", type=radius, action="append", default=[],
                         help="radius of a luminosity sphere (code units); repeat for several")
     parser.add_argument("--angular-points", metavar="N", type=int, default=32,
                         help="Gauss-Legendre nodes in theta (2N in phi); default 32")

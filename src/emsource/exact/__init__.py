@@ -17,6 +17,9 @@ Flat spacetime:
 - :func:`rotating_dipole`: the vacuum field of a rotating point magnetic dipole (all zones),
   a model of a spinning magnetized compact star; :func:`rotating_dipole_fields` at arbitrary
   points and :func:`rotating_dipole_luminosity`, its radiated power.
+- :func:`sheared_circular_wave`: a circularly polarised plane wave in sheared, stretched
+  coordinates (a constant non-diagonal metric), with its exact energy and momentum density
+  (the data of ``emsource example``).
 
 Curved spacetime (electrovacuum black holes, Kerr-Schild coordinates, stationary slices):
 
@@ -38,6 +41,7 @@ from .kerr_schild import (
 )
 from .moving_frame import plane_wave_moving_frame
 from .plane_wave import periodic_wave_vector, plane_wave
+from .sheared_wave import ShearedWave, sheared_circular_wave
 from .rotating_dipole import rotating_dipole, rotating_dipole_fields, rotating_dipole_luminosity
 from .slice_fields import SliceFields
 
@@ -52,6 +56,8 @@ __all__ = [
     "rotating_dipole",
     "rotating_dipole_fields",
     "rotating_dipole_luminosity",
+    "ShearedWave",
+    "sheared_circular_wave",
     "inner_horizon_radius",
     "kerr",
     "kerr_newman",

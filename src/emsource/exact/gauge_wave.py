@@ -7,7 +7,7 @@ import math
 import numpy as np
 
 from . import _common
-from .plane_wave import _plane_wave_pattern
+from .plane_wave import plane_wave_pattern
 from .slice_fields import SliceFields
 
 __all__ = ["plane_wave_gauge_wave"]
@@ -98,7 +98,7 @@ def plane_wave_gauge_wave(grid, t, *, gauge_amplitude=0.1, gauge_wavelength=1.0,
     P = -(A * d / (2.0 * math.pi)) * (1.0 - np.cos(phase_u))
     X = x + 0.5 * P
     T = t - 0.5 * P
-    E_M, B_M, dE_M, dB_M, _, omega, k = _plane_wave_pattern(
+    E_M, B_M, dE_M, dB_M, _, omega, k = plane_wave_pattern(
         X, y, z, T, wave_vector=wave_vector, polarization=polarization, amplitude=amplitude,
         profile=profile, width=width, phase=phase, who=who,
     )

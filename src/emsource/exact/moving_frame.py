@@ -5,7 +5,7 @@ from __future__ import annotations
 import numpy as np
 
 from . import _common
-from .plane_wave import _plane_wave_pattern
+from .plane_wave import plane_wave_pattern
 from .slice_fields import SliceFields
 
 __all__ = ["plane_wave_moving_frame"]
@@ -61,7 +61,7 @@ def plane_wave_moving_frame(grid, t, *, frame_velocity, wave_vector, polarizatio
     units = _common.check_units(units, who)
     V = _common.check_vector(frame_velocity, "frame_velocity", who)
     xp, yp, zp = grid.coordinates()
-    E, B, dE, dB, _, omega, k = _plane_wave_pattern(
+    E, B, dE, dB, _, omega, k = plane_wave_pattern(
         xp + V[0] * t, yp + V[1] * t, zp + V[2] * t, t, wave_vector=wave_vector,
         polarization=polarization, amplitude=amplitude, profile=profile, width=width, phase=phase,
         who=who,

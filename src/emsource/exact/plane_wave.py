@@ -9,7 +9,7 @@ import numpy as np
 from . import _common
 from .slice_fields import SliceFields
 
-__all__ = ["plane_wave", "periodic_wave_vector"]
+__all__ = ["plane_wave", "plane_wave_pattern", "periodic_wave_vector"]
 
 
 def periodic_wave_vector(grid, modes) -> np.ndarray:
@@ -62,7 +62,7 @@ def periodic_wave_vector(grid, modes) -> np.ndarray:
     return k
 
 
-def _plane_wave_pattern(x, y, z, t, *, wave_vector, polarization, amplitude, profile, width, phase, who):
+def plane_wave_pattern(x, y, z, t, *, wave_vector, polarization, amplitude, profile, width, phase, who):
     """Minkowski plane wave at events (t, x, y, z): E, B and their derivatives along the phase.
 
     Returns (E, B, dE_ds, dB_ds, s, omega, k) with E, B of shape (3, *x.shape); d/ds is the
@@ -142,7 +142,7 @@ def plane_wave(grid, t, *, wave_vector, polarization, amplitude=1.0, profile="si
     t = _common.check_time(t, who)
     units = _common.check_units(units, who)
     x, y, z = grid.coordinates()
-    E, B, dE, dB, _, omega, _ = _plane_wave_pattern(
+    E, B, dE, dB, _, omega, _ = plane_wave_pattern(
         x, y, z, t, wave_vector=wave_vector, polarization=polarization, amplitude=amplitude,
         profile=profile, width=width, phase=phase, who=who,
     )
