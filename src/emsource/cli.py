@@ -3,7 +3,8 @@
 Signals. Ctrl-C (SIGINT) exits with 130, SIGTERM and SIGHUP (sent by batch schedulers at the
 wall-time limit and by a closing terminal) with 128 + the signal number (143, 129). All three
 raise an exception in the running command, so its partial outputs are removed on the way out
-(:func:`emsource.snapshot.atomic_output`); a repeated signal during that clean-up is ignored.
+(:func:`emsource.snapshot.atomic_output`); a repeated signal during that clean-up is ignored
+(:mod:`emsource.interruption`).
 SIGKILL cannot be caught: see :data:`emsource.commands.EXIT_SIGNAL_BASE` for what it may leave.
 """
 
@@ -15,20 +16,12 @@ import pkgutil
 import signal
 import sys
 
-from . import __version__, commands
+from . import __version__, commands, interruption
 
-__all__ = ["main", "build_parser", "Terminated"]
+__all__ = ["main", "build_parser"]
 
 EPILOG = ("Exit codes: 0 ok, 1 a check failed, 2 usage, 3 bad input, 4 output error, "
           "130 interrupted (Ctrl-C), 128 + N stopped by signal N (SIGTERM 143, SIGHUP 129).")
-
-
-class Terminated(BaseException):
-    """SIGTERM or SIGHUP arrived: unwinds like KeyboardInterrupt (partial outputs removed)."""
-
-    def __init__(self, signum):
-        super().__init__(signum)
-        self.signum = signum
 
 
 class _Parser(argparse.ArgumentParser):
@@ -52,20 +45,11 @@ def build_parser() -> argparse.ArgumentParser:
     return parser
 
 
-def _stop(signum, frame):
-    # The first signal unwinds the command; later ones must not interrupt its clean-up.
-    for other in (signal.SIGINT, signal.SIGTERM, signal.SIGHUP):
-        signal.signal(other, signal.SIG_IGN)
-    if signum == signal.SIGINT:
-        raise KeyboardInterrupt
-    raise Terminated(signum)
-
-
 def _install_handlers():
     previous = {}
-    for signum in (signal.SIGINT, signal.SIGTERM, signal.SIGHUP):
+    for signum in interruption.SIGNALS:
         try:
-            previous[signum] = signal.signal(signum, _stop)
+            previous[signum] = signal.signal(signum, interruption.handle)
         except (ValueError, OSError):  # not the main thread: leave the signals alone
             return {}
     return previous
@@ -77,17 +61,20 @@ def main(argv=None) -> int:
         try:
             parser = build_parser()
             args = parser.parse_args(argv)
-            return int(args.run(args))
+            code = int(args.run(args))
+            interruption.check()  # a request no checkpoint saw: the outputs are complete
+            return code
         except KeyboardInterrupt:
-            print("emsource: interrupted", file=sys.stderr)
+            print("emsource: interrupted; partial outputs removed", file=sys.stderr)
             return commands.EXIT_INTERRUPTED
-        except Terminated as stop:
+        except interruption.Terminated as stop:
             name = signal.Signals(stop.signum).name
             print(f"emsource: stopped by {name}; partial outputs removed", file=sys.stderr)
             return commands.EXIT_SIGNAL_BASE + stop.signum
     finally:
         for signum, handler in previous.items():
             signal.signal(signum, handler)
+        interruption.reset()
 
 
 if __name__ == "__main__":

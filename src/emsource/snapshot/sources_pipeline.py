@@ -30,7 +30,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from .. import adm_sources
+from .. import adm_sources, interruption
 from ..quantities import COMPONENTS, OUTPUTS, SOURCE_INPUTS
 from ..sources import GridPointError
 from .native import LEVELS_GROUP
@@ -223,6 +223,7 @@ def _level_sources(level, dtype, rows, group, compression, check, written, repor
                 datasets[q][:, start:stop] = a
             else:
                 datasets[q][start:stop] = a
+        interruption.check()
         rho = out_stored[0]
         low = min(low, float(rho.min()))
         high = max(high, float(rho.max()))

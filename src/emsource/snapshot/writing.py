@@ -33,7 +33,7 @@ from contextlib import contextmanager
 import h5py
 import numpy as np
 
-from .. import __version__
+from .. import __version__, interruption
 from ..quantities import BY_NAME, COMPONENTS, NAMES
 from .errors import OutputError
 from .levels import AXIS_ORDERS, UNIT_SYSTEMS
@@ -124,6 +124,7 @@ def atomic_output(path, *, force: bool = False, inputs=()):
             os.umask(umask)
             os.chmod(temporary, 0o666 & ~umask)
             _fsync(temporary)  # delayed write errors (quota, NFS, EIO) show up here
+            interruption.check()  # a stop request swallowed by a finaliser ends here
             check_output(path, force=force, inputs=inputs)
             os.replace(temporary, path)
         except OutputError:
