@@ -10,7 +10,7 @@ run, medians of ``repeat`` repetitions:
       uses) into reused NumPy buffers with h5py ``read_direct``: the yardstick;
   (b) plain read + write: (a) plus writing 11 values per point to a new chunked file, the I/O
       that any sources pipeline must do, without computing anything;
-  (c) the pipeline, :func:`emsource.streaming.compute_sources` with the given memory limit;
+  (c) the pipeline, :func:`emsource.snapshot.sources_pipeline.compute_sources` with the given memory limit;
   (d) the same writing only energy_density and momentum_density (4 of the 11 values per point);
 
 and reports wall time, MB/s of input (1 MB = 1e6 bytes), the ratios (c)/(a) and (c)/(b), and
@@ -35,11 +35,11 @@ import tracemalloc
 import h5py
 import numpy as np
 
-from emsource import io
+from emsource import snapshot
 from emsource.grid import UniformGrid
-from emsource.streaming import (CHUNK_CACHE_BYTES, CONVERSION_BUFFER_BYTES, SOURCE_INPUTS,
-                                SOURCE_OUTPUTS, SlabBuffers, compute_sources, slab_rows, slabs,
-                                values_per_point)
+from emsource.quantities import COMPONENTS
+from emsource.snapshot.slabs import SlabBuffers, slabs
+from emsource.snapshot.sources_pipeline import (SOURCE_OUTPUTS, compute_sources, plan_rows)
 
 INPUTS = ("spatial_metric", "electric_field", "magnetic_field")
 
@@ -49,9 +49,9 @@ def write_snapshot(path, n, seed=7):
     rng = np.random.default_rng(seed)
     shape = (n, n, n)
     with h5py.File(path, "w") as f:
-        io.write_root_attributes(f)
+        snapshot.write_root_attributes(f)
         g = f.create_group("time_levels/0")
-        io.write_level_attributes(g, time=0.0, grid=UniformGrid(shape, (0.0,) * 3, (1.0 / n,) * 3),
+        snapshot.write_level_attributes(g, time=0.0, grid=UniformGrid(shape, (0.0,) * 3, (1.0 / n,) * 3),
                                   units="gaussian", axis_order="xyz")
         data = {q: g.create_dataset(q, (c,) + shape, "f8") for q, c in zip(INPUTS, (6, 3, 3))}
         block = 16
@@ -74,7 +74,7 @@ def median_seconds(function, repeat):
 
 
 def plain_read(path, rows):
-    with io.open_snapshot(path) as snap:
+    with snapshot.open_snapshot(path) as snap:
         level = snap.levels[0]
         buffers = SlabBuffers(level, INPUTS, rows, np.float64)
         for start, stop in slabs(level.storage_shape[0], rows):
@@ -83,7 +83,7 @@ def plain_read(path, rows):
 
 
 def plain_read_write(path, out_path, rows):
-    with io.open_snapshot(path) as snap:
+    with snapshot.open_snapshot(path) as snap:
         level = snap.levels[0]
         buffers = SlabBuffers(level, INPUTS, rows, np.float64)
         outputs = SlabBuffers(level, SOURCE_OUTPUTS, rows, np.float64)
@@ -91,9 +91,9 @@ def plain_read_write(path, out_path, rows):
         with h5py.File(out_path, "w", rdcc_nbytes=0) as out:
             datasets = {}
             for q in SOURCE_OUTPUTS:
-                c = io.QUANTITIES[q]
+                c = COMPONENTS[q]
                 full = ((c,) if c else ()) + shape
-                chunks = ((1,) if c else ()) + (min(rows, io.chunk_shape(shape, 8)[0]),) + shape[1:]
+                chunks = ((1,) if c else ()) + (min(rows, snapshot.chunk_shape(shape, 8)[0]),) + shape[1:]
                 datasets[q] = out.create_dataset(q, full, "f8", chunks=chunks)
             for start, stop in slabs(shape[0], rows):
                 for q in INPUTS:
@@ -142,9 +142,8 @@ def main():
         input_bytes = 12 * 8 * n**3
         print(f"snapshot {n}^3 float64, {input_bytes / 2**20:.0f} MiB of inputs "
               f"(written in {time.perf_counter() - began:.1f} s); memory limit {args.memory_limit:g} MiB")
-        with io.open_snapshot(path) as snap:
-            rows = slab_rows(snap.levels[0], values_per_point(SOURCE_INPUTS + SOURCE_OUTPUTS), 8,
-                             limit, fixed=CHUNK_CACHE_BYTES * 12 + CONVERSION_BUFFER_BYTES)
+        with snapshot.open_snapshot(path) as snap:
+            rows = plan_rows(snap.levels[0], np.float64, limit)
         compute_sources(path, out_path, memory_limit=limit, force=True)  # warm-up: kernels, cache
         plain_read(path, rows)
         t_read = median_seconds(lambda: plain_read(path, rows), args.repeat)

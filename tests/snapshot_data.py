@@ -17,3 +17,32 @@ def curved_levels(rng, shape=(9, 8, 7), times=(0.0, 0.5), dtype=np.float64):
                        "electric_field": E, "magnetic_field": B, "time": t, "grid": grid,
                        "units": "gaussian"})
     return levels
+
+
+def run_cli(*arguments, timeout=300, **kwargs):
+    """``python -m emsource ARGUMENTS`` in a fresh interpreter: (return code, stdout, stderr)."""
+    import subprocess
+    import sys
+
+    result = subprocess.run([sys.executable, "-m", "emsource", *map(str, arguments)],
+                            capture_output=True, text=True, timeout=timeout, **kwargs)
+    return result.returncode, result.stdout, result.stderr
+
+
+def start_cli(*arguments, **kwargs):
+    """``python -m emsource ARGUMENTS`` started in the background (a Popen with pipes)."""
+    import subprocess
+    import sys
+
+    return subprocess.Popen([sys.executable, "-m", "emsource", *map(str, arguments)],
+                            stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True, **kwargs)
+
+
+def checksums(directory):
+    """File name -> SHA-256 of every file in ``directory`` (hidden ones included)."""
+    import hashlib
+    import os
+
+    return {name: hashlib.sha256(open(os.path.join(directory, name), "rb").read()).hexdigest()
+            for name in sorted(os.listdir(directory))
+            if os.path.isfile(os.path.join(directory, name))}

@@ -6,7 +6,7 @@ import numpy as np
 import pytest
 
 import emsource
-from emsource import io
+from emsource.snapshot import read_level, write_snapshot
 from emsource.cli import main
 from emsource.commands import EXIT_BAD_INPUT, EXIT_OK, EXIT_OUTPUT_ERROR
 
@@ -16,7 +16,7 @@ from snapshot_data import curved_levels
 @pytest.fixture
 def snapshot(tmp_path, rng):
     path = tmp_path / "snap.h5"
-    io.write_snapshot(path, curved_levels(rng))
+    write_snapshot(path, curved_levels(rng))
     return path
 
 
@@ -35,9 +35,9 @@ def test_computes_and_prints_a_summary(snapshot, tmp_path, capsys):
     text = capsys.readouterr().out
     assert "emsource sources: done" in text and "time levels     2" in text
     assert "9 x 8 x 7 points" in text and "energy density" in text
-    level = io.read_level(snapshot, 1)
+    level = read_level(snapshot, 1)
     ref = emsource.adm_sources(level["spatial_metric"], level["electric_field"], level["magnetic_field"])
-    assert np.array_equal(io.read_level(out, 1)["spatial_stress"], ref.S_ij)
+    assert np.array_equal(read_level(out, 1)["spatial_stress"], ref.S_ij)
 
 
 def test_existing_output_is_kept_without_force(snapshot, tmp_path, capsys):
@@ -46,14 +46,14 @@ def test_existing_output_is_kept_without_force(snapshot, tmp_path, capsys):
     assert main(["sources", str(snapshot), "-o", str(out), "--quiet"]) == EXIT_OUTPUT_ERROR
     assert "exists" in capsys.readouterr().err and out.read_bytes() == b"keep me"
     assert main(["sources", str(snapshot), "-o", str(out), "--quiet", "--force"]) == EXIT_OK
-    assert io.read_level(out)["energy_density"].shape == (9, 8, 7)
+    assert read_level(out)["energy_density"].shape == (9, 8, 7)
 
 
 def test_bad_inputs_exit_non_zero_and_leave_no_output(tmp_path, rng, capsys):
     level = curved_levels(rng, times=(0.0,))[0]
     del level["electric_field"]
     missing = tmp_path / "missing.h5"
-    io.write_snapshot(missing, [level])
+    write_snapshot(missing, [level])
     text = tmp_path / "text.h5"
     text.write_text("plain text")
     for path, message in ((missing, "no 'electric_field'"), (text, "not an HDF5 file"),

@@ -8,10 +8,10 @@ import numpy as np
 import pytest
 
 import emsource
-from emsource import io
+from emsource import snapshot
 from emsource.exact import rotating_dipole
 from emsource.grid import UniformGrid
-from emsource.streaming import compute_sources
+from emsource.snapshot.sources_pipeline import compute_sources
 
 from snapshot_data import curved_levels
 
@@ -24,9 +24,9 @@ def test_round_trip_is_bit_for_bit(tmp_path, rng, axis_order, compression):
     # bit (the kernel computes each point from that point's values alone).
     levels = curved_levels(rng)
     path = tmp_path / "snap.h5"
-    io.write_snapshot(path, levels, axis_order=axis_order, compression=compression)
+    snapshot.write_snapshot(path, levels, axis_order=axis_order, compression=compression)
     for index, level in enumerate(levels):
-        back = io.read_level(path, index)
+        back = snapshot.read_level(path, index)
         assert back["time"] == level["time"] and back["grid"] == level["grid"]
         for q in ("lapse", "shift", "spatial_metric", "electric_field", "magnetic_field"):
             assert back[q].dtype == level[q].dtype
@@ -36,7 +36,7 @@ def test_round_trip_is_bit_for_bit(tmp_path, rng, axis_order, compression):
     for index, level in enumerate(levels):
         ref = emsource.adm_sources(level["spatial_metric"], level["electric_field"],
                                    level["magnetic_field"])
-        got = io.read_level(out, index)
+        got = snapshot.read_level(out, index)
         for q, r in zip(("energy_density", "momentum_density", "spatial_stress", "stress_trace"), ref):
             assert np.array_equal(got[q], r), q
 
@@ -45,15 +45,15 @@ def test_slice_fields_round_trip_keeps_mask_and_float32(tmp_path):
     grid = UniformGrid.from_bounds((-1, -1, -1), (1, 1, 1), (6, 7, 8))
     data = rotating_dipole(grid, 0.25, excision_radius=0.4)
     path = tmp_path / "dipole.h5"
-    io.write_snapshot(path, [data])
-    back = io.read_level(path)
+    snapshot.write_snapshot(path, [data])
+    back = snapshot.read_level(path)
     assert np.array_equal(back["valid_mask"].astype(bool), data.mask)
     assert np.array_equal(back["magnetic_field"], data.B)
     assert np.array_equal(back["extrinsic_curvature"], data.K)
     level32 = {"electric_field": data.E.astype(np.float32), "magnetic_field": data.B.astype(np.float32),
                "time": 1.0, "grid": grid}
-    io.write_snapshot(tmp_path / "f32.h5", [level32])
-    back32 = io.read_level(tmp_path / "f32.h5")
+    snapshot.write_snapshot(tmp_path / "f32.h5", [level32])
+    back32 = snapshot.read_level(tmp_path / "f32.h5")
     assert back32["electric_field"].dtype == np.float32
     assert np.array_equal(back32["electric_field"], level32["electric_field"])
 
@@ -61,9 +61,9 @@ def test_slice_fields_round_trip_keeps_mask_and_float32(tmp_path):
 def test_layout_attributes_and_provenance(tmp_path, rng):
     levels = curved_levels(rng, times=(0.0, 0.5, 1.0))
     path = tmp_path / "snap.h5"
-    io.write_snapshot(path, levels, axis_order="zyx")
+    snapshot.write_snapshot(path, levels, axis_order="zyx")
     with h5py.File(path, "r") as f:
-        assert f.attrs["format"] == io.FORMAT_NAME and f.attrs["format_version"] == io.FORMAT_VERSION
+        assert f.attrs["format"] == snapshot.FORMAT_NAME and f.attrs["format_version"] == snapshot.FORMAT_VERSION
         g = f["time_levels/2"]
         assert g.attrs["axis_order"] == "zyx" and g.attrs["units"] == "gaussian"
         assert g.attrs["time"] == 1.0
@@ -84,13 +84,14 @@ def test_layout_attributes_and_provenance(tmp_path, rng):
 
 def test_inputs_are_opened_read_only_and_left_unchanged(tmp_path, rng, monkeypatch):
     path = tmp_path / "snap.h5"
-    io.write_snapshot(path, curved_levels(rng))
+    snapshot.write_snapshot(path, curved_levels(rng))
     before = (path.read_bytes(), os.stat(path).st_mtime_ns)
     modes = {}
     real_file = h5py.File
 
     def spy(name, mode="r", *args, **kwargs):
-        modes[os.path.basename(os.fspath(name))] = mode
+        # outputs are opened through a file object (snapshot.writing.GuardedFile)
+        modes[os.path.basename(os.fspath(getattr(name, "name", name)))] = mode
         return real_file(name, mode, *args, **kwargs)
 
     monkeypatch.setattr(h5py, "File", spy)
@@ -103,8 +104,8 @@ def test_missing_dataset_lists_what_the_level_holds(tmp_path, rng):
     level = curved_levels(rng, times=(0.0,))[0]
     del level["magnetic_field"]
     path = tmp_path / "snap.h5"
-    io.write_snapshot(path, [level])
-    with pytest.raises(io.SnapshotError, match="no 'magnetic_field'.*holds lapse, shift, "
+    snapshot.write_snapshot(path, [level])
+    with pytest.raises(snapshot.SnapshotError, match="no 'magnetic_field'.*holds lapse, shift, "
                                               "spatial_metric, electric_field"):
         compute_sources(path, tmp_path / "out.h5")
     assert os.listdir(tmp_path) == ["snap.h5"]
@@ -112,55 +113,55 @@ def test_missing_dataset_lists_what_the_level_holds(tmp_path, rng):
 
 def test_wrong_shapes_between_datasets(tmp_path, rng):
     path = tmp_path / "snap.h5"
-    io.write_snapshot(path, curved_levels(rng, times=(0.0,)))
+    snapshot.write_snapshot(path, curved_levels(rng, times=(0.0,)))
     with h5py.File(path, "a") as f:
         g = f["time_levels/0"]
         del g["magnetic_field"]
         g["magnetic_field"] = np.zeros((3, 9, 8, 6))
-    with pytest.raises(io.SnapshotError, match=r"'magnetic_field'.*shape \(3, 9, 8, 6\), "
+    with pytest.raises(snapshot.SnapshotError, match=r"'magnetic_field'.*shape \(3, 9, 8, 6\), "
                                               r"expected \(3, 9, 8, 7\)"):
-        io.open_snapshot(path)
+        snapshot.open_snapshot(path)
 
 
 def test_not_hdf5_truncated_and_missing_files(tmp_path, rng):
     text = tmp_path / "notes.h5"
     text.write_text("not an HDF5 file\n")
-    with pytest.raises(io.SnapshotError, match="not an HDF5 file"):
-        io.open_snapshot(text)
+    with pytest.raises(snapshot.SnapshotError, match="not an HDF5 file"):
+        snapshot.open_snapshot(text)
     good = tmp_path / "good.h5"
-    io.write_snapshot(good, curved_levels(rng))
+    snapshot.write_snapshot(good, curved_levels(rng))
     truncated = tmp_path / "truncated.h5"
     truncated.write_bytes(good.read_bytes()[: os.path.getsize(good) // 2])
-    with pytest.raises(io.SnapshotError, match="truncated or damaged"):
-        io.open_snapshot(truncated)
-    with pytest.raises(io.SnapshotError, match="does not exist"):
-        io.open_snapshot(tmp_path / "absent.h5")
+    with pytest.raises(snapshot.SnapshotError, match="truncated or damaged"):
+        snapshot.open_snapshot(truncated)
+    with pytest.raises(snapshot.SnapshotError, match="does not exist"):
+        snapshot.open_snapshot(tmp_path / "absent.h5")
 
 
 def test_foreign_file_without_mapping_lists_its_contents(tmp_path):
     path = tmp_path / "other.h5"
     with h5py.File(path, "w") as f:
         f["run/Ex"] = np.zeros((2, 2, 2))
-    with pytest.raises(io.SnapshotError, match=r"not in the emsource layout.*/run/Ex \(dataset"):
-        io.open_snapshot(path)
+    with pytest.raises(snapshot.SnapshotError, match=r"not in the emsource layout.*/run/Ex \(dataset"):
+        snapshot.open_snapshot(path)
 
 
 def test_atomic_output_refuses_to_overwrite_and_cleans_up(tmp_path):
     target = tmp_path / "out.bin"
     target.write_text("old")
-    with pytest.raises(io.OutputError, match="exists"):
-        with io.atomic_output(target):
+    with pytest.raises(snapshot.OutputError, match="exists"):
+        with snapshot.atomic_output(target):
             pass
     with pytest.raises(RuntimeError):
-        with io.atomic_output(target, force=True) as temporary:
+        with snapshot.atomic_output(target, force=True) as temporary:
             open(temporary, "w").write("half")
             raise RuntimeError("stop")
     assert target.read_text() == "old" and os.listdir(tmp_path) == ["out.bin"]
-    with io.atomic_output(target, force=True) as temporary:
+    with snapshot.atomic_output(target, force=True) as temporary:
         open(temporary, "w").write("new")
     assert target.read_text() == "new" and os.listdir(tmp_path) == ["out.bin"]
-    with pytest.raises(io.OutputError, match="does not exist"):
-        with io.atomic_output(tmp_path / "no_dir" / "x.h5"):
+    with pytest.raises(snapshot.OutputError, match="does not exist"):
+        with snapshot.atomic_output(tmp_path / "no_dir" / "x.h5"):
             pass
 
 
@@ -170,10 +171,10 @@ def test_unwritable_output_directory(tmp_path, monkeypatch):
     if os.geteuid() == 0:  # root writes anywhere: make the temporary file creation fail instead
         def refuse(*args, **kwargs):
             raise PermissionError(13, "Permission denied")
-        monkeypatch.setattr(io.tempfile, "mkstemp", refuse)
+        monkeypatch.setattr(snapshot.writing.tempfile, "mkstemp", refuse)
     else:
         os.chmod(directory, 0o555)
-    with pytest.raises(io.OutputError, match="cannot write in output directory"):
-        with io.atomic_output(directory / "out.h5"):
+    with pytest.raises(snapshot.OutputError, match="cannot write in output directory"):
+        with snapshot.atomic_output(directory / "out.h5"):
             pass
     assert os.listdir(directory) == []

@@ -6,12 +6,12 @@ import h5py
 import numpy as np
 import pytest
 
-from emsource import io
+from emsource import snapshot
 from emsource.cli import main
 from emsource.commands import EXIT_BAD_INPUT
-from emsource.layout_mapping import MappingError, load_mapping
+from emsource.snapshot import MappingError, load_mapping
 from emsource.sample_grids import FOREIGN_MAPPING_TEXT, dipole_levels, write_foreign_dipole
-from emsource.streaming import compute_sources
+from emsource.snapshot.sources_pipeline import compute_sources
 
 from snapshot_data import curved_levels
 
@@ -25,7 +25,7 @@ def dipole_files(tmp_path_factory):
     directory = tmp_path_factory.mktemp("dipole")
     level = dipole_levels()[0]
     native = directory / "native.h5"
-    io.write_snapshot(native, [{"spatial_metric": level.gamma.astype(np.float32),
+    snapshot.write_snapshot(native, [{"spatial_metric": level.gamma.astype(np.float32),
                                 "electric_field": level.E.astype(np.float32),
                                 "magnetic_field": level.B.astype(np.float32),
                                 "valid_mask": level.mask.astype(np.uint8),
@@ -47,21 +47,21 @@ def test_foreign_sample_gives_the_native_numbers(dipole_files, tmp_path):
     # |difference| <= 18 u rho pointwise; S_i and S_ij are bounded by rho-sized terms in the
     # same way (|S_i| <= rho, |S_ij| <= 2 rho).
     native, foreign, mapping = dipole_files
-    with io.open_snapshot(foreign, mapping) as snap:
+    with snapshot.open_snapshot(foreign, mapping) as snap:
         level = snap.levels[0]
         assert (level.axis_order, level.units, level.label) == ("zyx", "heaviside_lorentz", "0")
-        with io.open_snapshot(native) as ref:
+        with snapshot.open_snapshot(native) as ref:
             assert level.grid == ref.levels[0].grid and level.time == ref.levels[0].time
     compute_sources(native, tmp_path / "n.h5")
     compute_sources(foreign, tmp_path / "f.h5", mapping=mapping)
-    a, b = io.read_level(tmp_path / "n.h5"), io.read_level(tmp_path / "f.h5")
+    a, b = snapshot.read_level(tmp_path / "n.h5"), snapshot.read_level(tmp_path / "f.h5")
     rho = a["energy_density"].astype(np.float64)
     assert rho.max() > 1  # a real field, not zeros
     for q in OUTPUTS:
         difference = np.abs(a[q].astype(np.float64) - b[q].astype(np.float64))
         assert np.all(difference <= 2 * 18 * U32 * rho + 1e-30), q
-    mask = io.read_level(foreign, mapping=mapping)["valid_mask"]
-    assert np.array_equal(mask, io.read_level(native)["valid_mask"])
+    mask = snapshot.read_level(foreign, mapping=mapping)["valid_mask"]
+    assert np.array_equal(mask, snapshot.read_level(native)["valid_mask"])
 
 
 def test_stacked_component_last_layout_is_bit_for_bit(tmp_path, rng):
@@ -80,6 +80,7 @@ def test_stacked_component_last_layout_is_bit_for_bit(tmp_path, rng):
     mapping.write_text(f"""
 mapping_version = 1
 axis_order = "xyz"
+units = "gaussian"
 [time_levels]
 pattern = "out/it{{index}}"
 time = {{ per_index = 0.5 }}
@@ -95,11 +96,11 @@ component_axis = "last"
 [quantities.magnetic_field]
 dataset = "bfield"
 """)
-    with io.open_snapshot(path, mapping) as snap:
+    with snapshot.open_snapshot(path, mapping) as snap:
         assert [lv.time for lv in snap.levels] == [1.5, 3.5]
         assert [lv.label for lv in snap.levels] == ["3", "7"]
         assert snap.levels[1].grid == grid
-    back = io.read_level(path, 1, mapping=mapping)
+    back = snapshot.read_level(path, 1, mapping=mapping)
     for q in ("spatial_metric", "electric_field", "magnetic_field"):
         assert np.array_equal(back[q], level[q]), q
 
@@ -134,14 +135,14 @@ def test_misnamed_dataset_lists_the_file_contents(tmp_path, dipole_files):
     path.write_text(text)
     with pytest.raises(MappingError, match=r"dataset 'fields/BY' not found.*"
                                            r"/run/step_0000/fields/By \(dataset \(33, 33, 33\)"):
-        io.open_snapshot(dipole_files[1], path)
+        snapshot.open_snapshot(dipole_files[1], path)
 
 
 def test_pattern_that_matches_nothing_and_bad_toml(tmp_path, dipole_files):
     path = tmp_path / "m.toml"
     path.write_text(FOREIGN_MAPPING_TEXT.replace("step_{index}", "iteration_{index}"))
     with pytest.raises(MappingError, match="no group matches the time-level pattern.*Objects in the file"):
-        io.open_snapshot(dipole_files[1], path)
+        snapshot.open_snapshot(dipole_files[1], path)
     path.write_text("mapping_version = = 1\n")
     with pytest.raises(MappingError, match="not valid TOML"):
         load_mapping(path)

@@ -7,7 +7,7 @@ import h5py
 import numpy as np
 import pytest
 
-from emsource import integrals, io
+from emsource import integrals, snapshot
 from emsource.sample_grids import DIPOLE, write_sample_grids
 
 SAMPLES = os.path.join(os.path.dirname(__file__), os.pardir, "sample_grids")
@@ -72,6 +72,6 @@ def test_sample_dipole_radiates_the_expected_luminosity():
         # |m| <= 1), which such a box averages out: the energy in the box is constant in time
         # (to float32 storage, ~1e-7; 1e-6 with room).
         assert r.energy == pytest.approx(results[0].energy, rel=1e-6)
-    with io.open_snapshot(os.path.join(SAMPLES, "rotating_dipole_foreign.h5"),
+    with snapshot.open_snapshot(os.path.join(SAMPLES, "rotating_dipole_foreign.h5"),
                           os.path.join(SAMPLES, "rotating_dipole_foreign.toml")) as snap:
         assert snap.levels[0].units == "heaviside_lorentz"

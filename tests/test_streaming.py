@@ -8,8 +8,9 @@ import numpy as np
 import pytest
 
 import emsource
-from emsource import io, streaming
-from emsource.streaming import compute_sources
+from emsource import snapshot
+from emsource.snapshot import sources_pipeline
+from emsource.snapshot.sources_pipeline import compute_sources
 
 from snapshot_data import curved_levels
 
@@ -21,14 +22,14 @@ def test_results_do_not_depend_on_the_slab_size(tmp_path, rng, axis_order):
     # Each output point depends on the inputs at that point only, so any slab size must give
     # the same bits; rows=1 and rows=4 (uneven last slab) against one slab of everything.
     path = tmp_path / "snap.h5"
-    io.write_snapshot(path, curved_levels(rng, shape=(9, 8, 7)), axis_order=axis_order)
+    snapshot.write_snapshot(path, curved_levels(rng, shape=(9, 8, 7)), axis_order=axis_order)
     results = {}
     for rows in (1, 4, None):
         out = tmp_path / f"out_{rows}.h5"
         report = compute_sources(path, out, rows=rows)
         if rows:
             assert report.rows_per_slab == rows
-        results[rows] = [io.read_level(out, i) for i in range(2)]
+        results[rows] = [snapshot.read_level(out, i) for i in range(2)]
     for rows in (1, 4):
         for a, b in zip(results[rows], results[None]):
             for q in OUTPUTS:
@@ -38,10 +39,10 @@ def test_results_do_not_depend_on_the_slab_size(tmp_path, rng, axis_order):
 def _write_big_snapshot(path, shape, rng):
     """A float64 snapshot written plane by plane (the test process never holds it whole)."""
     with h5py.File(path, "w") as f:
-        io.write_root_attributes(f)
+        snapshot.write_root_attributes(f)
         g = f.create_group("time_levels/0")
         grid = emsource.grid.UniformGrid(shape, (0.0, 0.0, 0.0), (0.1, 0.1, 0.1))
-        io.write_level_attributes(g, time=0.0, grid=grid, units="gaussian", axis_order="xyz")
+        snapshot.write_level_attributes(g, time=0.0, grid=grid, units="gaussian", axis_order="xyz")
         gamma = g.create_dataset("spatial_metric", (6,) + shape, "f8")
         E = g.create_dataset("electric_field", (3,) + shape, "f8")
         B = g.create_dataset("magnetic_field", (3,) + shape, "f8")
@@ -78,15 +79,15 @@ def test_peak_memory_stays_under_the_bound(tmp_path, rng):
     # The buffers dominate: the peak is the planned slab buffers plus small change.
     assert peak < report.planned_bytes + 2**20
     # and the result is still right
-    out = io.read_level(tmp_path / "out.h5")
-    whole = io.read_level(path)
+    out = snapshot.read_level(tmp_path / "out.h5")
+    whole = snapshot.read_level(path)
     ref = emsource.adm_sources(whole["spatial_metric"], whole["electric_field"], whole["magnetic_field"])
     assert np.array_equal(out["energy_density"], ref.rho)
 
 
 def test_memory_limit_too_small_is_a_clear_error(tmp_path, rng):
     path = tmp_path / "snap.h5"
-    io.write_snapshot(path, curved_levels(rng))
+    snapshot.write_snapshot(path, curved_levels(rng))
     with pytest.raises(ValueError, match="memory limit .* too small.*needs"):
         compute_sources(path, tmp_path / "out.h5", memory_limit=2**20)
     assert sorted(os.listdir(tmp_path)) == ["snap.h5"]
@@ -96,11 +97,11 @@ def test_interrupted_run_leaves_no_output(tmp_path, rng, monkeypatch):
     # Ctrl-C in the middle of the second slab: neither the output nor a temporary file remains,
     # and an older output with the same name is kept as it was.
     path = tmp_path / "snap.h5"
-    io.write_snapshot(path, curved_levels(rng))
+    snapshot.write_snapshot(path, curved_levels(rng))
     old = tmp_path / "out.h5"
     old.write_bytes(b"previous result")
     calls = {"n": 0}
-    real = streaming.adm_sources
+    real = sources_pipeline.adm_sources
 
     def interrupt_on_second(*args, **kwargs):
         calls["n"] += 1
@@ -108,7 +109,7 @@ def test_interrupted_run_leaves_no_output(tmp_path, rng, monkeypatch):
             raise KeyboardInterrupt
         return real(*args, **kwargs)
 
-    monkeypatch.setattr(streaming, "adm_sources", interrupt_on_second)
+    monkeypatch.setattr(sources_pipeline, "adm_sources", interrupt_on_second)
     with pytest.raises(KeyboardInterrupt):
         compute_sources(path, old, rows=2, force=True)
     assert calls["n"] == 2
@@ -120,32 +121,32 @@ def test_bad_values_name_the_slab_and_leave_no_output(tmp_path, rng):
     levels = curved_levels(rng, times=(0.0,))
     levels[0]["electric_field"][1, 6, 2, 3] = np.nan
     path = tmp_path / "snap.h5"
-    io.write_snapshot(path, levels)
-    with pytest.raises(io.SnapshotError, match=r"slab x rows 4:8.*grid index \(2, 2, 3\)"):
+    snapshot.write_snapshot(path, levels)
+    with pytest.raises(snapshot.SnapshotError, match=r"slab x rows 4:8.*grid index \(2, 2, 3\)"):
         compute_sources(path, tmp_path / "out.h5", rows=4)
     assert os.listdir(tmp_path) == ["snap.h5"]
 
 
 def test_existing_output_needs_force(tmp_path, rng):
     path = tmp_path / "snap.h5"
-    io.write_snapshot(path, curved_levels(rng))
+    snapshot.write_snapshot(path, curved_levels(rng))
     out = tmp_path / "out.h5"
     compute_sources(path, out)
     first = out.read_bytes()
-    with pytest.raises(io.OutputError, match="exists"):
+    with pytest.raises(snapshot.OutputError, match="exists"):
         compute_sources(path, out)
     assert out.read_bytes() == first
     compute_sources(path, out, force=True, compression="gzip")
-    assert io.read_level(out)["energy_density"].shape == (9, 8, 7)
+    assert snapshot.read_level(out)["energy_density"].shape == (9, 8, 7)
 
 
 def test_chosen_outputs_only(tmp_path, rng):
     path = tmp_path / "snap.h5"
     levels = curved_levels(rng)
-    io.write_snapshot(path, levels)
+    snapshot.write_snapshot(path, levels)
     out = tmp_path / "out.h5"
     compute_sources(path, out, outputs=("momentum_density", "energy_density"), rows=3)
-    back = io.read_level(out, 1)
+    back = snapshot.read_level(out, 1)
     assert {"energy_density", "momentum_density"} <= set(back) and "spatial_stress" not in back
     ref = emsource.adm_sources(levels[1]["spatial_metric"], levels[1]["electric_field"],
                                levels[1]["magnetic_field"])

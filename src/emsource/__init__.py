@@ -6,7 +6,25 @@ The main entry points are :func:`adm_sources` (rho, S_i, S_ij, S for the 3+1 equ
 
 __version__ = "0.1.0"
 
-from . import unit_systems  # noqa: E402, F401  (emsource.unit_systems as an attribute)
-from .sources import AdmSources, GridPointError, adm_sources, stress_energy_4d  # noqa: E402
-
 __all__ = ["AdmSources", "GridPointError", "adm_sources", "stress_energy_4d", "__version__"]
+
+# The names above are loaded on first use (PEP 562), so that ``import emsource.cli`` stays
+# light: the command line installs its signal handlers before NumPy and Numba are imported,
+# and a Ctrl-C during start-up exits cleanly with 130.
+_SOURCES_NAMES = ("AdmSources", "GridPointError", "adm_sources", "stress_energy_4d")
+
+
+def __getattr__(name):
+    if name in _SOURCES_NAMES:
+        from . import sources
+
+        return getattr(sources, name)
+    if name == "unit_systems":
+        import importlib
+
+        return importlib.import_module(".unit_systems", __name__)
+    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
+
+
+def __dir__():
+    return sorted(list(globals()) + list(_SOURCES_NAMES) + ["unit_systems"])

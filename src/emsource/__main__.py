@@ -1,8 +1,8 @@
-"""``python -m emsource``: the same command line as the ``emsource`` script."""
+"""``python -m emsource``: the same command line as ``emsource``."""
 
 import sys
 
 from .cli import main
 
-if __name__ == "__main__":  # importing this module (documentation tools, tests) runs nothing
+if __name__ == "__main__":
     sys.exit(main())

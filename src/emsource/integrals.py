@@ -1,6 +1,6 @@
 r"""Integrated electromagnetic quantities of snapshot files: energy, momentum, fluxes, luminosity.
 
-Per time level, streamed in slabs like :mod:`emsource.streaming` (bounded memory):
+Per time level, streamed in slabs like :mod:`emsource.snapshot.sources_pipeline` (bounded memory):
 
 - total energy and momentum, with the trapezoidal rule on the vertex-centred grid
   (second order in the spacing),
@@ -43,11 +43,11 @@ import numpy as np
 
 from . import _arguments as args
 from . import adm_sources
-from .io import CHUNK_CACHE_BYTES, SnapshotError, open_snapshot
 from .reductions import LevelPartial, Sum, combine
+from .snapshot import CHUNK_CACHE_BYTES, SnapshotError, open_snapshot
+from .snapshot.slabs import (CONVERSION_BUFFER_BYTES, DEFAULT_MEMORY_LIMIT, SlabBuffers,
+                             choose_levels, progress_bar, slab_rows, slabs)
 from .sources import GridPointError
-from .streaming import (CONVERSION_BUFFER_BYTES, DEFAULT_MEMORY_LIMIT, SlabBuffers, _choose_levels,
-                        progress_bar, slab_rows, slabs)
 
 __all__ = ["LevelIntegrals", "integrate_snapshot", "integrate_level_arrays", "level_partial",
            "sphere_quadrature", "lagrange_weights", "FACES"]
@@ -402,7 +402,7 @@ def integrate_snapshot(input_file, *, mapping=None, radii=(), n_theta=32, interp
     Parameters
     ----------
     input_file, mapping, memory_limit, rows, levels, progress
-        As for :func:`emsource.streaming.compute_sources`.
+        As for :func:`emsource.snapshot.sources_pipeline.compute_sources`.
     radii : sequence of float
         Radii of the coordinate spheres (centred on the origin) for the luminosity.
     n_theta : int
@@ -419,7 +419,7 @@ def integrate_snapshot(input_file, *, mapping=None, radii=(), n_theta=32, interp
     halo = interpolation_points - 1 if radii else 0
     results = []
     with open_snapshot(input_file, mapping) as snap:
-        chosen = _choose_levels(snap.levels, levels)
+        chosen = choose_levels(snap.levels, levels)
         plans = []
         for level in chosen:
             for q in ("spatial_metric", "electric_field", "magnetic_field"):

@@ -26,11 +26,11 @@ from __future__ import annotations
 import math
 import os
 
-import h5py
 import numpy as np
 
 from .grid import UniformGrid
-from .io import atomic_output, chunk_shape, write_snapshot
+from .quantities import heaviside_lorentz_factor
+from .snapshot import OutputError, atomic_output, check_output, chunk_shape, hdf5_output, write_snapshot
 
 __all__ = ["DIPOLE", "BOOSTED_CHARGE", "write_sample_grids", "FOREIGN_MAPPING_TEXT"]
 
@@ -100,9 +100,10 @@ def boosted_charge_levels():
 
 def write_foreign_dipole(path, level, *, force=False):
     """The invented foreign layout of one dipole level (see the module docstring)."""
-    to_hl = 1.0 / math.sqrt(4.0 * math.pi)  # E_HL = E_G / sqrt(4 pi) (Jackson, appendix, table 2)
+    # E_HL = E_G / sqrt(4 pi) (Jackson, appendix, table 2), for E and B alike
+    to_hl = heaviside_lorentz_factor("electric_field")
     with atomic_output(path, force=force) as temporary:
-        with h5py.File(temporary, "w") as f:
+        with hdf5_output(temporary, path) as f:
             f.attrs["code"] = "an invented evolution code (sample data of emsource)"
             g = f.create_group("run/step_0000")
             g.attrs["sim_time"] = level.t
@@ -120,14 +121,19 @@ def write_foreign_dipole(path, level, *, force=False):
 
 def write_sample_grids(directory, *, force=False, with_boosted_charge=True) -> list:
     """Write every sample file into ``directory``; returns the paths written."""
-    from .io import OutputError
-
     names = ["rotating_dipole.h5", "rotating_dipole_foreign.h5", "rotating_dipole_foreign.toml"]
     names += ["boosted_charge.h5"] if with_boosted_charge else []
     existing = [n for n in names if os.path.exists(os.path.join(directory, n))]
     if existing and not force:
         raise OutputError(f"{', '.join(existing)} exist(s) in {directory!r}; use --force")
-    os.makedirs(directory, exist_ok=True)
+    if os.path.exists(directory) and not os.path.isdir(directory):
+        raise OutputError(f"output directory {directory!r} is not a directory")
+    try:
+        os.makedirs(directory, exist_ok=True)
+    except OSError as error:
+        raise OutputError(f"cannot create output directory {directory!r}: {error}") from error
+    for name in names:
+        check_output(os.path.join(directory, name), force=force)
     written = []
     dipole = dipole_levels()
     keep = ("lapse", "shift", "spatial_metric", "electric_field", "magnetic_field")

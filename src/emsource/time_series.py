@@ -9,7 +9,8 @@ max_magnetic_field_G, max_magnetic_field_T`` follow.
 
 The HDF5 file holds one 1D dataset per column under the root, with attributes ``columns`` (the
 order), ``mass_scale_solar`` (0 if none) and the provenance attributes of
-:func:`emsource.io.provenance_attributes`. Files are written atomically.
+:func:`emsource.snapshot.provenance_attributes`. Files are written atomically
+(:func:`emsource.snapshot.atomic_output`); ``inputs`` names files an output must not replace.
 """
 
 from __future__ import annotations
@@ -20,7 +21,7 @@ import h5py
 import numpy as np
 
 from .integrals import FACES
-from .io import atomic_output
+from .snapshot import atomic_output, hdf5_output
 
 __all__ = ["time_series_table", "write_csv", "write_hdf5", "write_plot"]
 
@@ -55,10 +56,10 @@ def time_series_table(results, scale=None) -> dict:
     return table
 
 
-def write_csv(path, table, *, force=False):
+def write_csv(path, table, *, force=False, inputs=()):
     """One header line, then one row per time level (``repr`` precision floats)."""
     columns = list(table)
-    with atomic_output(path, force=force) as temporary:
+    with atomic_output(path, force=force, inputs=inputs) as temporary:
         with open(temporary, "w", newline="") as handle:
             writer = csv.writer(handle)
             writer.writerow(columns)
@@ -66,10 +67,10 @@ def write_csv(path, table, *, force=False):
                 writer.writerow([v if isinstance(v, str) else repr(float(v)) for v in row])
 
 
-def write_hdf5(path, table, attributes, *, force=False):
+def write_hdf5(path, table, attributes, *, force=False, inputs=()):
     columns = list(table)
-    with atomic_output(path, force=force) as temporary:
-        with h5py.File(temporary, "w") as f:
+    with atomic_output(path, force=force, inputs=inputs) as temporary:
+        with hdf5_output(temporary, path) as f:
             for key, value in attributes.items():
                 f.attrs[key] = value
             f.attrs["columns"] = columns
@@ -81,7 +82,7 @@ def write_hdf5(path, table, attributes, *, force=False):
                     f.create_dataset(c, data=np.asarray(values, dtype=np.float64))
 
 
-def write_plot(path, table, *, force=False):
+def write_plot(path, table, *, force=False, inputs=()):
     """Energy and luminosities against time (needs matplotlib, the ``plot`` extra)."""
     import matplotlib
 
@@ -99,6 +100,6 @@ def write_plot(path, table, *, force=False):
     bottom.set_xlabel("time (code units)")
     bottom.legend()
     figure.tight_layout()
-    with atomic_output(path, force=force) as temporary:
+    with atomic_output(path, force=force, inputs=inputs) as temporary:
         figure.savefig(temporary, format="png", dpi=100)
     plt.close(figure)

@@ -1,6 +1,6 @@
 """One time level of a snapshot, read for the constraint commands (not API).
 
-Thin layer over :mod:`emsource.io`: a native snapshot, or any file through a layout mapping,
+Thin layer over :mod:`emsource.snapshot`: a native snapshot, or any file through a layout mapping,
 read into memory in (x, y, z) order, with the names the constraint functions use.
 """
 
@@ -20,8 +20,12 @@ class SliceFileError(ValueError):
 
 
 def read_slice(path, level=0, mapping=None):
-    """gamma, K, E, B, mask, spacing, origin and units of time level ``level`` of ``path``."""
-    from ..io import read_level
+    """gamma, K, E, B, mask, spacing, origin and units of time level ``level`` of ``path``.
+
+    Raises ``emsource.snapshot.SnapshotError`` (a ValueError) for a bad file or mapping and a
+    level index out of range, and :class:`SliceFileError` if a needed quantity is missing.
+    """
+    from ..snapshot import read_level
 
     data = read_level(path, level, mapping)
     missing = [q for q in NEEDED if q not in data]

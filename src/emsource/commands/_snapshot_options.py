@@ -4,7 +4,6 @@ from __future__ import annotations
 
 import argparse
 import math
-import os
 import sys
 
 from . import EXIT_BAD_INPUT, EXIT_OUTPUT_ERROR
@@ -51,7 +50,7 @@ def fail(code: int, message: str) -> int:
 
 def run_guarded(function, args) -> int:
     """Run ``function(args)`` and turn the package's errors into messages and exit codes."""
-    from ..io import OutputError, SnapshotError
+    from ..snapshot import OutputError, SnapshotError
 
     try:
         return function(args)
@@ -63,18 +62,12 @@ def run_guarded(function, args) -> int:
         return fail(EXIT_BAD_INPUT, str(error))
 
 
-def check_new_output(path, force) -> None:
-    """Fail before any work if an output exists (without --force) or cannot be created."""
-    from ..io import OutputError
+def check_new_output(path, force, inputs=()) -> None:
+    """Fail before any work if an output is an input, exists (without --force) or cannot be
+    created (:func:`emsource.snapshot.check_output`)."""
+    from ..snapshot import check_output
 
-    path = os.path.abspath(path)
-    if os.path.exists(path) and not force:
-        raise OutputError(f"output {path!r} exists; use --force to replace it")
-    directory = os.path.dirname(path)
-    if not os.path.isdir(directory):
-        raise OutputError(f"output directory {directory!r} does not exist")
-    if not os.access(directory, os.W_OK):
-        raise OutputError(f"output directory {directory!r} is not writable")
+    check_output(path, force=force, inputs=inputs)
 
 
 def size_text(nbytes: float) -> str:

@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import sys
+
 import numpy as np
 
 from . import EXIT_BAD_INPUT, EXIT_OK, EXIT_OUTPUT_ERROR
@@ -14,6 +16,8 @@ def register(subparsers):
         description="Sample the exact Kerr-Newman data (lapse, shift, spatial metric, extrinsic "
                     "curvature, Eulerian E and B, valid_mask) on a uniform Cartesian grid and "
                     "write them as one time level of a native snapshot. Code units, G = c = 1.",
+        epilog="Exit codes: 0 written, 3 bad parameters, 4 the output exists (use --force), is "
+               "not writable or a write failed (nothing is left behind), 130 interrupted.",
     )
     p.add_argument("output", help="snapshot file to write (HDF5, native layout)")
     p.add_argument("--mass", type=float, default=1.0, help="mass M (default 1)")
@@ -37,7 +41,13 @@ def register(subparsers):
 def run(args) -> int:
     from ..exact import kerr_newman
     from ..grid import UniformGrid
+    from ..snapshot import OutputError, check_output, write_snapshot
 
+    try:
+        check_output(args.output, force=args.force)
+    except OutputError as exc:
+        print(f"emsource black-hole: error: {exc}", file=sys.stderr)
+        return EXIT_OUTPUT_ERROR
     points = args.points * 3 if len(args.points) == 1 else args.points
     try:
         if len(points) != 3 or min(points) < 2:
@@ -47,7 +57,7 @@ def run(args) -> int:
                            mask_radius=args.mask_radius, units=args.units,
                            dtype=np.float32 if args.float32 else np.float64)
     except ValueError as exc:
-        print(f"emsource black-hole: {exc}")
+        print(f"emsource black-hole: error: {exc}", file=sys.stderr)
         return EXIT_BAD_INPUT
     attributes = {
         "description": "Kerr-Newman black hole, Kerr-Schild Cartesian coordinates, t = 0 slice "
@@ -55,13 +65,11 @@ def run(args) -> int:
         "mass": args.mass, "spin": args.spin, "charge": args.charge,
         "mask_radius": -1.0 if args.mask_radius is None else args.mask_radius,
     }
-    from ..io import OutputError, write_snapshot
-
     try:
         write_snapshot(args.output, [data], force=args.force, compression="gzip",
                        attributes=attributes)
-    except (OSError, OutputError) as exc:
-        print(f"emsource black-hole: cannot write {args.output}: {exc}")
+    except OutputError as exc:
+        print(f"emsource black-hole: error: {exc}", file=sys.stderr)
         return EXIT_OUTPUT_ERROR
     print(f"wrote {args.output}: grid {grid.shape}, spacing {grid.spacing}, "
           f"{int(data.mask.sum())} valid points, units {args.units}")

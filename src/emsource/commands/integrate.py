@@ -55,7 +55,7 @@ def register(subparsers):
 
 def _run(args) -> int:
     from ..integrals import integrate_snapshot
-    from ..io import open_snapshot, provenance_attributes
+    from ..snapshot import open_snapshot, provenance_attributes
     from ..physical_units import physical_scale
     from ..time_series import time_series_table, write_csv, write_hdf5, write_plot
 

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from ..quantities import OUTPUTS
 from . import EXIT_OK
 from ._snapshot_options import add_input_options, run_guarded, show_progress, size_text
 
@@ -15,14 +16,14 @@ def register(subparsers):
         "(datasets energy_density, momentum_density, spatial_stress, stress_trace) written to a "
         "temporary file and renamed when complete.",
         epilog="Exit codes: 0 done, 3 bad input (message says what the file holds), "
-               "4 output exists (use --force) or cannot be written, 130 interrupted.")
+               "4 output exists (use --force), is an input, or cannot be written, "
+               "130 interrupted (Ctrl-C), 128 + N stopped by signal N (SIGTERM 143, SIGHUP 129).")
     add_input_options(parser)
     parser.add_argument("-o", "--output", required=True, help="output HDF5 file")
     parser.add_argument("--force", action="store_true", help="replace an existing output")
     parser.add_argument("--compress", action="store_true", help="gzip-compress the output datasets")
     parser.add_argument("--outputs", metavar="NAME", nargs="+",
-                        choices=("energy_density", "momentum_density", "spatial_stress", "stress_trace"),
-                        default=["energy_density", "momentum_density", "spatial_stress", "stress_trace"],
+                        choices=OUTPUTS, default=list(OUTPUTS),
                         help="datasets to write (default all four); writing dominates the time")
     parser.add_argument("--no-check", action="store_true",
                         help="skip the point checks (finite values, positive-definite metric)")
@@ -30,7 +31,7 @@ def register(subparsers):
 
 
 def _run(args) -> int:
-    from ..streaming import compute_sources
+    from ..snapshot.sources_pipeline import compute_sources
 
     report = compute_sources(
         args.snapshot, args.output, mapping=args.mapping, memory_limit=args.memory_limit,

@@ -9,15 +9,17 @@ values alone.
 
 Memory bound. With ``memory_limit`` M bytes, the slab holds as many planes as fit in
 ``M - fixed`` where a plane costs ``(12 inputs + 11 outputs) * itemsize * points_per_plane``
-(gamma 6, E 3, B 3; rho 1, S_i 3, S_ij 6, S 1) and ``fixed`` counts HDF5's chunk caches
-(:data:`emsource.io.CHUNK_CACHE_BYTES` per open input dataset; the output has none) and its
+(gamma 6, E 3, B 3; rho 1, S_i 3, S_ij 6, S 1) plus what reading a plane needs beyond the
+buffers (:func:`~.slabs.read_overhead_bytes`), and ``fixed`` counts HDF5's chunk caches
+(:data:`~.reading.CHUNK_CACHE_BYTES` per open input dataset; the output has none) and its
 1 MiB type-conversion buffer. The Python interpreter and the libraries (about 150-200 MiB of
 resident memory) come on top. Outputs are chunked (one component, whole planes, about 1 MiB a
 chunk, a divisor of the slab so that writes cover whole chunks), optionally gzip-compressed.
 
-Output safety: the output is written to a temporary file in the target directory and renamed
-only when every level is complete (:func:`emsource.io.atomic_output`); inputs are opened
-read-only; an existing output is replaced only with ``force``.
+Output safety (:mod:`.writing`): the output may not be an input; it is written to a temporary
+file in the target directory and renamed only when every level is complete; inputs are opened
+read-only; an existing output is replaced only with ``force``; a failed write is an
+:class:`~.errors.OutputError` naming the output, with nothing left behind.
 """
 
 from __future__ import annotations
@@ -26,103 +28,23 @@ import os
 import time as _time
 from dataclasses import dataclass, field
 
-import h5py
 import numpy as np
 
-from . import adm_sources
-from .io import (CHUNK_CACHE_BYTES, LEVELS_GROUP, QUANTITIES, SnapshotError, atomic_output,
-                 chunk_shape, open_snapshot, provenance_attributes, write_level_attributes,
-                 write_root_attributes)
-from .sources import GridPointError
+from .. import adm_sources, interruption
+from ..quantities import COMPONENTS, OUTPUTS, SOURCE_INPUTS
+from ..sources import GridPointError
+from .native import LEVELS_GROUP
+from .reading import CHUNK_CACHE_BYTES, open_snapshot
+from .slabs import (CONVERSION_BUFFER_BYTES, DEFAULT_MEMORY_LIMIT, SlabBuffers, chunk_overhead,
+                    common_field_dtype, progress_bar, read_overhead_bytes, read_scratch_per_row,
+                    slab_error, slab_rows, slabs, values_per_point)
+from .writing import (atomic_output, check_output, chunk_shape, hdf5_output,
+                      write_level_attributes, write_root_attributes)
 
-__all__ = ["DEFAULT_MEMORY_LIMIT", "SourcesReport", "compute_sources", "slab_rows", "SlabBuffers"]
+__all__ = ["DEFAULT_MEMORY_LIMIT", "SOURCE_INPUTS", "SOURCE_OUTPUTS", "SourcesReport",
+           "compute_sources", "plan_rows"]
 
-DEFAULT_MEMORY_LIMIT = 512 * 2**20  #: bytes
-
-SOURCE_INPUTS = ("spatial_metric", "electric_field", "magnetic_field")
-SOURCE_OUTPUTS = ("energy_density", "momentum_density", "spatial_stress", "stress_trace")
-#: HDF5's default type-conversion buffer (bytes), counted in the fixed part of the bound.
-CONVERSION_BUFFER_BYTES = 1 << 20
-
-
-def values_per_point(quantities) -> int:
-    """Number of stored values per grid point of ``quantities`` (a scalar counts 1)."""
-    return sum(max(QUANTITIES[q], 1) for q in quantities)
-
-
-def slab_rows(level, values: int, itemsize: int, memory_limit: int, *, fixed: int = 0,
-              halo: int = 0) -> int:
-    """Planes per slab so that ``values`` arrays of a slab (+ ``halo`` planes) fit the bound.
-
-    Raises
-    ------
-    ValueError
-        If not even one plane (plus halo) fits, naming the least limit that would work.
-    """
-    plane = int(np.prod(level.storage_shape[1:])) * values * itemsize
-    budget = int(memory_limit) - int(fixed)
-    rows = budget // plane - halo
-    if rows < 1:
-        need = (1 + halo) * plane + fixed
-        raise ValueError(f"memory limit {memory_limit / 2**20:.3g} MiB is too small for this grid: "
-                         f"one slab of {1 + halo} plane(s) of {level.storage_shape[1:]} points "
-                         f"needs {need / 2**20:.3g} MiB")
-    return int(min(rows, level.storage_shape[0]))
-
-
-class SlabBuffers:
-    """Reused read buffers: ``quantities`` over up to ``rows`` storage planes, one dtype."""
-
-    def __init__(self, level, quantities, rows, dtype):
-        self.level = level
-        self.dtype = np.dtype(dtype)
-        plane = int(np.prod(level.storage_shape[1:]))
-        self._flat = {q: np.empty(max(QUANTITIES[q], 1) * rows * plane, self.dtype)
-                      for q in quantities}
-        self.rows = rows
-
-    def storage(self, quantity, nrows):
-        ncomp = QUANTITIES[quantity]
-        shape = ((ncomp,) if ncomp else ()) + (nrows,) + self.level.storage_shape[1:]
-        return self._flat[quantity][: int(np.prod(shape))].reshape(shape)
-
-    def read(self, quantity, start, stop):
-        """(x, y, z)-order view of ``quantity`` over storage rows start:stop."""
-        return self.level.read(quantity, start, stop, dtype=self.dtype,
-                               out=self.storage(quantity, stop - start))
-
-
-def slabs(n, rows):
-    """(start, stop) pairs covering 0:n in steps of ``rows``."""
-    return [(s, min(s + rows, n)) for s in range(0, n, rows)]
-
-
-def common_field_dtype(level) -> np.dtype:
-    dtypes = {np.dtype(level.dtype(q)) for q in ("electric_field", "magnetic_field")}
-    return np.dtype(np.float64) if len(dtypes) > 1 else dtypes.pop()
-
-
-def progress_bar(total, description, enabled):
-    """A tqdm bar (on stderr) or a do-nothing stand-in."""
-    if enabled:
-        from tqdm import tqdm
-        return tqdm(total=total, desc=description, unit="slab", leave=False)
-
-    class _Silent:
-        def update(self, n=1):
-            pass
-
-        def close(self):
-            pass
-
-    return _Silent()
-
-
-def slab_error(error, level, start, stop):
-    """Re-raise a point error with the slab's place in the full grid."""
-    axis = "xyz"[level.slab_axis]
-    return SnapshotError(f"time level {level.label!r}, slab {axis} rows {start}:{stop}: {error} "
-                         f"(grid index along {axis} is relative to row {start})")
+SOURCE_OUTPUTS = OUTPUTS
 
 
 @dataclass
@@ -131,6 +53,7 @@ class SourcesReport:
 
     input_file: str
     output_file: str
+    description: str = ""
     levels: int = 0
     grid_shape: tuple = ()
     axis_order: str = "xyz"
@@ -146,6 +69,23 @@ class SourcesReport:
     times: list = field(default_factory=list)
 
 
+def plan_rows(level, dtype, memory_limit) -> int:
+    """Planes per slab of :func:`compute_sources` under ``memory_limit`` (bytes).
+
+    Counts the 23 slab buffers, the read scratch of each input and HDF5's caches and chunk
+    buffers; the slab is a whole number of the inputs' chunks where it holds more than one.
+    """
+    fixed = (CHUNK_CACHE_BYTES * 12 + CONVERSION_BUFFER_BYTES
+             + chunk_overhead(level, SOURCE_INPUTS))
+    rows = slab_rows(level, values_per_point(SOURCE_INPUTS + SOURCE_OUTPUTS),
+                     np.dtype(dtype).itemsize, memory_limit, fixed=fixed,
+                     extra_per_row=read_scratch_per_row(level, SOURCE_INPUTS))
+    chunk = min(level.source(q).chunk_rows for q in SOURCE_INPUTS)
+    if chunk < rows < level.storage_shape[0]:
+        rows = rows // chunk * chunk
+    return int(rows)
+
+
 def compute_sources(input_file, output_file, *, mapping=None, memory_limit=DEFAULT_MEMORY_LIMIT,
                     rows=None, force=False, compression=None, levels=None, check=True,
                     outputs=SOURCE_OUTPUTS, progress=False) -> SourcesReport:
@@ -158,6 +98,7 @@ def compute_sources(input_file, output_file, *, mapping=None, memory_limit=DEFAU
     output_file : str or path-like
         Native-layout output (datasets energy_density, momentum_density, spatial_stress,
         stress_trace per level, in the input's storage order, with provenance attributes).
+        Never the input or the mapping (nor a link to them).
     mapping : str, path-like or LayoutMapping, optional
         Layout mapping of a foreign input.
     memory_limit : int
@@ -168,13 +109,12 @@ def compute_sources(input_file, output_file, *, mapping=None, memory_limit=DEFAU
         Replace an existing output.
     compression : {None, "gzip"}
     levels : sequence of int, optional
-        Indices of the time levels to process (default: all).
+        Indices of the time levels to process (default: all), each at most once.
     check : bool
         Passed to :func:`emsource.adm_sources` (point checks of every input value).
     outputs : sequence of str
-        Which of energy_density, momentum_density, spatial_stress, stress_trace to write
-        (default all). Writing is most of the cost: energy and momentum density alone are
-        4 of the 11 values per point.
+        Which of :data:`emsource.quantities.OUTPUTS` to write (default all). Writing is most of
+        the cost: energy and momentum density alone are 4 of the 11 values per point.
     progress : bool
         Show a tqdm bar on stderr.
 
@@ -187,48 +127,46 @@ def compute_sources(input_file, output_file, *, mapping=None, memory_limit=DEFAU
     SnapshotError
         Bad input (before any output exists, or with the partial output removed).
     OutputError
-        The output exists without ``force`` or cannot be written.
+        The output is an input, exists without ``force``, or cannot be written.
     """
     began = _time.perf_counter()
     unknown = sorted(set(outputs) - set(SOURCE_OUTPUTS))
     if unknown or not outputs:
         raise ValueError(f"outputs must be some of {', '.join(SOURCE_OUTPUTS)}; found {list(outputs)}")
     outputs = tuple(q for q in SOURCE_OUTPUTS if q in set(outputs))
+    mapping_path = getattr(mapping, "path", mapping)
+    inputs = (input_file,) + ((mapping_path,) if mapping_path is not None else ())
+    check_output(output_file, force=force, inputs=inputs)
     report = SourcesReport(os.fspath(input_file), os.path.abspath(os.fspath(output_file)))
     with open_snapshot(input_file, mapping) as snap:
-        chosen = _choose_levels(snap.levels, levels)
+        report.description = snap.description
+        chosen = snap.select(levels)
         plans = []
         for level in chosen:
             for q in SOURCE_INPUTS:
-                level.dtype(q)  # raises with the file's contents if missing
+                level.source(q)  # raises with the file's contents if missing
             dtype = common_field_dtype(level)
-            fixed = CHUNK_CACHE_BYTES * 12 + CONVERSION_BUFFER_BYTES
-            n = rows or slab_rows(level, values_per_point(SOURCE_INPUTS + SOURCE_OUTPUTS),
-                                  dtype.itemsize, memory_limit, fixed=fixed)
+            n = rows or plan_rows(level, dtype, memory_limit)
             plans.append((level, dtype, int(min(n, level.storage_shape[0]))))
+        first = plans[0][0]
         report.levels = len(plans)
-        report.grid_shape = plans[0][0].grid.shape
-        report.axis_order = plans[0][0].axis_order
-        report.units = plans[0][0].units
+        report.grid_shape = first.grid.shape
+        report.axis_order = first.axis_order
+        report.units = first.units
         report.dtype = str(plans[0][1])
         total = sum(len(slabs(lv.storage_shape[0], n)) for lv, _, n in plans)
-        datasets_read = []
         options = {"memory_limit_bytes": int(memory_limit), "rows_per_slab": int(plans[0][2]),
                    "compression": compression or "none", "check": bool(check),
-                   "outputs": list(outputs),
-                   "levels": [lv.label for lv, _, _ in plans]}
-        for level, _, _ in plans:
-            for q in SOURCE_INPUTS:
-                datasets_read.extend(level.dataset_paths(q))
+                   "outputs": list(outputs), "levels": [lv.label for lv, _, _ in plans]}
+        attributes = snap.provenance(chosen, SOURCE_INPUTS, options)
         bar = progress_bar(total, "sources", progress)
         try:
-            with atomic_output(output_file, force=force) as temporary:
+            with atomic_output(output_file, force=force, inputs=snap.inputs) as temporary:
                 # No chunk cache on the output: every write covers whole chunks, which HDF5 then
                 # writes straight from the slab buffer (with a cache it copies each chunk through
                 # it, measured 1.5-3x slower on 256^3).
-                with h5py.File(temporary, "w", rdcc_nbytes=0) as out:
-                    write_root_attributes(out, provenance_attributes(
-                        input_file, datasets_read, options, snap.mapping_path))
+                with hdf5_output(temporary, output_file, rdcc_nbytes=0) as out:
+                    write_root_attributes(out, attributes)
                     group = out.create_group(LEVELS_GROUP)
                     for level, dtype, n in plans:
                         _level_sources(level, dtype, n, group, compression, check, outputs,
@@ -236,24 +174,13 @@ def compute_sources(input_file, output_file, *, mapping=None, memory_limit=DEFAU
                         report.times.append(level.time)
                 report.planned_bytes = max(
                     (values_per_point(SOURCE_INPUTS + SOURCE_OUTPUTS) * dt.itemsize * n
-                     * int(np.prod(lv.storage_shape[1:]))) for lv, dt, n in plans)
+                     * lv.plane_points + read_overhead_bytes(lv, SOURCE_INPUTS, n))
+                    for lv, dt, n in plans)
         finally:
             bar.close()
     report.bytes_written = os.path.getsize(report.output_file)
     report.seconds = _time.perf_counter() - began
     return report
-
-
-def _choose_levels(all_levels, wanted):
-    if wanted is None:
-        return list(all_levels)
-    chosen = []
-    for i in wanted:
-        if not -len(all_levels) <= int(i) < len(all_levels):
-            raise SnapshotError(f"time level index {i} out of range: the file has "
-                                f"{len(all_levels)} level(s)")
-        chosen.append(all_levels[int(i)])
-    return chosen
 
 
 def _level_sources(level, dtype, rows, group, compression, check, written, report, bar):
@@ -267,7 +194,7 @@ def _level_sources(level, dtype, rows, group, compression, check, written, repor
     rows = max(chunk_rows, rows // chunk_rows * chunk_rows)
     datasets = {}
     for q in written:
-        ncomp = QUANTITIES[q]
+        ncomp = COMPONENTS[q]
         shape = ((ncomp,) if ncomp else ()) + stored
         chunks = ((1,) if ncomp else ()) + (chunk_rows,) + stored[1:]
         datasets[q] = g.create_dataset(q, shape=shape, dtype=dtype, chunks=chunks,
@@ -296,6 +223,7 @@ def _level_sources(level, dtype, rows, group, compression, check, written, repor
                 datasets[q][:, start:stop] = a
             else:
                 datasets[q][start:stop] = a
+        interruption.check()
         rho = out_stored[0]
         low = min(low, float(rho.min()))
         high = max(high, float(rho.max()))

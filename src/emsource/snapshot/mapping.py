@@ -1,0 +1,430 @@
+"""Layout mappings: read another code's HDF5 snapshots through a TOML file, without code.
+
+A mapping file says where each quantity lives, in what axis order and units, how the time
+levels are found and where the grid's spacing and origin come from. Example (every key)::
+
+    mapping_version = 1
+    axis_order = "zyx"              # storage order of the grid axes: "xyz" or "zyx"
+    units = "heaviside_lorentz"     # unit system of the stored fields: or "gaussian" (required)
+
+    [time_levels]
+    pattern = "/run/step_{index}"   # HDF5 group of each level; {index} matches digits
+    time = { attribute = "sim_time" }       # an attribute of the level group, or
+    # time = { per_index = 0.25 }           # time = index * per_index
+
+    [grid]
+    spacing = { attribute = "cell_size" }   # an attribute, or
+    # spacing = [0.1, 0.1, 0.1]             # three values
+    origin = { attribute = "corner", object = "fields/Bx" }  # "object": path relative to the
+                                            # level group (default: the level group itself)
+
+    [quantities.electric_field]
+    components = ["fields/Ex", "fields/Ey", "fields/Ez"]   # one dataset per component, or
+    # dataset = "E"                         # one dataset holding all components
+    # component_axis = "first"              # ... with the component axis "first" or "last"
+    scale = 1.0                             # stored value * scale = value in `units`
+
+    [quantities.spatial_metric]
+    identity = true                         # flat metric gamma_ij = delta_ij, nothing stored
+
+One rule for the order of the grid triples: ``spacing`` and ``origin`` are read in the file's
+storage order (``axis_order``), whether they are given as three values or as an attribute; for
+``axis_order = "zyx"`` both mean (z, y, x). Component lists and packed tensors are always in
+(x, y, z) order: (x, y, z) for vectors, (xx, xy, xz, yy, yz, zz) for symmetric tensors.
+
+Quantity names are those of the native layout (:data:`emsource.quantities.NAMES`). Dataset paths
+are relative to the level group unless they start with "/". ``units`` is required: a silent
+default unit system is the very error the package exists to catch. An unknown key anywhere is
+an error that lists the keys allowed there; a value of the wrong type is an error that names the
+file, the key, the expected and the found value; a dataset that is not in the file is an error
+that lists what the file holds.
+"""
+
+from __future__ import annotations
+
+import math
+import os
+import re
+import sys
+from dataclasses import dataclass, field
+
+import h5py
+import numpy as np
+
+from ..quantities import COMPONENTS, NAMES
+from .errors import MappingError
+from .levels import (AXIS_ORDERS, UNIT_SYSTEMS, attribute_number, attribute_vector, build_level,
+                     chunk_bytes_of, chunk_rows_of)
+
+if sys.version_info >= (3, 11):
+    import tomllib
+else:  # pragma: no cover - Python 3.10 only
+    import tomli as tomllib
+
+__all__ = ["LayoutMapping", "QuantitySpec", "load_mapping", "MAPPING_VERSION"]
+
+MAPPING_VERSION = 1
+
+_TOP_KEYS = {"mapping_version", "axis_order", "units", "time_levels", "grid", "quantities"}
+_LEVEL_KEYS = {"pattern", "time"}
+_TIME_KEYS = {"attribute", "object", "per_index"}
+_GRID_KEYS = {"spacing", "origin"}
+_ATTRIBUTE_KEYS = {"attribute", "object"}
+_QUANTITY_KEYS = {"dataset", "components", "component_axis", "scale", "identity"}
+
+
+@dataclass
+class QuantitySpec:
+    """Where one quantity is stored (one ``[quantities.<name>]`` table)."""
+
+    name: str
+    dataset: str | None = None
+    components: list | None = None
+    component_axis: str = "first"
+    scale: float = 1.0
+    identity: bool = False
+
+
+class _Checker:
+    """Type checks of mapping values, with messages naming the file and the key."""
+
+    def __init__(self, path):
+        self.path = path
+
+    def fail(self, text):
+        raise MappingError(f"mapping {self.path!r}: {text}")
+
+    def keys(self, table, allowed, where):
+        if not isinstance(table, dict):
+            self.fail(f"{where} must be a table, found {table!r}")
+        unknown = sorted(set(table) - allowed)
+        if unknown:
+            self.fail(f"unknown key(s) {unknown} in {where}; allowed: {sorted(allowed)}")
+
+    def text(self, value, where, choices=None):
+        if not isinstance(value, str) or not value:
+            self.fail(f"{where} must be a non-empty string, found {value!r}")
+        if choices and value not in choices:
+            self.fail(f"{where} must be one of {list(choices)}, found {value!r}")
+        return value
+
+    def number(self, value, where, *, nonzero=False):
+        if isinstance(value, bool) or not isinstance(value, (int, float)) or not math.isfinite(value):
+            self.fail(f"{where} must be a finite number, found {value!r}")
+        if nonzero and value == 0:
+            self.fail(f"{where} must not be zero")
+        return float(value)
+
+
+def _object(group, relative, where):
+    if relative in (".", ""):
+        return group
+    try:
+        return group[relative]
+    except KeyError:
+        raise MappingError(f"{where}: object {relative!r} not found under {group.name}") from None
+
+
+def _dataset(h5file, group, path, where, listing):
+    try:
+        obj = h5file[path] if path.startswith("/") else group[path]
+    except KeyError:
+        raise MappingError(f"{where}: dataset {path!r} not found. Objects in the file: "
+                           f"{listing()}") from None
+    if not isinstance(obj, h5py.Dataset):
+        raise MappingError(f"{where}: {obj.name!r} is a group, expected a dataset")
+    return obj
+
+
+class _ComponentSource:
+    """One dataset per component; scalars are a one-entry list (see ``levels.DataSource``)."""
+
+    def __init__(self, datasets, scale, scalar):
+        self.datasets = datasets
+        self.scale = scale
+        self.scalar = scalar
+        self.dtype = np.dtype(datasets[0].dtype)
+        self.paths = tuple(d.name for d in datasets)
+        grid = tuple(datasets[0].shape)
+        self.shape = grid if scalar else (len(datasets),) + grid
+        self.chunk_rows = min(chunk_rows_of(d, 0) for d in datasets)
+        self.chunk_bytes = max(chunk_bytes_of(d) for d in datasets)
+        self.scratch_bytes_per_row = 0
+
+    def read_into(self, out, start, stop):
+        if self.scalar:
+            self.datasets[0].read_direct(out, source_sel=np.s_[start:stop])
+        else:
+            for c, d in enumerate(self.datasets):
+                d.read_direct(out, source_sel=np.s_[start:stop], dest_sel=np.s_[c])
+        if self.scale != 1.0:
+            out *= out.dtype.type(self.scale)
+
+
+class _StackedSource:
+    """One dataset with a component axis first or last (or none for a scalar)."""
+
+    def __init__(self, dataset, scale, component_axis, ncomp):
+        self.dataset = dataset
+        self.scale = scale
+        self.last = component_axis == "last" and ncomp > 0
+        self.ncomp = ncomp
+        self.dtype = np.dtype(dataset.dtype)
+        self.paths = (dataset.name,)
+        shape = tuple(dataset.shape)
+        self.shape = (shape[-1],) + shape[:-1] if self.last else shape
+        self.chunk_rows = chunk_rows_of(dataset, 1 if (ncomp and not self.last) else 0)
+        self.chunk_bytes = chunk_bytes_of(dataset)
+        # A component-last block is read whole, then transposed into ``out``.
+        self.scratch_bytes_per_row = (int(np.prod(shape[1:])) * self.dtype.itemsize
+                                      if self.last and len(shape) >= 2 else 0)
+
+    def read_into(self, out, start, stop):
+        if self.last:
+            block = self.dataset[start:stop]
+            out[...] = np.moveaxis(block, -1, 0)
+        elif self.ncomp:
+            self.dataset.read_direct(out, source_sel=np.s_[:, start:stop])
+        else:
+            self.dataset.read_direct(out, source_sel=np.s_[start:stop])
+        if self.scale != 1.0:
+            out *= out.dtype.type(self.scale)
+
+
+class _IdentityMetric:
+    """gamma_ij = delta_ij, nothing stored."""
+
+    def __init__(self, storage_shape):
+        self.dtype = np.dtype(np.float64)
+        self.paths = ()
+        self.shape = (6,) + tuple(storage_shape)
+        self.chunk_rows = int(storage_shape[0])
+        self.chunk_bytes = 0
+        self.scratch_bytes_per_row = 0
+
+    def read_into(self, out, start, stop):
+        out[...] = 0
+        out[0] = out[3] = out[5] = 1
+
+
+@dataclass
+class LayoutMapping:
+    """A parsed mapping file (see the module docstring). Build it with :func:`load_mapping`."""
+
+    path: str
+    axis_order: str
+    units: str
+    pattern: str
+    time: dict
+    spacing: object
+    origin: object
+    quantities: dict = field(default_factory=dict)
+
+    def _level_groups(self, h5file):
+        regex = re.compile("^" + re.escape(self.pattern.strip("/")).replace(
+            re.escape("{index}"), r"(\d+)") + "$")
+        found = []
+
+        def visit(name, obj):
+            if isinstance(obj, h5py.Group):
+                match = regex.match(name)
+                if match:
+                    found.append((int(match.group(1)), name))
+
+        h5file.visititems(visit)
+        return sorted(found)
+
+    def levels(self, h5file, path, listing) -> list:
+        """The time levels of an open file (``listing``: callable -> the file's objects)."""
+        where = f"snapshot {path!r} (mapping {self.path!r})"
+        groups = self._level_groups(h5file)
+        if not groups:
+            raise MappingError(f"{where}: no group matches the time-level pattern "
+                               f"{self.pattern!r}. Objects in the file: {listing()}")
+        if not any(not spec.identity for spec in self.quantities.values()):
+            raise MappingError(f"{where}: the mapping names no stored dataset")
+        levels = []
+        text = listing()
+        for index, name in groups:
+            group = h5file[name]
+            lw = f"{where}, level /{name}"
+            time = self._time(group, index, lw)
+            spacing = self._vector(group, self.spacing, "spacing", lw)
+            origin = self._vector(group, self.origin, "origin", lw)
+            stored, derived = {}, {}
+            for q, spec in self.quantities.items():
+                if spec.identity:
+                    derived[q] = _IdentityMetric
+                else:
+                    stored[q] = self._source(h5file, group, spec, lw, listing)
+            levels.append(build_level(
+                str(index), time, self.units, self.axis_order, origin, spacing, stored, where,
+                derived=derived, listing=text,
+                expected_grid=levels[0].storage_shape if levels else None))
+        return levels
+
+    def _time(self, group, index, where):
+        if "per_index" in self.time:
+            return index * float(self.time["per_index"])
+        obj = _object(group, self.time.get("object", "."), where)
+        name = self.time["attribute"]
+        if name not in obj.attrs:
+            raise MappingError(f"{where}: time attribute {name!r} not on {obj.name}; found "
+                               f"{sorted(obj.attrs.keys()) or 'no attributes'}")
+        return attribute_number(obj.attrs[name], f"time attribute {name!r} of {obj.name}", where)
+
+    def _vector(self, group, spec, what, where):
+        """(x, y, z)-order triple from a list or an attribute, both in storage order."""
+        if isinstance(spec, list):
+            values = tuple(float(v) for v in spec)
+        else:
+            obj = _object(group, spec.get("object", "."), where)
+            name = spec["attribute"]
+            if name not in obj.attrs:
+                raise MappingError(f"{where}: {what} attribute {name!r} not on {obj.name}; "
+                                   f"found {sorted(obj.attrs.keys()) or 'no attributes'}")
+            values = attribute_vector(obj.attrs[name], f"{what} attribute {name!r} of {obj.name}",
+                                      where)
+        return values if self.axis_order == "xyz" else values[::-1]
+
+    def _source(self, h5file, group, spec, where, listing):
+        if spec.components is not None:
+            datasets = [_dataset(h5file, group, p, where, listing) for p in spec.components]
+            shapes = {d.shape for d in datasets}
+            if len(shapes) != 1:
+                found = ", ".join(f"{d.name} {d.shape}" for d in datasets)
+                raise MappingError(f"{where}: components of {spec.name!r} differ in shape: {found}")
+            return _ComponentSource(datasets, spec.scale, COMPONENTS[spec.name] == 0)
+        dataset = _dataset(h5file, group, spec.dataset, where, listing)
+        if spec.component_axis == "last" and COMPONENTS[spec.name] and dataset.ndim != 4:
+            raise MappingError(f"{where}: {dataset.name!r} ({spec.name}, component axis last) "
+                               f"has shape {dataset.shape}, expected (n0, n1, n2, "
+                               f"{COMPONENTS[spec.name]})")
+        return _StackedSource(dataset, spec.scale, spec.component_axis, COMPONENTS[spec.name])
+
+
+def _read_table(path, check):
+    if os.path.isdir(path):
+        check.fail("is a directory, expected a TOML file")
+    try:
+        with open(path, "rb") as handle:
+            return tomllib.load(handle)
+    except FileNotFoundError:
+        raise MappingError(f"mapping file {path!r} does not exist") from None
+    except UnicodeDecodeError as error:
+        raise MappingError(f"mapping file {path!r} is not UTF-8 text (byte {error.start}: "
+                           f"{error.reason}); TOML files must be UTF-8") from None
+    except tomllib.TOMLDecodeError as error:
+        raise MappingError(f"mapping file {path!r} is not valid TOML: {error}") from None
+    except OSError as error:
+        raise MappingError(f"mapping file {path!r} cannot be read: {error}") from None
+
+
+def _attribute_spec(spec, where, check):
+    check.keys(spec, _ATTRIBUTE_KEYS | ({"per_index"} if "time" in where else set()), where)
+    if "attribute" in spec:
+        check.text(spec["attribute"], f"{where} attribute")
+    if "object" in spec:
+        check.text(spec["object"], f"{where} object")
+    return spec
+
+
+def load_mapping(path) -> LayoutMapping:
+    """Read and check a mapping file (TOML).
+
+    Raises
+    ------
+    MappingError
+        A directory, an unreadable, non-UTF-8 or invalid TOML file, unknown keys (the message
+        lists the allowed ones), missing required keys, values of the wrong type or range (the
+        message names the file and the key).
+    """
+    path = os.fspath(path)
+    check = _Checker(path)
+    table = _read_table(path, check)
+    check.keys(table, _TOP_KEYS, "the top level")
+    for key in ("mapping_version", "axis_order", "units", "time_levels", "grid", "quantities"):
+        if key not in table:
+            hint = (f" (one of {list(UNIT_SYSTEMS)}: the unit system of the stored fields is "
+                    "never assumed)") if key == "units" else ""
+            check.fail(f"required key {key!r} missing{hint}")
+    version = table["mapping_version"]
+    if isinstance(version, bool) or version != MAPPING_VERSION:
+        check.fail(f"mapping_version {version!r} not supported (this emsource reads "
+                   f"{MAPPING_VERSION})")
+    axis_order = check.text(table["axis_order"], "axis_order", AXIS_ORDERS)
+    units = check.text(table["units"], "units", UNIT_SYSTEMS)
+
+    levels = table["time_levels"]
+    check.keys(levels, _LEVEL_KEYS, "[time_levels]")
+    pattern = levels.get("pattern")
+    if not isinstance(pattern, str) or pattern.count("{index}") != 1:
+        check.fail(f"[time_levels] pattern must be a string with one '{{index}}', found {pattern!r}")
+    time = levels.get("time", {"per_index": 1.0})
+    _attribute_spec(time, "[time_levels] time", check)
+    if ("attribute" in time) == ("per_index" in time):
+        check.fail(f"[time_levels] time needs exactly one of 'attribute' or 'per_index', found "
+                   f"{sorted(time)}")
+    if "per_index" in time:
+        check.number(time["per_index"], "[time_levels] time per_index")
+
+    grid = table["grid"]
+    check.keys(grid, _GRID_KEYS, "[grid]")
+    vectors = {}
+    for key in ("spacing", "origin"):
+        if key not in grid:
+            check.fail(f"[grid] {key} missing")
+        spec = grid[key]
+        if isinstance(spec, list):
+            if len(spec) != 3:
+                check.fail(f"[grid] {key} must be 3 numbers, found {spec!r}")
+            for value in spec:
+                check.number(value, f"[grid] {key} (each of 3 values)")
+            if key == "spacing" and not all(v > 0 for v in spec):
+                check.fail(f"[grid] spacing must be positive, found {spec!r}")
+        else:
+            _attribute_spec(spec, f"[grid] {key}", check)
+            if "attribute" not in spec:
+                check.fail(f"[grid] {key} needs 'attribute' or 3 values")
+        vectors[key] = spec
+
+    quantities = table["quantities"]
+    check.keys(quantities, set(NAMES), "[quantities]")
+    specs = {}
+    for name, q in quantities.items():
+        where = f"[quantities.{name}]"
+        check.keys(q, _QUANTITY_KEYS, where)
+        ncomp = COMPONENTS[name]
+        spec = QuantitySpec(name)
+        if "scale" in q:
+            spec.scale = check.number(q["scale"], f"{where} scale", nonzero=True)
+        if "component_axis" in q:
+            spec.component_axis = check.text(q["component_axis"], f"{where} component_axis",
+                                             ("first", "last"))
+        if "identity" in q:
+            if q["identity"] is not True:
+                check.fail(f"{where} identity must be true (leave it out otherwise), found "
+                           f"{q['identity']!r}")
+            if name != "spatial_metric":
+                check.fail(f"{where} identity applies to spatial_metric only")
+            spec.identity = True
+        given = [k for k in ("dataset", "components", "identity") if k in q]
+        if len(given) != 1:
+            check.fail(f"{where} needs exactly one of 'dataset', 'components' or "
+                       f"'identity = true', found {given or 'none'}")
+        if "components" in q:
+            listed = q["components"]
+            if not isinstance(listed, list) or not all(isinstance(p, str) and p for p in listed):
+                check.fail(f"{where} components must be a list of dataset paths (strings), "
+                           f"found {listed!r}")
+            if len(listed) != max(ncomp, 1):
+                check.fail(f"{where} lists {len(listed)} components, {name} has {max(ncomp, 1)}")
+            spec.components = list(listed)
+        if "dataset" in q:
+            spec.dataset = check.text(q["dataset"], f"{where} dataset")
+        if spec.identity and ("scale" in q or "component_axis" in q):
+            check.fail(f"{where} identity takes no scale or component_axis")
+        specs[name] = spec
+    return LayoutMapping(path=os.path.abspath(path), axis_order=axis_order, units=units,
+                         pattern=pattern, time=time, spacing=vectors["spacing"],
+                         origin=vectors["origin"], quantities=specs)
