@@ -74,17 +74,12 @@ def run(args) -> int:
         try:
             table.plot(path)
         except ImportError as error:
-            if args.plot:  # a plot was asked for by name: failing to draw it is an output error
-                print(f"emsource converge: {error}", file=sys.stderr)
-                return EXIT_OUTPUT_ERROR
-            print(f"emsource converge: no plot drawn ({error}); the table above is complete",
-                  file=sys.stderr)
-            path = None
+            print(f"emsource converge: {error}", file=sys.stderr)
+            return EXIT_OUTPUT_ERROR
         except OSError as error:
             print(f"emsource converge: cannot write the plot {path}: {error}", file=sys.stderr)
             return EXIT_OUTPUT_ERROR
-        if path is not None:
-            print(f"plot written to {path}")
+        print(f"plot written to {path}")
     if args.json:
         try:
             Path(args.json).write_text(json.dumps(table.to_dict(), indent=2))
