@@ -132,3 +132,12 @@ def test_bad_lapse_on_a_face_is_bad_input(tmp_path, capsys, bad, reason):
     io.write_snapshot(path, [replace(data, beta=shift)], force=True)
     assert main(["integrate", str(path), "--quiet"]) == EXIT_BAD_INPUT
     assert "grid index (0, 0, 0): non-finite value(s): shift[1] = inf" in capsys.readouterr().err
+
+
+@pytest.mark.parametrize("limit", ["inf", "1e400", "nan", "-3", "2e12"])
+def test_memory_limit_that_is_not_a_sensible_number_is_a_usage_error(dipole, limit, capsys):
+    # 2e12 MiB is above the 1 EiB cap: accepting it would overflow nothing but mean nothing.
+    with pytest.raises(SystemExit) as stop:
+        main(["integrate", str(dipole), "--memory-limit", limit, "--quiet"])
+    assert stop.value.code == 2
+    assert "memory limit must be" in capsys.readouterr().err

@@ -168,11 +168,13 @@ class _Sphere:
         self.npoints = npoints
         if npoints < 2 or npoints % 2:
             raise ValueError(f"interpolation_points must be even and >= 2, found {npoints}")
-        for a in range(3):
+        # Coordinates between which an interpolation stencil stays on the grid, per axis.
+        bounds = [(grid.origin[a] + (npoints // 2 - 1) * grid.spacing[a],
+                   grid.origin[a] + (grid.shape[a] - npoints // 2) * grid.spacing[a])
+                  for a in range(3)]
+        for a, (lo, hi) in enumerate(bounds):
             # Checked before any node is placed, so that a huge radius is a clear error and
             # not an overflow: every node has |x_a| <= R, and the extreme ones nearly R.
-            lo = grid.origin[a] + (npoints // 2 - 1) * grid.spacing[a]
-            hi = grid.origin[a] + (grid.shape[a] - npoints // 2) * grid.spacing[a]
             if not (lo < 0 < hi) or self.radius >= max(abs(lo), abs(hi)):
                 self._does_not_fit(a, lo, hi)
         points, self.normals, self.weights = sphere_quadrature(self.radius, n_theta)
@@ -182,9 +184,7 @@ class _Sphere:
             s = (points[a] - grid.origin[a]) / grid.spacing[a]
             i0, w = lagrange_weights(s, npoints)
             if i0.min() < 0 or i0.max() + npoints - 1 > grid.shape[a] - 1:
-                lo = grid.origin[a] + (npoints // 2 - 1) * grid.spacing[a]
-                hi = grid.origin[a] + (grid.shape[a] - npoints // 2) * grid.spacing[a]
-                self._does_not_fit(a, lo, hi)
+                self._does_not_fit(a, *bounds[a])
             self.starts.append(i0)
             self.stencil.append(w)
 

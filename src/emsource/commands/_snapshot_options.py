@@ -13,15 +13,21 @@ MIB = 2**20
 MAX_MEMORY_LIMIT_MIB = float(2**40)
 
 
-def memory_limit(text: str) -> int:
-    """``--memory-limit`` in MiB (a positive number) -> bytes."""
+def positive_number(text: str, what: str, unit: str = "") -> float:
+    """An option's value as a positive, finite float, else an argparse usage error naming ``what``."""
     try:
         value = float(text)
     except ValueError:
-        raise argparse.ArgumentTypeError(f"expected a number of MiB, found {text!r}") from None
+        raise argparse.ArgumentTypeError(f"expected a number{unit}, found {text!r}") from None
     if not (math.isfinite(value) and value > 0):
-        raise argparse.ArgumentTypeError(f"memory limit must be a positive, finite number of MiB, "
+        raise argparse.ArgumentTypeError(f"{what} must be a positive, finite number{unit}, "
                                          f"found {text!r}")
+    return value
+
+
+def memory_limit(text: str) -> int:
+    """``--memory-limit`` in MiB (a positive number) -> bytes."""
+    value = positive_number(text, "memory limit", " of MiB")
     if value > MAX_MEMORY_LIMIT_MIB:
         raise argparse.ArgumentTypeError(f"memory limit must be at most {MAX_MEMORY_LIMIT_MIB:g} "
                                          f"MiB (1 EiB), found {text!r}")

@@ -2,25 +2,18 @@
 
 from __future__ import annotations
 
-import argparse
 import math
 
 from . import EXIT_BAD_INPUT, EXIT_OK, EXIT_OUTPUT_ERROR
-from ._snapshot_options import add_input_options, check_new_output, fail, run_guarded, show_progress
+from ._snapshot_options import (add_input_options, check_new_output, fail, positive_number,
+                               run_guarded, show_progress)
 
 HELP = "integrate energy, momentum, face fluxes and sphere luminosities over a snapshot file"
 
 
 def radius(text: str) -> float:
     """``--radius``: a positive finite number (anything else is a usage error, exit 2)."""
-    try:
-        value = float(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"expected a number, found {text!r}") from None
-    if not (math.isfinite(value) and value > 0):
-        raise argparse.ArgumentTypeError(f"a sphere radius must be a positive finite number, "
-                                         f"found {text!r}")
-    return value
+    return positive_number(text, "a sphere radius")
 
 
 def register(subparsers):
