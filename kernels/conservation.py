@@ -36,8 +36,15 @@ import numpy as np
 from numba import prange
 
 from ._compile import grid_kernel, point_function
-from .metric import inverse_metric as _inverse_metric
-from .metric import lower_index as _lower
+from .electromagnetic import (
+    FORM_CONTRAVARIANT,
+    energy_momentum_fluxes,
+    fields_both_indices,
+    momentum_upper,
+    projections,
+    sqrt_determinant,
+)
+from .metric import inverse_metric, metric_factors
 from .stencils import d1_column
 
 
@@ -54,20 +61,19 @@ def _densities(g, g0, g1, g2, g3, g4, g5, e, b, i, j, k, coef, half):
     gyy = g[g3, i, j, k]
     gyz = g[g4, i, j, k]
     gzz = g[g5, i, j, k]
-    _ixx, _ixy, _ixz, _iyy, _iyz, _izz, det = _inverse_metric(gxx, gxy, gxz, gyy, gyz, gzz, one)
-    ex = e[0, i, j, k]
-    ey = e[1, i, j, k]
-    ez = e[2, i, j, k]
-    bx = b[0, i, j, k]
-    by = b[1, i, j, k]
-    bz = b[2, i, j, k]
-    exl, eyl, ezl = _lower(gxx, gxy, gxz, gyy, gyz, gzz, ex, ey, ez)
-    bxl, byl, bzl = _lower(gxx, gxy, gxz, gyy, gyz, gzz, bx, by, bz)
-    sg = math.sqrt(det)
-    dens = sg * coef * half * (ex * exl + ey * eyl + ez * ezl + bx * bxl + by * byl + bz * bzl)
-    # sg S_j = coef det [jkl] E^k B^l (epsilon_jkl = sg [jkl]).
-    c = coef * det
-    return (dens, c * (ey * bz - ez * by), c * (ez * bx - ex * bz), c * (ex * by - ey * bx))
+    ex0 = e[0, i, j, k]
+    ey0 = e[1, i, j, k]
+    ez0 = e[2, i, j, k]
+    bx0 = b[0, i, j, k]
+    by0 = b[1, i, j, k]
+    bz0 = b[2, i, j, k]
+    d1, d2, d3, l21, l31, l32 = metric_factors(gxx, gxy, gxz, gyy, gyz, gzz, one)
+    sg = sqrt_determinant(d1, d2, d3)
+    fields = fields_both_indices(FORM_CONTRAVARIANT, gxx, gxy, gxz, gyy, gyz, gzz,
+                                 d1, d2, d3, l21, l31, l32, ex0, ey0, ez0, bx0, by0, bz0, one)
+    (rho, sx, sy, sz, _sxx, _sxy, _sxz, _syy, _syz, _szz,
+     _energy2) = projections(gxx, gxy, gxz, gyy, gyz, gzz, sg, fields, coef, half)
+    return sg * rho, sg * sx, sg * sy, sg * sz
 
 
 @grid_kernel
@@ -119,47 +125,34 @@ def fluxes_and_rates(alpha, beta, gamma, gidx, E, B, rate_mode,
             gyy = gamma[c3, i, j, k]
             gyz = gamma[c4, i, j, k]
             gzz = gamma[c5, i, j, k]
-            _ixx, _ixy, _ixz, _iyy, _iyz, _izz, det = _inverse_metric(gxx, gxy, gxz, gyy, gyz,
-                                                                      gzz, one)
-            sg = math.sqrt(det)
-            ex = E[0, i, j, k]
-            ey = E[1, i, j, k]
-            ez = E[2, i, j, k]
-            bx = B[0, i, j, k]
-            by = B[1, i, j, k]
-            bz = B[2, i, j, k]
-            exl, eyl, ezl = _lower(gxx, gxy, gxz, gyy, gyz, gzz, ex, ey, ez)
-            bxl, byl, bzl = _lower(gxx, gxy, gxz, gyy, gyz, gzz, bx, by, bz)
-            energy2 = ex * exl + ey * eyl + ez * ezl + bx * bxl + by * byl + bz * bzl
-            rho = coef * half * energy2
-            pressure = half * energy2
-            # S_j = coef sg [jkl] E^k B^l; S^i = coef [ikl] E_k B_l / sg.
-            csg = coef * sg
-            sx = csg * (ey * bz - ez * by)
-            sy = csg * (ez * bx - ex * bz)
-            sz = csg * (ex * by - ey * bx)
-            cinv = coef / sg
-            ux = cinv * (eyl * bzl - ezl * byl)
-            uy = cinv * (ezl * bxl - exl * bzl)
-            uz = cinv * (exl * byl - eyl * bxl)
-            a = alpha[0, i, j, k]
-            s1 = beta[0, i, j, k]
-            s2 = beta[1, i, j, k]
-            s3 = beta[2, i, j, k]
-            work[0, i, j, k] = sg * (a * ux - s1 * rho)
-            work[1, i, j, k] = sg * (a * uy - s2 * rho)
-            work[2, i, j, k] = sg * (a * uz - s3 * rho)
-            # S^i_j = coef (-E^i E_j - B^i B_j + 1/2 delta^i_j (E^2 + B^2)).
-            asg = a * sg
-            work[3, i, j, k] = asg * coef * (pressure - ex * exl - bx * bxl) - sg * s1 * sx
-            work[4, i, j, k] = asg * coef * (-ex * eyl - bx * byl) - sg * s1 * sy
-            work[5, i, j, k] = asg * coef * (-ex * ezl - bx * bzl) - sg * s1 * sz
-            work[6, i, j, k] = asg * coef * (-ey * exl - by * bxl) - sg * s2 * sx
-            work[7, i, j, k] = asg * coef * (pressure - ey * eyl - by * byl) - sg * s2 * sy
-            work[8, i, j, k] = asg * coef * (-ey * ezl - by * bzl) - sg * s2 * sz
-            work[9, i, j, k] = asg * coef * (-ez * exl - bz * bxl) - sg * s3 * sx
-            work[10, i, j, k] = asg * coef * (-ez * eyl - bz * byl) - sg * s3 * sy
-            work[11, i, j, k] = asg * coef * (pressure - ez * ezl - bz * bzl) - sg * s3 * sz
+            ex0 = E[0, i, j, k]
+            ey0 = E[1, i, j, k]
+            ez0 = E[2, i, j, k]
+            bx0 = B[0, i, j, k]
+            by0 = B[1, i, j, k]
+            bz0 = B[2, i, j, k]
+            d1, d2, d3, l21, l31, l32 = metric_factors(gxx, gxy, gxz, gyy, gyz, gzz, one)
+            sg = sqrt_determinant(d1, d2, d3)
+            fields = fields_both_indices(FORM_CONTRAVARIANT, gxx, gxy, gxz, gyy, gyz, gzz, d1, d2,
+                                         d3, l21, l31, l32, ex0, ey0, ez0, bx0, by0, bz0, one)
+            (rho, sx, sy, sz, _sxx, _sxy, _sxz, _syy, _syz, _szz,
+             energy2) = projections(gxx, gxy, gxz, gyy, gyz, gzz, sg, fields, coef, half)
+            ux, uy, uz = momentum_upper(sg, fields, coef)
+            (f0, f1, f2, m0, m1, m2, m3, m4, m5, m6, m7, m8) = energy_momentum_fluxes(
+                alpha[0, i, j, k], beta[0, i, j, k], beta[1, i, j, k], beta[2, i, j, k],
+                sg, rho, sx, sy, sz, ux, uy, uz, fields, energy2, coef, half)
+            work[0, i, j, k] = f0
+            work[1, i, j, k] = f1
+            work[2, i, j, k] = f2
+            work[3, i, j, k] = m0
+            work[4, i, j, k] = m1
+            work[5, i, j, k] = m2
+            work[6, i, j, k] = m3
+            work[7, i, j, k] = m4
+            work[8, i, j, k] = m5
+            work[9, i, j, k] = m6
+            work[10, i, j, k] = m7
+            work[11, i, j, k] = m8
             work[12, i, j, k] = sg * rho
             work[13, i, j, k] = sg * sx
             work[14, i, j, k] = sg * sy
@@ -182,23 +175,21 @@ def fluxes_and_rates(alpha, beta, gamma, gidx, E, B, rate_mode,
                 gyy = gamma[c3, i, j, k]
                 gyz = gamma[c4, i, j, k]
                 gzz = gamma[c5, i, j, k]
-                ixx, ixy, ixz, iyy, iyz, izz, det = _inverse_metric(gxx, gxy, gxz, gyy, gyz, gzz,
-                                                                    one)
-                sg = math.sqrt(det)
-                ex = E[0, i, j, k]
-                ey = E[1, i, j, k]
-                ez = E[2, i, j, k]
-                bx = B[0, i, j, k]
-                by = B[1, i, j, k]
-                bz = B[2, i, j, k]
-                exl, eyl, ezl = _lower(gxx, gxy, gxz, gyy, gyz, gzz, ex, ey, ez)
-                bxl, byl, bzl = _lower(gxx, gxy, gxz, gyy, gyz, gzz, bx, by, bz)
-                energy2 = ex * exl + ey * eyl + ez * ezl + bx * bxl + by * byl + bz * bzl
-                rho = coef * half * energy2
-                csg = coef * sg
-                sx = csg * (ey * bz - ez * by)
-                sy = csg * (ez * bx - ex * bz)
-                sz = csg * (ex * by - ey * bx)
+                ex0 = E[0, i, j, k]
+                ey0 = E[1, i, j, k]
+                ez0 = E[2, i, j, k]
+                bx0 = B[0, i, j, k]
+                by0 = B[1, i, j, k]
+                bz0 = B[2, i, j, k]
+                d1, d2, d3, l21, l31, l32 = metric_factors(gxx, gxy, gxz, gyy, gyz, gzz, one)
+                sg = sqrt_determinant(d1, d2, d3)
+                fields = fields_both_indices(FORM_CONTRAVARIANT, gxx, gxy, gxz, gyy, gyz, gzz, d1, d2,
+                                             d3, l21, l31, l32, ex0, ey0, ez0, bx0, by0, bz0, one)
+                (rho, sx, sy, sz, _sxx, _sxy, _sxz, _syy, _syz, _szz,
+                 _energy2) = projections(gxx, gxy, gxz, gyy, gyz, gzz, sg, fields, coef, half)
+                ex, ey, ez, exl, eyl, ezl, bx, by, bz, bxl, byl, bzl = fields
+                ixx, ixy, ixz, iyy, iyz, izz = inverse_metric(d1, d2, d3, l21, l31, l32, one)
+                det = sg * sg
                 hxx = g_a[a0, i, j, k]
                 hxy = g_a[a1, i, j, k]
                 hxz = g_a[a2, i, j, k]
@@ -399,27 +390,21 @@ def residuals(alpha, beta, gamma, gidx, K, kidx, E, B, charge, current, work,
                 gyy = buf[45, n]
                 gyz = buf[46, n]
                 gzz = buf[47, n]
-                ixx, ixy, ixz, iyy, iyz, izz, det = _inverse_metric(gxx, gxy, gxz, gyy, gyz, gzz,
-                                                                    one)
-                sg = math.sqrt(det)
-                ex = buf[48, n]
-                ey = buf[49, n]
-                ez = buf[50, n]
-                bx = buf[51, n]
-                by = buf[52, n]
-                bz = buf[53, n]
-                exl, eyl, ezl = _lower(gxx, gxy, gxz, gyy, gyz, gzz, ex, ey, ez)
-                bxl, byl, bzl = _lower(gxx, gxy, gxz, gyy, gyz, gzz, bx, by, bz)
-                energy2 = ex * exl + ey * eyl + ez * ezl + bx * bxl + by * byl + bz * bzl
-                rho = coef * half * energy2
-                csg = coef * sg
-                sx = csg * (ey * bz - ez * by)
-                sy = csg * (ez * bx - ex * bz)
-                sz = csg * (ex * by - ey * bx)
-                cinv = coef / sg
-                ux = cinv * (eyl * bzl - ezl * byl)
-                uy = cinv * (ezl * bxl - exl * bzl)
-                uz = cinv * (exl * byl - eyl * bxl)
+                ex0 = buf[48, n]
+                ey0 = buf[49, n]
+                ez0 = buf[50, n]
+                bx0 = buf[51, n]
+                by0 = buf[52, n]
+                bz0 = buf[53, n]
+                d1, d2, d3, l21, l31, l32 = metric_factors(gxx, gxy, gxz, gyy, gyz, gzz, one)
+                sg = sqrt_determinant(d1, d2, d3)
+                fields = fields_both_indices(FORM_CONTRAVARIANT, gxx, gxy, gxz, gyy, gyz, gzz, d1, d2,
+                                             d3, l21, l31, l32, ex0, ey0, ez0, bx0, by0, bz0, one)
+                (rho, sx, sy, sz, _sxx, _sxy, _sxz, _syy, _syz, _szz,
+                 energy2) = projections(gxx, gxy, gxz, gyy, gyz, gzz, sg, fields, coef, half)
+                ux, uy, uz = momentum_upper(sg, fields, coef)
+                ex, ey, ez, exl, eyl, ezl, bx, by, bz, bxl, byl, bzl = fields
+                ixx, ixy, ixz, iyy, iyz, izz = inverse_metric(d1, d2, d3, l21, l31, l32, one)
                 a = buf[54, n]
                 jx = buf[55, n]
                 jy = buf[56, n]

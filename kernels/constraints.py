@@ -35,6 +35,7 @@ import numpy as np
 from numba import prange
 
 from ._compile import grid_kernel
+from .metric import inverse_metric, metric_factors
 from .stencils import d1, d2, d11
 
 
@@ -113,23 +114,18 @@ def adm_constraints_grid(gamma, K, rho, S, evaluate, w1, w2, inv_h, sym, sixteen
                     for e in range(3):
                         for f in range(3):
                             ddg[b, a, e, f] = ddg[a, b, e, f]
-            # Inverse metric from cofactors.
-            cxx = g[1, 1] * g[2, 2] - g[1, 2] * g[1, 2]
-            cxy = g[0, 2] * g[1, 2] - g[0, 1] * g[2, 2]
-            cxz = g[0, 1] * g[1, 2] - g[0, 2] * g[1, 1]
-            cyy = g[0, 0] * g[2, 2] - g[0, 2] * g[0, 2]
-            cyz = g[0, 1] * g[0, 2] - g[0, 0] * g[1, 2]
-            czz = g[0, 0] * g[1, 1] - g[0, 1] * g[0, 1]
-            inv_det = 1.0 / (g[0, 0] * cxx + g[0, 1] * cxy + g[0, 2] * cxz)
-            gi[0, 0] = cxx * inv_det
-            gi[0, 1] = cxy * inv_det
-            gi[0, 2] = cxz * inv_det
-            gi[1, 1] = cyy * inv_det
-            gi[1, 2] = cyz * inv_det
-            gi[2, 2] = czz * inv_det
-            gi[1, 0] = gi[0, 1]
-            gi[2, 0] = gi[0, 2]
-            gi[2, 1] = gi[1, 2]
+            factors = metric_factors(g[0, 0], g[0, 1], g[0, 2], g[1, 1], g[1, 2], g[2, 2], 1.0)
+            ixx, ixy, ixz, iyy, iyz, izz = inverse_metric(factors[0], factors[1], factors[2],
+                                                          factors[3], factors[4], factors[5], 1.0)
+            gi[0, 0] = ixx
+            gi[0, 1] = ixy
+            gi[0, 2] = ixz
+            gi[1, 1] = iyy
+            gi[1, 2] = iyz
+            gi[2, 2] = izz
+            gi[1, 0] = ixy
+            gi[2, 0] = ixz
+            gi[2, 1] = iyz
             for c in range(3):
                 for a in range(3):
                     for b in range(3):

@@ -28,101 +28,53 @@ built per point, ``a[(c,) + idx]``, is about four times slower: it defeats vecto
 Scalar constants ``coef`` and ``half`` arrive in the dtype of the data so that float32 data are
 computed in float32 (a Python literal would promote the arithmetic to float64).
 
-Every driver folds the point checks into its pass and returns the number of bad points
-(non-finite input, metric not positive definite, lapse not positive); with ``check=False`` it
-returns 0 and checks nothing. Outputs are written at every point, bad or not. Where the count
-is not zero, ``first_invalid_*`` finds the first bad point on the error path.
+The point physics (input forms, projections, fluxes, the point checks) is that of
+:mod:`emsource.kernels.electromagnetic`; this module only loops over grids and stores.
+
+Every driver folds the point checks into its pass and returns two counts: bad points
+(non-finite input or output, metric not positive definite, lapse not positive) and points
+whose energy density underflows (see :func:`~emsource.kernels.electromagnetic.point_underflows`);
+with ``check=False`` it returns (0, 0) and checks nothing. Outputs are written at every
+point, bad or not. Where a count is not zero, :func:`first_failing_point` finds the first
+such point on the error path.
 """
 
 from __future__ import annotations
 
-import math
-
 from numba import prange
 
 from ._compile import grid_kernel, point_function, search_kernel
-from .metric import inverse_metric, lower_index
+from .electromagnetic import (
+    energy_momentum_fluxes,
+    fields_both_indices,
+    metric_factors,
+    momentum_upper,
+    point_is_valid,
+    point_underflows,
+    projections,
+    sqrt_determinant,
+)
+from .metric import inverse_metric
 from .point_checks import is_finite
 
 
 @point_function
-def _em_projections(gxx, gxy, gxz, gyy, gyz, gzz, e1, e2, e3, b1, b2, b3, coef, half, fields_lower):
-    """rho, S_i, S_ij of one point, and the inverse metric.
-
-    ``e*``, ``b*`` are contravariant components, or covariant when ``fields_lower``.
-    """
-    ixx, ixy, ixz, iyy, iyz, izz, det = inverse_metric(gxx, gxy, gxz, gyy, gyz, gzz, half + half)
-    if fields_lower:
-        exl, eyl, ezl = e1, e2, e3
-        bxl, byl, bzl = b1, b2, b3
-        ex, ey, ez = lower_index(ixx, ixy, ixz, iyy, iyz, izz, e1, e2, e3)  # raised with gamma^ij
-        bx, by, bz = lower_index(ixx, ixy, ixz, iyy, iyz, izz, b1, b2, b3)
-    else:
-        ex, ey, ez = e1, e2, e3
-        bx, by, bz = b1, b2, b3
-        exl, eyl, ezl = lower_index(gxx, gxy, gxz, gyy, gyz, gzz, e1, e2, e3)
-        bxl, byl, bzl = lower_index(gxx, gxy, gxz, gyy, gyz, gzz, b1, b2, b3)
-    energy2 = ex * exl + ey * eyl + ez * ezl + bx * bxl + by * byl + bz * bzl
-    rho = coef * half * energy2
-    # S_i = coef sqrt(gamma) [ijk] E^j B^k: the Levi-Civita tensor carries sqrt(gamma).
-    poynting = coef * math.sqrt(det)
-    sx = poynting * (ey * bz - ez * by)
-    sy = poynting * (ez * bx - ex * bz)
-    sz = poynting * (ex * by - ey * bx)
-    pressure = half * energy2
-    sxx = coef * (pressure * gxx - exl * exl - bxl * bxl)
-    sxy = coef * (pressure * gxy - exl * eyl - bxl * byl)
-    sxz = coef * (pressure * gxz - exl * ezl - bxl * bzl)
-    syy = coef * (pressure * gyy - eyl * eyl - byl * byl)
-    syz = coef * (pressure * gyz - eyl * ezl - byl * bzl)
-    szz = coef * (pressure * gzz - ezl * ezl - bzl * bzl)
-    return (rho, sx, sy, sz, sxx, sxy, sxz, syy, syz, szz,
-            ixx, ixy, ixz, iyy, iyz, izz)
-
-
-@point_function
-def _spatial_inputs_valid(n, gamma, gidx, E, B):
-    """True where the 12 inputs at point ``n`` are finite and gamma is positive definite.
-
-    Sylvester's criterion: gxx > 0, the leading 2x2 minor > 0 and det > 0 (NaN fails all).
-    Kept apart from the physics on purpose: returning the flag from the inlined projection
-    function made the whole kernel four times slower (measured; LLVM no longer vectorised it),
-    while this separate function re-reads the values at no measurable cost.
-    """
+def _adm_point(n, gamma, gidx, E, B, rho, S_i, S_ij, S, form, coef, half, tiny):
+    """Write rho, S_i, S_ij, S at point ``n`` of (ncomp, npoints) arrays; return the checks
+    (valid, underflows) of :mod:`emsource.kernels.electromagnetic`."""
     gxx = gamma[gidx[0], n]
     gxy = gamma[gidx[1], n]
     gxz = gamma[gidx[2], n]
     gyy = gamma[gidx[3], n]
     gyz = gamma[gidx[4], n]
     gzz = gamma[gidx[5], n]
-    minor = gxx * gyy - gxy * gxy
-    det = (gxx * (gyy * gzz - gyz * gyz) + gxy * (gxz * gyz - gxy * gzz)
-           + gxz * (gxy * gyz - gxz * gyy))
-    # One finiteness test of the sum instead of twelve (twelve cost 4x): NaN and
-    # Inf propagate through a sum, which overflows only for inputs above ~1e307 (float32:
-    # ~1e37), where the squared fields overflow anyway. Bitwise & avoids branches.
-    probe = (gxx + gxy + gxz + gyy + gyz + gzz
-             + E[0, n] + E[1, n] + E[2, n] + B[0, n] + B[1, n] + B[2, n])
-    return (gxx > 0) & (minor > 0) & (det > 0) & is_finite(probe)
-
-
-@point_function
-def _spacetime_inputs_valid(n, alpha, beta, gamma, gidx, E, B):
-    """As :func:`_spatial_inputs_valid`, and the lapse positive, lapse and shift finite."""
-    a = alpha[n]
-    return (_spatial_inputs_valid(n, gamma, gidx, E, B)
-            & (a > 0) & is_finite(a + beta[0, n] + beta[1, n] + beta[2, n]))
-
-
-@point_function
-def _adm_point(n, gamma, gidx, E, B, rho, S_i, S_ij, S, coef, half, fields_lower):
-    """Read point ``n`` of (ncomp, npoints) arrays and write its projections."""
-    (r, sx, sy, sz, sxx, sxy, sxz, syy, syz, szz,
-     _ixx, _ixy, _ixz, _iyy, _iyz, _izz) = _em_projections(
-        gamma[gidx[0], n], gamma[gidx[1], n], gamma[gidx[2], n],
-        gamma[gidx[3], n], gamma[gidx[4], n], gamma[gidx[5], n],
-        E[0, n], E[1, n], E[2, n], B[0, n], B[1, n], B[2, n],
-        coef, half, fields_lower)
+    one = half + half
+    d1, d2, d3, l21, l31, l32 = metric_factors(gxx, gxy, gxz, gyy, gyz, gzz, one)
+    sg = sqrt_determinant(d1, d2, d3)
+    fields = fields_both_indices(form, gxx, gxy, gxz, gyy, gyz, gzz, d1, d2, d3, l21, l31, l32,
+                                 E[0, n], E[1, n], E[2, n], B[0, n], B[1, n], B[2, n], one)
+    r, sx, sy, sz, sxx, sxy, sxz, syy, syz, szz, _energy2 = projections(
+        gxx, gxy, gxz, gyy, gyz, gzz, sg, fields, coef, half)
     rho[n] = r
     S[n] = r  # the electromagnetic stress-energy is traceless: S = gamma^ij S_ij = rho
     S_i[0, n] = sx
@@ -134,28 +86,32 @@ def _adm_point(n, gamma, gidx, E, B, rho, S_i, S_ij, S, coef, half, fields_lower
     S_ij[3, n] = syy
     S_ij[4, n] = syz
     S_ij[5, n] = szz
+    total = r + (sx + sy + sz) + (sxx + sxy + sxz + syy + syz + szz)
+    return point_is_valid(d1, d2, d3, total), point_underflows(r, fields, tiny)
 
 
 @point_function
-def _stress_energy_point(n, alpha, beta, gamma, gidx, E, B, T, coef, half, fields_lower, upper):
-    """Read point ``n`` of (ncomp, npoints) arrays, write the 10 packed T_ab (or T^ab)."""
+def _stress_energy_point(n, alpha, beta, gamma, gidx, E, B, T, form, coef, half, tiny, upper):
+    """Write the 10 packed T_ab (or T^ab) at point ``n``; return (valid, underflows)."""
     gxx = gamma[gidx[0], n]
     gxy = gamma[gidx[1], n]
     gxz = gamma[gidx[2], n]
     gyy = gamma[gidx[3], n]
     gyz = gamma[gidx[4], n]
     gzz = gamma[gidx[5], n]
-    (r, sx, sy, sz, sxx, sxy, sxz, syy, syz, szz,
-     ixx, ixy, ixz, iyy, iyz, izz) = _em_projections(
-        gxx, gxy, gxz, gyy, gyz, gzz,
-        E[0, n], E[1, n], E[2, n], B[0, n], B[1, n], B[2, n],
-        coef, half, fields_lower)
+    one = half + half
+    d1, d2, d3, l21, l31, l32 = metric_factors(gxx, gxy, gxz, gyy, gyz, gzz, one)
+    sg = sqrt_determinant(d1, d2, d3)
+    fields = fields_both_indices(form, gxx, gxy, gxz, gyy, gyz, gzz, d1, d2, d3, l21, l31, l32,
+                                 E[0, n], E[1, n], E[2, n], B[0, n], B[1, n], B[2, n], one)
+    r, sx, sy, sz, sxx, sxy, sxz, syy, syz, szz, _energy2 = projections(
+        gxx, gxy, gxz, gyy, gyz, gzz, sg, fields, coef, half)
     a = alpha[n]
     bx = beta[0, n]
     by = beta[1, n]
     bz = beta[2, n]
     if upper:
-        one = half + half
+        ixx, ixy, ixz, iyy, iyz, izz = inverse_metric(d1, d2, d3, l21, l31, l32, one)
         ia = one / a
         # n^a = (1, -beta^i)/alpha; S^i = gamma^ij S_j; S^ij = gamma^ik gamma^jl S_kl.
         nx = -bx * ia
@@ -174,56 +130,105 @@ def _stress_energy_point(n, alpha, beta, gamma, gidx, E, B, T, coef, half, field
         mzx = ixz * sxx + iyz * sxy + izz * sxz
         mzy = ixz * sxy + iyz * syy + izz * syz
         mzz = ixz * sxz + iyz * syz + izz * szz
-        uxx = mxx * ixx + mxy * ixy + mxz * ixz
-        uxy = mxx * ixy + mxy * iyy + mxz * iyz
-        uxz = mxx * ixz + mxy * iyz + mxz * izz
-        uyy = myx * ixy + myy * iyy + myz * iyz
-        uyz = myx * ixz + myy * iyz + myz * izz
-        uzz = mzx * ixz + mzy * iyz + mzz * izz
-        T[0, n] = r * ia * ia
-        T[1, n] = ia * (r * nx + ux)
-        T[2, n] = ia * (r * ny + uy)
-        T[3, n] = ia * (r * nz + uz)
-        T[4, n] = r * nx * nx + (nx * ux + nx * ux) + uxx
-        T[5, n] = r * nx * ny + (nx * uy + ny * ux) + uxy
-        T[6, n] = r * nx * nz + (nx * uz + nz * ux) + uxz
-        T[7, n] = r * ny * ny + (ny * uy + ny * uy) + uyy
-        T[8, n] = r * ny * nz + (ny * uz + nz * uy) + uyz
-        T[9, n] = r * nz * nz + (nz * uz + nz * uz) + uzz
+        t0 = r * ia * ia
+        t1 = ia * (r * nx + ux)
+        t2 = ia * (r * ny + uy)
+        t3 = ia * (r * nz + uz)
+        t4 = r * nx * nx + (nx * ux + nx * ux) + (mxx * ixx + mxy * ixy + mxz * ixz)
+        t5 = r * nx * ny + (nx * uy + ny * ux) + (mxx * ixy + mxy * iyy + mxz * iyz)
+        t6 = r * nx * nz + (nx * uz + nz * ux) + (mxx * ixz + mxy * iyz + mxz * izz)
+        t7 = r * ny * ny + (ny * uy + ny * uy) + (myx * ixy + myy * iyy + myz * iyz)
+        t8 = r * ny * nz + (ny * uz + nz * uy) + (myx * ixz + myy * iyz + myz * izz)
+        t9 = r * nz * nz + (nz * uz + nz * uz) + (mzx * ixz + mzy * iyz + mzz * izz)
     else:
         # beta^j S_ij, one row per i.
         qx = bx * sxx + by * sxy + bz * sxz
         qy = bx * sxy + by * syy + bz * syz
         qz = bx * sxz + by * syz + bz * szz
         beta_s = bx * sx + by * sy + bz * sz
-        T[0, n] = a * a * r - (a * beta_s + a * beta_s) + (bx * qx + by * qy + bz * qz)
-        T[1, n] = qx - a * sx
-        T[2, n] = qy - a * sy
-        T[3, n] = qz - a * sz
-        T[4, n] = sxx
-        T[5, n] = sxy
-        T[6, n] = sxz
-        T[7, n] = syy
-        T[8, n] = syz
-        T[9, n] = szz
+        t0 = a * a * r - (a * beta_s + a * beta_s) + (bx * qx + by * qy + bz * qz)
+        t1 = qx - a * sx
+        t2 = qy - a * sy
+        t3 = qz - a * sz
+        t4 = sxx
+        t5 = sxy
+        t6 = sxz
+        t7 = syy
+        t8 = syz
+        t9 = szz
+    T[0, n] = t0
+    T[1, n] = t1
+    T[2, n] = t2
+    T[3, n] = t3
+    T[4, n] = t4
+    T[5, n] = t5
+    T[6, n] = t6
+    T[7, n] = t7
+    T[8, n] = t8
+    T[9, n] = t9
+    total = (t0 + t1 + t2 + t3) + (t4 + t5 + t6 + t7 + t8 + t9)
+    valid = (point_is_valid(d1, d2, d3, total) & (a > 0)
+             & is_finite(a + bx + by + bz))
+    return valid, point_underflows(r, fields, tiny)
+
+
+@point_function
+def _flux_point(n, alpha, beta, gamma, gidx, E, B, out, form, coef, half, tiny):
+    """Write (sg rho, sg S_x, sg S_y, sg S_z, F^x, F^y, F^z) at point ``n``; return
+    (valid, underflows). The conserved densities and the energy flux density that the
+    integrals sum (F^i = sg (alpha S^i - beta^i rho))."""
+    gxx = gamma[gidx[0], n]
+    gxy = gamma[gidx[1], n]
+    gxz = gamma[gidx[2], n]
+    gyy = gamma[gidx[3], n]
+    gyz = gamma[gidx[4], n]
+    gzz = gamma[gidx[5], n]
+    one = half + half
+    d1, d2, d3, l21, l31, l32 = metric_factors(gxx, gxy, gxz, gyy, gyz, gzz, one)
+    sg = sqrt_determinant(d1, d2, d3)
+    fields = fields_both_indices(form, gxx, gxy, gxz, gyy, gyz, gzz, d1, d2, d3, l21, l31, l32,
+                                 E[0, n], E[1, n], E[2, n], B[0, n], B[1, n], B[2, n], one)
+    r, sx, sy, sz, _sxx, _sxy, _sxz, _syy, _syz, _szz, energy2 = projections(
+        gxx, gxy, gxz, gyy, gyz, gzz, sg, fields, coef, half)
+    ux, uy, uz = momentum_upper(sg, fields, coef)
+    a = alpha[n]
+    bx = beta[0, n]
+    by = beta[1, n]
+    bz = beta[2, n]
+    (fx, fy, fz, _m0, _m1, _m2, _m3, _m4, _m5, _m6, _m7, _m8) = energy_momentum_fluxes(
+        a, bx, by, bz, sg, r, sx, sy, sz, ux, uy, uz, fields, energy2, coef, half)
+    out[0, n] = sg * r
+    out[1, n] = sg * sx
+    out[2, n] = sg * sy
+    out[3, n] = sg * sz
+    out[4, n] = fx
+    out[5, n] = fy
+    out[6, n] = fz
+    total = sg * (r + sx + sy + sz) + (fx + fy + fz)
+    valid = (point_is_valid(d1, d2, d3, total) & (a > 0)
+             & is_finite(a + bx + by + bz))
+    return valid, point_underflows(r, fields, tiny)
 
 
 @grid_kernel
-def adm_sources_flat(gamma, gidx, E, B, rho, S_i, S_ij, S, coef, half, fields_lower, check):
-    """rho, S_i, S_ij, S over arrays of shape (ncomp, npoints); returns the bad-point count."""
+def adm_sources_flat(gamma, gidx, E, B, rho, S_i, S_ij, S, form, coef, half, tiny, check):
+    """rho, S_i, S_ij, S over arrays of shape (ncomp, npoints); returns the two counts."""
     bad_count = 0
+    underflow_count = 0
     for n in prange(rho.shape[0]):
-        _adm_point(n, gamma, gidx, E, B, rho, S_i, S_ij, S, coef, half, fields_lower)
+        valid, low = _adm_point(n, gamma, gidx, E, B, rho, S_i, S_ij, S, form, coef, half, tiny)
         if check:
-            bad_count += 0 if _spatial_inputs_valid(n, gamma, gidx, E, B) else 1
-    return bad_count
+            bad_count += 0 if valid else 1
+            underflow_count += 1 if low else 0
+    return bad_count, underflow_count
 
 
 @grid_kernel
-def adm_sources_grid(gamma, gidx, E, B, rho, S_i, S_ij, S, coef, half, fields_lower, check):
-    """rho, S_i, S_ij, S over strided (ncomp, nx, ny, nz) arrays; returns the bad-point count."""
+def adm_sources_grid(gamma, gidx, E, B, rho, S_i, S_ij, S, form, coef, half, tiny, check):
+    """rho, S_i, S_ij, S over strided (ncomp, nx, ny, nz) arrays; returns the two counts."""
     nx, ny, nz = rho.shape
     bad_count = 0
+    underflow_count = 0
     for column in prange(nx * ny):
         i = column // ny
         j = column - i * ny
@@ -235,30 +240,34 @@ def adm_sources_grid(gamma, gidx, E, B, rho, S_i, S_ij, S, coef, half, fields_lo
         s_ij_c = S_ij[:, i, j]
         s_c = S[i, j]
         for k in range(nz):
-            _adm_point(k, g_c, gidx, e_c, b_c, rho_c, s_i_c, s_ij_c, s_c,
-                       coef, half, fields_lower)
+            valid, low = _adm_point(k, g_c, gidx, e_c, b_c, rho_c, s_i_c, s_ij_c, s_c,
+                                    form, coef, half, tiny)
             if check:
-                bad_count += 0 if _spatial_inputs_valid(k, g_c, gidx, e_c, b_c) else 1
-    return bad_count
+                bad_count += 0 if valid else 1
+                underflow_count += 1 if low else 0
+    return bad_count, underflow_count
 
 
 @grid_kernel
-def stress_energy_flat(alpha, beta, gamma, gidx, E, B, T, coef, half, fields_lower, upper, check):
-    """Packed T_ab or T^ab over (ncomp, npoints) arrays; returns the bad-point count."""
+def stress_energy_flat(alpha, beta, gamma, gidx, E, B, T, form, coef, half, tiny, upper, check):
+    """Packed T_ab or T^ab over (ncomp, npoints) arrays; returns the two counts."""
     bad_count = 0
+    underflow_count = 0
     for n in prange(alpha.shape[0]):
-        _stress_energy_point(n, alpha, beta, gamma, gidx, E, B, T,
-                             coef, half, fields_lower, upper)
+        valid, low = _stress_energy_point(n, alpha, beta, gamma, gidx, E, B, T,
+                                          form, coef, half, tiny, upper)
         if check:
-            bad_count += 0 if _spacetime_inputs_valid(n, alpha, beta, gamma, gidx, E, B) else 1
-    return bad_count
+            bad_count += 0 if valid else 1
+            underflow_count += 1 if low else 0
+    return bad_count, underflow_count
 
 
 @grid_kernel
-def stress_energy_grid(alpha, beta, gamma, gidx, E, B, T, coef, half, fields_lower, upper, check):
-    """Packed T_ab or T^ab over strided (ncomp, nx, ny, nz) arrays; returns the bad-point count."""
+def stress_energy_grid(alpha, beta, gamma, gidx, E, B, T, form, coef, half, tiny, upper, check):
+    """Packed T_ab or T^ab over strided (ncomp, nx, ny, nz) arrays; returns the two counts."""
     nx, ny, nz = alpha.shape
     bad_count = 0
+    underflow_count = 0
     for column in prange(nx * ny):
         i = column // ny
         j = column - i * ny
@@ -269,44 +278,89 @@ def stress_energy_grid(alpha, beta, gamma, gidx, E, B, T, coef, half, fields_low
         b_c = B[:, i, j]
         t_c = T[:, i, j]
         for k in range(nz):
-            _stress_energy_point(k, a_c, beta_c, g_c, gidx, e_c, b_c, t_c,
-                                 coef, half, fields_lower, upper)
+            valid, low = _stress_energy_point(k, a_c, beta_c, g_c, gidx, e_c, b_c, t_c,
+                                              form, coef, half, tiny, upper)
             if check:
-                bad_count += 0 if _spacetime_inputs_valid(k, a_c, beta_c, g_c, gidx, e_c, b_c) else 1
-    return bad_count
+                bad_count += 0 if valid else 1
+                underflow_count += 1 if low else 0
+    return bad_count, underflow_count
+
+
+@grid_kernel
+def energy_fluxes_grid(alpha, beta, gamma, gidx, E, B, out, form, coef, half, tiny, check):
+    """(sg rho, sg S_i, F^i) over strided (ncomp, nx, ny, nz) arrays; returns the two counts.
+
+    Post-processing only (the integrals of a slab), so one strided driver serves every layout.
+    """
+    nx, ny, nz = alpha.shape
+    bad_count = 0
+    underflow_count = 0
+    for column in prange(nx * ny):
+        i = column // ny
+        j = column - i * ny
+        a_c = alpha[i, j]
+        beta_c = beta[:, i, j]
+        g_c = gamma[:, i, j]
+        e_c = E[:, i, j]
+        b_c = B[:, i, j]
+        o_c = out[:, i, j]
+        for k in range(nz):
+            valid, low = _flux_point(k, a_c, beta_c, g_c, gidx, e_c, b_c, o_c,
+                                     form, coef, half, tiny)
+            if check:
+                bad_count += 0 if valid else 1
+                underflow_count += 1 if low else 0
+    return bad_count, underflow_count
 
 
 @search_kernel
-def first_invalid_spatial(gamma, gidx, E, B):
-    """C-order flat index of the first invalid point of (ncomp, nx, ny, nz) arrays, or -1.
+def first_failing_adm(gamma, gidx, E, B, rho, S_i, S_ij, S, form, coef, half, tiny, underflow):
+    """C-order flat index of the first point of (ncomp, nx, ny, nz) arrays that fails the check
+    (``underflow`` False) or underflows (True), or -1.
 
-    Run only after a driver reported bad points: a min-reduction folded into the main pass
-    made it 2-3 times slower (measured), a separate search on the error path costs nothing.
+    Run only after a driver counted such points: a min-reduction folded into the main pass
+    made it 2-3 times slower (measured); this serial search on the error path re-evaluates
+    the same point function, so it applies exactly the driver's criterion. It rewrites the
+    outputs with the values the driver wrote there.
     """
-    nx, ny, nz = gamma.shape[1:]
+    nx, ny, nz = rho.shape
     for i in range(nx):
         for j in range(ny):
-            g_c = gamma[:, i, j]
-            e_c = E[:, i, j]
-            b_c = B[:, i, j]
             for k in range(nz):
-                if not _spatial_inputs_valid(k, g_c, gidx, e_c, b_c):
+                valid, low = _adm_point(k, gamma[:, i, j], gidx, E[:, i, j], B[:, i, j],
+                                        rho[i, j], S_i[:, i, j], S_ij[:, i, j], S[i, j],
+                                        form, coef, half, tiny)
+                if (low if underflow else not valid):
                     return (i * ny + j) * nz + k
     return -1
 
 
 @search_kernel
-def first_invalid_spacetime(alpha, beta, gamma, gidx, E, B):
-    """As :func:`first_invalid_spatial`, with the lapse and shift checked too."""
+def first_failing_stress_energy(alpha, beta, gamma, gidx, E, B, T, form, coef, half, tiny, upper,
+                                underflow):
+    """As :func:`first_failing_adm`, for the 4D components (lapse and shift checked too)."""
     nx, ny, nz = alpha.shape
     for i in range(nx):
         for j in range(ny):
-            a_c = alpha[i, j]
-            beta_c = beta[:, i, j]
-            g_c = gamma[:, i, j]
-            e_c = E[:, i, j]
-            b_c = B[:, i, j]
             for k in range(nz):
-                if not _spacetime_inputs_valid(k, a_c, beta_c, g_c, gidx, e_c, b_c):
+                valid, low = _stress_energy_point(k, alpha[i, j], beta[:, i, j], gamma[:, i, j],
+                                                  gidx, E[:, i, j], B[:, i, j], T[:, i, j],
+                                                  form, coef, half, tiny, upper)
+                if (low if underflow else not valid):
+                    return (i * ny + j) * nz + k
+    return -1
+
+
+@search_kernel
+def first_failing_flux(alpha, beta, gamma, gidx, E, B, out, form, coef, half, tiny, underflow):
+    """As :func:`first_failing_adm`, for :func:`energy_fluxes_grid`."""
+    nx, ny, nz = alpha.shape
+    for i in range(nx):
+        for j in range(ny):
+            for k in range(nz):
+                valid, low = _flux_point(k, alpha[i, j], beta[:, i, j], gamma[:, i, j], gidx,
+                                         E[:, i, j], B[:, i, j], out[:, i, j],
+                                         form, coef, half, tiny)
+                if (low if underflow else not valid):
                     return (i * ny + j) * nz + k
     return -1

@@ -98,7 +98,7 @@ def test_black_hole_output_with_nan_at_the_masked_centre_integrates(tmp_path, ca
     (result,) = integrals.integrate_snapshot(path, radii=(3.0,))
     # Independent sum over the valid points: rho from adm_sources, sqrt(gamma) from
     # numpy.linalg.det of the full 3x3 metric, trapezoid weights, math.fsum. The two routes
-    # differ by a few roundings per term (determinant by LU instead of cofactors, condition
+    # differ by a few roundings per term (determinant by LU instead of L D L^T, condition
     # number of gamma below 3 outside the horizon): 1e-12 relative is ample.
     grid = level["grid"]
     g = level["spatial_metric"][:, valid]

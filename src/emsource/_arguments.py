@@ -10,6 +10,7 @@ from __future__ import annotations
 import numpy as np
 
 from .errors import GridPointError
+from .input_forms import FORMS
 
 #: Flat indices, into a full (3, 3) block seen as 9, of the packed (xx, xy, xz, yy, yz, zz).
 FULL_METRIC_INDEX = (0, 1, 2, 4, 5, 8)
@@ -23,7 +24,8 @@ def _owner(a: np.ndarray):
 
 
 LAYOUTS = ("component_first", "component_last")
-FIELD_INDICES = ("upper", "lower")
+#: Values of the ``field_index`` option: the names of the input forms.
+FIELD_INDICES = tuple(FORMS)
 FLOAT_DTYPES = (np.dtype(np.float32), np.dtype(np.float64))
 
 
@@ -163,7 +165,27 @@ def outputs(function: str, names: tuple, values: tuple, shapes: tuple, component
                     )
         views.append(value if ncomp == 0 or layout == "component_first"
                      else component_first(value, ncomp, layout))
+    _outputs_apart(function, names, values)
     return views
+
+
+def _outputs_apart(function: str, names: tuple, values: tuple) -> None:
+    """Raise if two output arrays share memory (S_i a view into S_ij): the kernel would write
+    one over the other. Arrays that own their memory, each its own, are apart by construction;
+    anything else goes to ``np.may_share_memory`` (bounds only: no false negatives)."""
+    owners = [_owner(v) for v in values]
+    for m in range(len(values)):
+        for n in range(m):
+            if owners[m] is not None and owners[n] is not None and owners[m] is not owners[n]:
+                continue
+            if np.may_share_memory(values[m], values[n]):
+                raise ValueError(f"{function}: out {names[m]} overlaps out {names[n]}; "
+                                 "each output needs memory of its own")
+
+
+def has_points(grid) -> bool:
+    """False for a grid with a zero-length axis: nothing to compute, empty results."""
+    return all(n > 0 for n in grid)
 
 
 def kernel_views(arrays, grid):
@@ -230,13 +252,24 @@ def point_mask(function: str, mask, grid) -> np.ndarray:
     return m.astype(bool, copy=False)
 
 
+def metric_pivots(g):
+    """Pivots (d1, d2, d3) of gamma = L D L^T from the six packed components ``g`` (arrays or
+    scalars): the criterion of the kernels (:mod:`emsource.kernels.metric`), where gamma is
+    positive definite exactly when all three are positive (NaN fails)."""
+    with np.errstate(all="ignore"):
+        d1 = g[0]
+        d2 = g[3] - g[1] * g[1] / d1
+        d3 = g[5] - g[2] * g[2] / d1 - (g[4] - g[2] * g[1] / d1) ** 2 / d2
+    return d1, d2, d3
+
+
 def check_points(function: str, grid, named: dict, *, valid=None, lapse=None, metric=None):
     """Raise :class:`emsource.GridPointError` at the first bad valid point, else return.
 
     ``named`` maps argument names to component-first arrays on ``grid`` (scalars of shape
     ``grid``) that must be finite; ``lapse`` names an entry of ``named`` that must be positive;
     ``metric`` is ``(name, array, six indices)`` of a symmetric tensor that must be positive
-    definite (Sylvester's criterion on the leading minors). Only points where ``valid`` is True
+    definite (:func:`metric_pivots` all positive, the kernels' criterion). Only points where ``valid`` is True
     are looked at (all when None). This is a NumPy pass over the arrays: callers run it where a
     check is asked for, or on an error path.
     """
@@ -258,11 +291,8 @@ def check_points(function: str, grid, named: dict, *, valid=None, lapse=None, me
     if metric is not None:
         mname, m, index = metric
         g = [np.asarray(m).reshape((-1,) + grid)[c] for c in index]
-        with np.errstate(invalid="ignore", over="ignore"):
-            minor = g[0] * g[3] - g[1] * g[1]
-            det = (g[0] * (g[3] * g[5] - g[4] ** 2) + g[1] * (g[2] * g[4] - g[1] * g[5])
-                   + g[2] * (g[1] * g[4] - g[2] * g[3]))
-            bad |= ~((g[0] > 0) & (minor > 0) & (det > 0))
+        d1, d2, d3 = metric_pivots(g)
+        bad |= ~((d1 > 0) & (d2 > 0) & (d3 > 0))
     bad &= where
     count = int(np.count_nonzero(bad))
     if count == 0:

@@ -42,7 +42,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from . import _arguments as args
-from . import adm_sources
+from .energy_flux import energy_fluxes
 from .reductions import LevelPartial, Sum, combine
 from .snapshot import CHUNK_CACHE_BYTES, SnapshotError, open_snapshot
 from .snapshot.slabs import (CONVERSION_BUFFER_BYTES, DEFAULT_MEMORY_LIMIT, SlabBuffers,
@@ -228,38 +228,16 @@ def _trapezoid(n, h):
     return w
 
 
-def _geometry(gamma, lapse, shift, rho, S_i):
-    """sqrt(gamma) and F^i = sqrt(gamma) (alpha gamma^ij S_j - rho beta^i)."""
-    gxx, gxy, gxz, gyy, gyz, gzz = gamma
-    cxx = gyy * gzz - gyz * gyz
-    cxy = gxz * gyz - gxy * gzz
-    cxz = gxy * gyz - gxz * gyy
-    det = gxx * cxx + gxy * cxy + gxz * cxz
-    cyy = gxx * gzz - gxz * gxz
-    cyz = gxy * gxz - gxx * gyz
-    czz = gxx * gyy - gxy * gxy
-    sqrtg = np.sqrt(det)
-    # gamma^ij S_j = cofactor S / det
-    up = np.stack([cxx * S_i[0] + cxy * S_i[1] + cxz * S_i[2],
-                   cxy * S_i[0] + cyy * S_i[1] + cyz * S_i[2],
-                   cxz * S_i[0] + cyz * S_i[1] + czz * S_i[2]]) / det
-    up *= lapse
-    up -= rho * shift
-    up *= sqrtg
-    return sqrtg, up
-
-
 def _flux_densities(alpha, beta, gamma, E, B, *, units):
     """(sqrt(gamma) rho, sqrt(gamma) S_i, F^i) at every point of a slab (inputs checked here).
 
-    The one place the integrals evaluate the densities: F^i = sqrt(gamma) (alpha S^i - rho
-    beta^i), from :func:`emsource.adm_sources` and the NumPy :func:`_geometry`. Raises
-    :class:`emsource.GridPointError` for non-finite gamma, E, B or a metric that is not
-    positive definite (the lapse and shift are checked by the caller).
+    The one place the integrals evaluate the densities, F^i = sqrt(gamma) (alpha S^i - rho
+    beta^i), through :func:`emsource.energy_flux.energy_fluxes` (one kernel pass). Raises
+    :class:`emsource.GridPointError` for non-finite input, a metric that is not positive
+    definite or a lapse that is not positive.
     """
-    src = adm_sources(gamma, E, B, units=units)
-    sqrtg, flux = _geometry(gamma, alpha, beta, src.rho, src.S_i)
-    return src.rho * sqrtg, src.S_i * sqrtg, flux
+    fluxes = energy_fluxes(alpha, beta, gamma, E, B, units=units)
+    return fluxes.energy, fluxes.momentum, fluxes.flux
 
 
 def _harmless(arrays, valid, in_place):

@@ -13,6 +13,8 @@ import numpy as np
 
 from . import _arguments as arg
 from .errors import GridPointError
+from .input_forms import input_form
+from ._threading import kernel_call
 from .kernels import sources as kernels
 from .unit_systems import stress_energy_prefactor
 
@@ -44,51 +46,95 @@ class AdmSources(NamedTuple):
     S: np.ndarray
 
 
-def _describe_bad_point(named_values: dict) -> str:
-    """Why the point checks failed, from the input values at one grid point."""
+def _named_values(names, arrays, index):
+    """{name: values at ``index``} of (ncomp, nx, ny, nz) or (nx, ny, nz) kernel views."""
+    return {name: a[(slice(None),) + index] if a.ndim == 4 else a[index]
+            for name, a in zip(names, arrays)}
+
+
+def describe_bad_point(named_values: dict, dtype) -> str:
+    """Why the point checks failed, from the input values at one grid point.
+
+    The kernels reject a point when an input is not finite, the lapse (if given) is not
+    positive, a pivot of gamma = L D L^T is not positive, or an output is not finite although
+    every input is (overflow). This names the first of these that holds.
+    """
     problems = []
     for name, values in named_values.items():
         values = np.atleast_1d(values)
-        bad = [f"{name}[{c}] = {v}" if values.size > 1 else f"{name} = {v}"
-               for c, v in enumerate(values) if not np.isfinite(v)]
-        problems.extend(bad)
+        problems.extend(f"{name}[{c}] = {v}" if values.size > 1 else f"{name} = {v}"
+                        for c, v in enumerate(values) if not np.isfinite(v))
     if problems:
         return "non-finite value(s): " + ", ".join(problems)
     if "alpha" in named_values and not named_values["alpha"] > 0:
         return f"lapse alpha = {named_values['alpha']} is not positive"
-    g = named_values["gamma"]
-    matrix = np.array([[g[0], g[1], g[2]], [g[1], g[3], g[4]], [g[2], g[4], g[5]]], dtype=float)
-    eigenvalues = np.linalg.eigvalsh(matrix)
-    if eigenvalues[0] <= 0:
-        return f"spatial metric gamma is not positive definite (eigenvalues {eigenvalues})"
-    return "inputs so large that their sum overflows the floating-point range"
+    g = np.asarray(named_values["gamma"], dtype=dtype)
+    d1, d2, d3 = arg.metric_pivots(g)
+    if not (d1 > 0 and d2 > 0 and d3 > 0):
+        matrix = np.array([[g[0], g[1], g[2]], [g[1], g[3], g[4]], [g[2], g[4], g[5]]], float)
+        eigenvalues = np.linalg.eigvalsh(matrix)
+        what = ("not positive definite" if eigenvalues[0] <= 0 else
+                f"not positive definite in {np.dtype(dtype).name} (condition number "
+                f"{eigenvalues[-1] / eigenvalues[0]:.3g}, beyond 1/eps)")
+        return (f"spatial metric gamma is {what} (eigenvalues {eigenvalues}; pivots of "
+                f"gamma = L D L^T: {float(d1):.6g}, {float(d2):.6g}, {float(d3):.6g})")
+    size = max(float(np.max(np.abs(named_values[name]))) for name in ("E", "B"))
+    info = np.finfo(dtype)
+    return (f"the outputs overflow the {info.dtype.name} range (largest finite {info.max:.3g}) "
+            f"for fields of size {size:.3g}: rescale the fields (a larger unit) or use float64")
 
 
-def _raise_bad_points(function, bad_count, grid, flat, alpha, beta, gamma, gidx, E, B):
-    """Find the first bad point (a serial search, run only on this error path) and raise."""
-    if alpha is None:
-        g4, e4, b4 = arg.as_grid_views([gamma, E, B], flat)
-        first = kernels.first_invalid_spatial(g4, gidx, e4, b4)
-    else:
-        a4, be4, g4, e4, b4 = arg.as_grid_views([alpha, beta, gamma, E, B], flat)
-        first = kernels.first_invalid_spacetime(a4, be4, g4, gidx, e4, b4)
+def describe_underflow(named_values: dict, dtype) -> str:
+    """Why underflowing energy densities are an error, and what to do."""
+    size = max(float(np.max(np.abs(named_values[name]))) for name in ("E", "B"))
+    info = np.finfo(dtype)
+    return (f"fields of size {size:.3g} give an energy density below the smallest normal "
+            f"{info.dtype.name} ({info.tiny:.3g}), and no point of the grid has one above "
+            f"{info.tiny / info.eps:.3g}: the results have lost their digits. Rescale the "
+            "fields (a smaller unit), or use float64")
+
+
+def raise_for_counts(function, counts, grid, dtype, search, search_arguments, names, views,
+                     outputs, gidx):
+    """Raise :class:`GridPointError` for what the kernel counted, else return.
+
+    ``counts`` is the kernel's (bad points, underflowing points); ``search(*search_arguments,
+    underflow)`` finds the first such point in the (ncomp, nx, ny, nz) ``views`` (named
+    ``names``; ``gidx`` the six components of the metric). Underflowing points are an error only where they matter: when no output of the
+    grid is above tiny / eps, so that the lost values are not negligible next to the largest
+    one (a Gaussian tail that underflows is harmless).
+    """
+    bad_count, underflow_count = counts
+    if not bad_count and not underflow_count:
+        return
+    info = np.finfo(dtype)
+    if not bad_count:
+        largest = max((float(np.max(np.abs(a))) if a.size else 0.0) for a in outputs)
+        if largest >= info.tiny / info.eps:
+            return
+    underflow = not bad_count
+    first = search(*search_arguments, underflow)
+    npoints = int(np.prod(grid))
+    count = underflow_count if underflow else bad_count
+    if first < 0:  # not found again: only if re-evaluation rounds differently at a borderline point
+        raise GridPointError(function, count, npoints, None, "a borderline value (see the count)")
+    index4 = tuple(int(i) for i in np.unravel_index(first, views[0].shape[-3:]))
     index = tuple(int(i) for i in np.unravel_index(first, grid))
-    i, j, k = np.unravel_index(first, g4.shape[1:])
-    values = {"gamma": g4[list(gidx), i, j, k], "E": e4[:, i, j, k], "B": b4[:, i, j, k]}
-    if alpha is not None:
-        values = {"alpha": a4[i, j, k], "beta": be4[:, i, j, k], **values}
-    raise GridPointError(function, bad_count, int(np.prod(grid)), index, _describe_bad_point(values))
+    values = _named_values(names, views, index4)
+    values["gamma"] = values["gamma"][list(gidx)]  # packed (xx, xy, xz, yy, yz, zz)
+    reason = describe_underflow(values, dtype) if underflow else describe_bad_point(values, dtype)
+    raise GridPointError(function, count, npoints, index, reason)
 
 
 def _common_inputs(function, gamma, E, B, units, field_index, layout):
-    """Checked, component-first views of gamma, E, B and the scalar constants of the kernel."""
+    """Checked, component-first views of gamma, E, B, the input form and the prefactor."""
     arg.choice(function, "layout", layout, arg.LAYOUTS)
-    arg.choice(function, "field_index", field_index, arg.FIELD_INDICES)
+    form = input_form(function, field_index)
     grid = arg.grid_of(function, "E", E, layout)
     metric, gidx = arg.spatial_metric(function, gamma, grid, layout)
     e = arg.vector(function, "E", E, grid, layout)
     b = arg.vector(function, "B", B, grid, layout)
-    return grid, metric, gidx, e, b, stress_energy_prefactor(units), field_index == "lower"
+    return grid, metric, gidx, e, b, stress_energy_prefactor(units), form.code
 
 
 def adm_sources(gamma, E, B, *, units="gaussian", field_index="upper",
@@ -164,7 +210,7 @@ def adm_sources(gamma, E, B, *, units="gaussian", field_index="upper",
     (True, True)
     """
     function = "adm_sources"
-    grid, metric, gidx, e, b, prefactor, fields_lower = _common_inputs(
+    grid, metric, gidx, e, b, prefactor, form = _common_inputs(
         function, gamma, E, B, units, field_index, layout)
     dtype = arg.common_dtype(function, ("gamma", "E", "B"), (gamma, E, B))
     if out is None:
@@ -184,12 +230,18 @@ def adm_sources(gamma, E, B, *, units="gaussian", field_index="upper",
             function, AdmSources._fields, result,
             (grid, arg.shape_for(grid, (3,), layout), arg.shape_for(grid, (6,), layout), grid),
             (0, 1, 1, 0), dtype, layout, ("gamma", "E", "B"), (gamma, E, B))
+    if not arg.has_points(grid):
+        return result
     (g, ev, bv, rho, s_i, s_ij, s), flat = arg.kernel_views([metric, e, b] + views, grid)
     driver = kernels.adm_sources_flat if flat else kernels.adm_sources_grid
-    bad_count = driver(g, gidx, ev, bv, rho, s_i, s_ij, s,
-                       dtype.type(prefactor), dtype.type(0.5), fields_lower, bool(check))
-    if bad_count:
-        _raise_bad_points(function, bad_count, grid, flat, None, None, g, gidx, ev, bv)
+    constants = (form, dtype.type(prefactor), dtype.type(0.5), np.finfo(dtype).tiny)
+    with kernel_call():
+        counts = driver(g, gidx, ev, bv, rho, s_i, s_ij, s, *constants, bool(check))
+        if counts[0] or counts[1]:
+            grid_views = arg.as_grid_views([g, ev, bv, rho, s_i, s_ij, s], flat)
+            raise_for_counts(function, counts, grid, dtype, kernels.first_failing_adm,
+                             (grid_views[0], gidx, *grid_views[1:], *constants),
+                             ("gamma", "E", "B"), grid_views[:3], grid_views[3:], gidx)
     return result
 
 
@@ -240,7 +292,7 @@ def stress_energy_4d(alpha, beta, gamma, E, B, *, units="gaussian", index="lower
     """
     function = "stress_energy_4d"
     arg.choice(function, "index", index, ("lower", "upper"))
-    grid, metric, gidx, e, b, prefactor, fields_lower = _common_inputs(
+    grid, metric, gidx, e, b, prefactor, form = _common_inputs(
         function, gamma, E, B, units, field_index, layout)
     lapse = arg.scalar(function, "alpha", alpha, grid)
     shift = arg.vector(function, "beta", beta, grid, layout)
@@ -254,10 +306,17 @@ def stress_energy_4d(alpha, beta, gamma, E, B, *, units="gaussian", index="lower
     else:
         result = out
         (t_view,) = arg.outputs(function, ("",), (out,), (shape,), (1,), dtype, layout, names, inputs)
+    if not arg.has_points(grid):
+        return result
     (a, be, g, ev, bv, t), flat = arg.kernel_views([lapse, shift, metric, e, b, t_view], grid)
     driver = kernels.stress_energy_flat if flat else kernels.stress_energy_grid
-    bad_count = driver(a, be, g, gidx, ev, bv, t, dtype.type(prefactor), dtype.type(0.5),
-                       fields_lower, index == "upper", bool(check))
-    if bad_count:
-        _raise_bad_points(function, bad_count, grid, flat, a, be, g, gidx, ev, bv)
+    constants = (form, dtype.type(prefactor), dtype.type(0.5), np.finfo(dtype).tiny,
+                 index == "upper")
+    with kernel_call():
+        counts = driver(a, be, g, gidx, ev, bv, t, *constants, bool(check))
+        if counts[0] or counts[1]:
+            views = arg.as_grid_views([a, be, g, ev, bv, t], flat)
+            raise_for_counts(function, counts, grid, dtype, kernels.first_failing_stress_energy,
+                             (views[0], views[1], views[2], gidx, views[3], views[4], views[5],
+                              *constants), names, views[:5], views[5:], gidx)
     return result
