@@ -144,6 +144,7 @@ def outputs(function: str, names: tuple, values: tuple, shapes: tuple, component
     over foreign buffers) goes to ``np.may_share_memory``.
     """
     input_owners = [_owner(a) for a in inputs]
+    output_owners = []
     views = []
     for name, value, shape, ncomp in zip(names, values, shapes, component_axes):
         if not isinstance(value, np.ndarray):
@@ -156,6 +157,7 @@ def outputs(function: str, names: tuple, values: tuple, shapes: tuple, component
         if not value.flags.writeable:
             raise ValueError(f"{function}: out {name} is read-only")
         owner = _owner(value)
+        output_owners.append(owner)
         if owner is None or any(o is None or o is owner for o in input_owners):
             for input_name, a in zip(input_names, inputs):
                 if np.may_share_memory(value, a):
@@ -165,15 +167,18 @@ def outputs(function: str, names: tuple, values: tuple, shapes: tuple, component
                     )
         views.append(value if ncomp == 0 or layout == "component_first"
                      else component_first(value, ncomp, layout))
-    _outputs_apart(function, names, values)
+    if len(values) > 1:
+        _outputs_apart(function, names, values, output_owners)
     return views
 
 
-def _outputs_apart(function: str, names: tuple, values: tuple) -> None:
+def _outputs_apart(function: str, names: tuple, values: tuple, owners: list) -> None:
     """Raise if two output arrays share memory (S_i a view into S_ij): the kernel would write
-    one over the other. Arrays that own their memory, each its own, are apart by construction;
-    anything else goes to ``np.may_share_memory`` (bounds only: no false negatives)."""
-    owners = [_owner(v) for v in values]
+    one over the other. Arrays that own their memory, each its own, are apart by construction
+    (the common case, decided without a pairwise test); anything else goes to
+    ``np.may_share_memory`` (bounds only: no false negatives)."""
+    if all(o is not None for o in owners) and len({id(o) for o in owners}) == len(owners):
+        return
     for m in range(len(values)):
         for n in range(m):
             if owners[m] is not None and owners[n] is not None and owners[m] is not owners[n]:
@@ -183,9 +188,21 @@ def _outputs_apart(function: str, names: tuple, values: tuple) -> None:
                                  "each output needs memory of its own")
 
 
+_SMALLEST_NORMAL = {dtype: dtype.type(np.finfo(dtype).tiny) for dtype in FLOAT_DTYPES}
+
+
+def smallest_normal(dtype):
+    """The smallest normal number of ``dtype`` (float32 or float64), as a scalar of that dtype.
+
+    The kernels compare energy densities with it to detect underflow; a table lookup, because
+    ``np.finfo`` costs a few tenths of a microsecond on every call of an evolution loop.
+    """
+    return _SMALLEST_NORMAL[dtype]
+
+
 def has_points(grid) -> bool:
     """False for a grid with a zero-length axis: nothing to compute, empty results."""
-    return all(n > 0 for n in grid)
+    return 0 not in grid
 
 
 def kernel_views(arrays, grid):
