@@ -7,8 +7,8 @@ term by term against a slow NumPy reference built on :func:`emsource.adm_sources
 
 How the convergence tolerances are derived: a centred difference of order p has truncation
 error C h^p (1 + O(h^2)), so the order observed between two grids h1 > h2 is
-p + O(h1^2) deviation; on the grids used here (>= 11 points per wavelength) the deviation measured
-in development was below 0.15, and the issue asks for 0.3. An order counts only where the finest
+p + O(h1^2) deviation; on the grids used here (>= 11 points per wavelength) the measured deviation
+is below 0.15, so the tolerance 0.3 leaves a margin of two. An order counts only where the finest
 normalised residual is far above float64 round-off of the largest term (~1e-13, trap 2 of
 /work/shared/testing-notes.md): asserted as > 1e-10.
 """

@@ -114,7 +114,7 @@ def run(args) -> int:
                 for sources, style in (("gaussian", "-o"), ("vacuum", ":x")):
                     sel = [r for r in rows if r[0] == order and r[1] == sources]
                     label = (f"order {order}, " +
-                             ("EM sources (Gaussian)" if sources == "gaussian" else "vacuum: no EM sources"))
+                             ("EM sources (Gaussian)" if sources == "gaussian" else "no EM sources"))
                     ax.loglog([r[3] for r in sel], [r[column] for r in sel], style,
                               color=colours[order], label=label)
                 sel = [r for r in rows if r[0] == order and r[1] == "gaussian"]
