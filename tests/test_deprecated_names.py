@@ -236,3 +236,11 @@ def test_sources_none_is_vacuum(tmp_path, capsys):
         build_parser().parse_args(["constraints", "--help"])
     help_text = capsys.readouterr().out
     assert "{file,gaussian,heaviside_lorentz,vacuum}" in help_text and ",none" not in help_text
+
+
+def test_a_bad_valid_mask_is_named_by_its_new_name(hole):
+    # The error names the keyword the caller is told to use, whichever spelling was given.
+    with pytest.raises(ValueError, match=r"adm_constraints: valid_mask must be a bool \(or integer\) "
+                                         r"array of shape \(11, 11, 11\), found float64 of shape \(11, 11, 11\)"):
+        constraints.adm_constraints(hole.gamma, hole.K, spacing=BOX.spacing, order=2,
+                                    valid_mask=np.ones(BOX.shape))

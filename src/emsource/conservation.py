@@ -410,7 +410,7 @@ def conservation_residual(alpha, beta, gamma, K, E, B, *, spacing, order=4, unit
     Returns
     -------
     ConservationResidual
-        Residual and scale on the full grid (NaN on the boundary layer), interior mask, norms.
+        Residual and scale on the full grid (NaN outside the interior), ``interior``, norms.
         Grid axes of length 1 have no extent: no derivative is taken along them and they have
         no boundary layer, so 1D and 2D problems run on (n,), (nx, ny) or (nx, ny, 1) grids.
 
