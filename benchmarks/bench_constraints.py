@@ -18,7 +18,7 @@ import time
 
 import numpy as np
 
-from emsource.constraints import _SYM, adm_constraints, evaluable_points
+from emsource.constraints import _SYM, adm_constraints, interior_points
 from emsource.exact import kerr_newman
 from emsource.grid import UniformGrid
 from emsource.kernels._compile import grid_kernel
@@ -135,7 +135,7 @@ def main():
     src_rho[...] = s.rho
     src_S[...] = s.S_i
     for order in (2, 4, 6):
-        ev = evaluable_points(np.ones(grid.shape, dtype=bool), order).view(np.uint8)
+        ev = interior_points(np.ones(grid.shape, dtype=bool), order).view(np.uint8)
         outs = (np.empty(grid.shape), np.empty((3,) + grid.shape), np.empty(grid.shape),
                 np.empty((3,) + grid.shape))
         w1, w2 = first_derivative_weights(order), second_derivative_weights(order)

@@ -27,7 +27,7 @@ from __future__ import annotations
 import numpy as np
 from scipy.special import erf
 
-from emsource.exact import SliceFields
+from emsource.exact import TimeLevelFields
 from emsource.grid import UniformGrid
 
 FLAT = np.array([1.0, 0.0, 0.0, 1.0, 0.0, 1.0])
@@ -79,7 +79,7 @@ def plane_wave(grid, t, k=K_OBLIQUE, pol=POL_Z, amplitude=1.0):
     E, B, dE, dB = wave_fields(x, y, z, t, k, pol, amplitude)
     alpha, beta, gamma, K = _flat_geometry(grid.shape)
     rho_e, j = _no_charges(grid.shape)
-    return SliceFields(grid, t, alpha, beta, gamma, K, E, B, rho_e, j, "gaussian",
+    return TimeLevelFields(grid, t, alpha, beta, gamma, K, E, B, rho_e, j, "gaussian",
                        dE, dB, np.zeros((6,) + grid.shape))
 
 
@@ -94,7 +94,7 @@ def moving_frame_wave(grid, t, V=(0.3, -0.2, 0.1), k=K_OBLIQUE, pol=POL_Z):
     alpha, beta, gamma, K = _flat_geometry(grid.shape)
     beta[:] = V.reshape((3,) + (1,) * grid.ndim)
     rho_e, j = _no_charges(grid.shape)
-    return SliceFields(grid, t, alpha, beta, gamma, K, E, B, rho_e, j, "gaussian",
+    return TimeLevelFields(grid, t, alpha, beta, gamma, K, E, B, rho_e, j, "gaussian",
                        dE * ratio, dB * ratio, np.zeros((6,) + grid.shape))
 
 
@@ -125,7 +125,7 @@ def distorted_wave(grid, t, eps=0.04, k=K_OBLIQUE, pol=POL_Z):
     beta = np.zeros((3,) + grid.shape)
     K = np.zeros((6,) + grid.shape)
     rho_e, j = _no_charges(grid.shape)
-    return SliceFields(grid, t, alpha, beta, gamma, K, to_grid(Ec), to_grid(Bc), rho_e, j,
+    return TimeLevelFields(grid, t, alpha, beta, gamma, K, to_grid(Ec), to_grid(Bc), rho_e, j,
                        "gaussian", to_grid(dEc), to_grid(dBc), np.zeros((6,) + grid.shape))
 
 
@@ -161,7 +161,7 @@ def boosted_charge(grid, t, q=1.0, sigma=0.35, v=(0.4, 0.3, 0.2), centre=(0.013,
     step = 1e-20
     Ec, Bc, _, _ = _boosted_charge_values(x, y, z, t + 1j * step, q, sigma, v, centre)
     alpha, beta, gamma, K = _flat_geometry(grid.shape)
-    return SliceFields(grid, t, alpha, beta, gamma, K, E, B, rho_e, j, "gaussian",
+    return TimeLevelFields(grid, t, alpha, beta, gamma, K, E, B, rho_e, j, "gaussian",
                        Ec.imag / step, Bc.imag / step, np.zeros((6,) + grid.shape))
 
 

@@ -72,7 +72,7 @@ def interior(f, r, skip=None):
 
 
 def maxwell_residuals(data, order, *, kappa=None):
-    """Residuals of the four 3+1 Maxwell equations for SliceFields `data` on a 3D grid.
+    """Residuals of the four 3+1 Maxwell equations for TimeLevelFields `data` on a 3D grid.
 
     Returns a dict name -> (residual, scale): residual on the interior points (boundary width
     order/2), scale the largest magnitude of any single term of that equation there, for
@@ -183,7 +183,7 @@ def observed_order(errors, refinement=2.0):
 def residual_convergence(make_data, order, sizes=(12, 24, 48)):
     """Normalised max residuals of each equation at each size, and the observed orders.
 
-    make_data(n) must return SliceFields on a 3D grid with spacing proportional to 1/n.
+    make_data(n) must return TimeLevelFields on a 3D grid with spacing proportional to 1/n.
     Returns name -> (errors, orders).
     """
     errors = {}
@@ -197,7 +197,7 @@ def residual_convergence(make_data, order, sizes=(12, 24, 48)):
 def time_derivative_errors(make_at_time, t, steps=(2e-3, 1e-3)):
     """Max errors of the supplied dt_E, dt_B, dt_gamma against centred time differences.
 
-    make_at_time(t) returns SliceFields. Returns name -> (errors per step, scale), scale the max
+    make_at_time(t) returns TimeLevelFields. Returns name -> (errors per step, scale), scale the max
     magnitude of the supplied derivative. The centred difference has error dt^2 f'''/6, so the
     errors fall by 4 per halving of dt (order 2) until round-off ~ eps |f| / dt takes over.
     """

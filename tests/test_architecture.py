@@ -21,7 +21,7 @@ LAYERS = (
     ("kernels", ("emsource.kernels",)),
     ("foundation", ("emsource._arguments", "emsource.errors", "emsource.grid", "emsource.unit_systems",
                     "emsource.quantities", "emsource.input_forms", "emsource._threading",
-                    "emsource.interruption")),
+                    "emsource.interruption", "emsource._deprecated_names")),
     ("point physics", ("emsource.sources", "emsource.energy_flux", "emsource.reductions",
                        "emsource.physical_units")),
     ("package root", ("emsource",)),

@@ -32,7 +32,7 @@ def test_black_hole_file_matches_the_python_data(tmp_path):
     assert np.array_equal(level["spatial_metric"], d.gamma)
     assert np.array_equal(level["extrinsic_curvature"], d.K)
     assert np.array_equal(level["electric_field"], d.E)
-    assert np.array_equal(level["valid_mask"].astype(bool), d.mask)
+    assert np.array_equal(level["valid_mask"].astype(bool), d.valid_mask)
     assert np.allclose(level["grid"].spacing, grid.spacing, rtol=1e-15)
     assert level["units"] == "gaussian"
     with h5py.File(path, "r") as f:
@@ -46,10 +46,10 @@ def test_constraints_command(tmp_path, capsys):
     path = _write(tmp_path, "kn.h5")
     # Gaussian sources: normalised residual ~1e-6 at h = 1/20 (order 4); without sources ~4e-2.
     assert main(["constraints", path, "--tolerance", "1e-4"]) == commands.EXIT_OK
-    assert main(["constraints", path, "--sources", "none", "--tolerance", "1e-4"]) \
+    assert main(["constraints", path, "--sources", "vacuum", "--tolerance", "1e-4"]) \
         == commands.EXIT_CHECK_FAILED
     out = capsys.readouterr().out
-    assert "hamiltonian" in out and "sources none" in out
+    assert "hamiltonian" in out and "sources vacuum" in out
     assert main(["constraints", str(tmp_path / "missing.h5")]) == commands.EXIT_BAD_INPUT
 
 
@@ -81,7 +81,7 @@ def test_constraint_convergence_command_table_and_plot(tmp_path, capsys):
     rows = [line.split(",") for line in capsys.readouterr().out.splitlines()
             if line.startswith("4,")]
     with_em = [float(r[4]) for r in rows if r[1] == "gaussian"]
-    without = [float(r[4]) for r in rows if r[1] == "none"]
+    without = [float(r[4]) for r in rows if r[1] == "vacuum"]
     assert with_em[0] / with_em[1] > 2.5
     assert abs(without[0] / without[1] - 1.0) < 0.1
     assert png.stat().st_size > 10_000 and png.read_bytes()[:4] == b"\x89PNG"
@@ -105,14 +105,14 @@ def test_committed_sample_grid_is_what_the_tool_writes():
         # leaves room for another CPU's rounding in NumPy's summation loops.
         assert level[name].dtype == np.float32
         assert np.allclose(level[name], getattr(d, attr), rtol=1.2e-7, atol=1e-12), name
-    assert np.array_equal(level["valid_mask"].astype(bool), d.mask)
+    assert np.array_equal(level["valid_mask"].astype(bool), d.valid_mask)
     with h5py.File(path, "r") as f:
         assert (f.attrs["mass"], f.attrs["spin"], f.attrs["charge"]) == (1.0, 0.7, 0.4)
     # float32 storage adds ~6e-8 * 5.3 / h^2 = 2e-6 to R at h = 0.39, far below the order-4
     # truncation error there (~3e-4), so the audit still sees order-4 convergence.
     audit = audit_units(level["spatial_metric"], level["extrinsic_curvature"],
                         level["electric_field"], level["magnetic_field"],
-                        spacing=level["grid"].spacing, mask=d.mask)
+                        spacing=level["grid"].spacing, valid_mask=d.valid_mask)
     assert audit.verdict == "gaussian"
 
 

@@ -112,7 +112,7 @@ def test_black_hole_output_with_nan_at_the_masked_centre_integrates(tmp_path, ca
     cell = (weights[0][:, None, None] * weights[1][None, :, None] * weights[2][None, None, :])[valid]
     expected = math.fsum((rho * np.sqrt(np.linalg.det(full)) * cell).tolist())
     assert result.energy == pytest.approx(expected, rel=1e-12)
-    assert result.excluded_points == int((~valid).sum()) > 0 and np.isfinite(result.luminosity[3.0])
+    assert result.excised_points == int((~valid).sum()) > 0 and np.isfinite(result.luminosity[3.0])
 
 
 @pytest.mark.parametrize("bad, reason", [(np.nan, "non-finite"), (-0.5, "is not positive")])
@@ -141,3 +141,30 @@ def test_memory_limit_that_is_not_a_sensible_number_is_a_usage_error(dipole, lim
         main(["integrate", str(dipole), "--memory-limit", limit, "--quiet"])
     assert stop.value.code == 2
     assert "memory limit must be" in capsys.readouterr().err
+
+
+def test_integrate_opens_the_snapshot_once(dipole, monkeypatch, capsys):
+    # Every way of reading an HDF5 file ends in h5py.File; count the opens of the input.
+    opened = []
+    real_file = h5py.File
+
+    def counting_file(name, *args, **kwargs):
+        opened.append(str(name))
+        return real_file(name, *args, **kwargs)
+
+    monkeypatch.setattr(h5py, "File", counting_file)
+    assert main(["integrate", str(dipole), "--radius", "1.5", "--levels", "1", "--quiet"]) == EXIT_OK
+    assert opened == [str(dipole)]
+
+
+def test_integrals_of_an_open_snapshot_equal_those_of_its_path(dipole):
+    from emsource.snapshot import open_snapshot
+
+    by_path = integrals.integrate_snapshot(dipole, radii=(1.5,))
+    with open_snapshot(dipole) as snap:
+        by_object = integrals.integrate_open_snapshot(snap, radii=(1.5,))
+        assert snap.level(0).read("lapse").shape == (33, 33, 33)  # still open afterwards
+    assert [r.energy for r in by_object] == [r.energy for r in by_path]
+    assert [r.luminosity for r in by_object] == [r.luminosity for r in by_path]
+    with pytest.raises(TypeError, match="snap must be an emsource.snapshot.SnapshotFile"):
+        integrals.integrate_open_snapshot(str(dipole))

@@ -15,7 +15,7 @@ import pytest
 import sympy as sp
 
 from emsource import GridPointError
-from emsource.constraints import adm_constraints, evaluable_points
+from emsource.constraints import adm_constraints, interior_points
 from emsource.exact import kerr_newman, outer_horizon_radius
 from emsource.grid import UniformGrid
 
@@ -31,7 +31,7 @@ def _box(n):
 def _norms(mass, spin, charge, n, order, sources, data_units="gaussian", scale_fields=1.0):
     grid = _box(n)
     d = kerr_newman(grid, mass=mass, spin=spin, charge=charge, units=data_units)
-    assert d.mask.all()  # the whole box is outside r+
+    assert d.valid_mask.all()  # the whole box is outside r+
     if sources is None:
         res = adm_constraints(d.gamma, d.K, spacing=grid.spacing, order=order)
     else:
@@ -178,7 +178,7 @@ def test_kernel_matches_textbook_definitions_on_generic_data():
         gam = np.array([np.broadcast_to(c, X.shape) for c in gf(X, Y, Z)], dtype=float)
         K = np.array([np.broadcast_to(c, X.shape) for c in kf(X, Y, Z)], dtype=float)
         res = adm_constraints(gam, K, spacing=h, order=6)
-        assert res.evaluated.sum() == 1 and res.evaluated[3, 3, 3]
+        assert res.interior.sum() == 1 and res.interior[3, 3, 3]
         errors.append(np.hstack((res.hamiltonian[3, 3, 3] - H_ref,
                                  res.momentum[:, 3, 3, 3] - M_ref)))
     assert abs(H_ref) > 0.05 and np.abs(M_ref).min() > 0.01  # the data are far from a solution
@@ -194,7 +194,7 @@ def test_mask_excludes_every_stencil_that_touches_it():
     mask = rng.random((9, 10, 11)) > 0.03
     for order in (2, 4):
         r = order // 2
-        ev = evaluable_points(mask, order)
+        ev = interior_points(mask, order)
         for idx in np.ndindex(mask.shape):
             ok = all(r <= idx[a] < mask.shape[a] - r for a in range(3))
             if ok:
@@ -215,15 +215,15 @@ def test_excised_region_with_nan_inside_is_never_read():
     # equal those computed from the intact data.
     grid = UniformGrid.from_bounds((-3.0, -3.0, -3.0), (3.0, 3.0, 3.0), (21, 21, 21))
     rp = outer_horizon_radius(1.0, 0.6, 0.5)
-    d = kerr_newman(grid, mass=1.0, spin=0.6, charge=0.5, mask_radius=1.2 * rp)
+    d = kerr_newman(grid, mass=1.0, spin=0.6, charge=0.5, excision_radius=1.2 * rp)
     gamma, K, E, B = (a.copy() for a in (d.gamma, d.K, d.E, d.B))
     for a in (gamma, K, E, B):
-        a[:, ~d.mask] = np.nan
-    res = adm_constraints(gamma, K, E, B, spacing=grid.spacing, order=4, mask=d.mask)
-    intact = kerr_newman(grid, mass=1.0, spin=0.6, charge=0.5, mask_radius=0.0)
+        a[:, ~d.valid_mask] = np.nan
+    res = adm_constraints(gamma, K, E, B, spacing=grid.spacing, order=4, valid_mask=d.valid_mask)
+    intact = kerr_newman(grid, mass=1.0, spin=0.6, charge=0.5, excision_radius=0.0)
     ref = adm_constraints(intact.gamma, intact.K, intact.E, intact.B, spacing=grid.spacing,
-                          order=4, mask=intact.mask)
-    ev = res.evaluated
+                          order=4, valid_mask=intact.valid_mask)
+    ev = res.interior
     assert ev.sum() > 1000 and not ev[10, 10, 10]
     assert np.all(np.isfinite(res.hamiltonian[ev])) and np.all(np.isnan(res.hamiltonian[~ev]))
     assert np.array_equal(res.hamiltonian[ev], ref.hamiltonian[ev])
@@ -255,7 +255,7 @@ def test_bad_inputs_are_named():
     assert error.value.first_index == (4, 5, 6)
     mask = np.ones(grid.shape, bool)
     mask[4, 5, 6] = False
-    adm_constraints(bad, d.K, spacing=grid.spacing, mask=mask)  # a masked point is not checked
+    adm_constraints(bad, d.K, spacing=grid.spacing, valid_mask=mask)  # a masked point is not checked
     bad = d.gamma.copy()
     bad[0, 1, 2, 3] = -1.0
     with pytest.raises(GridPointError, match=r"grid index \(1, 2, 3\): gamma is not positive definite"):
@@ -276,7 +276,7 @@ def test_sign_of_K_is_fixed_by_the_poynting_term():
         d = kerr_newman(grid, mass=1.0, spin=0.6, charge=0.5)
         right = adm_constraints(d.gamma, d.K, d.E, d.B, spacing=grid.spacing, order=4)
         flipped = adm_constraints(d.gamma, -d.K, d.E, d.B, spacing=grid.spacing, order=4)
-        assert np.allclose(flipped.hamiltonian[right.evaluated], right.hamiltonian[right.evaluated],
+        assert np.allclose(flipped.hamiltonian[right.interior], right.hamiltonian[right.interior],
                            rtol=0, atol=1e-12)
         out.append(_summary(flipped.momentum_norms))
     assert out[1].normalised > 1e-3
@@ -294,5 +294,5 @@ def test_float32_data_are_evaluated_in_float64():
     r64 = adm_constraints(d64.gamma, d64.K, d64.E, d64.B, spacing=grid.spacing)
     r32 = adm_constraints(d32.gamma, d32.K, d32.E, d32.B, spacing=grid.spacing)
     assert r32.hamiltonian.dtype == np.float64
-    ev = r64.evaluated
+    ev = r64.interior
     assert np.abs(r32.hamiltonian[ev] - r64.hamiltonian[ev]).max() < 1e-3

@@ -101,7 +101,7 @@ def test_command_verdicts(registered_cases, capsys):
     assert main(["converge", "--case", "fixture_flipped", "--no-plot"]) == commands.EXIT_CHECK_FAILED
     assert "NOT within" in capsys.readouterr().out
     assert main(["converge", "--case", "no_such_case", "--no-plot"]) == commands.EXIT_BAD_INPUT
-    assert main(["converge", "--case", "fixture_wave", "--resolutions", "32", "24",
+    assert main(["converge", "--case", "fixture_wave", "--points", "32", "24",
                  "--no-plot"]) == commands.EXIT_BAD_INPUT
     assert main(["converge", "--list"]) == commands.EXIT_OK
     assert "fixture_wave" in capsys.readouterr().out

@@ -46,8 +46,8 @@ def _dipole_errors(n, radii, box=3.0):
     grid = UniformGrid.from_bounds((-box,) * 3, (box,) * 3, (n,) * 3)
     data = rotating_dipole(grid, 0.3, excision_radius=0.2, **DIPOLE)
     result = integrals.integrate_level_arrays(grid, data.gamma, data.E, data.B,
-                                              mask=data.mask.astype(np.uint8), radii=radii,
-                                              n_theta=32)
+                                              valid_mask=data.valid_mask.astype(np.uint8), radii=radii,
+                                              theta_points=32)
     return grid, data, result
 
 
@@ -131,7 +131,7 @@ def test_sphere_outside_the_grid_or_in_the_excision_is_an_error():
         integrals.integrate_level_arrays(grid, data.gamma, data.E, data.B, radii=(1.9,))
     with pytest.raises(io.SnapshotError, match="reaches excised points"):
         integrals.integrate_level_arrays(grid, data.gamma, data.E, data.B,
-                                         mask=data.mask.astype(np.uint8), radii=(0.7,))
+                                         valid_mask=data.valid_mask.astype(np.uint8), radii=(0.7,))
 
 
 @pytest.mark.parametrize("axis_order", ["xyz", "zyx"])
@@ -142,7 +142,7 @@ def test_streamed_integrals_do_not_depend_on_the_slab_size(tmp_path, axis_order)
     path = tmp_path / "dipole.h5"
     io.write_snapshot(path, levels, axis_order=axis_order)
     whole = integrals.integrate_level_arrays(grid, levels[1].gamma, levels[1].E, levels[1].B,
-                                             mask=levels[1].mask.astype(np.uint8), radii=(1.2, 1.6))
+                                             valid_mask=levels[1].valid_mask.astype(np.uint8), radii=(1.2, 1.6))
     for rows in (2, 5, None):
         streamed = integrals.integrate_snapshot(path, radii=(1.2, 1.6), rows=rows)[1]
         assert streamed.time == 0.7
@@ -152,7 +152,7 @@ def test_streamed_integrals_do_not_depend_on_the_slab_size(tmp_path, axis_order)
             assert streamed.face_flux[face] == pytest.approx(whole.face_flux[face], rel=1e-12)
         for R in (1.2, 1.6):
             assert streamed.luminosity[R] == pytest.approx(whole.luminosity[R], rel=1e-12)
-        assert streamed.excluded_points == whole.excluded_points > 0
+        assert streamed.excised_points == whole.excised_points > 0
         assert streamed.max_magnetic_field == pytest.approx(whole.max_magnetic_field, rel=1e-15)
 
 

@@ -49,7 +49,7 @@ def test_slice_fields_round_trip_keeps_mask_and_float32(tmp_path):
     path = tmp_path / "dipole.h5"
     snapshot.write_snapshot(path, [data])
     back = snapshot.read_level(path)
-    assert np.array_equal(back["valid_mask"].astype(bool), data.mask)
+    assert np.array_equal(back["valid_mask"].astype(bool), data.valid_mask)
     assert np.array_equal(back["magnetic_field"], data.B)
     assert np.array_equal(back["extrinsic_curvature"], data.K)
     level32 = {"electric_field": data.E.astype(np.float32), "magnetic_field": data.B.astype(np.float32),

@@ -259,10 +259,10 @@ def test_mask_and_dtype():
     assert data.gamma.dtype == np.float32 and data.E.dtype == np.float32
     x, y, z = grid.coordinates()
     r = kn.kerr_schild_radius(x, y, z, A)
-    assert np.array_equal(data.mask, r >= kn.outer_horizon_radius(M, A, Q))
-    # mask_radius=0 keeps everything finite, but the origin sits on the singular disc r = 0.
-    inner = kn.kerr_newman(grid, mass=M, spin=A, charge=Q, mask_radius=0.0)
-    assert not inner.mask[6, 6, 6] and inner.mask.sum() > data.mask.sum()
+    assert np.array_equal(data.valid_mask, r >= kn.outer_horizon_radius(M, A, Q))
+    # excision_radius=0 keeps everything finite, but the origin sits on the singular disc r = 0.
+    inner = kn.kerr_newman(grid, mass=M, spin=A, charge=Q, excision_radius=0.0)
+    assert not inner.valid_mask[6, 6, 6] and inner.valid_mask.sum() > data.valid_mask.sum()
     assert np.all(data.dt_gamma == 0) and np.all(data.charge_density == 0)
 
 
@@ -270,7 +270,7 @@ def test_mask_and_dtype():
     (dict(mass=1.0, spin=0.8, charge=0.7), "spin^2 + charge^2"),
     (dict(mass=-1.0), "mass"),
     (dict(mass=1.0, units="si"), "units"),
-    (dict(mass=1.0, mask_radius=-1.0), "mask_radius"),
+    (dict(mass=1.0, excision_radius=-1.0), "excision_radius"),
 ])
 def test_bad_parameters_are_named(kwargs, word):
     grid = UniformGrid.from_bounds((2, 2, 2), (3, 3, 3), (3, 3, 3))

@@ -28,7 +28,7 @@ def dipole_files(tmp_path_factory):
     snapshot.write_snapshot(native, [{"spatial_metric": level.gamma.astype(np.float32),
                                 "electric_field": level.E.astype(np.float32),
                                 "magnetic_field": level.B.astype(np.float32),
-                                "valid_mask": level.mask.astype(np.uint8),
+                                "valid_mask": level.valid_mask.astype(np.uint8),
                                 "time": level.t, "grid": level.grid}])
     foreign = directory / "foreign.h5"
     write_foreign_dipole(foreign, level)

@@ -111,21 +111,21 @@ def test_integrals_of_pieces_combine_to_the_whole(dipole_level, n, rng):
     grid, data = dipole_level
     p = 4
     spheres = [integrals._Sphere(R, grid, 16, p) for R in (1.2, 1.7)]
-    mask = data.mask.astype(np.uint8)
-    whole = integrals.level_partial(grid, data.gamma, data.E, data.B, mask=mask, spheres=spheres)
+    mask = data.valid_mask.astype(np.uint8)
+    whole = integrals.level_partial(grid, data.gamma, data.E, data.B, valid_mask=mask, spheres=spheres)
     pieces = []
     for start, stop in uneven_bounds(grid.shape[0], n):
         end = min(stop + p - 1, grid.shape[0])  # the interpolation halo
         rows = (slice(None), slice(start, end))
         cut = lambda x: np.ascontiguousarray(x[rows])  # noqa: E731
         pieces.append(integrals.level_partial(grid, cut(data.gamma), cut(data.E), cut(data.B),
-                                              mask=mask[start:end], spheres=spheres,
+                                              valid_mask=mask[start:end], spheres=spheres,
                                               start=start, stop=stop))
-    assert whole.excluded_points > 0 and float(whole.luminosity.magnitude.min()) > 0
+    assert whole.excised_points > 0 and float(whole.luminosity.magnitude.min()) > 0
     for name, combined in orders_of_combination(pieces, rng).items():
         for field in ("energy", "momentum", "face_flux", "luminosity"):
             assert_sums_agree(getattr(combined, field), getattr(whole, field), n)
-        assert combined.points == whole.points and combined.excluded_points == whole.excluded_points
+        assert combined.points == whole.points and combined.excised_points == whole.excised_points
         assert combined.max_magnetic_field == whole.max_magnetic_field
         assert combined.max_electric_field == whole.max_electric_field
     # energy is a sum of positive terms: relative agreement to 1e-14
@@ -139,7 +139,7 @@ def test_conservation_norms_of_pieces_combine_to_the_whole(n, rng):
     grid = UniformGrid((40, 12, 10), (0.0, 0.0, 0.0), (0.05, 0.07, 0.09))
     s = exact.plane_wave(grid, 0.3, wave_vector=(2.0, 3.0, 1.5), polarization=(3.0, -2.0, 0.0))
     r = 2
-    whole = conservation.slice_residual(s, order=4).norm_partial
+    whole = conservation.level_residual(s, order=4).norm_partial
     fields = (s.alpha, s.beta, s.gamma, s.K, s.E, s.B)
     rates = (s.dt_E, s.dt_B, s.dt_gamma)
     pieces = []
@@ -181,15 +181,15 @@ def test_global_balance_of_pieces_and_slices_combines_to_the_whole(n, rng):
     # of the box combine in any order to the balance of global_balance.
     grid = UniformGrid.from_bounds((-1.4,) * 3, (1.4,) * 3, (15, 11, 11))
     times = np.array([0.0, 0.3, 0.7])
-    slices = [exact.boosted_gaussian_charge(grid, t, charge=1.0, width=0.35,
+    levels = [exact.boosted_gaussian_charge(grid, t, charge=1.0, width=0.35,
                                             velocity=(0.5, 0.1, 0.0), center=(0.2, 0.0, 0.0))
               for t in times]
-    whole = conservation.global_balance(slices, order=2)
+    whole = conservation.global_balance(levels, order=2)
     single = combine_all([conservation.balance_partial(s, times, k, order=2)
-                          for k, s in enumerate(slices)])
+                          for k, s in enumerate(levels)])
     box_rows = grid.shape[0] - 2
     partials = [conservation.balance_partial(s, times, k, order=2, rows=rows)
-                for k, s in enumerate(slices) for rows in uneven_bounds(box_rows, n)]
+                for k, s in enumerate(levels) for rows in uneven_bounds(box_rows, n)]
     for combined in orders_of_combination(partials, rng).values():
         assert isinstance(combined, BalancePartial)
         for field in ("totals", "outflow_rates", "source_rates"):

@@ -71,7 +71,7 @@ def test_static_limit_and_excision():
     n = x / np.where(r > 0, r, 1)
     static = (3 * n * (n * m).sum(axis=0) - m) / np.where(r > 0, r, 1) ** 3
     valid = r >= 0.6
-    assert np.array_equal(d.mask, valid)
+    assert np.array_equal(d.valid_mask, valid)
     assert np.allclose(d.B[:, valid], static[:, valid], rtol=1e-14, atol=1e-15)
     assert np.all(d.E == 0) and np.all(d.B[:, ~valid] == 0)
     with pytest.raises(ValueError, match="excision_radius must be positive"):

@@ -11,7 +11,7 @@ import pytest
 
 from emsource.exact import kerr, kerr_newman
 from emsource.grid import UniformGrid
-from emsource.unit_audit import NO_SOURCES, audit_units
+from emsource.unit_audit import VACUUM, audit_units
 
 GRID = UniformGrid.from_bounds((2.5, 0.5, -0.5), (3.5, 1.5, 0.5), (21, 21, 21))
 
@@ -36,13 +36,13 @@ def test_names_the_system_the_data_were_written_in(units):
     assert units in audit.table() and "fits" in audit.message
 
 
-def test_test_field_on_an_uncharged_metric_fits_no_sources():
+def test_test_field_on_an_uncharged_metric_fits_vacuum():
     # Kerr (vacuum) metric carrying the Kerr-Newman field as a test field: the metric does not
     # feel the field, so only the source-free constraints converge.
     d = kerr(GRID, mass=1.0, spin=0.6)
     f = kerr_newman(GRID, mass=1.0, spin=0.6, charge=0.5)
     audit = audit_units(d.gamma, d.K, f.E, f.B, spacing=GRID.spacing)
-    assert audit.verdict == NO_SOURCES
+    assert audit.verdict == VACUUM
 
 
 @pytest.mark.parametrize("scale", [0.5, 2.0])

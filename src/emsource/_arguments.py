@@ -254,17 +254,17 @@ def grid_spacing(function: str, value, ndim: int) -> tuple:
     return tuple(float(x) for x in h)
 
 
-def point_mask(function: str, mask, grid) -> np.ndarray:
-    """``mask`` (True or nonzero where the data are valid) as a bool array of shape ``grid``.
+def point_mask(function: str, valid_mask, grid) -> np.ndarray:
+    """``valid_mask`` (True or nonzero where the data are valid) as a bool array of shape ``grid``.
 
     None means every point is valid. Integer masks (a file's uint8 ``valid_mask``) are read as
     nonzero = valid; the caller's array is not changed.
     """
-    if mask is None:
+    if valid_mask is None:
         return np.ones(grid, dtype=bool)
-    m = np.asarray(mask)
+    m = np.asarray(valid_mask)
     if m.shape != tuple(grid) or not (m.dtype == np.bool_ or np.issubdtype(m.dtype, np.integer)):
-        raise ValueError(f"{function}: mask must be a bool (or integer) array of shape "
+        raise ValueError(f"{function}: valid_mask must be a bool (or integer) array of shape "
                          f"{tuple(grid)}, found {m.dtype} of shape {m.shape}")
     return m.astype(bool, copy=False)
 

@@ -59,6 +59,7 @@ import numpy as np
 from scipy import ndimage
 
 from . import _arguments as arg
+from ._deprecated_names import module_aliases, renamed_keywords
 from .kernels import conservation as kernels
 from .kernels.stencils import first_derivative_weights, stencil_radius
 from .reductions import (BalancePartial, BalanceTerms, GlobalBalance, NormPartial, ResidualNorms,
@@ -71,7 +72,7 @@ __all__ = [
     "ConservationResidual",
     "conservation_residual",
     "new_work_array",
-    "slice_residual",
+    "level_residual",
     "BalanceTerms",
     "GlobalBalance",
     "balance_partial",
@@ -94,8 +95,8 @@ class ConservationResidual:
         Absolute value of the largest term of each equation at each point (the time term, each
         d_i of the flux, each source term); NaN on the boundary.
     interior : (*grid) bool ndarray
-        True where residuals are defined: interior points whose whole stencil is valid
-        (``mask``).
+        True where residuals are defined: interior points, whose whole stencil lies on the
+        grid and on valid points (``valid_mask``).
     energy_norms, momentum_norms : ResidualNorms
         Norms over the points of ``interior``.
     order : int
@@ -249,10 +250,10 @@ def new_work_array(grid, dtype=np.float64) -> np.ndarray:
     """A (16, *grid) scratch array for :func:`conservation_residual` (its ``work`` argument).
 
     A plain C-ordered array. The kernels are compiled per memory layout, and only with a layout
-    that Numba knows to be C-contiguous do their loops over z vectorise: an earlier version
-    padded the component stride by one cache line (against cache-set conflicts), which Numba
-    types as a general strided array, and its first pass then ran 2x slower on 128^3 (measured,
-    one thread: 180 ms padded against 92 ms; 96^3: 71 ms against 26 ms). Any other (16, *grid)
+    that Numba knows to be C-contiguous do their loops over z vectorise. Padding the component
+    stride by one cache line (against cache-set conflicts) does not pay: Numba types a padded
+    array as general strided, and the first pass then runs 2x slower on 128^3 (measured, one
+    thread: 180 ms padded against 92 ms; 96^3: 71 ms against 26 ms). Any other (16, *grid)
     array works too, through another, slower compiled specialisation.
     """
     grid = tuple(int(n) for n in grid)
@@ -315,7 +316,7 @@ def _split_norms(partial):
     return partial.finalise(0), partial.finalise(slice(1, 4))
 
 
-def _evaluable(valid, radii, grid):
+def _interior_points(valid, radii, grid):
     """Interior points whose centred first-derivative stencils (the cross of radius r along
     every axis with extent) lie on valid points."""
     radii = radii[: len(grid)]
@@ -335,26 +336,27 @@ def _evaluable(valid, radii, grid):
 
 
 def _raise_bad_points(function, grid, named_inputs, valid, metric, gidx, residual=None,
-                      evaluated=None):
+                      interior=None):
     """GridPointError at the first valid point with a non-finite input, a lapse that is not
-    positive or a metric that is not positive definite; failing those, at the first evaluated
+    positive or a metric that is not positive definite; failing those, at the first interior
     point whose residual is not finite (an overflow). Runs only on the error path."""
     arg.check_points(function, grid, named_inputs, valid=valid, lapse="alpha",
                      metric=("gamma", metric, gidx))
-    bad = evaluated & ~np.isfinite(residual).all(axis=0)
+    bad = interior & ~np.isfinite(residual).all(axis=0)
     first = tuple(int(i) for i in np.unravel_index(int(np.argmax(bad)), grid))
-    raise GridPointError(function, int(bad.sum()), int(evaluated.sum()), first,
+    raise GridPointError(function, int(bad.sum()), int(interior.sum()), first,
                          "the residual is not finite although the inputs there are (an overflow "
                          "of very large values?)")
 
 
 # --------------------------------------------------------------------------- public functions
 
+@renamed_keywords(mask="valid_mask")
 def conservation_residual(alpha, beta, gamma, K, E, B, *, spacing, order=4, units="gaussian",
                           charge_density=None, current_density=None,
                           dt_E=None, dt_B=None, dt_gamma=None,
                           before=None, after=None, time_step=None,
-                          mask=None, check=True, work=None) -> ConservationResidual:
+                          valid_mask=None, check=True, work=None) -> ConservationResidual:
     r"""Pointwise residuals of the 3+1 energy and momentum equations, with norms.
 
     Evaluates left minus right side of the two equations in the module docstring at every
@@ -388,14 +390,14 @@ def conservation_residual(alpha, beta, gamma, K, E, B, *, spacing, order=4, unit
         d_t E^i and d_t B^i at time t (for instance the caller's Maxwell right-hand sides).
     dt_gamma : (6, *grid) or (3, 3, *grid) ndarray, optional
         d_t gamma_ij at time t (zeros for a static metric).
-    before, after : SliceFields or mapping, optional
+    before, after : TimeLevelFields or mapping, optional
         Objects with ``gamma``, ``E`` and ``B`` at t - time_step and t + time_step.
     time_step : float, optional
         The step between the levels.
-    mask : (*grid) bool or integer ndarray, optional
+    valid_mask : (*grid) bool or integer ndarray, optional
         True (nonzero) where the data are valid. Residuals are evaluated only at interior
-        points whose whole stencil is valid (NaN elsewhere, ``interior`` False), and the norms
-        are taken over those points; masked points are never checked.
+        points, whose whole stencil is valid (NaN elsewhere, ``interior`` False), and the norms
+        are taken over those points; points outside ``valid_mask`` are never checked.
     check : bool
         Raise :class:`emsource.GridPointError` with the first bad valid grid index and what is
         wrong there (a non-finite input, a lapse that is not positive, a metric that is not
@@ -408,7 +410,7 @@ def conservation_residual(alpha, beta, gamma, K, E, B, *, spacing, order=4, unit
     Returns
     -------
     ConservationResidual
-        Residual and scale on the full grid (NaN on the boundary layer), interior mask, norms.
+        Residual and scale on the full grid (NaN outside the interior), ``interior``, norms.
         Grid axes of length 1 have no extent: no derivative is taken along them and they have
         no boundary layer, so 1D and 2D problems run on (n,), (nx, ny) or (nx, ny, 1) grids.
 
@@ -470,7 +472,7 @@ def conservation_residual(alpha, beta, gamma, K, E, B, *, spacing, order=4, unit
     else:
         raise ValueError(f"{function}: time derivatives needed: give all of dt_E, dt_B, dt_gamma "
                          "(exact in time) or all of before, after, time_step (three levels)")
-    valid = None if mask is None else arg.point_mask(function, mask, p.grid)
+    valid = None if valid_mask is None else arg.point_mask(function, valid_mask, p.grid)
     named_inputs = {"alpha": alpha, "beta": beta, "gamma": gamma, "K": K, "E": E, "B": B,
                     "charge_density": charge_density, "current_density": current_density,
                     "dt_E": dt_E, "dt_B": dt_B, "dt_gamma": dt_gamma}
@@ -480,13 +482,13 @@ def conservation_residual(alpha, beta, gamma, K, E, B, *, spacing, order=4, unit
         if not lapse_ok.all():
             _raise_bad_points(function, p.grid, named_inputs, valid, v["gamma"], p.gidx)
     residual, scale, _, partials, _ = _run_kernels(p, order, rate_mode, rates, inv_2dt, False, work)
-    interior = _evaluable(valid, p.radii, p.grid)
+    interior = _interior_points(valid, p.radii, p.grid)
     if valid is None or valid.all():
         inner = _interior_slices(p.radii, p.grid)
         count = int(np.prod([sl.stop - sl.start for sl in inner]))
         partial = _norm_partial_of_columns(partials, count)
     else:
-        # Residuals near masked points use masked values in their stencils: not defined.
+        # Residuals next to invalid points would read invalid values in their stencils.
         residual[:, ~interior] = np.nan
         scale[:, ~interior] = np.nan
         partial = NormPartial.of_points(residual[:, interior], scale[:, interior])
@@ -502,17 +504,19 @@ def conservation_residual(alpha, beta, gamma, K, E, B, *, spacing, order=4, unit
         norm_partial=partial)
 
 
-def slice_residual(now, *, order=4, before=None, after=None, spacing=None, units=None,
-                   include_charges=True, mask=None, check=True) -> ConservationResidual:
-    """:func:`conservation_residual` for :class:`emsource.exact.SliceFields` objects.
+@renamed_keywords(mask="valid_mask")
+def level_residual(now, *, order=4, before=None, after=None, spacing=None, units=None,
+                   include_charges=True, valid_mask=None, check=True) -> ConservationResidual:
+    """:func:`conservation_residual` for :class:`emsource.exact.TimeLevelFields` objects.
 
-    With ``before`` and ``after`` (slices at now.t -+ the same step) the time terms come from the
-    three levels; otherwise from ``now.dt_E``, ``now.dt_B``, ``now.dt_gamma``. ``spacing`` and
-    ``units`` default to ``now.grid.spacing`` and ``now.units``. ``include_charges=False`` drops
-    the charge and current terms (a diagnostic of their effect, not a physical option).
-    ``mask`` and ``check`` are passed on (``mask=now.mask`` skips an excised region).
+    With ``before`` and ``after`` (time levels at now.t -+ the same step) the time terms come
+    from the three levels; otherwise from ``now.dt_E``, ``now.dt_B``, ``now.dt_gamma``.
+    ``spacing`` and ``units`` default to ``now.grid.spacing`` and ``now.units``.
+    ``include_charges=False`` drops the charge and current terms (a diagnostic of their effect,
+    not a physical option). ``valid_mask`` and ``check`` are passed on
+    (``valid_mask=now.valid_mask`` skips an excised region).
     """
-    function = "slice_residual"
+    function = "level_residual"
     spacing = now.grid.spacing if spacing is None else spacing
     units = now.units if units is None else units
     charges = {}
@@ -527,12 +531,15 @@ def slice_residual(now, *, order=4, before=None, after=None, spacing=None, units
                              f"t = {before.t}, {now.t}, {after.t}")
         return conservation_residual(now.alpha, now.beta, now.gamma, now.K, now.E, now.B,
                                      spacing=spacing, order=order, units=units, **charges,
-                                     before=before, after=after, time_step=step, mask=mask, check=check)
+                                     before=before, after=after, time_step=step,
+                                     valid_mask=valid_mask, check=check)
     if now.dt_E is None or now.dt_B is None or now.dt_gamma is None:
-        raise ValueError(f"{function}: the slice carries no dt_E/dt_B/dt_gamma; give before and after")
+        raise ValueError(f"{function}: the time level carries no dt_E/dt_B/dt_gamma; give before "
+                         "and after")
     return conservation_residual(now.alpha, now.beta, now.gamma, now.K, now.E, now.B,
                                  spacing=spacing, order=order, units=units, **charges,
-                                 dt_E=now.dt_E, dt_B=now.dt_B, dt_gamma=now.dt_gamma, mask=mask, check=check)
+                                 dt_E=now.dt_E, dt_B=now.dt_B, dt_gamma=now.dt_gamma,
+                                 valid_mask=valid_mask, check=check)
 
 
 # --------------------------------------------------------------------------- global balance
@@ -548,11 +555,11 @@ def _trapezoid_weights(n, h):
 
 def balance_partial(s, times, k, *, order=4, spacing=None, units=None, include_charges=True,
                     rows=None, check=True) -> BalancePartial:
-    """The contribution of slice ``s`` (number ``k`` of the series at ``times``) to a balance.
+    """The contribution of time level ``s`` (number ``k`` of the series at ``times``) to a balance.
 
-    Sums the box integrals of the slice over the box rows ``rows = (start, stop)`` along the
+    Sums the box integrals of the level over the box rows ``rows = (start, stop)`` along the
     first axis (default: the whole box; indices count box rows, 0 is the first interior row),
-    with the face fluxes of the faces in those rows. The partials of all slices and of
+    with the face fluxes of the faces in those rows. The partials of all levels and of
     disjoint row ranges covering the box combine (:func:`emsource.reductions.combine`) into
     the partial of the whole balance; :meth:`BalancePartial.finalise` takes the time integrals.
     Arguments as for :func:`global_balance`; ``check`` raises :class:`emsource.GridPointError`
@@ -608,10 +615,11 @@ def balance_partial(s, times, k, *, order=4, spacing=None, units=None, include_c
             f = work[comps][(slice(None),) + tuple(face)].astype(np.float64)
             terms.append((sign * f * area).reshape(4, -1))
     outflow = Sum.of(np.concatenate(terms, axis=1), axis=1) if terms else Sum.zero(4)
-    return BalancePartial.of_slice(times, k, totals, outflow, source)
+    return BalancePartial.of_level(times, k, totals, outflow, source)
 
 
-def global_balance(slices, *, order=4, spacing=None, units=None, include_charges=True,
+@renamed_keywords(slices="levels")
+def global_balance(levels, *, order=4, spacing=None, units=None, include_charges=True,
                    check=True) -> GlobalBalance:
     r"""Change of the total energy and momentum in a box against face fluxes and volume sources.
 
@@ -631,24 +639,24 @@ def global_balance(slices, *, order=4, spacing=None, units=None, include_charges
 
     Parameters
     ----------
-    slices : sequence of SliceFields
-        At least two slices in increasing time (any spacing in time), on one grid.
+    levels : sequence of TimeLevelFields
+        At least two time levels in increasing time (any spacing in time), on one grid.
     order : {2, 4, 6}
         Order of the centred differences for the metric derivatives in the sources.
     spacing, units : optional
-        Default to the first slice's ``grid.spacing`` and ``units``.
+        Default to the first level's ``grid.spacing`` and ``units``.
     include_charges : bool
         Include the charge and current (Lorentz-force) terms.
     check : bool
-        Raise :class:`emsource.GridPointError` at the first point of a slice with a non-finite
+        Raise :class:`emsource.GridPointError` at the first point of a level with a non-finite
         input, a lapse that is not positive or a metric that is not positive definite.
 
     Returns
     -------
     GlobalBalance
         The mismatch of each law is reported absolute and relative to the largest field
-        energy in the box over the slices (:class:`emsource.reductions.BalanceTerms`).
-        Computed as a sum of :func:`balance_partial` over the slices.
+        energy in the box over the levels (:class:`emsource.reductions.BalanceTerms`).
+        Computed as a sum of :func:`balance_partial` over the levels.
 
     References
     ----------
@@ -656,19 +664,23 @@ def global_balance(slices, *, order=4, spacing=None, units=None, include_charges
     (2012), sec. 6. Trapezoid rule: common practice.
     """
     function = "global_balance"
-    slices = list(slices)
-    if len(slices) < 2:
-        raise ValueError(f"{function}: need at least two slices, found {len(slices)}")
-    times = np.array([s.t for s in slices], dtype=float)
+    levels = list(levels)
+    if len(levels) < 2:
+        raise ValueError(f"{function}: need at least two time levels, found {len(levels)}")
+    times = np.array([s.t for s in levels], dtype=float)
     if not np.all(np.diff(times) > 0):
-        raise ValueError(f"{function}: slice times must increase, found {times}")
-    first = slices[0]
+        raise ValueError(f"{function}: the times of the levels must increase, found {times}")
+    first = levels[0]
     spacing = first.grid.spacing if spacing is None else spacing
     units = first.units if units is None else units
     partial = combine_all(balance_partial(s, times, k, order=order, spacing=spacing, units=units,
                                           include_charges=include_charges, check=check)
-                          for k, s in enumerate(slices))
+                          for k, s in enumerate(levels))
     grid = first.E.shape[1:]
     r = stencil_radius(order)
     box = tuple(slice(r, n - r) if n > 1 else slice(0, 1) for n in grid)
     return partial.finalise(box)
+
+
+#: ``slice_residual`` is the deprecated name of :func:`level_residual`.
+__getattr__ = module_aliases(__name__, {"slice_residual": ("level_residual", level_residual)})

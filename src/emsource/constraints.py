@@ -22,30 +22,32 @@ import numpy as np
 from scipy import ndimage
 
 from . import _arguments as args
+from ._deprecated_names import renamed_attribute, renamed_function, renamed_keywords
 from .kernels.constraints import adm_constraints_grid
 from .kernels.stencils import first_derivative_weights, second_derivative_weights, stencil_radius
 from .reductions import NormPartial, ResidualNorms
 from .sources import adm_sources
 from .unit_systems import check_unit_system
 
-__all__ = ["ConstraintResiduals", "ResidualNorms", "adm_constraints", "evaluable_points",
+__all__ = ["ConstraintResiduals", "ResidualNorms", "adm_constraints", "interior_points",
            "norm_partial", "residual_norms"]
 
 _SYM = np.array([[0, 1, 2], [1, 3, 4], [2, 4, 5]], dtype=np.int64)
-_FUNC = "adm_constraints"
 
 
-def evaluable_points(mask, order):
-    """Points whose whole stencil of ``order`` lies inside the grid and on ``mask``.
+@renamed_keywords(mask="valid_mask")
+def interior_points(valid_mask, order):
+    """Interior points: those whose whole stencil of ``order`` lies inside the grid and on
+    ``valid_mask``.
 
     The stencils of :mod:`emsource.kernels.stencils` reach (i + m, j, k) for first and second
     derivatives and (i + m, j + q, k) (and the other pairs of axes) for mixed ones, |m|, |q| <= r
     with r = order / 2: the three coordinate planes of the cube of radius r around the point.
-    A point is evaluable when all of them are on the grid and unmasked (True).
+    A point is interior when all of them are on the grid and valid (True).
 
     Parameters
     ----------
-    mask : (nx, ny, nz) bool ndarray
+    valid_mask : (nx, ny, nz) bool ndarray
         True where the data are valid.
     order : {2, 4, 6}
 
@@ -56,24 +58,29 @@ def evaluable_points(mask, order):
     r = stencil_radius(order)
     offsets = np.indices((2 * r + 1,) * 3) - r
     structure = (offsets == 0).any(axis=0)
-    return ndimage.binary_erosion(mask, structure=structure, border_value=0)
+    return ndimage.binary_erosion(valid_mask, structure=structure, border_value=0)
 
 
-def norm_partial(hamiltonian, momentum, hamiltonian_scale, momentum_scale, evaluated) -> NormPartial:
-    """The mergeable :class:`NormPartial` (components H, M_x, M_y, M_z) over ``evaluated``."""
-    residual = np.concatenate([hamiltonian[evaluated][None], momentum[:, evaluated]])
-    scale = np.concatenate([hamiltonian_scale[evaluated][None], momentum_scale[:, evaluated]])
+evaluable_points = renamed_function("evaluable_points", interior_points)
+
+
+@renamed_keywords(evaluated="interior")
+def norm_partial(hamiltonian, momentum, hamiltonian_scale, momentum_scale, interior) -> NormPartial:
+    """The mergeable :class:`NormPartial` (components H, M_x, M_y, M_z) over ``interior``."""
+    residual = np.concatenate([hamiltonian[interior][None], momentum[:, interior]])
+    scale = np.concatenate([hamiltonian_scale[interior][None], momentum_scale[:, interior]])
     return NormPartial.of_points(residual, scale)
 
 
-def residual_norms(residual, scale, evaluated) -> ResidualNorms:
-    """:class:`ResidualNorms` of ``residual`` ((*grid) or (3, *grid)) over ``evaluated``.
+@renamed_keywords(evaluated="interior")
+def residual_norms(residual, scale, interior) -> ResidualNorms:
+    """:class:`ResidualNorms` of ``residual`` ((*grid) or (3, *grid)) over ``interior``.
 
     Normalised norms are NaN where the scale is zero, and every norm is NaN without points.
     """
-    vector = residual.ndim == evaluated.ndim + 1
-    r = residual[:, evaluated] if vector else residual[evaluated][None]
-    s = scale[:, evaluated] if vector else scale[evaluated][None]
+    vector = residual.ndim == interior.ndim + 1
+    r = residual[:, interior] if vector else residual[interior][None]
+    s = scale[:, interior] if vector else scale[interior][None]
     return NormPartial.of_points(r, s).finalise(slice(None) if vector else 0, zero_scale=math.nan)
 
 
@@ -84,16 +91,17 @@ class ConstraintResiduals:
     Attributes
     ----------
     hamiltonian : (nx, ny, nz) float64 ndarray
-        H at evaluated points, NaN elsewhere.
+        H at interior points, NaN elsewhere.
     momentum : (3, nx, ny, nz) float64 ndarray
-        M_i (covariant) at evaluated points, NaN elsewhere.
+        M_i (covariant) at interior points, NaN elsewhere.
     hamiltonian_scale, momentum_scale : ndarray
         max(|R|, K^2, K_ij K^ij, 16 pi |rho|) and max(|D_j K^j_i|, |D_i K|, 8 pi |S_i|): the
-        largest term of each equation at each point, NaN where not evaluated.
-    evaluated : (nx, ny, nz) bool ndarray
-        Where the residuals were computed (see :func:`evaluable_points`).
+        largest term of each equation at each point, NaN where not interior.
+    interior : (nx, ny, nz) bool ndarray
+        Where the residuals were computed: points whose whole stencil is valid (see
+        :func:`interior_points`).
     hamiltonian_norms, momentum_norms : ResidualNorms
-        Norms over the evaluated points (normalised norms NaN where the scale is zero).
+        Norms over the interior points (normalised norms NaN where the scale is zero).
     norm_partial : NormPartial
         Their mergeable partial (components H, M_x, M_y, M_z): combine it with those of other
         patches (:mod:`emsource.reductions`) for the norms over the union.
@@ -106,29 +114,32 @@ class ConstraintResiduals:
     momentum: np.ndarray
     hamiltonian_scale: np.ndarray
     momentum_scale: np.ndarray
-    evaluated: np.ndarray
+    interior: np.ndarray
     order: int
     units: str | None
     hamiltonian_norms: ResidualNorms = field(init=False)
     momentum_norms: ResidualNorms = field(init=False)
     norm_partial: NormPartial = field(init=False)
 
+    evaluated = renamed_attribute("evaluated", "interior")
+
     def __post_init__(self):
         partial = norm_partial(self.hamiltonian, self.momentum, self.hamiltonian_scale,
-                               self.momentum_scale, self.evaluated)
+                               self.momentum_scale, self.interior)
         object.__setattr__(self, "norm_partial", partial)
         object.__setattr__(self, "hamiltonian_norms", partial.finalise(0, zero_scale=math.nan))
         object.__setattr__(self, "momentum_norms",
                            partial.finalise(slice(1, 4), zero_scale=math.nan))
 
 
+@renamed_keywords(mask="valid_mask")
 def adm_constraints(gamma, K, E=None, B=None, *, spacing, order=4, units="gaussian",
-                    field_index="upper", mask=None, check=True) -> ConstraintResiduals:
+                    field_index="upper", valid_mask=None, check=True) -> ConstraintResiduals:
     """Hamiltonian and momentum constraints with electromagnetic sources, by finite differences.
 
     Implements H = R + K^2 - K_ij K^ij - 16 pi rho and M_i = D_j K^j_i - D_i K - 8 pi S_i
     (Gourgoulhon 2012, ch. 4, from memory), rho and S_i from :func:`emsource.adm_sources` (zero when
-    ``E`` and ``B`` are None), on interior points whose whole stencil is unmasked.
+    ``E`` and ``B`` are None), on interior points (whole stencil on valid points).
 
     Parameters
     ----------
@@ -148,11 +159,12 @@ def adm_constraints(gamma, K, E=None, B=None, *, spacing, order=4, units="gaussi
         Unit system of E and B.
     field_index : {"upper", "lower"}
         Whether E and B are contravariant or covariant.
-    mask : (nx, ny, nz) bool or integer ndarray or None
+    valid_mask : (nx, ny, nz) bool or integer ndarray or None
         True (nonzero) where the data are valid (False inside an excised region). None: all
-        valid. Masked points are neither checked nor used.
+        valid. Points outside it are neither checked nor used.
     check : bool
-        Check that the data are finite and gamma positive definite wherever ``mask`` is True.
+        Check that the data are finite and gamma positive definite wherever ``valid_mask`` is
+        True.
 
     Returns
     -------
@@ -176,31 +188,32 @@ def adm_constraints(gamma, K, E=None, B=None, *, spacing, order=4, units="gaussi
     >>> bool(res.hamiltonian_norms.normalised_l2 < 1e-4)
     True
     """
-    args.choice(_FUNC, "order", order, args.DIFFERENCE_ORDERS)
-    args.choice(_FUNC, "field_index", field_index, args.FIELD_INDICES)
-    gamma = args.float_array(_FUNC, "gamma", gamma)
-    K = args.float_array(_FUNC, "K", K)
+    function = "adm_constraints"
+    args.choice(function, "order", order, args.DIFFERENCE_ORDERS)
+    args.choice(function, "field_index", field_index, args.FIELD_INDICES)
+    gamma = args.float_array(function, "gamma", gamma)
+    K = args.float_array(function, "K", K)
     if gamma.ndim != 4 or gamma.shape[0] != 6:
-        raise ValueError(f"{_FUNC}: gamma must have shape (6, nx, ny, nz) (packed, 3D grid), "
+        raise ValueError(f"{function}: gamma must have shape (6, nx, ny, nz) (packed, 3D grid), "
                          f"found {gamma.shape}")
     grid = gamma.shape[1:]
     if K.shape != gamma.shape:
-        raise ValueError(f"{_FUNC}: K must have shape {gamma.shape}, found {K.shape}")
+        raise ValueError(f"{function}: K must have shape {gamma.shape}, found {K.shape}")
     if (E is None) != (B is None):
-        raise ValueError(f"{_FUNC}: give both E and B (electromagnetic sources) or neither "
+        raise ValueError(f"{function}: give both E and B (electromagnetic sources) or neither "
                          f"(vacuum); found E {'None' if E is None else 'given'}, "
                          f"B {'None' if B is None else 'given'}")
     vacuum = E is None
     if not vacuum:
         check_unit_system(units)
-        E = args.vector(_FUNC, "E", E, grid, "component_first")
-        B = args.vector(_FUNC, "B", B, grid, "component_first")
-    spacing = np.array(args.grid_spacing(_FUNC, spacing, 3))
+        E = args.vector(function, "E", E, grid, "component_first")
+        B = args.vector(function, "B", B, grid, "component_first")
+    spacing = np.array(args.grid_spacing(function, spacing, 3))
     radius = stencil_radius(order)
     if min(grid) < 2 * radius + 1:
-        raise ValueError(f"{_FUNC}: every axis needs at least {2 * radius + 1} points for order "
+        raise ValueError(f"{function}: every axis needs at least {2 * radius + 1} points for order "
                          f"{order}, found grid {grid}")
-    mask = args.point_mask(_FUNC, mask, grid)
+    valid = args.point_mask(function, valid_mask, grid)
 
     gamma64 = np.ascontiguousarray(gamma, dtype=np.float64)
     K64 = np.ascontiguousarray(K, dtype=np.float64)
@@ -208,7 +221,7 @@ def adm_constraints(gamma, K, E=None, B=None, *, spacing, order=4, units="gaussi
         named = {"gamma": gamma64, "K": K64}
         if not vacuum:
             named.update(E=E, B=B)
-        args.check_points(_FUNC, grid, named, valid=mask,
+        args.check_points(function, grid, named, valid=valid,
                           metric=("gamma", gamma64, args.PACKED_METRIC_INDEX))
 
     if vacuum:
@@ -221,15 +234,15 @@ def adm_constraints(gamma, K, E=None, B=None, *, spacing, order=4, units="gaussi
         rho = np.ascontiguousarray(src.rho)
         S_i = np.ascontiguousarray(src.S_i)
 
-    evaluated = evaluable_points(mask, order)
+    interior = interior_points(valid, order)
     H = np.empty(grid)
     M = np.empty((3,) + grid)
     H_scale = np.empty(grid)
     M_scale = np.empty((3,) + grid)
-    adm_constraints_grid(gamma64, K64, rho, S_i, evaluated.view(np.uint8),
+    adm_constraints_grid(gamma64, K64, rho, S_i, interior.view(np.uint8),
                          first_derivative_weights(order), second_derivative_weights(order),
                          1.0 / spacing, _SYM, 16.0 * math.pi, 8.0 * math.pi,
                          H, M, H_scale, M_scale)
     return ConstraintResiduals(hamiltonian=H, momentum=M, hamiltonian_scale=H_scale,
-                               momentum_scale=M_scale, evaluated=evaluated, order=order,
+                               momentum_scale=M_scale, interior=interior, order=order,
                                units=None if vacuum else units)

@@ -27,7 +27,8 @@ from typing import Callable
 
 import numpy as np
 
-from .conservation import slice_residual
+from ._deprecated_names import renamed_fields, renamed_keywords
+from .conservation import level_residual
 
 __all__ = [
     "ConvergenceTable",
@@ -184,27 +185,30 @@ def convergence_study(compute: Callable, resolutions, *, case="custom", design_o
     return ConvergenceTable(case, design_order, resolutions, spacings, errors, orders, extra)
 
 
-def residual_convergence(make_slice: Callable, resolutions, *, order=4, time_derivatives="supplied",
+@renamed_keywords(make_slice="make_level")
+def residual_convergence(make_level: Callable, resolutions, *, order=4, time_derivatives="supplied",
                          t=0.37, time_step_factor=0.4, case="custom",
                          include_charges=True) -> ConvergenceTable:
     """Convergence of the conservation residual on exact data.
 
     Parameters
     ----------
-    make_slice : callable
-        ``make_slice(resolution, t) -> SliceFields`` (exact data at time t on a grid with
+    make_level : callable
+        ``make_level(resolution, t) -> TimeLevelFields`` (exact data at time t on a grid with
         ``resolution`` points per axis).
     resolutions : sequence of int
-        Coarsest first, at least two (three or more to see the order settle).
+        Points per axis of each run, coarsest first, at least two (three or more to see the
+        order settle).
     order : {2, 4, 6}
         Order of the centred differences.
     time_derivatives : {"supplied", "levels"}
-        "supplied": the slices' exact d_t E, d_t B, d_t gamma (design order ``order``);
-        "levels": slices at t -+ dt with dt = time_step_factor * h (design order min(order, 2)).
+        "supplied": the levels' exact d_t E, d_t B, d_t gamma (design order ``order``);
+        "levels": time levels at t -+ dt with dt = time_step_factor * h (design order
+        min(order, 2)).
         Keep ``time_step_factor`` away from 1: for fields of x - t only, dt = h makes the time and
         space differences cancel exactly.
     include_charges : bool
-        Passed to :func:`emsource.conservation.slice_residual`.
+        Passed to :func:`emsource.conservation.level_residual`.
 
     Returns
     -------
@@ -218,13 +222,13 @@ def residual_convergence(make_slice: Callable, resolutions, *, order=4, time_der
                          f"found {time_derivatives!r}")
 
     def compute(n):
-        now = make_slice(n, t)
+        now = make_level(n, t)
         if time_derivatives == "supplied":
-            r = slice_residual(now, order=order, include_charges=include_charges)
+            r = level_residual(now, order=order, include_charges=include_charges)
         else:
             dt = time_step_factor * now.grid.spacing[0]
-            r = slice_residual(now, order=order, before=make_slice(n, t - dt),
-                               after=make_slice(n, t + dt), include_charges=include_charges)
+            r = level_residual(now, order=order, before=make_level(n, t - dt),
+                               after=make_level(n, t + dt), include_charges=include_charges)
         momentum = math.sqrt(float(np.sum(np.square(r.momentum_norms.l2))))
         normalised = significant_normalised_l2(r)
         return now.grid.spacing[0], {"energy L2": r.energy_norms.l2, "momentum L2": momentum,
@@ -250,13 +254,18 @@ def significant_normalised_l2(residual, floor=1e-12) -> float:
 
 # --------------------------------------------------------------------------- named cases
 
+@renamed_fields(make_slice="make_level")
 @dataclass(frozen=True)
 class Case:
-    """A named convergence case: exact data on a box at a given number of points per axis."""
+    """A named convergence case: exact data on a box at a given number of points per axis.
+
+    ``make_level(resolution, t) -> TimeLevelFields``; ``resolutions``: the points per axis of
+    each run, coarsest first.
+    """
 
     name: str
     description: str
-    make_slice: Callable  # (resolution, t) -> SliceFields
+    make_level: Callable
     resolutions: tuple
 
 
@@ -277,7 +286,7 @@ def run_case(name: str, *, order=4, resolutions=None, time_derivatives="supplied
     if name not in CASES:
         raise ValueError(f"run_case: unknown case {name!r}; known cases: {sorted(CASES)}")
     case = CASES[name]
-    return residual_convergence(case.make_slice, case.resolutions if resolutions is None else resolutions,
+    return residual_convergence(case.make_level, case.resolutions if resolutions is None else resolutions,
                                 order=order, time_derivatives=time_derivatives, case=name)
 
 

@@ -26,10 +26,10 @@ Per time level, streamed in slabs like :mod:`emsource.snapshot.sources_pipeline`
 Every level is the combination of per-slab partial results (:mod:`emsource.reductions`);
 :func:`level_partial` computes one.
 
-Luminosity quadrature: Gauss-Legendre in cos(theta) with ``n_theta`` nodes times the uniform
-rule with ``2 n_theta`` points in phi, both spectrally accurate for smooth integrands (the
-uniform rule is exact for trigonometric polynomials of degree < 2 n_theta; Gauss-Legendre for
-polynomials of degree < 2 n_theta in cos(theta)). F^i is interpolated to the nodes by tensor-
+Luminosity quadrature: Gauss-Legendre in cos(theta) with ``theta_points`` nodes times the
+uniform rule with ``2 theta_points`` points in phi, both spectrally accurate for smooth
+integrands (the uniform rule is exact for trigonometric polynomials of degree < 2 theta_points;
+Gauss-Legendre for polynomials of degree < 2 theta_points in cos(theta)). F^i is interpolated to the nodes by tensor-
 product Lagrange interpolation through ``interpolation_points`` (even, default 4: cubic, error
 O(h^4)) grid points per axis.
 """
@@ -42,20 +42,23 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from . import _arguments as args
+from ._deprecated_names import renamed_attribute, renamed_keywords
 from .energy_flux import energy_fluxes
 from .reductions import LevelPartial, Sum, combine
-from .snapshot import CHUNK_CACHE_BYTES, SnapshotError, open_snapshot
+from .snapshot import CHUNK_CACHE_BYTES, SnapshotError, SnapshotFile, open_snapshot
 from .snapshot.slabs import (CONVERSION_BUFFER_BYTES, DEFAULT_MEMORY_LIMIT, SlabBuffers,
-                             choose_levels, progress_bar, slab_rows, slabs)
+                             progress_bar, slab_rows, slabs)
 from .sources import GridPointError
 
-__all__ = ["LevelIntegrals", "integrate_snapshot", "integrate_level_arrays", "level_partial",
+__all__ = ["LevelIntegrals", "integrate_snapshot", "integrate_open_snapshot",
+           "integrate_level_arrays", "level_partial",
            "sphere_quadrature", "lagrange_weights", "FACES"]
 
 FACES = ("x_lower", "x_upper", "y_lower", "y_upper", "z_lower", "z_upper")
-#: Values per grid point the integration holds at once: 16 inputs + mask, 11 sources, about
-#: 20 NumPy temporaries for sqrt(gamma), the inverse metric and F^i, and about 8 for the unit
-#: lapse and zero shift of a file without them, the cell weights and the weighted terms.
+#: Values per grid point the integration holds at once, an upper bound: 16 inputs + valid_mask,
+#: the 7 densities and fluxes of one kernel pass, up to 16 copies where masked points are
+#: replaced, and about 16 for the unit lapse and zero shift of a file without them, the cell
+#: weights and the weighted terms.
 INTEGRATION_VALUES_PER_POINT = 56
 
 
@@ -74,8 +77,8 @@ class LevelIntegrals:
         Outward energy flux through each face of the box (keys :data:`FACES`).
     luminosity : dict
         Radius -> energy flux out through the coordinate sphere of that radius.
-    excluded_points : int
-        Grid points left out of the volume integrals by ``valid_mask``.
+    excised_points : int
+        Excised grid points (``valid_mask`` = 0), left out of the volume integrals.
     max_electric_field, max_magnetic_field : float
         Largest sqrt(gamma_ij E^i E^j) and sqrt(gamma_ij B^i B^j) over the valid points.
     """
@@ -86,9 +89,11 @@ class LevelIntegrals:
     momentum: np.ndarray = field(default_factory=lambda: np.zeros(3))
     face_flux: dict = field(default_factory=lambda: {f: 0.0 for f in FACES})
     luminosity: dict = field(default_factory=dict)
-    excluded_points: int = 0
+    excised_points: int = 0
     max_electric_field: float = 0.0
     max_magnetic_field: float = 0.0
+
+    excluded_points = renamed_attribute("excluded_points", "excised_points")
 
     @classmethod
     def from_partial(cls, partial: LevelPartial, label, time, radii) -> "LevelIntegrals":
@@ -98,7 +103,7 @@ class LevelIntegrals:
         return cls(str(label), float(time), partial.energy.finalise(), partial.momentum.finalise(),
                    {f: float(v) for f, v in zip(FACES, faces)},
                    {float(r): float(v) for r, v in zip(radii, luminosity)},
-                   partial.excluded_points, partial.max_electric_field,
+                   partial.excised_points, partial.max_electric_field,
                    partial.max_magnetic_field)
 
     @property
@@ -107,16 +112,18 @@ class LevelIntegrals:
         return float(sum(self.face_flux.values()))
 
 
-def sphere_quadrature(radius: float, n_theta: int):
+@renamed_keywords(n_theta="theta_points")
+def sphere_quadrature(radius: float, theta_points: int):
     """Nodes (3, N), unit normals (3, N) and weights (N,) with sum(w f) ~ the surface integral.
 
-    Gauss-Legendre in mu = cos(theta) (``numpy.polynomial.legendre.leggauss``) times the uniform
-    rule in phi with 2 n_theta points; the weights include the area factor R^2.
+    Gauss-Legendre in mu = cos(theta) (``numpy.polynomial.legendre.leggauss``) with
+    ``theta_points`` nodes times the uniform rule in phi with 2 theta_points points,
+    N = 2 theta_points^2; the weights include the area factor R^2.
     """
-    if n_theta < 2:
-        raise ValueError(f"n_theta must be at least 2, found {n_theta}")
-    mu, w_mu = np.polynomial.legendre.leggauss(int(n_theta))
-    n_phi = 2 * int(n_theta)
+    if theta_points < 2:
+        raise ValueError(f"theta_points must be at least 2, found {theta_points}")
+    mu, w_mu = np.polynomial.legendre.leggauss(int(theta_points))
+    n_phi = 2 * int(theta_points)
     phi = 2 * np.pi * np.arange(n_phi) / n_phi
     sin_theta = np.sqrt(1 - mu**2)
     normals = np.stack([
@@ -163,7 +170,7 @@ class _Sphere:
     Immutable after construction: :meth:`slab_sum` returns a partial sum and changes nothing.
     """
 
-    def __init__(self, radius, grid, n_theta, npoints):
+    def __init__(self, radius, grid, theta_points, npoints):
         self.radius = _check_radius(radius)
         self.npoints = npoints
         if npoints < 2 or npoints % 2:
@@ -177,7 +184,7 @@ class _Sphere:
             # not an overflow: every node has |x_a| <= R, and the extreme ones nearly R.
             if not (lo < 0 < hi) or self.radius >= max(abs(lo), abs(hi)):
                 self._does_not_fit(a, lo, hi)
-        points, self.normals, self.weights = sphere_quadrature(self.radius, n_theta)
+        points, self.normals, self.weights = sphere_quadrature(self.radius, theta_points)
         self.starts = []
         self.stencil = []
         for a in range(3):
@@ -243,7 +250,7 @@ def _flux_densities(alpha, beta, gamma, E, B, *, units):
 def _harmless(arrays, valid, in_place):
     """Arrays with flat metric, zero field, unit lapse and zero shift at invalid points.
 
-    Masked points hold whatever the writer put there (NaN at a singularity): they are left out
+    Invalid points hold whatever the writer put there (NaN at a singularity): they are left out
     of every sum, but the whole slab goes through one vectorised evaluation, which must not
     see them. ``in_place`` overwrites the (caller-owned scratch) arrays; otherwise copies.
     """
@@ -275,7 +282,8 @@ def _shifted(error, axis, offset, npoints, function="integrate"):
     return GridPointError(function, error.bad_count, npoints, tuple(index), error.reason)
 
 
-def level_partial(grid, gamma, E, B, *, units="gaussian", lapse=None, shift=None, mask=None,
+@renamed_keywords(mask="valid_mask")
+def level_partial(grid, gamma, E, B, *, units="gaussian", lapse=None, shift=None, valid_mask=None,
                   spheres=(), axis=0, start=0, stop=None, in_place=False) -> LevelPartial:
     """Partial integrals of the rows ``start:stop`` along ``axis`` of a level on ``grid``.
 
@@ -286,7 +294,7 @@ def level_partial(grid, gamma, E, B, *, units="gaussian", lapse=None, shift=None
     partials of pieces that tile the grid combine (:func:`emsource.reductions.combine`) into
     the partial of the level, which :meth:`LevelIntegrals.from_partial` finalises.
 
-    Points where ``mask`` is 0 are neither checked nor used: they are replaced by a flat
+    Points where ``valid_mask`` is 0 are neither checked nor used: they are replaced by a flat
     metric, zero field, unit lapse and zero shift before the evaluation (in the arrays
     themselves with ``in_place``, otherwise in copies) and left out of the sums. At valid
     points gamma, E, B, the lapse and the shift must be finite, the metric positive definite
@@ -294,7 +302,7 @@ def level_partial(grid, gamma, E, B, *, units="gaussian", lapse=None, shift=None
     """
     stop = grid.shape[axis] if stop is None else stop
     nrows = stop - start
-    valid = None if mask is None else np.asarray(mask).astype(bool, copy=False)
+    valid = None if valid_mask is None else np.asarray(valid_mask).astype(bool, copy=False)
     shape = gamma.shape[1:]
     try:
         named = {"lapse": lapse, "shift": shift}
@@ -317,13 +325,13 @@ def level_partial(grid, gamma, E, B, *, units="gaussian", lapse=None, shift=None
     cell = (w[0][:, None, None] * w[1][None, :, None]) * w[2][None, None, :]
     density = energy[own]
     momentum = momentum[(slice(None),) + own]
-    excluded = 0
+    excised = 0
     valid_own = None
     if valid is not None:
         valid_own = valid[own]
         density = np.where(valid_own, density, 0.0)
         momentum = np.where(valid_own, momentum, 0.0)
-        excluded = int(valid_own.size - np.count_nonzero(valid_own))
+        excised = int(valid_own.size - np.count_nonzero(valid_own))
     extremes = []
     for vector in (E, B):
         v = vector[(slice(None),) + own]
@@ -355,67 +363,101 @@ def level_partial(grid, gamma, E, B, *, units="gaussian", lapse=None, shift=None
     luminosity = Sum(np.array([x.value for x in spheres_sum]),
                      np.array([x.magnitude for x in spheres_sum]))
     return LevelPartial(Sum.of(density * cell), Sum.of(momentum * cell, axis=(1, 2, 3)),
-                        face_flux, luminosity, density.size - excluded, excluded, *extremes)
+                        face_flux, luminosity, density.size - excised, excised, *extremes)
 
 
+@renamed_keywords(mask="valid_mask", n_theta="theta_points")
 def integrate_level_arrays(grid, gamma, E, B, *, units="gaussian", lapse=None, shift=None,
-                           mask=None, radii=(), n_theta=32, interpolation_points=4,
+                           valid_mask=None, radii=(), theta_points=32, interpolation_points=4,
                            label="0", time=0.0) -> LevelIntegrals:
     """Integrated quantities of in-memory (x, y, z)-order arrays (one slab: the whole grid).
 
-    ``mask`` (nonzero = valid) leaves points out of the sums and out of the checks; the
+    ``valid_mask`` (nonzero = valid) leaves points out of the sums and out of the checks; the
     inputs are never modified.
     """
-    spheres = [_Sphere(r, grid, n_theta, interpolation_points) for r in radii]
-    partial = level_partial(grid, gamma, E, B, units=units, lapse=lapse, shift=shift, mask=mask,
-                            spheres=spheres)
+    spheres = [_Sphere(r, grid, theta_points, interpolation_points) for r in radii]
+    partial = level_partial(grid, gamma, E, B, units=units, lapse=lapse, shift=shift,
+                            valid_mask=valid_mask, spheres=spheres)
     return LevelIntegrals.from_partial(partial, label, time, [s.radius for s in spheres])
 
 
-def integrate_snapshot(input_file, *, mapping=None, radii=(), n_theta=32, interpolation_points=4,
-                       memory_limit=DEFAULT_MEMORY_LIMIT, rows=None, levels=None,
-                       progress=False) -> list:
+@renamed_keywords(n_theta="theta_points")
+def integrate_snapshot(input_file, *, mapping=None, radii=(), theta_points=32,
+                       interpolation_points=4, memory_limit=DEFAULT_MEMORY_LIMIT, rows=None,
+                       levels=None, progress=False) -> list:
     """Integrated quantities of every time level of a snapshot file, streamed in slabs.
+
+    Opens the file (read-only) and calls :func:`integrate_open_snapshot`; a caller that has the
+    snapshot open already passes it to that function instead, and the file is opened once.
 
     Parameters
     ----------
-    input_file, mapping, memory_limit, rows, levels, progress
+    input_file, mapping
+        The snapshot and its layout mapping, as for :func:`emsource.snapshot.open_snapshot`.
+    radii, theta_points, interpolation_points, memory_limit, rows, levels, progress
+        As for :func:`integrate_open_snapshot`.
+
+    Returns
+    -------
+    list of LevelIntegrals
+    """
+    with open_snapshot(input_file, mapping) as snap:
+        return integrate_open_snapshot(snap, radii=radii, theta_points=theta_points,
+                                       interpolation_points=interpolation_points,
+                                       memory_limit=memory_limit, rows=rows, levels=levels,
+                                       progress=progress)
+
+
+def integrate_open_snapshot(snap: SnapshotFile, *, radii=(), theta_points=32,
+                            interpolation_points=4, memory_limit=DEFAULT_MEMORY_LIMIT, rows=None,
+                            levels=None, progress=False) -> list:
+    """Integrated quantities of the time levels of an open snapshot, streamed in slabs.
+
+    Parameters
+    ----------
+    snap : emsource.snapshot.SnapshotFile
+        From :func:`emsource.snapshot.open_snapshot`; it stays open (the caller closes it).
+    memory_limit, rows, levels, progress
         As for :func:`emsource.snapshot.sources_pipeline.compute_sources`.
     radii : sequence of float
         Radii of the coordinate spheres (centred on the origin) for the luminosity.
-    n_theta : int
-        Gauss-Legendre nodes in theta (2 n_theta points in phi).
+    theta_points : int
+        Gauss-Legendre nodes in theta (2 theta_points points in phi).
     interpolation_points : int
         Lagrange points per axis (even).
 
     Returns
     -------
     list of LevelIntegrals
-        Computed in float64 whatever the stored dtype. Needs spatial_metric, electric_field and magnetic_field; lapse and shift are used where
-        present (else alpha = 1, beta = 0), and valid_mask where present.
+        Computed in float64 whatever the stored dtype. Needs spatial_metric, electric_field and
+        magnetic_field; lapse and shift are used where present (else alpha = 1, beta = 0), and
+        valid_mask where present.
     """
+    if not isinstance(snap, SnapshotFile):
+        raise TypeError("integrate_open_snapshot: snap must be an emsource.snapshot.SnapshotFile "
+                        f"(from open_snapshot), found {type(snap).__name__}; pass a path to "
+                        "integrate_snapshot")
     halo = interpolation_points - 1 if radii else 0
     results = []
-    with open_snapshot(input_file, mapping) as snap:
-        chosen = choose_levels(snap.levels, levels)
-        plans = []
-        for level in chosen:
-            for q in ("spatial_metric", "electric_field", "magnetic_field"):
-                level.dtype(q)
-            # Sums over millions of points: always accumulate in float64.
-            dtype = np.dtype(np.float64)
-            fixed = CHUNK_CACHE_BYTES * 17 + CONVERSION_BUFFER_BYTES
-            n = rows or slab_rows(level, INTEGRATION_VALUES_PER_POINT, dtype.itemsize,
-                                  memory_limit, fixed=fixed, halo=halo)
-            spheres = [_Sphere(r, level.grid, n_theta, interpolation_points) for r in radii]
-            plans.append((level, dtype, int(min(n, level.storage_shape[0])), spheres))
-        bar = progress_bar(sum(len(slabs(lv.storage_shape[0], n)) for lv, _, n, _ in plans),
-                           "integrate", progress)
-        try:
-            for level, dtype, n, spheres in plans:
-                results.append(_integrate_level(level, dtype, n, halo, spheres, bar))
-        finally:
-            bar.close()
+    chosen = snap.select(levels)
+    plans = []
+    for level in chosen:
+        for q in ("spatial_metric", "electric_field", "magnetic_field"):
+            level.dtype(q)
+        # Sums over millions of points: always accumulate in float64.
+        dtype = np.dtype(np.float64)
+        fixed = CHUNK_CACHE_BYTES * 17 + CONVERSION_BUFFER_BYTES
+        n = rows or slab_rows(level, INTEGRATION_VALUES_PER_POINT, dtype.itemsize,
+                              memory_limit, fixed=fixed, halo=halo)
+        spheres = [_Sphere(r, level.grid, theta_points, interpolation_points) for r in radii]
+        plans.append((level, dtype, int(min(n, level.storage_shape[0])), spheres))
+    bar = progress_bar(sum(len(slabs(lv.storage_shape[0], n)) for lv, _, n, _ in plans),
+                       "integrate", progress)
+    try:
+        for level, dtype, n, spheres in plans:
+            results.append(_integrate_level(level, dtype, n, halo, spheres, bar))
+    finally:
+        bar.close()
     return results
 
 
@@ -430,11 +472,12 @@ def _integrate_level(level, dtype, rows, halo, spheres, bar):
     for start, stop in slabs(n0, rows):
         end = min(stop + halo, n0)
         arrays = {q: buffers.read(q, start, end) for q in wanted + optional if q != "valid_mask"}
-        mask = masks.read("valid_mask", start, end) if masks else None
+        valid_mask = masks.read("valid_mask", start, end) if masks else None
         try:
             piece = level_partial(level.grid, arrays["spatial_metric"], arrays["electric_field"],
                                   arrays["magnetic_field"], units=level.units,
-                                  lapse=arrays.get("lapse"), shift=arrays.get("shift"), mask=mask,
+                                  lapse=arrays.get("lapse"), shift=arrays.get("shift"),
+                                  valid_mask=valid_mask,
                                   spheres=spheres, axis=level.slab_axis, start=start, stop=stop,
                                   in_place=True)
         except GridPointError as error:

@@ -1,6 +1,7 @@
-"""Compatibility names for :mod:`emsource.snapshot` (tests of other modules import them here).
+"""Short import names for the snapshot functions that tests of other modules use.
 
-New code imports from :mod:`emsource.snapshot`.
+Everything here is defined in :mod:`emsource.snapshot`; the package's own modules import it from
+there, so that the snapshot package stays the one place that reads and writes files.
 """
 
 from .snapshot import (OutputError, SnapshotError, atomic_output, open_snapshot, read_level,

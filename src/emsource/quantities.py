@@ -12,7 +12,7 @@ name
     File and dataset name (plain words, the native layout and the mapping keys).
 api
     Name of the same quantity in the Python API (argument names of :func:`emsource.adm_sources`
-    and attributes of :class:`emsource.exact.SliceFields`).
+    and attributes of :class:`emsource.exact.TimeLevelFields`).
 components
     0 for a scalar, 3 for a vector or covector, 6 for a symmetric 3x3 tensor packed
     (xx, xy, xz, yy, yz, zz).
@@ -69,7 +69,7 @@ TABLE = (
     Quantity("magnetic_field", "B", 3, "vector", "field", "input"),
     Quantity("charge_density", "charge_density", 0, "scalar", "charge/length^3", "input"),
     Quantity("current_density", "current_density", 3, "vector", "charge/length^2/time", "input"),
-    Quantity("valid_mask", "mask", 0, "mask", "dimensionless", "mask"),
+    Quantity("valid_mask", "valid_mask", 0, "mask", "dimensionless", "mask"),
     Quantity("energy_density", "rho", 0, "scalar", "field^2", "output"),
     Quantity("momentum_density", "S_i", 3, "covector", "field^2/c", "output"),
     Quantity("spatial_stress", "S_ij", 6, "symmetric_lower", "field^2", "output"),

@@ -39,6 +39,8 @@ from typing import NamedTuple
 
 import numpy as np
 
+from ._deprecated_names import renamed_attribute, warn_renamed
+
 __all__ = [
     "accurate_sum",
     "combine",
@@ -260,8 +262,8 @@ class LevelPartial:
         Outward energy flux through each face, in the order of :data:`emsource.integrals.FACES`.
     luminosity : Sum, shape (nradii,)
         Quadrature-weighted normal flux over the sphere nodes this piece owns.
-    points, excluded_points : int
-        Valid points summed, and points left out by the mask.
+    points, excised_points : int
+        Valid points summed, and excised points (valid_mask = 0) left out.
     max_electric_field, max_magnetic_field : float
         Largest sqrt(gamma_ij E^i E^j), sqrt(gamma_ij B^i B^j) over the valid points (0 if none).
     """
@@ -271,9 +273,11 @@ class LevelPartial:
     face_flux: Sum
     luminosity: Sum
     points: int
-    excluded_points: int
+    excised_points: int
     max_electric_field: float
     max_magnetic_field: float
+
+    excluded_points = renamed_attribute("excluded_points", "excised_points")
 
     @classmethod
     def zero(cls, nradii) -> "LevelPartial":
@@ -285,7 +289,7 @@ class LevelPartial:
                             self.face_flux.combine(other.face_flux),
                             self.luminosity.combine(other.luminosity),
                             self.points + other.points,
-                            self.excluded_points + other.excluded_points,
+                            self.excised_points + other.excised_points,
                             max(self.max_electric_field, other.max_electric_field),
                             max(self.max_magnetic_field, other.max_magnetic_field))
 
@@ -295,7 +299,7 @@ class BalanceTerms(NamedTuple):
 
     ``change + outflow - source`` is zero for exact data; ``mismatch`` is that sum,
     ``absolute_mismatch`` its absolute value and ``relative_mismatch`` = |mismatch| / ``scale``
-    with ``scale`` the largest field energy in the box over the slices (for the momentum too:
+    with ``scale`` the largest field energy in the box over the time levels (for the momentum too:
     |S_i|_gamma <= rho for the electromagnetic field, so the box energy bounds every momentum
     component's total; a closed box whose energy drifts by 1 % shows 0.01). Floats for the
     energy, (3,) arrays for the momentum (covariant components).
@@ -317,7 +321,7 @@ class GlobalBalance:
     Attributes
     ----------
     times : (n,) ndarray
-        Times of the slices.
+        Times of the time levels.
     totals : (n, 4) ndarray
         Integral of sqrt(gamma) rho and sqrt(gamma) S_j over the box (coordinate volume d^3x).
     outflow_rates : (n, 4) ndarray
@@ -341,17 +345,17 @@ class GlobalBalance:
 
 @dataclass(frozen=True)
 class BalancePartial:
-    """Partial box totals, face outflow rates and source rates of every slice of a balance.
+    """Partial box totals, face outflow rates and source rates of every time level of a balance.
 
-    A piece of slice k contributes to row k only; the rows of the other slices are zero, so
-    pieces of different slices and of different places combine by the same addition.
+    A piece of level k contributes to row k only; the rows of the other levels are zero, so
+    pieces of different levels and of different places combine by the same addition.
 
     Attributes
     ----------
     times : tuple of float
-        Times of all slices of the balance (the same in every partial).
+        Times of all time levels of the balance (the same in every partial).
     totals, outflow_rates, source_rates : Sum, shape (n, 4)
-        Energy and the three momentum components per slice.
+        Energy and the three momentum components per time level.
     """
 
     times: tuple
@@ -360,8 +364,8 @@ class BalancePartial:
     source_rates: Sum
 
     @classmethod
-    def of_slice(cls, times, k, totals: Sum, outflow: Sum, source: Sum) -> "BalancePartial":
-        """The contribution of one piece of slice ``k``: (4,) sums placed in row k."""
+    def of_level(cls, times, k, totals: Sum, outflow: Sum, source: Sum) -> "BalancePartial":
+        """The contribution of one piece of time level ``k``: (4,) sums placed in row k."""
         n = len(times)
 
         def row(s):
@@ -371,6 +375,12 @@ class BalancePartial:
 
         return cls(tuple(float(t) for t in times), row(totals), row(outflow), row(source))
 
+    @classmethod
+    def of_slice(cls, times, k, totals: Sum, outflow: Sum, source: Sum) -> "BalancePartial":
+        """Deprecated spelling of :meth:`of_level`."""
+        warn_renamed("BalancePartial", "of_slice", "of_level")
+        return cls.of_level(times, k, totals, outflow, source)
+
     def combine(self, other: "BalancePartial") -> "BalancePartial":
         if self.times != other.times:
             raise ValueError("BalancePartial.combine: partials of different time series")
@@ -379,7 +389,7 @@ class BalancePartial:
                               self.source_rates.combine(other.source_rates))
 
     def finalise(self, box=None) -> GlobalBalance:
-        """Time integrals (trapezoid rule over the slice times) and the mismatch."""
+        """Time integrals (trapezoid rule over the times of the levels) and the mismatch."""
         times = np.array(self.times)
         totals = self.totals.finalise()
         outflows = self.outflow_rates.finalise()

@@ -68,13 +68,13 @@ components = ["fields/inside_domain"]
 
 
 def _as_float32(level, keep):
-    """The dict form of a SliceFields with the quantities in ``keep``, float32."""
+    """The dict form of a TimeLevelFields with the quantities in ``keep``, float32."""
     names = {"lapse": level.alpha, "shift": level.beta, "spatial_metric": level.gamma,
              "electric_field": level.E, "magnetic_field": level.B,
              "charge_density": level.charge_density, "current_density": level.current_density}
     entry = {q: names[q].astype(np.float32) for q in keep}
-    if level.mask is not None:
-        entry["valid_mask"] = level.mask.astype(np.uint8)
+    if level.valid_mask is not None:
+        entry["valid_mask"] = level.valid_mask.astype(np.uint8)
     entry.update(time=level.t, grid=level.grid, units=level.units)
     return entry
 
@@ -116,7 +116,7 @@ def write_foreign_dipole(path, level, *, force=False):
                     fields.create_dataset(f"{name}{axis}", data=data, compression="gzip",
                                           chunks=chunk_shape(data.shape, 4))
             fields.create_dataset("inside_domain", data=np.ascontiguousarray(
-                level.mask.astype(np.uint8).T), compression="gzip")
+                level.valid_mask.astype(np.uint8).T), compression="gzip")
 
 
 def write_sample_grids(directory, *, force=False, with_boosted_charge=True) -> list:

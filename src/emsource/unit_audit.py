@@ -3,15 +3,15 @@
 A metric solver in geometrized units couples to the field through G_ab = 8 pi T_ab. If the
 Maxwell solver works in Heaviside-Lorentz units and the stress-energy is built with the Gaussian
 1/(4 pi) (or the other way round), the energy density is off by 4 pi and the Hamiltonian
-constraint no longer converges to zero. This module evaluates
+constraint then fails to converge to zero. This module evaluates
 
     H = R + K^2 - K_ij K^ij - 16 pi rho,   M_i = D_j K^j_i - D_i K - 8 pi S_i
 
 (:func:`emsource.constraints.adm_constraints`) with rho, S_i from the data's E and B in each
 supported unit system, and with no electromagnetic source at all, on the given grid (spacing h)
 and on every second point of it (spacing 2 h), and reports for each hypothesis the residuals
-and their observed order of convergence p = log2(|res(2h)| / |res(h)|) on the points both grids
-evaluate.
+and their observed order of convergence p = log2(|res(2h)| / |res(h)|) on the points interior
+to both grids.
 
 A hypothesis *fits* when both H and M_i either converge at the design order p (observed order
 within :data:`ORDER_TOLERANCE` = 1 of p, see below) or already sit at round-off (normalised
@@ -43,17 +43,22 @@ from dataclasses import dataclass
 import numpy as np
 
 from . import _arguments as args
+from ._deprecated_names import module_aliases, renamed_keywords, warn_renamed
 from .constraints import adm_constraints
 from .kernels.stencils import stencil_radius
 from .reductions import NormPartial
 from .unit_systems import UNIT_SYSTEMS
 
-__all__ = ["HYPOTHESES", "NO_SOURCES", "ORDER_TOLERANCE", "ROUND_OFF", "HypothesisResult",
+__all__ = ["HYPOTHESES", "VACUUM", "ORDER_TOLERANCE", "ROUND_OFF", "HypothesisResult",
            "UnitAudit", "audit_units", "hypothesis_result", "order_fits"]
 
-#: Name of the hypothesis "the metric does not feel the field" (constraints without EM sources).
-NO_SOURCES = "no_sources"
-HYPOTHESES = UNIT_SYSTEMS + (NO_SOURCES,)
+#: Name of the hypothesis "the metric does not feel the field": the vacuum constraints, without
+#: electromagnetic sources (the same word as ``emsource constraints --sources vacuum``).
+VACUUM = "vacuum"
+HYPOTHESES = UNIT_SYSTEMS + (VACUUM,)
+#: The hypothesis name that ``UnitAudit.result`` also accepts for VACUUM (deprecated spelling).
+_OLD_VACUUM_NAME = "no_sources"
+__getattr__ = module_aliases(__name__, {"NO_SOURCES": ("VACUUM", VACUUM)})
 #: Normalised residual below which a constraint counts as satisfied to round-off.
 ROUND_OFF = 1e-12
 #: Largest distance of an observed order from the design order that counts as converging
@@ -63,7 +68,7 @@ ORDER_TOLERANCE = 1.0
 
 @dataclass(frozen=True)
 class HypothesisResult:
-    """Residuals under one hypothesis, on the points both the h and the 2 h grid evaluate.
+    """Residuals under one hypothesis, on the points interior to both the h and the 2 h grid.
 
     ``*_fine`` and ``*_coarse`` are normalised l2 norms (residual over its largest term; for
     M_i, sum_i M_i^2 over the same for the scales) at spacing h and 2 h; ``*_order`` the
@@ -108,7 +113,15 @@ class UnitAudit:
     message: str
 
     def result(self, name: str) -> HypothesisResult:
-        return next(r for r in self.results if r.name == name)
+        """The result of hypothesis ``name`` (one of :data:`HYPOTHESES`)."""
+        if name == _OLD_VACUUM_NAME:
+            warn_renamed("UnitAudit.result", _OLD_VACUUM_NAME, VACUUM)
+            name = VACUUM
+        try:
+            return next(r for r in self.results if r.name == name)
+        except StopIteration:
+            raise KeyError(f"UnitAudit.result: name must be one of {HYPOTHESES}, "
+                           f"found {name!r}") from None
 
     def table(self) -> str:
         """A plain-text table of the numbers, then the diagnosis."""
@@ -153,13 +166,13 @@ def hypothesis_result(name, fine, coarse, *, order) -> HypothesisResult:
 
     ``fine`` and ``coarse`` are :class:`emsource.constraints.ConstraintResiduals` of the same
     data at spacing h and on every second point of it at spacing 2 h. Norms are taken on the
-    points both evaluate; the observed order is log2 of their ratio.
+    points interior to both; the observed order is log2 of their ratio.
     """
     sub = (slice(None, None, 2),) * 3
-    common = coarse.evaluated & fine.evaluated[sub]
+    common = coarse.interior & fine.interior[sub]
     if not common.any():
-        raise ValueError("audit_units: no point is evaluated on both the h and the 2h grid "
-                         "(mask too large for this grid)")
+        raise ValueError("audit_units: no point is interior on both the h and the 2h grid "
+                         "(too few valid points for this grid)")
     fh, fhn = _norm(fine.hamiltonian[sub], fine.hamiltonian_scale[sub], common)
     ch, chn = _norm(coarse.hamiltonian, coarse.hamiltonian_scale, common)
     every_other = (slice(None),) + sub
@@ -170,7 +183,8 @@ def hypothesis_result(name, fine, coarse, *, order) -> HypothesisResult:
                             order_fits(p_h, fhn, order) and order_fits(p_m, fmn, order))
 
 
-def audit_units(gamma, K, E, B, *, spacing, order=4, field_index="upper", mask=None,
+@renamed_keywords(mask="valid_mask")
+def audit_units(gamma, K, E, B, *, spacing, order=4, field_index="upper", valid_mask=None,
                 check=True) -> UnitAudit:
     """Evaluate the constraints under each unit system and without sources; name what fits.
 
@@ -185,7 +199,7 @@ def audit_units(gamma, K, E, B, *, spacing, order=4, field_index="upper", mask=N
         2 h grid has interior points.
     order : {2, 4, 6}
     field_index : {"upper", "lower"}
-    mask : (nx, ny, nz) bool ndarray or None
+    valid_mask : (nx, ny, nz) bool ndarray or None
         True where the data are valid.
     check : bool
         Passed to :func:`emsource.constraints.adm_constraints`.
@@ -211,33 +225,33 @@ def audit_units(gamma, K, E, B, *, spacing, order=4, field_index="upper", mask=N
     if len(grid) != 3 or min(grid) < need:
         raise ValueError(f"audit_units: every axis needs at least {need} points for order "
                          f"{order} (the 2h grid must have interior points), found grid {grid}")
-    mask = args.point_mask("audit_units", mask, grid)
+    mask = args.point_mask("audit_units", valid_mask, grid)
     # The coarse grid is every second point of the fine one, at exactly twice its spacing.
     every_other = (slice(None), slice(None, None, 2), slice(None, None, 2), slice(None, None, 2))
-    levels = {"fine": ((gamma, K, E, B), spacing, mask),
+    grids = {"fine": ((gamma, K, E, B), spacing, mask),
               "coarse": (tuple(np.asarray(a)[every_other] for a in (gamma, K, E, B)),
                          2.0 * spacing, mask[every_other[1:]])}
     outcome = {}
     for name in HYPOTHESES:
         per_grid = []
-        for level in ("fine", "coarse"):
-            (g, k, e, b), h, m = levels[level]
-            if name == NO_SOURCES:
-                res = adm_constraints(g, k, spacing=h, order=order, mask=m, check=check)
+        for which in ("fine", "coarse"):
+            (g, k, e, b), h, m = grids[which]
+            if name == VACUUM:
+                res = adm_constraints(g, k, spacing=h, order=order, valid_mask=m, check=check)
             else:
                 res = adm_constraints(g, k, e, b, spacing=h, order=order, units=name,
-                                      field_index=field_index, mask=m, check=check)
+                                      field_index=field_index, valid_mask=m, check=check)
             per_grid.append(res)
         outcome[name] = hypothesis_result(name, *per_grid, order=order)
     sub = every_other[1:]
-    points = int((per_grid[1].evaluated & per_grid[0].evaluated[sub]).sum())
+    points = int((per_grid[1].interior & per_grid[0].interior[sub]).sum())
     results = tuple(outcome[n] for n in HYPOTHESES)
     fitting = [r.name for r in results if r.fits]
     smallest = min(results, key=lambda r: (r.hamiltonian_fine, r.momentum_fine)).name
     if len(fitting) == 1:
         verdict = fitting[0]
-        if verdict == NO_SOURCES:
-            message = ("no_sources fits: the constraints converge without electromagnetic "
+        if verdict == VACUUM:
+            message = ("vacuum fits: the constraints converge without electromagnetic "
                        "sources, so the metric does not feel this field (a test field, or the "
                        "coupling is missing in the code that wrote the data)")
         else:
@@ -251,7 +265,7 @@ def audit_units(gamma, K, E, B, *, spacing, order=4, field_index="upper", mask=N
         message = f"ambiguous: {', '.join(fitting)} all fit; {reason}"
     else:
         verdict = "none fits"
-        message = (f"none fits: no unit system (nor no sources) makes the constraints converge; "
+        message = (f"none fits: no unit system (nor the vacuum constraints) makes the constraints converge; "
                    f"the smallest residual is with {smallest}. The field may be rescaled by "
                    "another factor, other matter may be present, or the data are inconsistent")
     return UnitAudit(results=results, verdict=verdict, smallest=smallest, order=order,

@@ -13,7 +13,7 @@ def register(subparsers):
         help="find the EM unit system under which a snapshot satisfies the constraints",
         description="Evaluate the Hamiltonian and momentum constraints of a snapshot with the "
                     "electromagnetic sources in Gaussian units, in Heaviside-Lorentz units and "
-                    "without sources, at the file's spacing h and at 2h, and report which "
+                    "without them (vacuum), at the file's spacing h and at 2h, and report which "
                     "makes them converge. Exit code 0 when exactly one fits, 1 otherwise.",
     )
     add_snapshot_arguments(p)
@@ -28,7 +28,7 @@ def run(args) -> int:
     try:
         d = read_slice(args.snapshot, args.level, args.mapping)
         audit = audit_units(d["gamma"], d["K"], d["E"], d["B"], spacing=d["spacing"],
-                            order=args.order, mask=d["mask"])
+                            order=args.order, valid_mask=d["mask"])
     except (ValueError, TypeError, IndexError) as exc:
         print(f"emsource audit-units: {exc}")
         return EXIT_BAD_INPUT

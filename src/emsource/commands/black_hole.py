@@ -1,7 +1,8 @@
-"""``emsource black-hole``: write a Kerr-Newman slice (Kerr-Schild coordinates) as a snapshot."""
+"""``emsource black-hole``: write a Kerr-Newman time level (Kerr-Schild coordinates) as a snapshot."""
 
 from __future__ import annotations
 
+import argparse
 import sys
 
 import numpy as np
@@ -29,8 +30,12 @@ def register(subparsers):
                    help="lower corner of the box (default -4 -4 -4)")
     p.add_argument("--upper", type=float, nargs=3, default=[4.0, 4.0, 4.0], metavar="X",
                    help="upper corner of the box (default 4 4 4)")
-    p.add_argument("--mask-radius", type=float, default=None,
-                   help="mark points with spheroidal radius below this invalid (default r+)")
+    p.add_argument("--excision-radius", type=float, default=None,
+                   help="excise the points with spheroidal radius below this: valid_mask = 0 "
+                        "(default r+, the outer horizon)")
+    # Deprecated spelling of --excision-radius, still accepted.
+    p.add_argument("--mask-radius", dest="excision_radius", type=float,
+                   default=argparse.SUPPRESS, help=argparse.SUPPRESS)
     p.add_argument("--units", choices=("gaussian", "heaviside_lorentz"), default="gaussian",
                    help="unit system of E and B (default gaussian)")
     p.add_argument("--float32", action="store_true", help="store single precision")
@@ -54,7 +59,7 @@ def run(args) -> int:
             raise ValueError(f"--points needs one or three numbers >= 2, found {args.points}")
         grid = UniformGrid.from_bounds(args.lower, args.upper, points)
         data = kerr_newman(grid, mass=args.mass, spin=args.spin, charge=args.charge,
-                           mask_radius=args.mask_radius, units=args.units,
+                           excision_radius=args.excision_radius, units=args.units,
                            dtype=np.float32 if args.float32 else np.float64)
     except ValueError as exc:
         print(f"emsource black-hole: error: {exc}", file=sys.stderr)
@@ -63,7 +68,7 @@ def run(args) -> int:
         "description": "Kerr-Newman black hole, Kerr-Schild Cartesian coordinates, t = 0 slice "
                        "(stationary); written by emsource black-hole",
         "mass": args.mass, "spin": args.spin, "charge": args.charge,
-        "mask_radius": -1.0 if args.mask_radius is None else args.mask_radius,
+        "excision_radius": -1.0 if args.excision_radius is None else args.excision_radius,
     }
     try:
         write_snapshot(args.output, [data], force=args.force, compression="gzip",
@@ -72,5 +77,5 @@ def run(args) -> int:
         print(f"emsource black-hole: error: {exc}", file=sys.stderr)
         return EXIT_OUTPUT_ERROR
     print(f"wrote {args.output}: grid {grid.shape}, spacing {grid.spacing}, "
-          f"{int(data.mask.sum())} valid points, units {args.units}")
+          f"{int(data.valid_mask.sum())} valid points, units {args.units}")
     return EXIT_OK

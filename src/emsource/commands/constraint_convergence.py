@@ -50,7 +50,7 @@ def convergence_tables(mass, spin, charge, lower, upper, points, orders):
 
     data = {}
 
-    def slice_at(n):
+    def level_at(n):
         if n not in data:
             grid = UniformGrid.from_bounds(lower, upper, (n, n, n))
             data[n] = (grid, kerr_newman(grid, mass=mass, spin=spin, charge=charge))
@@ -58,12 +58,12 @@ def convergence_tables(mass, spin, charge, lower, upper, points, orders):
 
     tables = {}
     for order in orders:
-        for sources in ("gaussian", "none"):
+        for sources in ("gaussian", "vacuum"):
             def compute(n, order=order, sources=sources):
-                grid, d = slice_at(n)
+                grid, d = level_at(n)
                 fields = (d.E, d.B) if sources == "gaussian" else ()
                 res = adm_constraints(d.gamma, d.K, *fields, spacing=grid.spacing, order=order,
-                                      mask=d.mask)
+                                      valid_mask=d.valid_mask)
                 return grid.spacing[0], {
                     "hamiltonian": res.hamiltonian_norms.normalised_l2,
                     "momentum": float(max(res.momentum_norms.normalised_l2))}
@@ -80,7 +80,7 @@ def convergence_table(mass, spin, charge, lower, upper, points, orders):
     tables = convergence_tables(mass, spin, charge, lower, upper, points, orders)
     for k, n in enumerate(points):
         for order in orders:
-            for sources in ("gaussian", "none"):
+            for sources in ("gaussian", "vacuum"):
                 t = tables[order, sources]
                 rows.append((order, sources, n, float(t.spacings[k]),
                              float(t.errors["hamiltonian"][k]), float(t.errors["momentum"][k])))
@@ -111,7 +111,7 @@ def run(args) -> int:
         for ax, column, title in ((axes[0], 4, "Hamiltonian constraint"),
                                   (axes[1], 5, "momentum constraint")):
             for order in args.orders:
-                for sources, style in (("gaussian", "-o"), ("none", ":x")):
+                for sources, style in (("gaussian", "-o"), ("vacuum", ":x")):
                     sel = [r for r in rows if r[0] == order and r[1] == sources]
                     label = (f"order {order}, " +
                              ("EM sources (Gaussian)" if sources == "gaussian" else "no EM sources"))

@@ -2,9 +2,15 @@
 
 from __future__ import annotations
 
+import sys
+
 from .._arguments import DIFFERENCE_ORDERS
 from . import EXIT_BAD_INPUT, EXIT_CHECK_FAILED, EXIT_OK
 from ._snapshot_level import add_snapshot_arguments, read_slice
+
+
+#: Values of --sources: the file's units, a named unit system, or the vacuum constraints.
+SOURCES = ("file", "gaussian", "heaviside_lorentz", "vacuum")
 
 
 def register(subparsers):
@@ -19,10 +25,11 @@ def register(subparsers):
     add_snapshot_arguments(p)
     p.add_argument("--order", type=int, choices=DIFFERENCE_ORDERS, default=4,
                    help="finite-difference order (default 4)")
-    p.add_argument("--sources", choices=("file", "gaussian", "heaviside_lorentz", "none"),
-                   default="file",
+    # "none" is the deprecated spelling of "vacuum": accepted, not listed.
+    p.add_argument("--sources", choices=SOURCES + ("none",), default="file",
+                   metavar="{" + ",".join(SOURCES) + "}",
                    help="unit system of the EM sources: the file's 'units' attribute (default), "
-                        "a named one, or none (vacuum)")
+                        "a named one, or vacuum (no EM sources)")
     p.add_argument("--tolerance", type=float, default=None,
                    help="exit with code 1 if a normalised l2 residual exceeds this")
     p.set_defaults(run=run)
@@ -31,20 +38,24 @@ def register(subparsers):
 def run(args) -> int:
     from ..constraints import adm_constraints
 
+    if args.sources == "none":
+        print("emsource constraints: --sources none is a deprecated spelling of --sources vacuum",
+              file=sys.stderr)
+        args.sources = "vacuum"
     try:
         d = read_slice(args.snapshot, args.level, args.mapping)
         units = (d["units"] or "gaussian") if args.sources == "file" else args.sources
-        if units == "none":
+        if units == "vacuum":
             res = adm_constraints(d["gamma"], d["K"], spacing=d["spacing"], order=args.order,
-                                  mask=d["mask"])
+                                  valid_mask=d["mask"])
         else:
             res = adm_constraints(d["gamma"], d["K"], d["E"], d["B"], spacing=d["spacing"],
-                                  order=args.order, units=units, mask=d["mask"])
+                                  order=args.order, units=units, valid_mask=d["mask"])
     except (ValueError, TypeError, IndexError) as exc:
         print(f"emsource constraints: {exc}")
         return EXIT_BAD_INPUT
     print(f"{args.snapshot}: order {args.order}, sources {units}, "
-          f"{int(res.evaluated.sum())} points evaluated")
+          f"{int(res.interior.sum())} interior points evaluated")
     print(f"{'constraint':<12} {'l2':>11} {'max':>11} {'norm. l2':>11} {'norm. max':>11}")
     h, m = res.hamiltonian_norms, res.momentum_norms
     rows = [("hamiltonian", h.l2, h.max, h.normalised_l2, h.normalised_max)]

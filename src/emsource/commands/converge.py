@@ -9,6 +9,7 @@ time levels), 1 if not.
 
 from __future__ import annotations
 
+import argparse
 import json
 import sys
 from pathlib import Path
@@ -26,8 +27,12 @@ def register(subparsers):
     parser.add_argument("--case", help="name of the case (required unless --list)")
     parser.add_argument("--order", type=int, choices=DIFFERENCE_ORDERS, default=4,
                         help="order of the centred differences (default 4)")
-    parser.add_argument("--resolutions", type=int, nargs="+", metavar="N",
-                        help="points per axis, coarsest first (default: the case's own)")
+    parser.add_argument("--points", type=int, nargs="+", metavar="N",
+                        help="points per axis, one run each, coarsest first (default: the "
+                             "case's own)")
+    # Deprecated spelling of --points, still accepted.
+    parser.add_argument("--resolutions", dest="points", type=int, nargs="+",
+                        default=argparse.SUPPRESS, help=argparse.SUPPRESS)
     parser.add_argument("--time-levels", action="store_true",
                         help="take time derivatives from three time levels instead of the exact ones")
     parser.add_argument("--plot", metavar="PATH", nargs="?", const="",
@@ -57,13 +62,13 @@ def run(args) -> int:
         print(f"emsource converge: unknown case {args.case!r}; known: "
               f"{', '.join(sorted(convergence.CASES)) or '(none)'}", file=sys.stderr)
         return EXIT_BAD_INPUT
-    if args.resolutions is not None and (len(args.resolutions) < 2 or
-                                         any(b <= a for a, b in zip(args.resolutions, args.resolutions[1:]))):
-        print("emsource converge: --resolutions needs two or more increasing point counts, found "
-              f"{args.resolutions}", file=sys.stderr)
+    if args.points is not None and (len(args.points) < 2 or
+                                    any(b <= a for a, b in zip(args.points, args.points[1:]))):
+        print("emsource converge: --points needs two or more increasing point counts, found "
+              f"{args.points}", file=sys.stderr)
         return EXIT_BAD_INPUT
     try:
-        table = convergence.run_case(args.case, order=args.order, resolutions=args.resolutions,
+        table = convergence.run_case(args.case, order=args.order, resolutions=args.points,
                                      time_derivatives="levels" if args.time_levels else "supplied")
     except ValueError as error:
         print(f"emsource converge: {error}", file=sys.stderr)

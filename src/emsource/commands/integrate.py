@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import argparse
 import math
 
 from . import EXIT_BAD_INPUT, EXIT_OK, EXIT_OUTPUT_ERROR
@@ -32,8 +33,11 @@ def register(subparsers):
     add_input_options(parser)
     parser.add_argument("--radius", metavar="R", type=radius, action="append", default=[],
                         help="radius of a luminosity sphere (code units); repeat for several")
-    parser.add_argument("--angular-points", metavar="N", type=int, default=32,
+    parser.add_argument("--theta-points", metavar="N", type=int, default=32,
                         help="Gauss-Legendre nodes in theta (2N in phi); default 32")
+    # Deprecated spelling of --theta-points, still accepted.
+    parser.add_argument("--angular-points", dest="theta_points", type=int,
+                        default=argparse.SUPPRESS, help=argparse.SUPPRESS)
     parser.add_argument("--interpolation-points", metavar="P", type=int, default=4,
                         help="Lagrange points per axis (even; default 4, cubic)")
     parser.add_argument("--mass", metavar="MSUN", type=float,
@@ -47,8 +51,8 @@ def register(subparsers):
 
 
 def _run(args) -> int:
-    from ..integrals import integrate_snapshot
-    from ..snapshot import open_snapshot, provenance_attributes
+    from ..integrals import integrate_open_snapshot
+    from ..snapshot import open_snapshot
     from ..physical_units import physical_scale
     from ..time_series import time_series_table, write_csv, write_hdf5, write_plot
 
@@ -64,26 +68,23 @@ def _run(args) -> int:
             return fail(EXIT_OUTPUT_ERROR, "--plot needs matplotlib: pip install 'emsource[plot]'")
     if args.mass is not None and not (math.isfinite(args.mass) and args.mass > 0):
         return fail(EXIT_BAD_INPUT, f"--mass must be a positive number of solar masses, found {args.mass}")
+    # One open file serves the description, the grid, the integration and the provenance.
     with open_snapshot(args.snapshot, args.mapping) as snap:
-        description = snap.description
-        units = snap.levels[0].units
-        grid = snap.levels[0].grid
+        description, units, grid = snap.description, snap.units, snap.grid
         count = len(snap.levels)
-        chosen = snap.levels if args.levels is None else [
-            snap.levels[i] for i in args.levels if -count <= i < count]
-        used = [path for level in chosen
-                for q in ("spatial_metric", "electric_field", "magnetic_field", "lapse", "shift",
-                          "valid_mask") if level.has(q) for path in level.dataset_paths(q)]
-    results = integrate_snapshot(
-        args.snapshot, mapping=args.mapping, radii=args.radius, n_theta=args.angular_points,
-        interpolation_points=args.interpolation_points, memory_limit=args.memory_limit,
-        levels=args.levels, progress=show_progress(args))
+        chosen = snap.select(args.levels)
+        results = integrate_open_snapshot(
+            snap, radii=args.radius, theta_points=args.theta_points,
+            interpolation_points=args.interpolation_points, memory_limit=args.memory_limit,
+            levels=args.levels, progress=show_progress(args))
+        options = {"radii": args.radius, "theta_points": args.theta_points,
+                   "interpolation_points": args.interpolation_points, "mass_solar": args.mass,
+                   "memory_limit_bytes": args.memory_limit, "levels": [r.label for r in results]}
+        attributes = snap.provenance(chosen, ("spatial_metric", "electric_field",
+                                              "magnetic_field", "lapse", "shift", "valid_mask"),
+                                     options)
     scale = physical_scale(args.mass, units) if args.mass is not None else None
     table = time_series_table(results, scale)
-    options = {"radii": args.radius, "angular_points": args.angular_points,
-               "interpolation_points": args.interpolation_points, "mass_solar": args.mass,
-               "memory_limit_bytes": args.memory_limit, "levels": [r.label for r in results]}
-    attributes = provenance_attributes(args.snapshot, used, options, args.mapping)
     attributes["mass_scale_solar"] = float(args.mass or 0.0)
     attributes["units"] = units
     if args.csv:
@@ -119,8 +120,8 @@ def summary(args, results, scale, description, units, grid, count, outputs) -> s
         row = f"  {r.time:8.4g} {r.energy:12.6g} {p:12.6g} {r.net_flux:12.6g}"
         row += "".join(f" {r.luminosity[radius]:12.6g}" for radius in radii)
         lines.append(row)
-    if any(r.excluded_points for r in results):
-        lines.append(f"  excised      {results[0].excluded_points} points (valid_mask = 0) "
+    if any(r.excised_points for r in results):
+        lines.append(f"  excised      {results[0].excised_points} points (valid_mask = 0) "
                      "left out of the volume integrals")
     last = results[-1]
     if scale is not None:

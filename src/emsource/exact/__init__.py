@@ -1,6 +1,7 @@
 """Exact solutions of Maxwell's equations on 3+1 slices, sampled on Cartesian grids.
 
-Every generator returns a :class:`SliceFields` with the conventions of the package:
+Every generator returns a :class:`TimeLevelFields` (the data of one time level, in memory) with
+the conventions of the package:
 component axis first, symmetric tensors packed (xx, xy, xz, yy, yz, zz), fields measured by the
 normal observer, contravariant E and B, Gaussian units unless a generator says otherwise, and
 the exact coordinate-time derivatives dt_E, dt_B, dt_gamma of the slicing.
@@ -43,10 +44,14 @@ from .moving_frame import plane_wave_moving_frame
 from .plane_wave import periodic_wave_vector, plane_wave
 from .sheared_wave import ShearedWave, sheared_circular_wave
 from .rotating_dipole import rotating_dipole, rotating_dipole_fields, rotating_dipole_luminosity
-from .slice_fields import SliceFields
+from .time_level_fields import TimeLevelFields
+from .._deprecated_names import module_aliases
+
+#: ``SliceFields`` is the deprecated name of :class:`TimeLevelFields`.
+__getattr__ = module_aliases(__name__, {"SliceFields": ("TimeLevelFields", TimeLevelFields)})
 
 __all__ = [
-    "SliceFields",
+    "TimeLevelFields",
     "boosted_gaussian_charge",
     "gaussian_sphere_field_factors",
     "periodic_wave_vector",

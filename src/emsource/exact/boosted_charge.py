@@ -8,7 +8,7 @@ import numpy as np
 from scipy.special import erf
 
 from . import _common
-from .slice_fields import SliceFields
+from .time_level_fields import TimeLevelFields
 
 __all__ = ["boosted_gaussian_charge", "gaussian_sphere_field_factors"]
 
@@ -65,13 +65,13 @@ def gaussian_sphere_field_factors(r, sigma):
     g, h : ndarray
         Same shape as r; units 1/length^3 and 1/length^5 (per unit charge).
     """
-    who = "gaussian_sphere_field_factors"
-    sigma = _common.check_scalar(sigma, "sigma", who, positive=True)
+    function = "gaussian_sphere_field_factors"
+    sigma = _common.check_scalar(sigma, "sigma", function, positive=True)
     r = np.asarray(r, dtype=float)
     good = np.isfinite(r) & (r >= 0.0)
     if not np.all(good):
         bad = np.argwhere(~good)[0]
-        raise ValueError(f"{who}: r must be finite and >= 0, found {r[tuple(bad)]} at index {tuple(bad.tolist())}")
+        raise ValueError(f"{function}: r must be finite and >= 0, found {r[tuple(bad)]} at index {tuple(bad.tolist())}")
     x = r / (math.sqrt(2.0) * sigma)
     near = x < _SERIES_LIMIT
     c = 1.0 / (math.sqrt(2.0 * math.pi) * sigma**3)
@@ -100,7 +100,7 @@ def _cross(v, field):
 
 
 def boosted_gaussian_charge(grid, t, *, charge, width, velocity, center=(0.0, 0.0, 0.0),
-                            units="gaussian") -> SliceFields:
+                            units="gaussian") -> TimeLevelFields:
     """A Gaussian charge of total charge q and rest-frame width sigma moving at velocity v.
 
     Flat spacetime, Cartesian inertial coordinates (lapse 1, shift 0, gamma_ij = delta_ij, K = 0).
@@ -141,7 +141,7 @@ def boosted_gaussian_charge(grid, t, *, charge, width, velocity, center=(0.0, 0.
 
     Returns
     -------
-    SliceFields
+    TimeLevelFields
         With dt_E, dt_B and dt_gamma (zero) set.
 
     Examples
@@ -152,17 +152,17 @@ def boosted_gaussian_charge(grid, t, *, charge, width, velocity, center=(0.0, 0.
     >>> float(data.current_density[0, 4, 4, 4] / data.charge_density[4, 4, 4])
     0.6
     """
-    who = "boosted_gaussian_charge"
-    grid = _common.check_grid(grid, who)
-    t = _common.check_time(t, who)
-    units = _common.check_units(units, who)
-    q = _common.check_scalar(charge, "charge", who)
-    sigma = _common.check_scalar(width, "width", who, positive=True)
-    v = _common.check_vector(velocity, "velocity", who)
-    c0 = _common.check_vector(center, "center", who)
+    function = "boosted_gaussian_charge"
+    grid = _common.check_grid(grid, function)
+    t = _common.check_time(t, function)
+    units = _common.check_units(units, function)
+    q = _common.check_scalar(charge, "charge", function)
+    sigma = _common.check_scalar(width, "width", function, positive=True)
+    v = _common.check_vector(velocity, "velocity", function)
+    c0 = _common.check_vector(center, "center", function)
     speed2 = float(np.dot(v, v))
     if not speed2 < 1.0:
-        raise ValueError(f"{who}: velocity must have |v| < 1 (c = 1), found |v| = {math.sqrt(speed2)}")
+        raise ValueError(f"{function}: velocity must have |v| < 1 (c = 1), found |v| = {math.sqrt(speed2)}")
     lorentz = 1.0 / math.sqrt(1.0 - speed2)
 
     coords = grid.coordinates()

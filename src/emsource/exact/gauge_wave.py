@@ -8,14 +8,14 @@ import numpy as np
 
 from . import _common
 from .plane_wave import plane_wave_pattern
-from .slice_fields import SliceFields
+from .time_level_fields import TimeLevelFields
 
 __all__ = ["plane_wave_gauge_wave"]
 
 
 def plane_wave_gauge_wave(grid, t, *, gauge_amplitude=0.1, gauge_wavelength=1.0, wave_vector=None,
                           polarization=None, amplitude=1.0, profile="sine", width=0.5, phase=0.0,
-                          units="gaussian") -> SliceFields:
+                          units="gaussian") -> TimeLevelFields:
     """A Minkowski plane wave seen in the gauge-wave coordinates of flat spacetime.
 
     The gauge-wave testbed (M. Alcubierre et al., "Toward standard testbeds for numerical
@@ -71,23 +71,23 @@ def plane_wave_gauge_wave(grid, t, *, gauge_amplitude=0.1, gauge_wavelength=1.0,
 
     Returns
     -------
-    SliceFields
+    TimeLevelFields
         With dt_E, dt_B and dt_gamma set; no charge.
     """
-    who = "plane_wave_gauge_wave"
-    grid = _common.check_grid(grid, who)
-    t = _common.check_time(t, who)
-    units = _common.check_units(units, who)
-    A = _common.check_scalar(gauge_amplitude, "gauge_amplitude", who)
-    d = _common.check_scalar(gauge_wavelength, "gauge_wavelength", who, positive=True)
+    function = "plane_wave_gauge_wave"
+    grid = _common.check_grid(grid, function)
+    t = _common.check_time(t, function)
+    units = _common.check_units(units, function)
+    A = _common.check_scalar(gauge_amplitude, "gauge_amplitude", function)
+    d = _common.check_scalar(gauge_wavelength, "gauge_wavelength", function, positive=True)
     if not abs(A) < 1.0:
-        raise ValueError(f"{who}: gauge_amplitude must satisfy |A| < 1 (so that H > 0), found {A}")
+        raise ValueError(f"{function}: gauge_amplitude must satisfy |A| < 1 (so that H > 0), found {A}")
     if wave_vector is None and polarization is None:
         wave_vector = (2.0 * math.pi / d) * np.array([1.0, 1.0, 0.0])
         polarization = np.array([1.0, -1.0, 1.0]) / math.sqrt(3.0)
     elif wave_vector is None or polarization is None:
         raise ValueError(
-            f"{who}: give both wave_vector and polarization, or neither for the default oblique "
+            f"{function}: give both wave_vector and polarization, or neither for the default oblique "
             f"wave; found wave_vector={wave_vector!r}, polarization={polarization!r}"
         )
 
@@ -100,7 +100,7 @@ def plane_wave_gauge_wave(grid, t, *, gauge_amplitude=0.1, gauge_wavelength=1.0,
     T = t - 0.5 * P
     E_M, B_M, dE_M, dB_M, _, omega, k = plane_wave_pattern(
         X, y, z, T, wave_vector=wave_vector, polarization=polarization, amplitude=amplitude,
-        profile=profile, width=width, phase=phase, who=who,
+        profile=profile, width=width, phase=phase, function=function,
     )
     # d_t at fixed x of the phase: dX/dt = (1 - H)/2, dT/dt = (1 + H)/2.
     dt_s = k[0] * 0.5 * (1.0 - H) - omega * 0.5 * (1.0 + H)

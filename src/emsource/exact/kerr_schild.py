@@ -58,7 +58,8 @@ import math
 import numpy as np
 
 from ..grid import UniformGrid
-from .slice_fields import SliceFields
+from .._deprecated_names import renamed_keywords
+from .time_level_fields import TimeLevelFields
 
 __all__ = [
     "kerr_newman",
@@ -214,8 +215,9 @@ def kerr_newman_arrays(x, y, z, *, mass, spin=0.0, charge=0.0, units="gaussian")
     return {"r": r, "alpha": alpha, "beta": beta_up, "gamma": gamma, "K": K, "E": E, "B": B}
 
 
-def kerr_newman(grid: UniformGrid, *, mass, spin=0.0, charge=0.0, mask_radius=None,
-                units="gaussian", dtype=np.float64) -> SliceFields:
+@renamed_keywords(mask_radius="excision_radius")
+def kerr_newman(grid: UniformGrid, *, mass, spin=0.0, charge=0.0, excision_radius=None,
+                units="gaussian", dtype=np.float64) -> TimeLevelFields:
     """Kerr-Newman black hole on a Cartesian grid, Kerr-Schild slicing (stationary).
 
     Parameters
@@ -225,8 +227,8 @@ def kerr_newman(grid: UniformGrid, *, mass, spin=0.0, charge=0.0, mask_radius=No
     mass, spin, charge : float
         Mass M > 0, spin parameter a = J / M (angular momentum along +z), charge Q in
         Gaussian geometrized units; a^2 + Q^2 <= M^2.
-    mask_radius : float or None
-        ``mask`` is False where the spheroidal radius r < mask_radius, and wherever a value
+    excision_radius : float or None
+        ``valid_mask`` is False where the spheroidal radius r < excision_radius, and wherever a value
         is not finite (grid points on the ring singularity's disc). None means the outer
         horizon r+; pass 0 to keep the horizon-penetrating interior.
     units : {"gaussian", "heaviside_lorentz"}
@@ -236,9 +238,9 @@ def kerr_newman(grid: UniformGrid, *, mass, spin=0.0, charge=0.0, mask_radius=No
 
     Returns
     -------
-    SliceFields
+    TimeLevelFields
         Stationary data: dt_E, dt_B and dt_gamma are zero, the charge and current densities
-        vanish (electrovacuum). Values at masked points are kept where finite.
+        vanish (electrovacuum). Values at excised points are kept where finite.
 
     Notes
     -----
@@ -250,7 +252,7 @@ def kerr_newman(grid: UniformGrid, *, mass, spin=0.0, charge=0.0, mask_radius=No
     >>> from emsource.grid import UniformGrid
     >>> grid = UniformGrid.from_bounds((2, 2, 2), (4, 4, 4), (8, 8, 8))
     >>> data = kerr_newman(grid, mass=1.0, spin=0.5, charge=0.4)
-    >>> data.gamma.shape, bool(data.mask.all())
+    >>> data.gamma.shape, bool(data.valid_mask.all())
     ((6, 8, 8, 8), True)
     """
     mass, spin, charge = _check_parameters(mass, spin, charge)
@@ -259,23 +261,24 @@ def kerr_newman(grid: UniformGrid, *, mass, spin=0.0, charge=0.0, mask_radius=No
     dtype = np.dtype(dtype)
     if dtype not in (np.dtype(np.float32), np.dtype(np.float64)):
         raise ValueError(f"kerr_newman: dtype must be float32 or float64, found {dtype}")
-    if mask_radius is None:
-        mask_radius = outer_horizon_radius(mass, spin, charge)
-    mask_radius = float(mask_radius)
-    if not (math.isfinite(mask_radius) and mask_radius >= 0):
-        raise ValueError(f"kerr_newman: mask_radius must be finite and >= 0, found {mask_radius!r}")
+    if excision_radius is None:
+        excision_radius = outer_horizon_radius(mass, spin, charge)
+    excision_radius = float(excision_radius)
+    if not (math.isfinite(excision_radius) and excision_radius >= 0):
+        raise ValueError(f"kerr_newman: excision_radius must be finite and >= 0, "
+                         f"found {excision_radius!r}")
     x, y, z = grid.coordinates(np.float64)
     v = kerr_newman_arrays(x, y, z, mass=mass, spin=spin, charge=charge, units=units)
     finite = np.isfinite(v["alpha"])
     for name in ("beta", "gamma", "K", "E", "B"):
         finite &= np.isfinite(v[name]).all(axis=0)
-    mask = finite & (v["r"] >= mask_radius)
+    valid_mask = finite & (v["r"] >= excision_radius)
     shape = grid.shape
 
     def cast(a):
         return np.ascontiguousarray(a, dtype=dtype)
 
-    return SliceFields(
+    return TimeLevelFields(
         grid=grid,
         t=0.0,
         alpha=cast(v["alpha"]),
@@ -290,18 +293,21 @@ def kerr_newman(grid: UniformGrid, *, mass, spin=0.0, charge=0.0, mask_radius=No
         dt_E=np.zeros((3,) + shape, dtype=dtype),
         dt_B=np.zeros((3,) + shape, dtype=dtype),
         dt_gamma=np.zeros((6,) + shape, dtype=dtype),
-        mask=mask,
+        valid_mask=valid_mask,
     )
 
 
-def reissner_nordstrom(grid: UniformGrid, *, mass, charge, mask_radius=None, units="gaussian",
-                       dtype=np.float64) -> SliceFields:
+@renamed_keywords(mask_radius="excision_radius")
+def reissner_nordstrom(grid: UniformGrid, *, mass, charge, excision_radius=None, units="gaussian",
+                       dtype=np.float64) -> TimeLevelFields:
     """Reissner-Nordstrom black hole: :func:`kerr_newman` with spin 0 (MTW, ch. 33)."""
-    return kerr_newman(grid, mass=mass, spin=0.0, charge=charge, mask_radius=mask_radius,
+    return kerr_newman(grid, mass=mass, spin=0.0, charge=charge, excision_radius=excision_radius,
                        units=units, dtype=dtype)
 
 
-def kerr(grid: UniformGrid, *, mass, spin, mask_radius=None, dtype=np.float64) -> SliceFields:
+@renamed_keywords(mask_radius="excision_radius")
+def kerr(grid: UniformGrid, *, mass, spin, excision_radius=None,
+         dtype=np.float64) -> TimeLevelFields:
     """Kerr black hole: :func:`kerr_newman` with charge 0 (MTW, ch. 33); E = B = 0."""
-    return kerr_newman(grid, mass=mass, spin=spin, charge=0.0, mask_radius=mask_radius,
+    return kerr_newman(grid, mass=mass, spin=spin, charge=0.0, excision_radius=excision_radius,
                        dtype=dtype)

@@ -6,13 +6,13 @@ import numpy as np
 
 from . import _common
 from .plane_wave import plane_wave_pattern
-from .slice_fields import SliceFields
+from .time_level_fields import TimeLevelFields
 
 __all__ = ["plane_wave_moving_frame"]
 
 
 def plane_wave_moving_frame(grid, t, *, frame_velocity, wave_vector, polarization, amplitude=1.0,
-                            profile="sine", width=0.5, phase=0.0, units="gaussian") -> SliceFields:
+                            profile="sine", width=0.5, phase=0.0, units="gaussian") -> TimeLevelFields:
     """The plane wave of :func:`plane_wave` in coordinates x' = x - V t that drift with velocity V.
 
     Coordinates (t, x') with x = x' + V t, t unchanged (a Galilean relabelling of the spatial
@@ -47,7 +47,7 @@ def plane_wave_moving_frame(grid, t, *, frame_velocity, wave_vector, polarizatio
 
     Returns
     -------
-    SliceFields
+    TimeLevelFields
         alpha = 1, beta = V, flat metric, K = 0, no charge; dt_E, dt_B and dt_gamma (zero) set.
 
     References
@@ -55,16 +55,16 @@ def plane_wave_moving_frame(grid, t, *, frame_velocity, wave_vector, polarizatio
     E. Gourgoulhon, 3+1 Formalism in General Relativity, Lecture Notes in Physics 846 (2012),
     ch. 4 (lapse and shift read off the 3+1 line element; chapter from memory).
     """
-    who = "plane_wave_moving_frame"
-    grid = _common.check_grid(grid, who)
-    t = _common.check_time(t, who)
-    units = _common.check_units(units, who)
-    V = _common.check_vector(frame_velocity, "frame_velocity", who)
+    function = "plane_wave_moving_frame"
+    grid = _common.check_grid(grid, function)
+    t = _common.check_time(t, function)
+    units = _common.check_units(units, function)
+    V = _common.check_vector(frame_velocity, "frame_velocity", function)
     xp, yp, zp = grid.coordinates()
     E, B, dE, dB, _, omega, k = plane_wave_pattern(
         xp + V[0] * t, yp + V[1] * t, zp + V[2] * t, t, wave_vector=wave_vector,
         polarization=polarization, amplitude=amplitude, profile=profile, width=width, phase=phase,
-        who=who,
+        function=function,
     )
     scale = _common.field_scale(units)
     rate = float(np.dot(k, V)) - omega  # ds/dt at fixed x'

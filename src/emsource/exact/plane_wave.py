@@ -7,7 +7,7 @@ import math
 import numpy as np
 
 from . import _common
-from .slice_fields import SliceFields
+from .time_level_fields import TimeLevelFields
 
 __all__ = ["plane_wave", "plane_wave_pattern", "periodic_wave_vector"]
 
@@ -44,38 +44,38 @@ def periodic_wave_vector(grid, modes) -> np.ndarray:
     >>> periodic_wave_vector(grid, (1, 2)) / np.pi
     array([1., 2., 0.])
     """
-    who = "periodic_wave_vector"
-    grid = _common.check_grid(grid, who)
+    function = "periodic_wave_vector"
+    grid = _common.check_grid(grid, function)
     try:
         m = np.asarray(modes, dtype=float)
     except (TypeError, ValueError):
-        raise TypeError(f"{who}: modes must be a sequence of integers, found {modes!r}") from None
+        raise TypeError(f"{function}: modes must be a sequence of integers, found {modes!r}") from None
     if m.shape != (grid.ndim,):
         raise ValueError(
-            f"{who}: modes must hold one integer per grid axis, {grid.ndim} here, found shape {m.shape}"
+            f"{function}: modes must hold one integer per grid axis, {grid.ndim} here, found shape {m.shape}"
         )
     if not np.all(np.isfinite(m) & (m == np.round(m))):
-        raise ValueError(f"{who}: modes must be whole numbers, found {tuple(m.tolist())}")
+        raise ValueError(f"{function}: modes must be whole numbers, found {tuple(m.tolist())}")
     k = np.zeros(3)
     for i in range(grid.ndim):
         k[i] = 2.0 * math.pi * float(m[i]) / (grid.shape[i] * grid.spacing[i])
     return k
 
 
-def plane_wave_pattern(x, y, z, t, *, wave_vector, polarization, amplitude, profile, width, phase, who):
+def plane_wave_pattern(x, y, z, t, *, wave_vector, polarization, amplitude, profile, width, phase, function):
     """Minkowski plane wave at events (t, x, y, z): E, B and their derivatives along the phase.
 
     Returns (E, B, dE_ds, dB_ds, s, omega, k) with E, B of shape (3, *x.shape); d/ds is the
     derivative with respect to the phase s = k.x - omega t + phase. Shared by the three
     plane-wave cases so they sample one and the same solution.
     """
-    k, omega, e_hat, b_hat = _common.wave_basis(wave_vector, polarization, who)
-    amplitude = _common.check_scalar(amplitude, "amplitude", who)
-    phase = _common.check_scalar(phase, "phase", who)
-    f, f_prime = _common.make_profile(profile, width, who)
+    k, omega, e_hat, b_hat = _common.wave_basis(wave_vector, polarization, function)
+    amplitude = _common.check_scalar(amplitude, "amplitude", function)
+    phase = _common.check_scalar(phase, "phase", function)
+    f, f_prime = _common.make_profile(profile, width, function)
     s = k[0] * x + k[1] * y + k[2] * z - omega * t + phase
-    fs = _common.evaluate_profile(f, s, "f", who)
-    dfs = _common.evaluate_profile(f_prime, s, "f_prime", who)
+    fs = _common.evaluate_profile(f, s, "f", function)
+    dfs = _common.evaluate_profile(f_prime, s, "f_prime", function)
     E = amplitude * e_hat[:, None] * fs.reshape(1, -1)
     B = amplitude * b_hat[:, None] * fs.reshape(1, -1)
     dE = amplitude * e_hat[:, None] * dfs.reshape(1, -1)
@@ -85,7 +85,7 @@ def plane_wave_pattern(x, y, z, t, *, wave_vector, polarization, amplitude, prof
 
 
 def plane_wave(grid, t, *, wave_vector, polarization, amplitude=1.0, profile="sine", width=0.5,
-               phase=0.0, units="gaussian") -> SliceFields:
+               phase=0.0, units="gaussian") -> TimeLevelFields:
     """A vacuum plane wave in flat spacetime, Cartesian inertial coordinates.
 
     With s = k.x - omega t + phase and omega = |k| (c = 1),
@@ -125,7 +125,7 @@ def plane_wave(grid, t, *, wave_vector, polarization, amplitude=1.0, profile="si
 
     Returns
     -------
-    SliceFields
+    TimeLevelFields
         With dt_E, dt_B and dt_gamma (zero) set.
 
     Examples
@@ -137,14 +137,14 @@ def plane_wave(grid, t, *, wave_vector, polarization, amplitude=1.0, profile="si
     >>> data.E.shape
     (3, 16, 16)
     """
-    who = "plane_wave"
-    grid = _common.check_grid(grid, who)
-    t = _common.check_time(t, who)
-    units = _common.check_units(units, who)
+    function = "plane_wave"
+    grid = _common.check_grid(grid, function)
+    t = _common.check_time(t, function)
+    units = _common.check_units(units, function)
     x, y, z = grid.coordinates()
     E, B, dE, dB, _, omega, _ = plane_wave_pattern(
         x, y, z, t, wave_vector=wave_vector, polarization=polarization, amplitude=amplitude,
-        profile=profile, width=width, phase=phase, who=who,
+        profile=profile, width=width, phase=phase, function=function,
     )
     scale = _common.field_scale(units)
     # d_t at fixed x: ds/dt = -omega.

@@ -27,7 +27,7 @@ from __future__ import annotations
 import numpy as np
 
 from ..grid import UniformGrid
-from .slice_fields import SliceFields
+from .time_level_fields import TimeLevelFields
 
 __all__ = ["rotating_dipole", "rotating_dipole_fields", "rotating_dipole_luminosity"]
 
@@ -62,7 +62,7 @@ def _fields(n, r, derivatives):
 
 
 def rotating_dipole(grid: UniformGrid, t: float, *, moment: float = 1.0, omega: float = 1.0,
-                    inclination: float = np.pi / 4, excision_radius: float = 0.1) -> SliceFields:
+                    inclination: float = np.pi / 4, excision_radius: float = 0.1) -> TimeLevelFields:
     """Exact electric and magnetic fields of a rotating point magnetic dipole on ``grid``.
 
     Parameters
@@ -70,7 +70,7 @@ def rotating_dipole(grid: UniformGrid, t: float, *, moment: float = 1.0, omega: 
     grid : UniformGrid
         3D grid (code units, G = c = 1).
     t : float
-        Coordinate time of the slice.
+        Coordinate time of the time level.
     moment : float
         Magnetic dipole moment |m| (Gaussian units).
     omega : float
@@ -78,15 +78,15 @@ def rotating_dipole(grid: UniformGrid, t: float, *, moment: float = 1.0, omega: 
     inclination : float
         Angle chi between m and the z axis, radians.
     excision_radius : float
-        Points with r < excision_radius get E = B = 0 and ``mask`` False (the fields are
+        Points with r < excision_radius get E = B = 0 and ``valid_mask`` False (the fields are
         singular at r = 0).
 
     Returns
     -------
-    SliceFields
+    TimeLevelFields
         Flat slice (alpha = 1, beta = 0, gamma = delta, K = 0), vacuum (no charge, no current),
         Gaussian units, exact ``dt_E`` and ``dt_B`` (time derivatives at fixed x), ``dt_gamma``
-        zero, ``mask`` True outside the excised ball.
+        zero, ``valid_mask`` True outside the excised ball.
 
     References
     ----------
@@ -108,11 +108,11 @@ def rotating_dipole(grid: UniformGrid, t: float, *, moment: float = 1.0, omega: 
     shape = grid.shape
     gamma = np.zeros((6,) + shape)
     gamma[[0, 3, 5]] = 1.0
-    return SliceFields(
+    return TimeLevelFields(
         grid=grid, t=float(t), alpha=np.ones(shape), beta=np.zeros((3,) + shape), gamma=gamma,
         K=np.zeros((6,) + shape), E=E, B=B, charge_density=np.zeros(shape),
         current_density=np.zeros((3,) + shape), units="gaussian", dt_E=dt_E, dt_B=dt_B,
-        dt_gamma=np.zeros((6,) + shape), mask=mask,
+        dt_gamma=np.zeros((6,) + shape), valid_mask=mask,
     )
 
 

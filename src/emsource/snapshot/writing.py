@@ -283,8 +283,8 @@ def chunk_shape(shape, itemsize, target_bytes=1 << 20):
     return (1,) * lead + (rows,) + tuple(shape[lead + 1:])
 
 
-#: The eight inputs a SliceFields carries (its attributes are the table's API names).
-_SLICE_QUANTITIES = ("lapse", "shift", "spatial_metric", "extrinsic_curvature", "electric_field",
+#: The eight inputs a TimeLevelFields carries (its attributes are the table's API names).
+_LEVEL_QUANTITIES = ("lapse", "shift", "spatial_metric", "extrinsic_curvature", "electric_field",
                      "magnetic_field", "charge_density", "current_density")
 
 
@@ -297,12 +297,12 @@ def _level_dict(level):
         return {"arrays": arrays, "time": level["time"], "grid": level["grid"],
                 "units": level.get("units", "gaussian")}
     arrays = {}
-    for q in _SLICE_QUANTITIES:
+    for q in _LEVEL_QUANTITIES:
         value = getattr(level, BY_NAME[q].api)
         if value is not None:
             arrays[q] = np.asarray(value)
-    if level.mask is not None:
-        arrays["valid_mask"] = np.asarray(level.mask).astype(np.uint8)
+    if level.valid_mask is not None:
+        arrays["valid_mask"] = np.asarray(level.valid_mask).astype(np.uint8)
     return {"arrays": arrays, "time": level.t, "grid": level.grid, "units": level.units}
 
 
@@ -314,11 +314,11 @@ def write_snapshot(path, levels, *, force: bool = False, axis_order: str = "xyz"
     ----------
     path : str or path-like
         Output file; replaced only with ``force``.
-    levels : sequence of SliceFields or of dict
+    levels : sequence of TimeLevelFields or of dict
         One entry per time level. A dict maps quantity names (:data:`emsource.quantities.NAMES`)
         to arrays in (x, y, z) order, component first, plus "time", "grid" (UniformGrid) and
-        "units" (default "gaussian"). A :class:`~emsource.exact.SliceFields` gives all eight
-        inputs and its mask.
+        "units" (default "gaussian"). A :class:`~emsource.exact.TimeLevelFields` gives all eight
+        inputs and its valid_mask.
     axis_order : {"xyz", "zyx"}
         Storage order of the grid axes.
     compression : {None, "gzip"}

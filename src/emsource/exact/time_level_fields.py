@@ -1,4 +1,4 @@
-"""The container that every exact-data generator fills."""
+"""The container that every exact-data generator fills: one time level, in memory."""
 
 from __future__ import annotations
 
@@ -6,23 +6,27 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from .._deprecated_names import renamed_fields
 from ..grid import UniformGrid
 
-__all__ = ["SliceFields"]
+__all__ = ["TimeLevelFields"]
 
 
+@renamed_fields(mask="valid_mask")
 @dataclass(frozen=True)
-class SliceFields:
-    """Lapse, shift, spatial metric, extrinsic curvature and Eulerian fields on one slice.
+class TimeLevelFields:
+    """Lapse, shift, spatial metric, extrinsic curvature and Eulerian fields at one time level.
 
-    All arrays have the component axis first; ``grid`` is ``grid.shape``.
+    A time level is the data on one slice t = const; the same term names the groups of a
+    snapshot file (``/time_levels/<k>``, :class:`emsource.snapshot.TimeLevel`). All arrays have
+    the component axis first; ``grid`` is ``grid.shape``.
 
     Attributes
     ----------
     grid : UniformGrid
         Where the arrays are sampled.
     t : float
-        Coordinate time of the slice.
+        Coordinate time of the level.
     alpha : (*grid) ndarray
         Lapse.
     beta : (3, *grid) ndarray
@@ -44,8 +48,9 @@ class SliceFields:
         Exact coordinate-time derivatives d_t E^i and d_t B^i, where the generator knows them.
     dt_gamma : (6, *grid) ndarray or None
         Exact d_t gamma_ij, where the generator knows it.
-    mask : (*grid) bool ndarray or None
-        True where the data are valid (False inside an excised region).
+    valid_mask : (*grid) bool ndarray or None
+        True where the data are valid (False inside an excised region); None: valid everywhere.
+        Written to files as the dataset ``valid_mask``.
     """
 
     grid: UniformGrid
@@ -62,4 +67,4 @@ class SliceFields:
     dt_E: np.ndarray | None = None
     dt_B: np.ndarray | None = None
     dt_gamma: np.ndarray | None = None
-    mask: np.ndarray | None = None
+    valid_mask: np.ndarray | None = None
