@@ -17,13 +17,74 @@ Why these options:
 - ``error_model="numpy"``: division by zero gives inf/nan like NumPy instead of raising,
   so the loop body has no Python-exception branch and can vectorise.
 - Thread count is Numba's own (``NUMBA_NUM_THREADS``, ``numba.set_num_threads``).
+
+The disk cache and inlined point functions. Numba keys a cached kernel on the source of the
+file that defines it; a kernel inlines point functions from other files of this folder
+(``metric.py``, ``electromagnetic.py``, ...), and an edit there would leave the kernel's cache
+entry looking valid: a stale kernel would run (seen during development, and it would happen
+to a user who upgrades the package over an old cache). :func:`install_tree_stamp` therefore
+adds a hash of every ``*.py`` file of this folder to the stamp of each kernel's cache entry,
+so that any change here recompiles every kernel once.
 """
 
 from __future__ import annotations
 
+import hashlib
+import os
+
 import numba
 
-__all__ = ["FASTMATH_FLAGS", "grid_kernel", "point_function", "search_kernel"]
+__all__ = ["FASTMATH_FLAGS", "grid_kernel", "point_function", "search_kernel", "tree_stamp",
+           "install_tree_stamp", "KERNEL_DIRECTORY"]
+
+#: The folder of the kernels (installed as ``emsource.kernels``).
+KERNEL_DIRECTORY = os.path.dirname(os.path.abspath(__file__))
+
+
+def tree_stamp(directory: str = KERNEL_DIRECTORY) -> str:
+    """SHA-256 over the names and contents of every ``*.py`` file in ``directory``."""
+    digest = hashlib.sha256()
+    for name in sorted(os.listdir(directory)):
+        if name.endswith(".py"):
+            digest.update(name.encode())
+            with open(os.path.join(directory, name), "rb") as source:
+                digest.update(source.read())
+    return digest.hexdigest()
+
+
+def install_tree_stamp() -> None:
+    """Make Numba's cache stamp of every kernel in this folder include :func:`tree_stamp`.
+
+    Each of Numba's cache locator classes gets a subclass that serves only files of this
+    folder and returns (Numba's own stamp, the tree stamp); the subclasses are tried first.
+    A cache entry whose stamp differs is recompiled and overwritten by Numba itself.
+    """
+    from numba.core import caching
+
+    # The class is public from Numba 0.68 on, private before.
+    impl = getattr(caching, "CacheImpl", None) or getattr(caching, "_CacheImpl")
+    if getattr(impl, "_emsource_tree_stamp", None) is not None:
+        return
+    stamp = tree_stamp()
+    stamped = []
+    for base in impl._locator_classes:
+        class TreeStampedLocator(base):
+            @classmethod
+            def from_function(cls, py_func, py_file):
+                if os.path.dirname(os.path.abspath(py_file)) != KERNEL_DIRECTORY:
+                    return None
+                return super().from_function(py_func, py_file)
+
+            def get_source_stamp(self):
+                return (super().get_source_stamp(), stamp)
+
+        TreeStampedLocator.__name__ = TreeStampedLocator.__qualname__ = f"TreeStamped{base.__name__}"
+        stamped.append(TreeStampedLocator)
+    impl._locator_classes = stamped + list(impl._locator_classes)
+    impl._emsource_tree_stamp = stamp
+
+
+install_tree_stamp()
 
 #: LLVM fast-math flags: contraction (FMA), reciprocal, reassociation, no signed zeros,
 #: approximate functions. Deliberately no "nnan"/"ninf" (see module docstring).
