@@ -88,8 +88,8 @@ def fluxes_and_rates(alpha, beta, gamma, gidx, E, B, rate_mode,
     modes 1 and 2 a second loop overwrites rows 12..15 with the rates, recomputing the few point
     values it needs from the column that the first loop has just brought into cache. Each loop
     is branch-free, and with a C-ordered ``work`` they vectorise along z (LLVM's remarks and
-    the machine code show it; the earlier single loop with the mode branch inside, writing a
-    padded work array, ran scalar, 2x slower on 128^3). Component indices are read into
+    the machine code show it; one loop with the mode branch inside, writing a padded work
+    array, runs scalar and 2x slower on 128^3, measured). Component indices are read into
     scalars before the loops.
     """
     nx = alpha.shape[1]
@@ -318,8 +318,8 @@ def residuals(alpha, beta, gamma, gidx, K, kidx, E, B, charge, current, work,
 
     Why this shape (measured, 128^3, order 4): LLVM vectorises a loop only if it can prove, or
     check at run time with at most 8 comparisons, that its stores do not overlap its loads.
-    Step 3 read 9 arrays (35 rows at unknown distances) and wrote 3, so it stayed scalar; now
-    it touches one buffer whose row stride is a compile-time constant, and every other loop
+    A step 3 that reads 9 arrays (35 rows at unknown distances) and writes 3 stays scalar; this
+    one touches one buffer whose row stride is a compile-time constant, and every other loop
     copies from one array to one other. Indices along z are unsigned for the reason given in
     ``d1_column``.
     """

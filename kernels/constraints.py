@@ -19,11 +19,11 @@ formula above is quoted from memory, and ``tests/test_constraints.py`` checks it
 
 Every derivative goes through :mod:`emsource.kernels.stencils` (centred, order 2, 4 or 6 as
 the weights say). Arrays are float64: ``gamma`` and ``K`` (6, nx, ny, nz) packed
-(xx, xy, xz, yy, yz, zz), ``rho`` (nx, ny, nz), ``S`` (3, nx, ny, nz) covariant, ``evaluate``
+(xx, xy, xz, yy, yz, zz), ``rho`` (nx, ny, nz), ``S`` (3, nx, ny, nz) covariant, ``interior``
 uint8 (nx, ny, nz), 1 where the whole stencil lies on valid data (the caller guarantees it
 stays ``radius`` points away from the faces). Outputs are written at every point: the residuals
 and the absolute value of their largest term (R, K^2, K_ij K^ij, 16 pi rho for H; D_j K^j_i,
-D_i K, 8 pi S_i for M_i) where ``evaluate`` is 1, NaN elsewhere.
+D_i K, 8 pi S_i for M_i) where ``interior`` is 1, NaN elsewhere.
 ``sym`` (3, 3) int64 maps a pair of indices to its packed component.
 """
 
@@ -40,7 +40,7 @@ from .stencils import d1, d2, d11
 
 
 @grid_kernel
-def adm_constraints_grid(gamma, K, rho, S, evaluate, w1, w2, inv_h, sym, sixteen_pi, eight_pi,
+def adm_constraints_grid(gamma, K, rho, S, interior, w1, w2, inv_h, sym, sixteen_pi, eight_pi,
                          H, M, H_scale, M_scale):
     """H, M_i and the size of their largest term; see the module docstring."""
     nx, ny, nz = rho.shape
@@ -62,7 +62,7 @@ def adm_constraints_grid(gamma, K, rho, S, evaluate, w1, w2, inv_h, sym, sixteen
         gam2 = np.empty((3, 3, 3))  # Gamma^k_ij
         ric = np.empty((3, 3))
         for k in range(nz):
-            if evaluate[i, j, k] == 0:
+            if interior[i, j, k] == 0:
                 H[i, j, k] = math.nan
                 H_scale[i, j, k] = math.nan
                 for a in range(3):

@@ -60,6 +60,7 @@ from scipy import ndimage
 
 from . import _arguments as arg
 from ._deprecated_names import module_aliases, renamed_keywords
+from ._threading import kernel_call
 from .kernels import conservation as kernels
 from .kernels.stencils import first_derivative_weights, stencil_radius
 from .reductions import (BalancePartial, BalanceTerms, GlobalBalance, NormPartial, ResidualNorms,
@@ -287,21 +288,22 @@ def _run_kernels(p: _Prepared, order, rate_mode, rate_arrays, inv_2dt, write_sou
     work = _work_array(function, work, (16,) + p.grid, p.dtype)
     work4 = work[(Ellipsis,) + (None,) * (3 - len(p.grid))]
     g_a, gidx_a, e_a, b_a, g_b, gidx_b, e_b, b_b = rate_arrays
-    kernels.fluxes_and_rates(v["alpha"], v["beta"], v["gamma"], p.gidx, v["E"], v["B"], rate_mode,
-                             g_a, gidx_a, e_a, b_a, g_b, gidx_b, e_b, b_b, dt(inv_2dt),
-                             dt(p.coef), dt(0.5), work4)
     residual = np.empty((4,) + p.grid, p.dtype)
     scale = np.empty((4,) + p.grid, p.dtype)
     sources = np.empty((4,) + p.grid, p.dtype) if write_sources else residual
     partials = np.empty((padded_shape[0] * padded_shape[1], 16), p.dtype)
     pad = (Ellipsis,) + (None,) * (3 - len(p.grid))
     rx, ry, rz = p.radii
-    kernels.residuals(v["alpha"], v["beta"], v["gamma"], p.gidx, v["K"], p.kidx, v["E"], v["B"],
-                      v["charge_density"], v["current_density"], work4,
-                      first_derivative_weights(order, p.dtype),
-                      dt(p.inv_h[0]), dt(p.inv_h[1]), dt(p.inv_h[2]), rx, ry, rz,
-                      dt(p.coef), dt(0.5), residual[pad], scale[pad], sources[pad],
-                      bool(write_sources), partials)
+    with kernel_call():
+        kernels.fluxes_and_rates(v["alpha"], v["beta"], v["gamma"], p.gidx, v["E"], v["B"],
+                                 rate_mode, g_a, gidx_a, e_a, b_a, g_b, gidx_b, e_b, b_b,
+                                 dt(inv_2dt), dt(p.coef), dt(0.5), work4)
+        kernels.residuals(v["alpha"], v["beta"], v["gamma"], p.gidx, v["K"], p.kidx, v["E"],
+                          v["B"], v["charge_density"], v["current_density"], work4,
+                          first_derivative_weights(order, p.dtype),
+                          dt(p.inv_h[0]), dt(p.inv_h[1]), dt(p.inv_h[2]), rx, ry, rz,
+                          dt(p.coef), dt(0.5), residual[pad], scale[pad], sources[pad],
+                          bool(write_sources), partials)
     return residual, scale, (sources if write_sources else None), partials, work4
 
 

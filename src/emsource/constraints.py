@@ -23,6 +23,7 @@ from scipy import ndimage
 
 from . import _arguments as args
 from ._deprecated_names import renamed_attribute, renamed_function, renamed_keywords
+from ._threading import kernel_call
 from .kernels.constraints import adm_constraints_grid
 from .kernels.stencils import first_derivative_weights, second_derivative_weights, stencil_radius
 from .reductions import NormPartial, ResidualNorms
@@ -239,10 +240,11 @@ def adm_constraints(gamma, K, E=None, B=None, *, spacing, order=4, units="gaussi
     M = np.empty((3,) + grid)
     H_scale = np.empty(grid)
     M_scale = np.empty((3,) + grid)
-    adm_constraints_grid(gamma64, K64, rho, S_i, interior.view(np.uint8),
-                         first_derivative_weights(order), second_derivative_weights(order),
-                         1.0 / spacing, _SYM, 16.0 * math.pi, 8.0 * math.pi,
-                         H, M, H_scale, M_scale)
+    with kernel_call():
+        adm_constraints_grid(gamma64, K64, rho, S_i, interior.view(np.uint8),
+                             first_derivative_weights(order), second_derivative_weights(order),
+                             1.0 / spacing, _SYM, 16.0 * math.pi, 8.0 * math.pi,
+                             H, M, H_scale, M_scale)
     return ConstraintResiduals(hamiltonian=H, momentum=M, hamiltonian_scale=H_scale,
                                momentum_scale=M_scale, interior=interior, order=order,
                                units=None if vacuum else units)
