@@ -49,31 +49,39 @@ from .stencils import d1_column
 
 
 @point_function
+def _contravariant_point(gxx, gxy, gxz, gyy, gyz, gzz, ex, ey, ez, bx, by, bz, coef, half):
+    """The point physics the conservation kernels need, from contravariant fields.
+
+    Returns one flat tuple (a tuple nested in a returned tuple breaks Numba's parallel array
+    analysis): the metric factors (d1, d2, d3, l21, l31, l32), sg, the fields with both index
+    positions (E^i, E_i, B^i, B_i), rho, S_i, S^i and E^2 + B^2, all from
+    :mod:`emsource.kernels.electromagnetic`.
+    """
+    one = half + half
+    d1, d2, d3, l21, l31, l32 = metric_factors(gxx, gxy, gxz, gyy, gyz, gzz, one)
+    sg = sqrt_determinant(d1, d2, d3)
+    fields = fields_both_indices(FORM_CONTRAVARIANT, gxx, gxy, gxz, gyy, gyz, gzz,
+                                 d1, d2, d3, l21, l31, l32, ex, ey, ez, bx, by, bz, one)
+    (rho, sx, sy, sz, _sxx, _sxy, _sxz, _syy, _syz, _szz,
+     energy2) = projections(gxx, gxy, gxz, gyy, gyz, gzz, sg, fields, coef, half)
+    ux, uy, uz = momentum_upper(sg, fields, coef)
+    exu, eyu, ezu, exl, eyl, ezl, bxu, byu, bzu, bxl, byl, bzl = fields
+    return (d1, d2, d3, l21, l31, l32, sg, exu, eyu, ezu, exl, eyl, ezl, bxu, byu, bzu,
+            bxl, byl, bzl, rho, sx, sy, sz, ux, uy, uz, energy2)
+
+
+@point_function
 def _densities(g, g0, g1, g2, g3, g4, g5, e, b, i, j, k, coef, half):
     """sg rho and sg S_j at one point of the level (g, e, b): the conserved densities.
 
     ``g0..g5`` are the six component indices of the metric (xx, xy, xz, yy, yz, zz) in ``g``.
     """
-    one = half + half
-    gxx = g[g0, i, j, k]
-    gxy = g[g1, i, j, k]
-    gxz = g[g2, i, j, k]
-    gyy = g[g3, i, j, k]
-    gyz = g[g4, i, j, k]
-    gzz = g[g5, i, j, k]
-    ex0 = e[0, i, j, k]
-    ey0 = e[1, i, j, k]
-    ez0 = e[2, i, j, k]
-    bx0 = b[0, i, j, k]
-    by0 = b[1, i, j, k]
-    bz0 = b[2, i, j, k]
-    d1, d2, d3, l21, l31, l32 = metric_factors(gxx, gxy, gxz, gyy, gyz, gzz, one)
-    sg = sqrt_determinant(d1, d2, d3)
-    fields = fields_both_indices(FORM_CONTRAVARIANT, gxx, gxy, gxz, gyy, gyz, gzz,
-                                 d1, d2, d3, l21, l31, l32, ex0, ey0, ez0, bx0, by0, bz0, one)
-    (rho, sx, sy, sz, _sxx, _sxy, _sxz, _syy, _syz, _szz,
-     _energy2) = projections(gxx, gxy, gxz, gyy, gyz, gzz, sg, fields, coef, half)
-    return sg * rho, sg * sx, sg * sy, sg * sz
+    point = _contravariant_point(
+        g[g0, i, j, k], g[g1, i, j, k], g[g2, i, j, k], g[g3, i, j, k], g[g4, i, j, k],
+        g[g5, i, j, k], e[0, i, j, k], e[1, i, j, k], e[2, i, j, k], b[0, i, j, k], b[1, i, j, k],
+        b[2, i, j, k], coef, half)
+    sg = point[6]
+    return sg * point[19], sg * point[20], sg * point[21], sg * point[22]
 
 
 @grid_kernel
@@ -119,25 +127,12 @@ def fluxes_and_rates(alpha, beta, gamma, gidx, E, B, rate_mode,
         i = column // ny
         j = column - i * ny
         for k in range(nz):
-            gxx = gamma[c0, i, j, k]
-            gxy = gamma[c1, i, j, k]
-            gxz = gamma[c2, i, j, k]
-            gyy = gamma[c3, i, j, k]
-            gyz = gamma[c4, i, j, k]
-            gzz = gamma[c5, i, j, k]
-            ex0 = E[0, i, j, k]
-            ey0 = E[1, i, j, k]
-            ez0 = E[2, i, j, k]
-            bx0 = B[0, i, j, k]
-            by0 = B[1, i, j, k]
-            bz0 = B[2, i, j, k]
-            d1, d2, d3, l21, l31, l32 = metric_factors(gxx, gxy, gxz, gyy, gyz, gzz, one)
-            sg = sqrt_determinant(d1, d2, d3)
-            fields = fields_both_indices(FORM_CONTRAVARIANT, gxx, gxy, gxz, gyy, gyz, gzz, d1, d2,
-                                         d3, l21, l31, l32, ex0, ey0, ez0, bx0, by0, bz0, one)
-            (rho, sx, sy, sz, _sxx, _sxy, _sxz, _syy, _syz, _szz,
-             energy2) = projections(gxx, gxy, gxz, gyy, gyz, gzz, sg, fields, coef, half)
-            ux, uy, uz = momentum_upper(sg, fields, coef)
+            (d1, d2, d3, l21, l31, l32, sg, ex, ey, ez, exl, eyl, ezl, bx, by, bz, bxl, byl, bzl,
+             rho, sx, sy, sz, ux, uy, uz, energy2) = _contravariant_point(
+                gamma[c0, i, j, k], gamma[c1, i, j, k], gamma[c2, i, j, k], gamma[c3, i, j, k],
+                gamma[c4, i, j, k], gamma[c5, i, j, k], E[0, i, j, k], E[1, i, j, k],
+                E[2, i, j, k], B[0, i, j, k], B[1, i, j, k], B[2, i, j, k], coef, half)
+            fields = (ex, ey, ez, exl, eyl, ezl, bx, by, bz, bxl, byl, bzl)
             (f0, f1, f2, m0, m1, m2, m3, m4, m5, m6, m7, m8) = energy_momentum_fluxes(
                 alpha[0, i, j, k], beta[0, i, j, k], beta[1, i, j, k], beta[2, i, j, k],
                 sg, rho, sx, sy, sz, ux, uy, uz, fields, energy2, coef, half)
@@ -169,25 +164,11 @@ def fluxes_and_rates(alpha, beta, gamma, gidx, E, B, rate_mode,
                 work[15, i, j, k] = (db3 - da3) * inv_2dt
         elif rate_mode == 2:
             for k in range(nz):
-                gxx = gamma[c0, i, j, k]
-                gxy = gamma[c1, i, j, k]
-                gxz = gamma[c2, i, j, k]
-                gyy = gamma[c3, i, j, k]
-                gyz = gamma[c4, i, j, k]
-                gzz = gamma[c5, i, j, k]
-                ex0 = E[0, i, j, k]
-                ey0 = E[1, i, j, k]
-                ez0 = E[2, i, j, k]
-                bx0 = B[0, i, j, k]
-                by0 = B[1, i, j, k]
-                bz0 = B[2, i, j, k]
-                d1, d2, d3, l21, l31, l32 = metric_factors(gxx, gxy, gxz, gyy, gyz, gzz, one)
-                sg = sqrt_determinant(d1, d2, d3)
-                fields = fields_both_indices(FORM_CONTRAVARIANT, gxx, gxy, gxz, gyy, gyz, gzz, d1, d2,
-                                             d3, l21, l31, l32, ex0, ey0, ez0, bx0, by0, bz0, one)
-                (rho, sx, sy, sz, _sxx, _sxy, _sxz, _syy, _syz, _szz,
-                 _energy2) = projections(gxx, gxy, gxz, gyy, gyz, gzz, sg, fields, coef, half)
-                ex, ey, ez, exl, eyl, ezl, bx, by, bz, bxl, byl, bzl = fields
+                (d1, d2, d3, l21, l31, l32, sg, ex, ey, ez, exl, eyl, ezl, bx, by, bz, bxl, byl,
+                 bzl, rho, sx, sy, sz, ux, uy, uz, energy2) = _contravariant_point(
+                    gamma[c0, i, j, k], gamma[c1, i, j, k], gamma[c2, i, j, k], gamma[c3, i, j, k],
+                    gamma[c4, i, j, k], gamma[c5, i, j, k], E[0, i, j, k], E[1, i, j, k],
+                    E[2, i, j, k], B[0, i, j, k], B[1, i, j, k], B[2, i, j, k], coef, half)
                 ixx, ixy, ixz, iyy, iyz, izz = inverse_metric(d1, d2, d3, l21, l31, l32, one)
                 det = sg * sg
                 hxx = g_a[a0, i, j, k]
@@ -384,26 +365,11 @@ def residuals(alpha, beta, gamma, gidx, K, kidx, E, B, charge, current, work,
             for c in range(4):
                 _copy_column(work, 12 + c, i, j, start, count, buf, 65 + c)
             for n in range(count):
-                gxx = buf[42, n]
-                gxy = buf[43, n]
-                gxz = buf[44, n]
-                gyy = buf[45, n]
-                gyz = buf[46, n]
-                gzz = buf[47, n]
-                ex0 = buf[48, n]
-                ey0 = buf[49, n]
-                ez0 = buf[50, n]
-                bx0 = buf[51, n]
-                by0 = buf[52, n]
-                bz0 = buf[53, n]
-                d1, d2, d3, l21, l31, l32 = metric_factors(gxx, gxy, gxz, gyy, gyz, gzz, one)
-                sg = sqrt_determinant(d1, d2, d3)
-                fields = fields_both_indices(FORM_CONTRAVARIANT, gxx, gxy, gxz, gyy, gyz, gzz, d1, d2,
-                                             d3, l21, l31, l32, ex0, ey0, ez0, bx0, by0, bz0, one)
-                (rho, sx, sy, sz, _sxx, _sxy, _sxz, _syy, _syz, _szz,
-                 energy2) = projections(gxx, gxy, gxz, gyy, gyz, gzz, sg, fields, coef, half)
-                ux, uy, uz = momentum_upper(sg, fields, coef)
-                ex, ey, ez, exl, eyl, ezl, bx, by, bz, bxl, byl, bzl = fields
+                (d1, d2, d3, l21, l31, l32, sg, ex, ey, ez, exl, eyl, ezl, bx, by, bz, bxl, byl,
+                 bzl, rho, sx, sy, sz, ux, uy, uz, energy2) = _contravariant_point(
+                    buf[42, n], buf[43, n], buf[44, n], buf[45, n], buf[46, n], buf[47, n],
+                    buf[48, n], buf[49, n], buf[50, n], buf[51, n], buf[52, n], buf[53, n], coef,
+                    half)
                 ixx, ixy, ixz, iyy, iyz, izz = inverse_metric(d1, d2, d3, l21, l31, l32, one)
                 a = buf[54, n]
                 jx = buf[55, n]

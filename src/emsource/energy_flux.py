@@ -14,7 +14,7 @@ import numpy as np
 from . import _arguments as arg
 from ._threading import kernel_call
 from .kernels import sources as kernels
-from .sources import _common_inputs, raise_for_counts
+from .sources import SPACETIME_INPUT_NAMES, raise_for_counts, spacetime_inputs
 
 __all__ = ["EnergyFluxes", "energy_fluxes"]
 
@@ -88,13 +88,10 @@ def energy_fluxes(alpha, beta, gamma, E, B, *, units="gaussian", field_index="up
     """
     function = "energy_fluxes"
     layout = "component_first"
-    grid, metric, gidx, e, b, prefactor, form = _common_inputs(
-        function, gamma, E, B, units, field_index, layout)
-    lapse = arg.scalar(function, "alpha", alpha, grid)
-    shift = arg.vector(function, "beta", beta, grid, layout)
-    names = ("alpha", "beta", "gamma", "E", "B")
+    (grid, lapse, shift, metric, gidx, e, b, prefactor, form,
+     dtype) = spacetime_inputs(function, alpha, beta, gamma, E, B, units, field_index, layout)
+    names = SPACETIME_INPUT_NAMES
     inputs = (alpha, beta, gamma, E, B)
-    dtype = arg.common_dtype(function, names, inputs)
     shape = (7,) + grid
     if out is None:
         result = np.empty(shape, dtype)

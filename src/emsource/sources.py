@@ -137,6 +137,22 @@ def _common_inputs(function, gamma, E, B, units, field_index, layout):
     return grid, metric, gidx, e, b, stress_energy_prefactor(units), form.code
 
 
+#: Argument names of the functions that take lapse and shift, in their order.
+SPACETIME_INPUT_NAMES = ("alpha", "beta", "gamma", "E", "B")
+
+
+def spacetime_inputs(function, alpha, beta, gamma, E, B, units, field_index, layout):
+    """As :func:`_common_inputs`, with the lapse and shift checked and viewed too, and the
+    one dtype of all five inputs: (grid, lapse, shift, metric, gidx, E, B, prefactor, form
+    code, dtype)."""
+    grid, metric, gidx, e, b, prefactor, form = _common_inputs(
+        function, gamma, E, B, units, field_index, layout)
+    lapse = arg.scalar(function, "alpha", alpha, grid)
+    shift = arg.vector(function, "beta", beta, grid, layout)
+    dtype = arg.common_dtype(function, SPACETIME_INPUT_NAMES, (alpha, beta, gamma, E, B))
+    return grid, lapse, shift, metric, gidx, e, b, prefactor, form, dtype
+
+
 def adm_sources(gamma, E, B, *, units="gaussian", field_index="upper",
                 layout="component_first", check=True, out=None) -> AdmSources:
     r"""Energy density, momentum density, stress and its trace of the electromagnetic field.
@@ -292,13 +308,10 @@ def stress_energy_4d(alpha, beta, gamma, E, B, *, units="gaussian", index="lower
     """
     function = "stress_energy_4d"
     arg.choice(function, "index", index, ("lower", "upper"))
-    grid, metric, gidx, e, b, prefactor, form = _common_inputs(
-        function, gamma, E, B, units, field_index, layout)
-    lapse = arg.scalar(function, "alpha", alpha, grid)
-    shift = arg.vector(function, "beta", beta, grid, layout)
-    names = ("alpha", "beta", "gamma", "E", "B")
+    (grid, lapse, shift, metric, gidx, e, b, prefactor, form,
+     dtype) = spacetime_inputs(function, alpha, beta, gamma, E, B, units, field_index, layout)
+    names = SPACETIME_INPUT_NAMES
     inputs = (alpha, beta, gamma, E, B)
-    dtype = arg.common_dtype(function, names, inputs)
     shape = arg.shape_for(grid, (10,), layout)
     if out is None:
         result = np.empty(shape, dtype)
