@@ -122,8 +122,12 @@ def test_bad_values_name_the_slab_and_leave_no_output(tmp_path, rng):
     levels[0]["electric_field"][1, 6, 2, 3] = np.nan
     path = tmp_path / "snap.h5"
     snapshot.write_snapshot(path, levels)
-    with pytest.raises(snapshot.SnapshotError, match=r"slab x rows 4:8.*grid index \(2, 2, 3\)"):
+    # The error is the kernel's GridPointError in the whole grid's terms: the absolute index,
+    # with the file, the time level and the slab's rows named (issue: slab-relative indices).
+    with pytest.raises(emsource.GridPointError,
+                       match=r"snap.h5', time level '0' \(x rows 4:8\).*grid index \(6, 2, 3\)") as info:
         compute_sources(path, tmp_path / "out.h5", rows=4)
+    assert info.value.first_index == (6, 2, 3) and info.value.bad_count == 1
     assert os.listdir(tmp_path) == ["snap.h5"]
 
 
@@ -154,3 +158,19 @@ def test_chosen_outputs_only(tmp_path, rng):
     with pytest.raises(ValueError, match="outputs must be some of"):
         compute_sources(path, tmp_path / "x.h5", outputs=("pressure",))
     assert not (tmp_path / "x.h5").exists()
+
+
+@pytest.mark.parametrize("axis_order", ["xyz", "zyx"])
+def test_integrals_name_file_level_and_absolute_index_from_a_slab(tmp_path, rng, axis_order):
+    from emsource.integrals import integrate_snapshot
+
+    levels = curved_levels(rng, times=(0.0, 0.5))
+    levels[1]["electric_field"][1, 6, 2, 5] = np.nan
+    path = tmp_path / "snap.h5"
+    snapshot.write_snapshot(path, levels, axis_order=axis_order)
+    # Slabs of 2 rows along the slowest storage axis (x for xyz, z for zyx): the bad point lies
+    # in a later slab either way, and the index must still be that of the whole (x, y, z) grid.
+    rows = "x rows 6:8" if axis_order == "xyz" else "z rows 4:6"
+    with pytest.raises(emsource.GridPointError, match=rf"snap.h5', time level '1' \({rows}\)") as info:
+        integrate_snapshot(path, rows=2)
+    assert info.value.first_index == (6, 2, 5)

@@ -274,15 +274,6 @@ def _harmless(arrays, valid, in_place):
     return out
 
 
-def _shifted(error, axis, offset, npoints, function="integrate"):
-    """A GridPointError with its grid index moved by ``offset`` rows along ``axis`` (the
-    index in the whole grid; ``npoints`` points of this slab were checked)."""
-    index = list(error.first_index)
-    index[axis] += offset
-    return GridPointError(function, error.bad_count, npoints, tuple(index), error.reason)
-
-
-@renamed_keywords(mask="valid_mask")
 def level_partial(grid, gamma, E, B, *, units="gaussian", lapse=None, shift=None, valid_mask=None,
                   spheres=(), axis=0, start=0, stop=None, in_place=False) -> LevelPartial:
     """Partial integrals of the rows ``start:stop`` along ``axis`` of a level on ``grid``.
@@ -316,7 +307,7 @@ def level_partial(grid, gamma, E, B, *, units="gaussian", lapse=None, shift=None
         beta = arrays["shift"] if shift is not None else np.zeros((3,) + shape)
         energy, momentum, flux = _flux_densities(alpha, beta, gamma, E, B, units=units)
     except GridPointError as error:
-        raise _shifted(error, axis, start, int(np.prod(shape))) from None
+        raise error.relocated(axis, start) from None
     own = [slice(None)] * 3
     own[axis] = slice(0, nrows)
     own = tuple(own)
@@ -480,8 +471,9 @@ def _integrate_level(level, dtype, rows, halo, spheres, bar):
                                   valid_mask=valid_mask,
                                   spheres=spheres, axis=level.slab_axis, start=start, stop=stop,
                                   in_place=True)
-        except GridPointError as error:
-            raise SnapshotError(f"time level {level.label!r}: {error}") from None
+        except GridPointError as error:  # its index is already in the whole grid
+            raise error.relocated(where=f"{level.where}, time level {level.label!r} "
+                                        f"({'xyz'[level.slab_axis]} rows {start}:{stop})") from None
         partial = combine(partial, piece)
         bar.update(1)
     return LevelIntegrals.from_partial(partial, level.label, level.time,

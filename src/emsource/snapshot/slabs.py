@@ -131,7 +131,8 @@ def progress_bar(total, description, enabled):
 
 
 def slab_error(error, level, start, stop):
-    """A point error re-raised with the slab's place in the full grid."""
+    """A :class:`GridPointError` of the slab of rows ``start:stop`` in the whole grid's terms:
+    the index in the whole (x, y, z) grid, the file, the time level and the rows named."""
     axis = "xyz"[level.slab_axis]
-    return SnapshotError(f"time level {level.label!r}, slab {axis} rows {start}:{stop}: {error} "
-                         f"(grid index along {axis} is relative to row {start})")
+    return error.relocated(level.slab_axis, start,
+                           f"{level.where}, time level {level.label!r} ({axis} rows {start}:{stop})")
