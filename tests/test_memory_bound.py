@@ -1,4 +1,5 @@
-"""``emsource sources`` stays under --memory-limit for every layout and chunking (peak RSS)."""
+"""``emsource sources`` and ``emsource integrate`` stay under --memory-limit for every layout,
+chunking and option (peak RSS)."""
 
 import subprocess
 import sys
@@ -40,7 +41,9 @@ def _write(directory, kind, n):
         else:
             write_root_attributes(f)
             group = f.create_group("time_levels/0")
-            write_level_attributes(group, time=0.0, grid=UniformGrid(shape, (0.0,) * 3, (0.01,) * 3),
+            # Origin at the centre, so that coordinate spheres around it fit in the box.
+            origin = (-0.005 * (n - 1),) * 3
+            write_level_attributes(group, time=0.0, grid=UniformGrid(shape, origin, (0.01,) * 3),
                                    units="gaussian", axis_order="xyz")
         datasets = {}
         for q, c in INPUTS:
@@ -65,8 +68,10 @@ def _write(directory, kind, n):
     return path
 
 
-def _peak(path, out, limit_mib, mapping):
-    arguments = ["sources", str(path), "-o", str(out), "--force", "--quiet",
+def _peak(path, out, limit_mib, mapping, command=("sources",)):
+    if command[0] == "sources":
+        command = (*command, "-o", str(out), "--force")
+    arguments = [command[0], str(path), *command[1:], "--quiet",
                  "--memory-limit", str(limit_mib)] + (["--mapping", str(mapping)] if mapping else [])
     result = subprocess.run([sys.executable, "-c", PEAK, *arguments], capture_output=True,
                             text=True, timeout=600)
@@ -92,3 +97,25 @@ def test_peak_rss_above_the_interpreter_stays_under_the_limit(tmp_path, kind):
         f"{kind}: {(big - small) / 2**20:.1f} MiB above the interpreter, limit {limit} MiB")
     with h5py.File(tmp_path / "big_out.h5", "r") as f:
         assert f["time_levels/0/energy_density"].shape == (96, 96, 96)
+
+
+@pytest.mark.parametrize("kind, options", [
+    ("native", ("--radius", "0.3", "--theta-points", "400")),
+    ("gzip", ()),
+    ("last", ()),
+])
+def test_integrate_stays_under_the_limit(tmp_path, kind, options):
+    # The same bound for the integrals: slabs of the 96^3 file, and for the native file three
+    # spheres' worth of quadrature with theta_points = 400 (320,000 nodes; holding their
+    # stencils at once took 200 MiB above the interpreter). The 8^3 reference runs the same
+    # command without spheres (none fits in 8 points with a 4-point stencil).
+    mapping = None
+    if kind == "last":
+        mapping = tmp_path / "last.toml"
+        mapping.write_text(LAST_MAPPING)
+    limit = 40
+    small = _peak(_write(tmp_path, kind, 8), None, limit, mapping, ("integrate",))
+    big = _peak(_write(tmp_path, kind, 96), None, limit, mapping, ("integrate", *options))
+    print(f"integrate {kind}: peak {big / 2**20:.1f} MiB, interpreter {small / 2**20:.1f} MiB")
+    assert big - small < limit * 2**20, (
+        f"integrate {kind}: {(big - small) / 2**20:.1f} MiB above the interpreter, limit {limit} MiB")

@@ -112,27 +112,41 @@ class LevelIntegrals:
         return float(sum(self.face_flux.values()))
 
 
+class _SphereRule:
+    """Gauss-Legendre in mu = cos(theta) (``numpy.polynomial.legendre.leggauss``) with
+    ``theta_points`` nodes times the uniform rule in phi with 2 theta_points points; nodes
+    numbered theta-major, N = 2 theta_points^2. Holds O(theta_points) numbers only."""
+
+    def __init__(self, radius: float, theta_points: int):
+        if theta_points < 2:
+            raise ValueError(f"theta_points must be at least 2, found {theta_points}")
+        self.radius = radius
+        self.mu, self.w_mu = np.polynomial.legendre.leggauss(int(theta_points))
+        self.n_phi = 2 * int(theta_points)
+        self.count = int(theta_points) * self.n_phi
+
+    def nodes(self, first: int, last: int):
+        """Points (3, n), unit normals (3, n) and weights (n,) of nodes first:last; the
+        weights include the area factor R^2."""
+        k = np.arange(first, last)
+        it = k // self.n_phi
+        phi = 2 * np.pi * (k - it * self.n_phi) / self.n_phi
+        mu = self.mu[it]
+        sin_theta = np.sqrt(1 - mu**2)
+        normals = np.stack([sin_theta * np.cos(phi), sin_theta * np.sin(phi), mu])
+        weights = self.w_mu[it] * (2 * np.pi / self.n_phi) * self.radius**2
+        return self.radius * normals, normals, weights
+
+
 @renamed_keywords(n_theta="theta_points")
 def sphere_quadrature(radius: float, theta_points: int):
     """Nodes (3, N), unit normals (3, N) and weights (N,) with sum(w f) ~ the surface integral.
 
-    Gauss-Legendre in mu = cos(theta) (``numpy.polynomial.legendre.leggauss``) with
-    ``theta_points`` nodes times the uniform rule in phi with 2 theta_points points,
-    N = 2 theta_points^2; the weights include the area factor R^2.
+    Gauss-Legendre in mu = cos(theta) with ``theta_points`` nodes times the uniform rule in phi
+    with 2 theta_points points, N = 2 theta_points^2; the weights include the area factor R^2.
     """
-    if theta_points < 2:
-        raise ValueError(f"theta_points must be at least 2, found {theta_points}")
-    mu, w_mu = np.polynomial.legendre.leggauss(int(theta_points))
-    n_phi = 2 * int(theta_points)
-    phi = 2 * np.pi * np.arange(n_phi) / n_phi
-    sin_theta = np.sqrt(1 - mu**2)
-    normals = np.stack([
-        np.outer(sin_theta, np.cos(phi)).ravel(),
-        np.outer(sin_theta, np.sin(phi)).ravel(),
-        np.repeat(mu, n_phi),
-    ])
-    weights = np.repeat(w_mu, n_phi) * (2 * np.pi / n_phi) * radius**2
-    return radius * normals, normals, weights
+    rule = _SphereRule(radius, theta_points)
+    return rule.nodes(0, rule.count)
 
 
 def lagrange_weights(s: np.ndarray, npoints: int):
@@ -164,36 +178,54 @@ def _check_radius(radius):
     return r
 
 
-class _Sphere:
-    """Quadrature nodes of one sphere with their interpolation stencils on the level's grid.
+#: Quadrature nodes whose place is computed at once when a sphere scans its nodes, and nodes
+#: interpolated at once (each gathers 3 x p^3 flux values). They bound the spheres' memory
+#: whatever ``theta_points`` is (N = 2 theta_points^2 nodes are never held at once).
+SPHERE_SCAN_NODES = 16384
+SPHERE_GATHER_NODES = 1024
 
-    Immutable after construction: :meth:`slab_sum` returns a partial sum and changes nothing.
+
+def sphere_working_bytes(interpolation_points: int) -> int:
+    """Bytes one sphere evaluation holds at most (:data:`SPHERE_SCAN_NODES` nodes with about
+    10 float64 values each, :data:`SPHERE_GATHER_NODES` nodes with their 3 p^3 gathered values,
+    the same again for the interpolation's temporaries, and 6 p weights): the integration
+    takes it off the memory limit before sizing slabs."""
+    p = int(interpolation_points)
+    return 8 * (10 * SPHERE_SCAN_NODES + SPHERE_GATHER_NODES * (2 * 3 * p**3 + 6 * p + 16))
+
+
+class _Sphere:
+    """A coordinate sphere's quadrature on the level's grid, node by node in bounded batches.
+
+    Holds only the rule (:class:`_SphereRule`, O(theta_points) numbers): the nodes, their
+    normals, weights and interpolation stencils are computed per batch when a slab is summed,
+    so memory stays bounded for any ``theta_points``. Immutable after construction:
+    :meth:`slab_sum` returns a partial sum and changes nothing.
     """
 
     def __init__(self, radius, grid, theta_points, npoints):
         self.radius = _check_radius(radius)
         self.npoints = npoints
+        self.grid = grid
         if npoints < 2 or npoints % 2:
             raise ValueError(f"interpolation_points must be even and >= 2, found {npoints}")
         # Coordinates between which an interpolation stencil stays on the grid, per axis.
-        bounds = [(grid.origin[a] + (npoints // 2 - 1) * grid.spacing[a],
-                   grid.origin[a] + (grid.shape[a] - npoints // 2) * grid.spacing[a])
-                  for a in range(3)]
-        for a, (lo, hi) in enumerate(bounds):
+        self.bounds = [(grid.origin[a] + (npoints // 2 - 1) * grid.spacing[a],
+                        grid.origin[a] + (grid.shape[a] - npoints // 2) * grid.spacing[a])
+                       for a in range(3)]
+        for a, (lo, hi) in enumerate(self.bounds):
             # Checked before any node is placed, so that a huge radius is a clear error and
             # not an overflow: every node has |x_a| <= R, and the extreme ones nearly R.
             if not (lo < 0 < hi) or self.radius >= max(abs(lo), abs(hi)):
                 self._does_not_fit(a, lo, hi)
-        points, self.normals, self.weights = sphere_quadrature(self.radius, theta_points)
-        self.starts = []
-        self.stencil = []
-        for a in range(3):
-            s = (points[a] - grid.origin[a]) / grid.spacing[a]
-            i0, w = lagrange_weights(s, npoints)
-            if i0.min() < 0 or i0.max() + npoints - 1 > grid.shape[a] - 1:
-                self._does_not_fit(a, *bounds[a])
-            self.starts.append(i0)
-            self.stencil.append(w)
+        self.rule = _SphereRule(self.radius, theta_points)
+        self.count = self.rule.count
+        for first in range(0, self.count, SPHERE_SCAN_NODES):  # every stencil on the grid
+            points, _, _ = self.rule.nodes(first, min(first + SPHERE_SCAN_NODES, self.count))
+            for a in range(3):
+                i0 = self._starts(points[a], a)
+                if i0.min() < 0 or i0.max() + npoints - 1 > grid.shape[a] - 1:
+                    self._does_not_fit(a, *self.bounds[a])
 
     def _does_not_fit(self, a, lo, hi):
         raise SnapshotError(
@@ -201,31 +233,49 @@ class _Sphere:
             f"{self.npoints}-point interpolation needs {'xyz'[a]} within [{lo:.6g}, {hi:.6g}] "
             "on both sides of the origin")
 
+    def _starts(self, coordinate, a):
+        s = (coordinate - self.grid.origin[a]) / self.grid.spacing[a]
+        return np.floor(s).astype(np.int64) - (self.npoints // 2 - 1)
+
     def slab_sum(self, flux, valid, axis, start, stop) -> Sum:
         """Partial luminosity of the nodes whose stencil starts in rows start:stop of ``axis``.
 
         ``flux`` and ``valid`` cover rows start: (with the stencils' halo). Each node belongs
         to exactly one slab, the one holding its stencil start.
         """
-        chosen = np.nonzero((self.starts[axis] >= start) & (self.starts[axis] < stop))[0]
-        if chosen.size == 0:
-            return Sum.zero()
+        total = Sum.zero()
+        for first in range(0, self.count, SPHERE_SCAN_NODES):
+            points, normals, weights = self.rule.nodes(first, min(first + SPHERE_SCAN_NODES,
+                                                                  self.count))
+            i0 = self._starts(points[axis], axis)
+            chosen = np.nonzero((i0 >= start) & (i0 < stop))[0]
+            for g in range(0, chosen.size, SPHERE_GATHER_NODES):
+                nodes = chosen[g:g + SPHERE_GATHER_NODES]
+                total = total.combine(self._interpolated_flux(
+                    flux, valid, axis, start, points[:, nodes], normals[:, nodes],
+                    weights[nodes]))
+        return total
+
+    def _interpolated_flux(self, flux, valid, axis, start, points, normals, weights) -> Sum:
+        """Sum of w F^i n_i over a few nodes, F^i Lagrange-interpolated from the slab."""
         p = self.npoints
         offsets = np.arange(p)
         index = []
+        stencil = []
         for a in range(3):
-            i = self.starts[a][chosen, None] + offsets - (start if a == axis else 0)
-            shape = [chosen.size, 1, 1, 1]
+            s = (points[a] - self.grid.origin[a]) / self.grid.spacing[a]
+            i0, w = lagrange_weights(s, p)
+            i = i0[:, None] + offsets - (start if a == axis else 0)
+            shape = [i.shape[0], 1, 1, 1]
             shape[1 + a] = p
             index.append(i.reshape(shape))
+            stencil.append(w)
         if valid is not None and not valid[index[0], index[1], index[2]].all():
             raise SnapshotError(f"the interpolation stencil of the sphere of radius {self.radius} "
                                 "reaches excised points (valid_mask = 0); choose a larger radius")
         values = flux[:, index[0], index[1], index[2]]  # (3, n, p, p, p)
-        wx, wy, wz = (w[chosen] for w in self.stencil)
-        interpolated = np.einsum("cnijk,ni,nj,nk->cn", values, wx, wy, wz)
-        normal_flux = np.einsum("cn,cn->n", interpolated, self.normals[:, chosen])
-        return Sum.of(normal_flux * self.weights[chosen])
+        interpolated = np.einsum("cnijk,ni,nj,nk->cn", values, *stencil)
+        return Sum.of(np.einsum("cn,cn->n", interpolated, normals) * weights)
 
 
 def _trapezoid(n, h):
@@ -274,6 +324,7 @@ def _harmless(arrays, valid, in_place):
     return out
 
 
+@renamed_keywords(mask="valid_mask")
 def level_partial(grid, gamma, E, B, *, units="gaussian", lapse=None, shift=None, valid_mask=None,
                   spheres=(), axis=0, start=0, stop=None, in_place=False) -> LevelPartial:
     """Partial integrals of the rows ``start:stop`` along ``axis`` of a level on ``grid``.
@@ -437,7 +488,8 @@ def integrate_open_snapshot(snap: SnapshotFile, *, radii=(), theta_points=32,
             level.dtype(q)
         # Sums over millions of points: always accumulate in float64.
         dtype = np.dtype(np.float64)
-        fixed = CHUNK_CACHE_BYTES * 17 + CONVERSION_BUFFER_BYTES
+        fixed = (CHUNK_CACHE_BYTES * 17 + CONVERSION_BUFFER_BYTES
+                 + (sphere_working_bytes(interpolation_points) if radii else 0))
         n = rows or slab_rows(level, INTEGRATION_VALUES_PER_POINT, dtype.itemsize,
                               memory_limit, fixed=fixed, halo=halo)
         spheres = [_Sphere(r, level.grid, theta_points, interpolation_points) for r in radii]
