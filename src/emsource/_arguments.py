@@ -147,22 +147,23 @@ def outputs(function: str, names: tuple, values: tuple, shapes: tuple, component
     output_owners = []
     views = []
     for name, value, shape, ncomp in zip(names, values, shapes, component_axes):
+        label = f"out {name}" if name else "out"  # a function with one output names none
         if not isinstance(value, np.ndarray):
-            raise TypeError(f"{function}: out {name} must be a NumPy array, found {type(value).__name__}")
+            raise TypeError(f"{function}: {label} must be a NumPy array, found {type(value).__name__}")
         if value.shape != shape or value.dtype != dtype:
             raise ValueError(
-                f"{function}: out {name} must have shape {shape} and dtype {dtype}, "
+                f"{function}: {label} must have shape {shape} and dtype {dtype}, "
                 f"found shape {value.shape} and dtype {value.dtype}"
             )
         if not value.flags.writeable:
-            raise ValueError(f"{function}: out {name} is read-only")
+            raise ValueError(f"{function}: {label} is read-only")
         owner = _owner(value)
         output_owners.append(owner)
         if owner is None or any(o is None or o is owner for o in input_owners):
             for input_name, a in zip(input_names, inputs):
                 if np.may_share_memory(value, a):
                     raise ValueError(
-                        f"{function}: out {name} overlaps input {input_name}; "
+                        f"{function}: {label} overlaps input {input_name}; "
                         "inputs are never overwritten"
                     )
         views.append(value if ncomp == 0 or layout == "component_first"

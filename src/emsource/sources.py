@@ -81,7 +81,13 @@ def describe_bad_point(named_values: dict, dtype) -> str:
     size = max(float(np.max(np.abs(named_values[name]))) for name in ("E", "B"))
     info = np.finfo(dtype)
     return (f"the outputs overflow the {info.dtype.name} range (largest finite {info.max:.3g}) "
-            f"for fields of size {size:.3g}: rescale the fields (a larger unit) or use float64")
+            f"for fields of size {size:.3g}: rescale the fields (a larger unit)"
+            + _or_float64(dtype))
+
+
+def _or_float64(dtype) -> str:
+    """The advice to switch to float64, only where the data are not float64 already."""
+    return "" if np.dtype(dtype) == np.float64 else " or use float64"
 
 
 def describe_underflow(named_values: dict, dtype) -> str:
@@ -91,7 +97,7 @@ def describe_underflow(named_values: dict, dtype) -> str:
     return (f"fields of size {size:.3g} give an energy density below the smallest normal "
             f"{info.dtype.name} ({info.tiny:.3g}), and no point of the grid has one above "
             f"{info.tiny / info.eps:.3g}: the results have lost their digits. Rescale the "
-            "fields (a smaller unit), or use float64")
+            "fields (a smaller unit)" + _or_float64(dtype))
 
 
 def raise_for_counts(function, counts, grid, dtype, search, search_arguments, names, views,
