@@ -72,8 +72,12 @@ def fields_both_indices(form, gxx, gxy, gxz, gyy, gyz, gzz, d1, d2, d3, l21, l31
 
 @point_function
 def sqrt_determinant(d1, d2, d3):
-    """sg = sqrt(det gamma) from the pivots of :func:`~emsource.kernels.metric.metric_factors`."""
-    return math.sqrt(d1 * d2 * d3)
+    """sg = sqrt(det gamma) from the pivots of :func:`~emsource.kernels.metric.metric_factors`.
+
+    One square root per pivot: the product d1 d2 d3 ~ s^3 of a metric of scale s leaves the
+    floating-point range long before sg ~ s^1.5 and the outputs do (float32: s = 2^50).
+    """
+    return math.sqrt(d1) * math.sqrt(d2) * math.sqrt(d3)
 
 
 @point_function
@@ -133,16 +137,22 @@ def energy_momentum_fluxes(alpha, b1, b2, b3, sg, rho, sx, sy, sz, ux, uy, uz, f
 
 
 @point_function
-def point_is_valid(d1, d2, d3, output_sum):
+def point_is_valid(d1, d2, d3, least_pivot, output_sum):
     """The folded point check: gamma positive definite and every output finite.
 
-    Positive definite: all three pivots of gamma = L D L^T positive (NaN fails). A NaN or Inf
+    Positive definite: all three pivots of gamma = L D L^T above ``least_pivot`` (NaN fails).
+    The caller passes ``pivot_floor * tr(gamma)`` (see :func:`emsource._arguments.pivot_floor`):
+    0 accepts every metric whose rounded pivots are positive; a floor of c eps tr(gamma) also
+    rejects exactly singular metrics whose last pivot rounds to a tiny positive number, and
+    no metric with a condition number below 1 / (3 c eps), since every pivot of a positive
+    definite gamma is at least its smallest eigenvalue, tr(gamma) / (3 kappa) or more. A NaN or Inf
     anywhere in gamma, E or B reaches rho (each metric component multiplies a field component
     in E_i, B_i; 0 * Inf = NaN), so ``output_sum`` (the sum of the outputs written at the
     point) is not finite for every non-finite input, and also when a finite input overflows
     (fields above ~1e154 in float64, ~1e19 in float32). Bitwise & keeps the loop branch-free.
     """
-    return (d1 > 0) & (d2 > 0) & (d3 > 0) & is_finite(output_sum)
+    return ((d1 > least_pivot) & (d2 > least_pivot) & (d3 > least_pivot)
+            & is_finite(output_sum))
 
 
 @point_function

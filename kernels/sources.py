@@ -88,7 +88,7 @@ def _adm_point(n, gamma, gidx, E, B, rho, S_i, S_ij, S, form, coef, half):
 
 
 @point_function
-def _adm_point_valid(n, gamma, gidx, rho, S_i, S_ij, half):
+def _adm_point_valid(n, gamma, gidx, rho, S_i, S_ij, half, pivot_floor):
     """The check of :func:`~emsource.kernels.electromagnetic.point_is_valid` at point ``n``,
     from the inputs and the outputs just written.
 
@@ -97,12 +97,14 @@ def _adm_point_valid(n, gamma, gidx, rho, S_i, S_ij, half):
     while re-reading the values here costs nothing measurable (they are in registers or
     cache, and LLVM merges the repeated factorisation).
     """
+    gxx = gamma[gidx[0], n]
+    gyy = gamma[gidx[3], n]
+    gzz = gamma[gidx[5], n]
     d1, d2, d3, _l21, _l31, _l32 = metric_factors(
-        gamma[gidx[0], n], gamma[gidx[1], n], gamma[gidx[2], n], gamma[gidx[3], n],
-        gamma[gidx[4], n], gamma[gidx[5], n], half + half)
+        gxx, gamma[gidx[1], n], gamma[gidx[2], n], gyy, gamma[gidx[4], n], gzz, half + half)
     total = (rho[n] + (S_i[0, n] + S_i[1, n] + S_i[2, n])
              + (S_ij[0, n] + S_ij[1, n] + S_ij[2, n] + S_ij[3, n] + S_ij[4, n] + S_ij[5, n]))
-    return point_is_valid(d1, d2, d3, total)
+    return point_is_valid(d1, d2, d3, pivot_floor * (gxx + gyy + gzz), total)
 
 
 @point_function
@@ -113,62 +115,59 @@ def _underflows_at(n, rho, E, B, tiny):
 
 
 @point_function
-def _stress_energy_point(n, alpha, beta, gamma, gidx, E, B, T, form, coef, half, tiny, upper):
-    """Write the 10 packed T_ab (or T^ab) at point ``n``; return (valid, underflows)."""
+def _stress_energy_point(n, alpha, beta, gamma, gidx, E, B, T, form, coef, half, tiny,
+                         pivot_floor, upper):
+    """Write the 10 packed T_ab (or T^ab) at point ``n``; return (valid, underflows).
+
+    T^ab is built from contravariant pieces, S^i = coef [ijk] E_j B_k / sg and
+    S^ij = coef (1/2 (E^2 + B^2) gamma^ij - E^i E^j - B^i B^j): raising both indices of S_ij
+    instead costs eps kappa^2 rather than eps kappa (measured against exact arithmetic,
+    tests/test_metric_conditioning.py).
+    """
+    one = half + half
     gxx = gamma[gidx[0], n]
     gxy = gamma[gidx[1], n]
     gxz = gamma[gidx[2], n]
     gyy = gamma[gidx[3], n]
     gyz = gamma[gidx[4], n]
     gzz = gamma[gidx[5], n]
-    one = half + half
     d1, d2, d3, l21, l31, l32 = metric_factors(gxx, gxy, gxz, gyy, gyz, gzz, one)
     sg = sqrt_determinant(d1, d2, d3)
     fields = fields_both_indices(form, gxx, gxy, gxz, gyy, gyz, gzz, d1, d2, d3, l21, l31, l32,
                                  E[0, n], E[1, n], E[2, n], B[0, n], B[1, n], B[2, n], one)
-    r, sx, sy, sz, sxx, sxy, sxz, syy, syz, szz, _energy2 = projections(
+    r, sx, sy, sz, sxx, sxy, sxz, syy, syz, szz, energy2 = projections(
         gxx, gxy, gxz, gyy, gyz, gzz, sg, fields, coef, half)
     a = alpha[n]
-    bx = beta[0, n]
-    by = beta[1, n]
-    bz = beta[2, n]
+    b1 = beta[0, n]
+    b2 = beta[1, n]
+    b3 = beta[2, n]
     if upper:
         ixx, ixy, ixz, iyy, iyz, izz = inverse_metric(d1, d2, d3, l21, l31, l32, one)
+        ux, uy, uz = momentum_upper(sg, fields, coef)
+        ex, ey, ez, _exl, _eyl, _ezl, bx, by, bz, _bxl, _byl, _bzl = fields
+        pressure = half * energy2
         ia = one / a
-        # n^a = (1, -beta^i)/alpha; S^i = gamma^ij S_j; S^ij = gamma^ik gamma^jl S_kl.
-        nx = -bx * ia
-        ny = -by * ia
-        nz = -bz * ia
-        ux = ixx * sx + ixy * sy + ixz * sz
-        uy = ixy * sx + iyy * sy + iyz * sz
-        uz = ixz * sx + iyz * sy + izz * sz
-        # Rows of gamma^-1 S_kl, then contracted with gamma^-1 again.
-        mxx = ixx * sxx + ixy * sxy + ixz * sxz
-        mxy = ixx * sxy + ixy * syy + ixz * syz
-        mxz = ixx * sxz + ixy * syz + ixz * szz
-        myx = ixy * sxx + iyy * sxy + iyz * sxz
-        myy = ixy * sxy + iyy * syy + iyz * syz
-        myz = ixy * sxz + iyy * syz + iyz * szz
-        mzx = ixz * sxx + iyz * sxy + izz * sxz
-        mzy = ixz * sxy + iyz * syy + izz * syz
-        mzz = ixz * sxz + iyz * syz + izz * szz
+        # n^a = (1, -beta^i)/alpha; T^ab = rho n^a n^b + n^a S^b + S^a n^b + S^ab.
+        nx = -b1 * ia
+        ny = -b2 * ia
+        nz = -b3 * ia
         t0 = r * ia * ia
         t1 = ia * (r * nx + ux)
         t2 = ia * (r * ny + uy)
         t3 = ia * (r * nz + uz)
-        t4 = r * nx * nx + (nx * ux + nx * ux) + (mxx * ixx + mxy * ixy + mxz * ixz)
-        t5 = r * nx * ny + (nx * uy + ny * ux) + (mxx * ixy + mxy * iyy + mxz * iyz)
-        t6 = r * nx * nz + (nx * uz + nz * ux) + (mxx * ixz + mxy * iyz + mxz * izz)
-        t7 = r * ny * ny + (ny * uy + ny * uy) + (myx * ixy + myy * iyy + myz * iyz)
-        t8 = r * ny * nz + (ny * uz + nz * uy) + (myx * ixz + myy * iyz + myz * izz)
-        t9 = r * nz * nz + (nz * uz + nz * uz) + (mzx * ixz + mzy * iyz + mzz * izz)
+        t4 = r * nx * nx + (nx * ux + nx * ux) + coef * (pressure * ixx - ex * ex - bx * bx)
+        t5 = r * nx * ny + (nx * uy + ny * ux) + coef * (pressure * ixy - ex * ey - bx * by)
+        t6 = r * nx * nz + (nx * uz + nz * ux) + coef * (pressure * ixz - ex * ez - bx * bz)
+        t7 = r * ny * ny + (ny * uy + ny * uy) + coef * (pressure * iyy - ey * ey - by * by)
+        t8 = r * ny * nz + (ny * uz + nz * uy) + coef * (pressure * iyz - ey * ez - by * bz)
+        t9 = r * nz * nz + (nz * uz + nz * uz) + coef * (pressure * izz - ez * ez - bz * bz)
     else:
         # beta^j S_ij, one row per i.
-        qx = bx * sxx + by * sxy + bz * sxz
-        qy = bx * sxy + by * syy + bz * syz
-        qz = bx * sxz + by * syz + bz * szz
-        beta_s = bx * sx + by * sy + bz * sz
-        t0 = a * a * r - (a * beta_s + a * beta_s) + (bx * qx + by * qy + bz * qz)
+        qx = b1 * sxx + b2 * sxy + b3 * sxz
+        qy = b1 * sxy + b2 * syy + b3 * syz
+        qz = b1 * sxz + b2 * syz + b3 * szz
+        beta_s = b1 * sx + b2 * sy + b3 * sz
+        t0 = a * a * r - (a * beta_s + a * beta_s) + (b1 * qx + b2 * qy + b3 * qz)
         t1 = qx - a * sx
         t2 = qy - a * sy
         t3 = qz - a * sz
@@ -189,13 +188,13 @@ def _stress_energy_point(n, alpha, beta, gamma, gidx, E, B, T, form, coef, half,
     T[8, n] = t8
     T[9, n] = t9
     total = (t0 + t1 + t2 + t3) + (t4 + t5 + t6 + t7 + t8 + t9)
-    valid = (point_is_valid(d1, d2, d3, total) & (a > 0)
-             & is_finite(a + bx + by + bz))
+    valid = (point_is_valid(d1, d2, d3, pivot_floor * (gxx + gyy + gzz), total) & (a > 0)
+             & is_finite(a + b1 + b2 + b3))
     return valid, point_underflows(r, fields, tiny)
 
 
 @point_function
-def _flux_point(n, alpha, beta, gamma, gidx, E, B, out, form, coef, half, tiny):
+def _flux_point(n, alpha, beta, gamma, gidx, E, B, out, form, coef, half, tiny, pivot_floor):
     """Write (sg rho, sg S_x, sg S_y, sg S_z, F^x, F^y, F^z) at point ``n``; return
     (valid, underflows). The conserved densities and the energy flux density that the
     integrals sum (F^i = sg (alpha S^i - beta^i rho))."""
@@ -227,26 +226,29 @@ def _flux_point(n, alpha, beta, gamma, gidx, E, B, out, form, coef, half, tiny):
     out[5, n] = fy
     out[6, n] = fz
     total = sg * (r + sx + sy + sz) + (fx + fy + fz)
-    valid = (point_is_valid(d1, d2, d3, total) & (a > 0)
+    valid = (point_is_valid(d1, d2, d3, pivot_floor * (gxx + gyy + gzz), total) & (a > 0)
              & is_finite(a + bx + by + bz))
     return valid, point_underflows(r, fields, tiny)
 
 
 @grid_kernel
-def adm_sources_flat(gamma, gidx, E, B, rho, S_i, S_ij, S, form, coef, half, tiny, check):
+def adm_sources_flat(gamma, gidx, E, B, rho, S_i, S_ij, S, form, coef, half, tiny, pivot_floor,
+                     check):
     """rho, S_i, S_ij, S over arrays of shape (ncomp, npoints); returns the two counts."""
     bad_count = 0
     underflow_count = 0
     for n in prange(rho.shape[0]):
         _adm_point(n, gamma, gidx, E, B, rho, S_i, S_ij, S, form, coef, half)
         if check:
-            bad_count += 0 if _adm_point_valid(n, gamma, gidx, rho, S_i, S_ij, half) else 1
+            valid = _adm_point_valid(n, gamma, gidx, rho, S_i, S_ij, half, pivot_floor)
+            bad_count += 0 if valid else 1
             underflow_count += 1 if _underflows_at(n, rho, E, B, tiny) else 0
     return bad_count, underflow_count
 
 
 @grid_kernel
-def adm_sources_grid(gamma, gidx, E, B, rho, S_i, S_ij, S, form, coef, half, tiny, check):
+def adm_sources_grid(gamma, gidx, E, B, rho, S_i, S_ij, S, form, coef, half, tiny, pivot_floor,
+                     check):
     """rho, S_i, S_ij, S over strided (ncomp, nx, ny, nz) arrays; returns the two counts."""
     nx, ny, nz = rho.shape
     bad_count = 0
@@ -264,19 +266,21 @@ def adm_sources_grid(gamma, gidx, E, B, rho, S_i, S_ij, S, form, coef, half, tin
         for k in range(nz):
             _adm_point(k, g_c, gidx, e_c, b_c, rho_c, s_i_c, s_ij_c, s_c, form, coef, half)
             if check:
-                bad_count += 0 if _adm_point_valid(k, g_c, gidx, rho_c, s_i_c, s_ij_c, half) else 1
+                bad_count += 0 if _adm_point_valid(k, g_c, gidx, rho_c, s_i_c, s_ij_c, half,
+                                                       pivot_floor) else 1
                 underflow_count += 1 if _underflows_at(k, rho_c, e_c, b_c, tiny) else 0
     return bad_count, underflow_count
 
 
 @grid_kernel
-def stress_energy_flat(alpha, beta, gamma, gidx, E, B, T, form, coef, half, tiny, upper, check):
+def stress_energy_flat(alpha, beta, gamma, gidx, E, B, T, form, coef, half, tiny, pivot_floor,
+                       upper, check):
     """Packed T_ab or T^ab over (ncomp, npoints) arrays; returns the two counts."""
     bad_count = 0
     underflow_count = 0
     for n in prange(alpha.shape[0]):
         valid, low = _stress_energy_point(n, alpha, beta, gamma, gidx, E, B, T,
-                                          form, coef, half, tiny, upper)
+                                          form, coef, half, tiny, pivot_floor, upper)
         if check:
             bad_count += 0 if valid else 1
             underflow_count += 1 if low else 0
@@ -284,7 +288,8 @@ def stress_energy_flat(alpha, beta, gamma, gidx, E, B, T, form, coef, half, tiny
 
 
 @grid_kernel
-def stress_energy_grid(alpha, beta, gamma, gidx, E, B, T, form, coef, half, tiny, upper, check):
+def stress_energy_grid(alpha, beta, gamma, gidx, E, B, T, form, coef, half, tiny, pivot_floor,
+                       upper, check):
     """Packed T_ab or T^ab over strided (ncomp, nx, ny, nz) arrays; returns the two counts."""
     nx, ny, nz = alpha.shape
     bad_count = 0
@@ -300,7 +305,7 @@ def stress_energy_grid(alpha, beta, gamma, gidx, E, B, T, form, coef, half, tiny
         t_c = T[:, i, j]
         for k in range(nz):
             valid, low = _stress_energy_point(k, a_c, beta_c, g_c, gidx, e_c, b_c, t_c,
-                                              form, coef, half, tiny, upper)
+                                              form, coef, half, tiny, pivot_floor, upper)
             if check:
                 bad_count += 0 if valid else 1
                 underflow_count += 1 if low else 0
@@ -308,7 +313,8 @@ def stress_energy_grid(alpha, beta, gamma, gidx, E, B, T, form, coef, half, tiny
 
 
 @grid_kernel
-def energy_fluxes_grid(alpha, beta, gamma, gidx, E, B, out, form, coef, half, tiny, check):
+def energy_fluxes_grid(alpha, beta, gamma, gidx, E, B, out, form, coef, half, tiny, pivot_floor,
+                       check):
     """(sg rho, sg S_i, F^i) over strided (ncomp, nx, ny, nz) arrays; returns the two counts.
 
     Post-processing only (the integrals of a slab), so one strided driver serves every layout.
@@ -327,7 +333,7 @@ def energy_fluxes_grid(alpha, beta, gamma, gidx, E, B, out, form, coef, half, ti
         o_c = out[:, i, j]
         for k in range(nz):
             valid, low = _flux_point(k, a_c, beta_c, g_c, gidx, e_c, b_c, o_c,
-                                     form, coef, half, tiny)
+                                     form, coef, half, tiny, pivot_floor)
             if check:
                 bad_count += 0 if valid else 1
                 underflow_count += 1 if low else 0
@@ -335,7 +341,8 @@ def energy_fluxes_grid(alpha, beta, gamma, gidx, E, B, out, form, coef, half, ti
 
 
 @search_kernel
-def first_failing_adm(gamma, gidx, E, B, rho, S_i, S_ij, S, form, coef, half, tiny, underflow):
+def first_failing_adm(gamma, gidx, E, B, rho, S_i, S_ij, S, form, coef, half, tiny, pivot_floor,
+                      underflow):
     """C-order flat index of the first point of (ncomp, nx, ny, nz) arrays that fails the check
     (``underflow`` False) or underflows (True), or -1.
 
@@ -354,15 +361,15 @@ def first_failing_adm(gamma, gidx, E, B, rho, S_i, S_ij, S, form, coef, half, ti
                     failed = _underflows_at(k, rho[i, j], E[:, i, j], B[:, i, j], tiny)
                 else:
                     failed = not _adm_point_valid(k, gamma[:, i, j], gidx, rho[i, j],
-                                                  S_i[:, i, j], S_ij[:, i, j], half)
+                                                  S_i[:, i, j], S_ij[:, i, j], half, pivot_floor)
                 if failed:
                     return (i * ny + j) * nz + k
     return -1
 
 
 @search_kernel
-def first_failing_stress_energy(alpha, beta, gamma, gidx, E, B, T, form, coef, half, tiny, upper,
-                                underflow):
+def first_failing_stress_energy(alpha, beta, gamma, gidx, E, B, T, form, coef, half, tiny,
+                                pivot_floor, upper, underflow):
     """As :func:`first_failing_adm`, for the 4D components (lapse and shift checked too)."""
     nx, ny, nz = alpha.shape
     for i in range(nx):
@@ -370,14 +377,15 @@ def first_failing_stress_energy(alpha, beta, gamma, gidx, E, B, T, form, coef, h
             for k in range(nz):
                 valid, low = _stress_energy_point(k, alpha[i, j], beta[:, i, j], gamma[:, i, j],
                                                   gidx, E[:, i, j], B[:, i, j], T[:, i, j],
-                                                  form, coef, half, tiny, upper)
+                                                  form, coef, half, tiny, pivot_floor, upper)
                 if (low if underflow else not valid):
                     return (i * ny + j) * nz + k
     return -1
 
 
 @search_kernel
-def first_failing_flux(alpha, beta, gamma, gidx, E, B, out, form, coef, half, tiny, underflow):
+def first_failing_flux(alpha, beta, gamma, gidx, E, B, out, form, coef, half, tiny, pivot_floor,
+                       underflow):
     """As :func:`first_failing_adm`, for :func:`energy_fluxes_grid`."""
     nx, ny, nz = alpha.shape
     for i in range(nx):
@@ -385,7 +393,7 @@ def first_failing_flux(alpha, beta, gamma, gidx, E, B, out, form, coef, half, ti
             for k in range(nz):
                 valid, low = _flux_point(k, alpha[i, j], beta[:, i, j], gamma[:, i, j], gidx,
                                          E[:, i, j], B[:, i, j], out[:, i, j],
-                                         form, coef, half, tiny)
+                                         form, coef, half, tiny, pivot_floor)
                 if (low if underflow else not valid):
                     return (i * ny + j) * nz + k
     return -1

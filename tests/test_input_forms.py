@@ -15,9 +15,7 @@ lowering by one rounding per component (a relative change u, which moves rho by 
 |M_ij| <= lambda_max |M|_g, and the 4D components pick up alpha^2 and |beta| as well, so the
 allowed difference per component is
     2 * 160 * eps * kappa * rho * max(1, lambda_max) * max(1, alpha)^2 * (1 + |beta|_g / alpha)^2.
-On random_curved_data (kappa ~ 10) that is ~ 1e-11 rho in float64. The covariant T^ab has an
-eps kappa^2 term (see the xfail in test_metric_conditioning), 10 times smaller than this
-allowance at kappa ~ 10.
+On random_curved_data (kappa ~ 10) that is ~ 1e-11 rho in float64.
 """
 
 from __future__ import annotations

@@ -259,18 +259,11 @@ def test_sources_within_condition_number_bounds(dtype, kappa):
         assert control > 1.0, f"the cofactor control stayed within the bound: {control}"
 
 
-#: T^ab (index="upper") loses eps kappa^2, not eps kappa: the kernel raises both indices of
-#: S_ij (S^ij = gamma^ik (gamma^jl S_kl)), whose rounding, of size eps |gamma^-1| |S_ij|
-#: componentwise, is eps kappa^2 rho in |.|_h (measured error / bound: 1.7 at kappa = 1e4,
-#: 8e3 at 1e8, 2e8 at 1e12 in float64; 1.3 at 1e4 in float32: |dT|_h up to 0.25 (1 + v)^2 rho). Forming
-#: S^ij = c (p gamma^ij - E^i E^j - B^i B^j) from the contravariant fields, with gamma^ij from
-#: the same factors, stays within 0.6 eps kappa rho (measured with a NumPy emulation).
-_UPPER_FAILS = pytest.mark.xfail(strict=True, reason=(
-    "stress_energy_4d(index='upper') raises S_ij twice: error eps kappa^2 rho instead of "
-    "eps kappa rho (kernels/sources.py, _stress_energy_point)"))
-UPPER_CASES = [pytest.param(d, k, id=f"{d.__name__}-{k:.0e}",
-                            marks=() if (d is np.float32 and k <= 1e2) else _UPPER_FAILS)
-               for d, k in CASES]
+#: T^ab (index="upper") is built from contravariant pieces (S^i from E_j, B_k; S^ij from
+#: E^i, B^i and gamma^ij of the same factors). Raising both indices of S_ij instead loses
+#: eps kappa^2 rho (measured error / bound: 1.7 at kappa = 1e4, 8e3 at 1e8, 2e8 at 1e12 in
+#: float64), which this test caught.
+UPPER_CASES = [pytest.param(d, k, id=f"{d.__name__}-{k:.0e}") for d, k in CASES]
 
 
 @pytest.mark.parametrize("dtype, kappa", UPPER_CASES)
@@ -313,10 +306,10 @@ def test_indefinite_and_singular_metrics_are_rejected_as_not_positive_definite(r
 
 
 #: Exactly singular metrics (rank 2: A A^T with A an integer 3 x 2 matrix, det = 0 exactly)
-#: that the float64 kernel accepts as positive definite: the last pivot comes out as a
+#: that a plain pivot test d_k > 0 accepts as positive definite: the last pivot comes out as a
 #: rounding-level positive number (found by a search over random A with entries in -3..3:
-#: 6 % of such metrics are accepted, float32 and float64 alike). A relative threshold on the
-#: pivots, d_k > c eps tr(gamma), would reject them; since every pivot of a positive-definite
+#: 6 % of such metrics are accepted, float32 and float64 alike). The kernels' relative
+#: threshold on the pivots, d_k > c eps tr(gamma) (emsource._arguments.pivot_floor), rejects them; since every pivot of a positive-definite
 #: gamma is >= lambda_min (interlacing), it rejects no metric with kappa < 1 / (3 c eps):
 #: with c = 16 that is 9e13 in float64. In float32 no threshold separates the two cases
 #: (measured: the computed last pivot of a singular metric reaches 4.5 eps tr(gamma); at
@@ -324,9 +317,6 @@ def test_indefinite_and_singular_metrics_are_rejected_as_not_positive_definite(r
 SINGULAR_ACCEPTED = ((18, -15, -3, 13, 0, 13), (18, 12, 0, 10, -6, 18), (13, 10, 7, 8, 6, 5))
 
 
-@pytest.mark.xfail(strict=True, reason=(
-    "exactly singular metrics pass the pivot test d_k > 0 in float64 (rounding-level last "
-    "pivot); a relative threshold c eps tr(gamma) would reject them"))
 @pytest.mark.parametrize("metric", SINGULAR_ACCEPTED, ids=lambda m: "-".join(map(str, m)))
 def test_exactly_singular_metrics_are_rejected_in_float64(metric):
     gamma = np.array(metric, np.float64)[:, None]

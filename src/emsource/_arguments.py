@@ -201,6 +201,34 @@ def smallest_normal(dtype):
     return _SMALLEST_NORMAL[dtype]
 
 
+#: Relative floor of the metric pivots, per dtype (see :func:`pivot_floor`).
+_PIVOT_FLOOR = {np.dtype(np.float64): np.float64(16 * np.finfo(np.float64).eps),
+                np.dtype(np.float32): np.float32(0.0)}
+
+
+def pivot_floor(dtype):
+    """c eps such that gamma counts as positive definite when its pivots exceed c eps tr(gamma).
+
+    float64: 16 eps. Every pivot of a positive-definite metric is at least its smallest
+    eigenvalue >= tr(gamma) / (3 kappa), so no metric with kappa < 1 / (48 eps) = 9e13 is
+    rejected, while exactly singular metrics whose last pivot rounds to a tiny positive number
+    are (``tests/test_metric_conditioning.py``). float32: 0, pivots merely positive. There no
+    floor separates the two cases for the condition numbers the package accepts (up to 1e6,
+    1/8 of 1/eps): a singular metric's computed pivot reaches 4.5 eps tr(gamma), a definite one
+    at kappa = 1e6 may be 4 eps tr(gamma) (measured). Use float64 where that matters.
+    """
+    return _PIVOT_FLOOR[np.dtype(dtype)]
+
+
+def metric_is_positive_definite(g, dtype):
+    """The kernels' criterion on packed components ``g`` (arrays or scalars) of ``dtype``:
+    every pivot of gamma = L D L^T above :func:`pivot_floor` times tr(gamma)."""
+    d1, d2, d3 = metric_pivots(g)
+    least = pivot_floor(dtype) * (g[0] + g[3] + g[5])
+    with np.errstate(invalid="ignore"):
+        return (d1 > least) & (d2 > least) & (d3 > least)
+
+
 def has_points(grid) -> bool:
     """False for a grid with a zero-length axis: nothing to compute, empty results."""
     return 0 not in grid
@@ -287,7 +315,7 @@ def check_points(function: str, grid, named: dict, *, valid=None, lapse=None, me
     ``named`` maps argument names to component-first arrays on ``grid`` (scalars of shape
     ``grid``) that must be finite; ``lapse`` names an entry of ``named`` that must be positive;
     ``metric`` is ``(name, array, six indices)`` of a symmetric tensor that must be positive
-    definite (:func:`metric_pivots` all positive, the kernels' criterion). Only points where ``valid`` is True
+    definite (:func:`metric_is_positive_definite`, the kernels' criterion). Only points where ``valid`` is True
     are looked at (all when None). This is a NumPy pass over the arrays: callers run it where a
     check is asked for, or on an error path.
     """
@@ -309,8 +337,7 @@ def check_points(function: str, grid, named: dict, *, valid=None, lapse=None, me
     if metric is not None:
         mname, m, index = metric
         g = [np.asarray(m).reshape((-1,) + grid)[c] for c in index]
-        d1, d2, d3 = metric_pivots(g)
-        bad |= ~((d1 > 0) & (d2 > 0) & (d3 > 0))
+        bad |= ~metric_is_positive_definite(g, np.result_type(g[0], np.float32))
     bad &= where
     count = int(np.count_nonzero(bad))
     if count == 0:

@@ -70,7 +70,7 @@ def describe_bad_point(named_values: dict, dtype) -> str:
         return f"lapse alpha = {named_values['alpha']} is not positive"
     g = np.asarray(named_values["gamma"], dtype=dtype)
     d1, d2, d3 = arg.metric_pivots(g)
-    if not (d1 > 0 and d2 > 0 and d3 > 0):
+    if not arg.metric_is_positive_definite(g, dtype):
         matrix = np.array([[g[0], g[1], g[2]], [g[1], g[3], g[4]], [g[2], g[4], g[5]]], float)
         eigenvalues = np.linalg.eigvalsh(matrix)
         what = ("not positive definite" if eigenvalues[0] <= 0 else
@@ -78,11 +78,14 @@ def describe_bad_point(named_values: dict, dtype) -> str:
                 f"{eigenvalues[-1] / eigenvalues[0]:.3g}, beyond 1/eps)")
         return (f"spatial metric gamma is {what} (eigenvalues {eigenvalues}; pivots of "
                 f"gamma = L D L^T: {float(d1):.6g}, {float(d2):.6g}, {float(d3):.6g})")
-    size = max(float(np.max(np.abs(named_values[name]))) for name in ("E", "B"))
+    sizes = {name: float(np.max(np.abs(values))) for name, values in named_values.items()}
+    largest = max(sizes, key=sizes.get)
+    what = "the fields" if largest in ("E", "B") else {"alpha": "the lapse", "beta": "the shift",
+                                                       "gamma": "the metric"}[largest]
     info = np.finfo(dtype)
-    return (f"the outputs overflow the {info.dtype.name} range (largest finite {info.max:.3g}) "
-            f"for fields of size {size:.3g}: rescale the fields (a larger unit)"
-            + _or_float64(dtype))
+    return (f"the outputs overflow the {info.dtype.name} range (largest finite {info.max:.3g}); "
+            f"the largest input is {largest} of size {sizes[largest]:.3g}: rescale {what} "
+            "(a larger unit)" + _or_float64(dtype))
 
 
 def _or_float64(dtype) -> str:
@@ -256,7 +259,8 @@ def adm_sources(gamma, E, B, *, units="gaussian", field_index="upper",
         return result
     (g, ev, bv, rho, s_i, s_ij, s), flat = arg.kernel_views([metric, e, b] + views, grid)
     driver = kernels.adm_sources_flat if flat else kernels.adm_sources_grid
-    constants = (form, dtype.type(prefactor), dtype.type(0.5), arg.smallest_normal(dtype))
+    constants = (form, dtype.type(prefactor), dtype.type(0.5), arg.smallest_normal(dtype),
+                 arg.pivot_floor(dtype))
     with kernel_call():
         counts = driver(g, gidx, ev, bv, rho, s_i, s_ij, s, *constants, bool(check))
         if counts[0] or counts[1]:
@@ -330,7 +334,7 @@ def stress_energy_4d(alpha, beta, gamma, E, B, *, units="gaussian", index="lower
     (a, be, g, ev, bv, t), flat = arg.kernel_views([lapse, shift, metric, e, b, t_view], grid)
     driver = kernels.stress_energy_flat if flat else kernels.stress_energy_grid
     constants = (form, dtype.type(prefactor), dtype.type(0.5), arg.smallest_normal(dtype),
-                 index == "upper")
+                 arg.pivot_floor(dtype), index == "upper")
     with kernel_call():
         counts = driver(a, be, g, gidx, ev, bv, t, *constants, bool(check))
         if counts[0] or counts[1]:
