@@ -13,7 +13,6 @@ Usage: python benchmarks/bench_constraints.py [N] [repeats]    (default N = 64, 
 
 import math
 import statistics
-import sys
 import time
 
 import numpy as np
@@ -109,9 +108,16 @@ def numpy_constraints(gamma, K, rho, S, h):
 
 
 def main():
-    n = int(sys.argv[1]) if len(sys.argv) > 1 else 64
-    repeats = int(sys.argv[2]) if len(sys.argv) > 2 else 5
+    import argparse
+
     import numba
+
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("points", nargs="?", type=int, default=64, help="points per axis (64)")
+    parser.add_argument("repeats", nargs="?", type=int, default=5,
+                        help="repetitions per median (5)")
+    options = parser.parse_args()
+    n, repeats = options.points, options.repeats
 
     grid = UniformGrid.from_bounds((2.5, 0.5, -0.5), (3.5, 1.5, 0.5), (n, n, n))
     d = kerr_newman(grid, mass=1.0, spin=0.6, charge=0.5)
