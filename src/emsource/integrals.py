@@ -429,7 +429,10 @@ def integrate_snapshot(input_file, *, mapping=None, radii=(), n_theta=32, interp
             fixed = CHUNK_CACHE_BYTES * 17 + CONVERSION_BUFFER_BYTES
             n = rows or slab_rows(level, INTEGRATION_VALUES_PER_POINT, dtype.itemsize,
                                   memory_limit, fixed=fixed, halo=halo)
-            spheres = [_Sphere(r, level.grid, n_theta, interpolation_points) for r in radii]
+            try:
+                spheres = [_Sphere(r, level.grid, n_theta, interpolation_points) for r in radii]
+            except SnapshotError as error:
+                raise SnapshotError(f"{level.where}, time level {level.label!r}: {error}") from None
             plans.append((level, dtype, int(min(n, level.storage_shape[0])), spheres))
         bar = progress_bar(sum(len(slabs(lv.storage_shape[0], n)) for lv, _, n, _ in plans),
                            "integrate", progress)
@@ -459,8 +462,8 @@ def _integrate_level(level, dtype, rows, halo, spheres, bar):
                                   lapse=arrays.get("lapse"), shift=arrays.get("shift"), mask=mask,
                                   spheres=spheres, axis=level.slab_axis, start=start, stop=stop,
                                   in_place=True)
-        except GridPointError as error:
-            raise SnapshotError(f"time level {level.label!r}: {error}") from None
+        except (GridPointError, SnapshotError) as error:  # a bad point, a stencil in excision
+            raise SnapshotError(f"{level.where}, time level {level.label!r}: {error}") from None
         partial = combine(partial, piece)
         bar.update(1)
     return LevelIntegrals.from_partial(partial, level.label, level.time,

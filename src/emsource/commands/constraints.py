@@ -3,8 +3,9 @@
 from __future__ import annotations
 
 from .._arguments import DIFFERENCE_ORDERS
-from . import EXIT_BAD_INPUT, EXIT_CHECK_FAILED, EXIT_OK
-from ._snapshot_level import add_snapshot_arguments, read_slice
+from . import EXIT_CHECK_FAILED, EXIT_OK
+from ._snapshot_level import about, add_snapshot_arguments, read_slice
+from ._snapshot_options import run_guarded
 
 
 def register(subparsers):
@@ -25,24 +26,21 @@ def register(subparsers):
                         "a named one, or none (vacuum)")
     p.add_argument("--tolerance", type=float, default=None,
                    help="exit with code 1 if a normalised l2 residual exceeds this")
-    p.set_defaults(run=run)
+    p.set_defaults(run=lambda args: run_guarded(_run, args))
 
 
-def run(args) -> int:
+def _run(args) -> int:
     from ..constraints import adm_constraints
 
-    try:
-        d = read_slice(args.snapshot, args.level, args.mapping)
-        units = (d["units"] or "gaussian") if args.sources == "file" else args.sources
+    d = read_slice(args.snapshot, args.level, args.mapping)
+    units = d["units"] if args.sources == "file" else args.sources
+    with about(args.snapshot, args.level):
         if units == "none":
             res = adm_constraints(d["gamma"], d["K"], spacing=d["spacing"], order=args.order,
                                   mask=d["mask"])
         else:
             res = adm_constraints(d["gamma"], d["K"], d["E"], d["B"], spacing=d["spacing"],
                                   order=args.order, units=units, mask=d["mask"])
-    except (ValueError, TypeError, IndexError) as exc:
-        print(f"emsource constraints: {exc}")
-        return EXIT_BAD_INPUT
     print(f"{args.snapshot}: order {args.order}, sources {units}, "
           f"{int(res.evaluated.sum())} points evaluated")
     print(f"{'constraint':<12} {'l2':>11} {'max':>11} {'norm. l2':>11} {'norm. max':>11}")

@@ -60,8 +60,8 @@ class DataSource(Protocol):
 
 def chunk_rows_of(dataset, lead: int) -> int:
     """Planes of the slowest grid axis per chunk (the whole axis for contiguous data)."""
-    chunks = dataset.chunks
-    return int(chunks[lead]) if chunks else int(dataset.shape[lead])
+    rows = dataset.chunks or dataset.shape
+    return int(rows[lead]) if len(rows) > lead else 1  # too few axes: build_level says so
 
 
 def chunk_bytes_of(dataset) -> int:
@@ -79,8 +79,18 @@ def _grid_part(quantity, shape):
     return tuple(shape[1:]) if COMPONENTS[quantity] else tuple(shape)
 
 
-def attribute_text(value) -> str:
-    return value.decode() if isinstance(value, bytes) else str(value)
+def attribute_text(value, name, where) -> str:
+    """Text from an attribute value (str or bytes, also as a 0-d array), or a message naming it."""
+    if isinstance(value, np.ndarray) and value.shape == ():
+        value = value[()]
+    if isinstance(value, bytes):
+        try:
+            return value.decode()
+        except UnicodeDecodeError:
+            raise SnapshotError(f"{where}: {name} must be UTF-8 text, found {value!r}") from None
+    if isinstance(value, str):
+        return str(value)
+    raise SnapshotError(f"{where}: {name} must be text, found {value!r}")
 
 
 def attribute_number(value, name, where) -> float:
@@ -218,12 +228,31 @@ class TimeLevel:
         elif out.shape != shape or out.dtype != dtype or not out.flags.c_contiguous:
             raise ValueError(f"read({quantity!r}): out must be C-contiguous {shape} {dtype}, "
                              f"found {out.shape} {out.dtype}")
+        # A mask is checked in its stored type (a conversion would clip -1 or 256 into range).
+        mask = quantity == "valid_mask"
+        target = np.empty(shape, source.dtype) if mask and source.dtype != dtype else out
         try:
-            source.read_into(out, start, stop)
+            source.read_into(target, start, stop)
         except (OSError, RuntimeError, KeyError, TypeError) as error:
             raise SnapshotError(f"{self.where}: cannot read {quantity!r} of time level "
                                 f"{self.label!r} (rows {start}:{stop}): {error}") from error
+        if mask:
+            self._check_mask(source, target, start)
+            out[...] = target
         return self.to_xyz(out)
+
+    def _check_mask(self, source, stored, start):
+        """A valid_mask holds 0 (excluded) and 1 (valid) only: any other value is bad input."""
+        bad = (stored != 0) & (stored != 1)
+        if bad.any():
+            first = np.unravel_index(int(np.argmax(bad)), bad.shape)
+            index = (first[0] + start,) + tuple(int(i) for i in first[1:])
+            raise SnapshotError(
+                f"{self.where}: 'valid_mask' ({', '.join(source.paths)}) of time level "
+                f"{self.label!r} must hold 0 (excluded) or 1 (valid); found "
+                f"{stored[first].item()!r} at storage index {tuple(int(i) for i in index)} "
+                f"({int(np.count_nonzero(bad))} such point(s) in rows {start}:"
+                f"{start + stored.shape[0]})")
 
     def to_xyz(self, stored: np.ndarray) -> np.ndarray:
         """View of a storage-order array (component axis first if any) in (x, y, z) order."""

@@ -51,7 +51,7 @@ from dataclasses import dataclass, field
 import h5py
 import numpy as np
 
-from ..quantities import COMPONENTS, NAMES
+from ..quantities import BY_NAME, COMPONENTS, NAMES
 from .errors import MappingError
 from .levels import (AXIS_ORDERS, UNIT_SYSTEMS, attribute_number, attribute_vector, build_level,
                      chunk_bytes_of, chunk_rows_of)
@@ -116,21 +116,32 @@ class _Checker:
         return float(value)
 
 
+def _open(parent, path, where):
+    """``parent[path]``, or None if no such link; an object that exists but that HDF5 cannot
+    open (damaged metadata) is an error naming it."""
+    try:
+        if path not in parent:
+            return None
+        return parent[path]
+    except (KeyError, OSError, RuntimeError, ValueError) as error:
+        raise MappingError(f"{where}: object {path!r} under {parent.name} cannot be opened "
+                           f"(damaged HDF5 metadata?): {error}") from None
+
+
 def _object(group, relative, where):
     if relative in (".", ""):
         return group
-    try:
-        return group[relative]
-    except KeyError:
-        raise MappingError(f"{where}: object {relative!r} not found under {group.name}") from None
+    obj = _open(group, relative, where)
+    if obj is None:
+        raise MappingError(f"{where}: object {relative!r} not found under {group.name}")
+    return obj
 
 
 def _dataset(h5file, group, path, where, listing):
-    try:
-        obj = h5file[path] if path.startswith("/") else group[path]
-    except KeyError:
+    obj = _open(h5file if path.startswith("/") else group, path, where)
+    if obj is None:
         raise MappingError(f"{where}: dataset {path!r} not found. Objects in the file: "
-                           f"{listing()}") from None
+                           f"{listing()}")
     if not isinstance(obj, h5py.Dataset):
         raise MappingError(f"{where}: {obj.name!r} is a group, expected a dataset")
     return obj
@@ -397,6 +408,9 @@ def load_mapping(path) -> LayoutMapping:
         ncomp = COMPONENTS[name]
         spec = QuantitySpec(name)
         if "scale" in q:
+            if BY_NAME[name].kind == "mask":
+                check.fail(f"{where} takes no scale: a mask holds 0 and 1, found scale = "
+                           f"{q['scale']!r}")
             spec.scale = check.number(q["scale"], f"{where} scale", nonzero=True)
         if "component_axis" in q:
             spec.component_axis = check.text(q["component_axis"], f"{where} component_axis",

@@ -80,18 +80,38 @@ def _attribute(obj, name, where):
         raise SnapshotError(f"{where}: attribute {name!r} cannot be read: {error}") from None
 
 
+def _text_or_none(value):
+    try:
+        return attribute_text(value, "", "")
+    except SnapshotError:
+        return None
+
+
+def _open(group, name, where):
+    """``group[name]``; an object whose header HDF5 cannot decode is an error naming it (not
+    skipped, as ``group.items()`` would: a damaged lapse must not read as a missing one)."""
+    try:
+        return group[name]
+    except (KeyError, OSError, RuntimeError) as error:
+        raise SnapshotError(f"{where}/{name} cannot be opened (damaged HDF5 metadata?): "
+                            f"{error}") from None
+
+
 def native_levels(h5file, path, listing) -> list:
     """The :class:`~.levels.TimeLevel` objects of a native file (``listing``: callable -> str)."""
     where = f"snapshot {path!r}"
-    if attribute_text(h5file.attrs.get("format", "")) != FORMAT_NAME:
+    found = h5file.attrs.get("format")
+    if found is None or _text_or_none(found) != FORMAT_NAME:
+        what = "missing" if found is None else f"{found!r}"
         raise SnapshotError(
-            f"{where} is not in the emsource layout (root attribute format={FORMAT_NAME!r} "
-            f"missing); give a layout mapping for other layouts. Objects in the file: "
+            f"{where} is not in the emsource layout (root attribute format {what}, expected "
+            f"{FORMAT_NAME!r}); give a layout mapping for other layouts. Objects in the file: "
             f"{listing()}")
-    version = h5file.attrs.get("format_version", -1)
-    if np.asarray(version).dtype.kind not in "iu" or int(version) != FORMAT_VERSION:
-        raise SnapshotError(f"{where}: format_version {version!r} not supported "
-                            f"(this emsource reads {FORMAT_VERSION})")
+    version = np.asarray(h5file.attrs.get("format_version", -1))
+    if version.dtype.kind not in "iu" or version.shape != () or int(version) != FORMAT_VERSION:
+        raise SnapshotError(f"{where}: root attribute format_version must be the integer "
+                            f"{FORMAT_VERSION} (the version this emsource reads), found "
+                            f"{h5file.attrs.get('format_version')!r}")
     if LEVELS_GROUP not in h5file or not isinstance(h5file[LEVELS_GROUP], h5py.Group):
         raise SnapshotError(f"{where}: group /{LEVELS_GROUP} missing. Objects in the file: "
                             f"{listing()}")
@@ -99,17 +119,21 @@ def native_levels(h5file, path, listing) -> list:
     labels = sorted(group.keys(), key=lambda s: (not s.isdigit(), int(s) if s.isdigit() else 0, s))
     levels = []
     for label in labels:
-        g = group[label]
+        g = _open(group, label, f"{where}, /{LEVELS_GROUP}")
         lw = f"{where}, /{LEVELS_GROUP}/{label}"
         if not isinstance(g, h5py.Group):
             raise SnapshotError(f"{lw} is a dataset; /{LEVELS_GROUP} must hold one group per level")
-        axis_order = attribute_text(_attribute(g, "axis_order", lw))
-        units = attribute_text(_attribute(g, "units", lw))
+        axis_order = attribute_text(_attribute(g, "axis_order", lw), "attribute 'axis_order'", lw)
+        units = attribute_text(_attribute(g, "units", lw), "attribute 'units'", lw)
         time = attribute_number(_attribute(g, "time", lw), "attribute 'time'", lw)
         origin = attribute_vector(_attribute(g, "origin", lw), "attribute 'origin'", lw)
         spacing = attribute_vector(_attribute(g, "spacing", lw), "attribute 'spacing'", lw)
-        stored = {name: NativeSource(obj) for name, obj in g.items()
-                  if name in COMPONENTS and isinstance(obj, h5py.Dataset)}
+        stored = {}
+        for name in g:
+            if name in COMPONENTS:
+                obj = _open(g, name, lw)
+                if isinstance(obj, h5py.Dataset):
+                    stored[name] = NativeSource(obj)
         if not stored:
             raise SnapshotError(f"{lw}: no known dataset; expected some of {', '.join(NAMES)}"
                                 f"; found {sorted(g.keys())}")
