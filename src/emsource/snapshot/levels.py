@@ -233,7 +233,7 @@ class TimeLevel:
         target = np.empty(shape, source.dtype) if mask and source.dtype != dtype else out
         try:
             source.read_into(target, start, stop)
-        except (OSError, RuntimeError, KeyError, TypeError) as error:
+        except (OSError, RuntimeError, KeyError, TypeError, ValueError) as error:
             raise SnapshotError(f"{self.where}: cannot read {quantity!r} of time level "
                                 f"{self.label!r} (rows {start}:{stop}): {error}") from error
         if mask:

@@ -143,7 +143,8 @@ def _dataset(h5file, group, path, where, listing):
         raise MappingError(f"{where}: dataset {path!r} not found. Objects in the file: "
                            f"{listing()}")
     if not isinstance(obj, h5py.Dataset):
-        raise MappingError(f"{where}: {obj.name!r} is a group, expected a dataset")
+        raise MappingError(f"{where}: {obj.name!r} is a {type(obj).__name__.lower()}, expected "
+                           "a dataset")
     return obj
 
 

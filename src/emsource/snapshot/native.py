@@ -132,8 +132,10 @@ def native_levels(h5file, path, listing) -> list:
         for name in g:
             if name in COMPONENTS:
                 obj = _open(g, name, lw)
-                if isinstance(obj, h5py.Dataset):
-                    stored[name] = NativeSource(obj)
+                if not isinstance(obj, h5py.Dataset):
+                    raise SnapshotError(f"{lw}/{name} is a {type(obj).__name__.lower()}, "
+                                        "expected a dataset")
+                stored[name] = NativeSource(obj)
         if not stored:
             raise SnapshotError(f"{lw}: no known dataset; expected some of {', '.join(NAMES)}"
                                 f"; found {sorted(g.keys())}")

@@ -164,9 +164,9 @@ def open_snapshot(path, mapping=None) -> SnapshotFile:
     except SnapshotError:
         h5file.close()
         raise
-    except (OSError, RuntimeError, KeyError) as error:
-        # h5py's errors for damaged metadata: an object header, heap or B-tree that HDF5
-        # cannot decode while the groups, datasets and attributes are scanned.
+    except (OSError, RuntimeError, KeyError, ValueError) as error:
+        # h5py's errors for damaged metadata: an object header, heap, B-tree or type message
+        # that HDF5 cannot decode while the groups, datasets and attributes are scanned.
         h5file.close()
         raise SnapshotError(f"snapshot {path!r} cannot be read (damaged or truncated HDF5 "
                             f"metadata?): {_first_line(error)}") from error
