@@ -7,7 +7,6 @@ Each test runs ``emsource.cli.main`` in-process (fast); the subprocess view of t
 
 import os
 
-import h5py
 import numpy as np
 import pytest
 
@@ -58,7 +57,6 @@ def test_constraint_commands_report_errors_on_stderr(tmp_path, rng, capsys, comm
     path = _snapshot(tmp_path / "snap.h5", rng)
     code, err = _run(command, path, capsys)  # before: "emsource constraints: ..." on stdout
     assert code in (EXIT_OK, EXIT_CHECK_FAILED)
-    main([command, str(path), "--level", "3"])
     for argv, words in (([command, str(path), "--level", "3"],
                          "time level index 3 out of range: the file has 1 level(s)"),
                         ([command, str(tmp_path / "missing.h5")], "does not exist")):

@@ -52,7 +52,6 @@ from hypothesis import strategies as st
 from emsource import snapshot
 from emsource.commands import (EXIT_BAD_INPUT, EXIT_CHECK_FAILED, EXIT_OK, EXIT_OUTPUT_ERROR,
                                EXIT_USAGE)
-from emsource.grid import UniformGrid
 
 from snapshot_data import checksums, curved_levels, run_cli
 
@@ -114,29 +113,27 @@ BASE_MAPPING = {
 }
 
 
+def _zyx(a):
+    """(x, y, z)-order array, component axis first if any, in (z, y, x) storage order."""
+    lead = a.ndim - 3
+    return np.ascontiguousarray(a.transpose(tuple(range(lead)) + (lead + 2, lead + 1, lead)))
+
+
 def _foreign_base(path):
     rng = np.random.default_rng(202)
-    level_data = []
-    for t in (0.0, 0.25):
-        level = curved_levels(rng, shape=SHAPE, times=(t,))[0]
-        level_data.append((t, level))
     with h5py.File(path, "w") as f:
         f.attrs["code"] = "invented layout for the hostile-input tests"
-        for index, (t, level) in enumerate(level_data):
+        for index, level in enumerate(curved_levels(rng, shape=SHAPE, times=(0.0, 0.25))):
             g = f.create_group(f"run/step_{index}")
-            g.attrs["sim_time"] = t
+            g.attrs["sim_time"] = level["time"]
             g.attrs["cell_size"] = np.array(level["grid"].spacing[::-1])
             fields = g.create_group("fields")
             fields.attrs["corner"] = np.array(level["grid"].origin[::-1])
-
-            def zyx(a):
-                return np.ascontiguousarray(a.transpose(tuple(range(a.ndim - 3)) +
-                                                        (a.ndim - 1, a.ndim - 2, a.ndim - 3)))
-            fields["metric"] = zyx(level["spatial_metric"])
-            fields["curv"] = zyx(0.1 * rng.standard_normal((6,) + SHAPE))
+            fields["metric"] = _zyx(level["spatial_metric"])
+            fields["curv"] = _zyx(0.1 * rng.standard_normal((6,) + SHAPE))
             for c, axis in enumerate("xyz"):
-                fields[f"E{axis}"] = zyx(level["electric_field"][c]).astype(np.float32)
-                fields[f"B{axis}"] = zyx(level["magnetic_field"][c])
+                fields[f"E{axis}"] = _zyx(level["electric_field"][c]).astype(np.float32)
+                fields[f"B{axis}"] = _zyx(level["magnetic_field"][c])
             fields["ok"] = np.ones(SHAPE[::-1], np.uint8)
 
 
@@ -250,11 +247,8 @@ native_edit = st.one_of(
 )
 
 
-def _grid_points(seeds, mask=None):
-    points = []
-    for s in seeds:
-        points.append(np.unravel_index(s % int(np.prod(SHAPE)), SHAPE))
-    return points
+def _grid_points(seeds):
+    return [np.unravel_index(s % int(np.prod(SHAPE)), SHAPE) for s in seeds]
 
 
 def apply_native_edit(f, edit):

@@ -45,7 +45,7 @@ def read_slice(path, level=0, mapping=None):
 
 
 @contextmanager
-def about(path, level):
+def input_errors(path, level):
     """Turn a ``ValueError`` of a diagnostic on the data of ``path`` (a bad grid point, a grid
     too small for the stencil) into a ``SnapshotError`` naming the file and the level."""
     from ..snapshot import SnapshotError

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 from .._arguments import DIFFERENCE_ORDERS
 from . import EXIT_CHECK_FAILED, EXIT_OK
-from ._snapshot_level import about, add_snapshot_arguments, read_slice
+from ._snapshot_level import add_snapshot_arguments, input_errors, read_slice
 from ._snapshot_options import run_guarded
 
 
@@ -27,7 +27,7 @@ def _run(args) -> int:
     from ..unit_audit import audit_units
 
     d = read_slice(args.snapshot, args.level, args.mapping)
-    with about(args.snapshot, args.level):
+    with input_errors(args.snapshot, args.level):
         audit = audit_units(d["gamma"], d["K"], d["E"], d["B"], spacing=d["spacing"],
                             order=args.order, mask=d["mask"])
     print(f"{args.snapshot} (units attribute: {d['units']})")

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 from .._arguments import DIFFERENCE_ORDERS
 from . import EXIT_CHECK_FAILED, EXIT_OK
-from ._snapshot_level import about, add_snapshot_arguments, read_slice
+from ._snapshot_level import add_snapshot_arguments, input_errors, read_slice
 from ._snapshot_options import run_guarded
 
 
@@ -34,7 +34,7 @@ def _run(args) -> int:
 
     d = read_slice(args.snapshot, args.level, args.mapping)
     units = d["units"] if args.sources == "file" else args.sources
-    with about(args.snapshot, args.level):
+    with input_errors(args.snapshot, args.level):
         if units == "none":
             res = adm_constraints(d["gamma"], d["K"], spacing=d["spacing"], order=args.order,
                                   mask=d["mask"])

@@ -18,8 +18,8 @@ from ..quantities import COMPONENTS, NAMES
 from .errors import SnapshotError
 
 __all__ = ["AXIS_ORDERS", "UNIT_SYSTEMS", "DataSource", "TimeLevel", "build_level",
-           "attribute_number", "attribute_vector", "attribute_text", "level_at", "choose_levels",
-           "chunk_rows_of", "chunk_bytes_of"]
+           "attribute_number", "attribute_vector", "attribute_text", "found", "level_at",
+           "choose_levels", "chunk_rows_of", "chunk_bytes_of"]
 
 AXIS_ORDERS = ("xyz", "zyx")
 UNIT_SYSTEMS = ("gaussian", "heaviside_lorentz")
@@ -79,6 +79,14 @@ def _grid_part(quantity, shape):
     return tuple(shape[1:]) if COMPONENTS[quantity] else tuple(shape)
 
 
+def found(value) -> str:
+    """An attribute value for a one-line message: arrays on one line with shape and type."""
+    if isinstance(value, np.ndarray) and value.ndim > 0:
+        text = np.array2string(value, separator=", ", threshold=12, max_line_width=10**6)
+        return f"array {' '.join(text.split())} (shape {value.shape}, {value.dtype})"
+    return repr(value)
+
+
 def attribute_text(value, name, where) -> str:
     """Text from an attribute value (str or bytes, also as a 0-d array), or a message naming it."""
     if isinstance(value, np.ndarray) and value.shape == ():
@@ -87,10 +95,10 @@ def attribute_text(value, name, where) -> str:
         try:
             return value.decode()
         except UnicodeDecodeError:
-            raise SnapshotError(f"{where}: {name} must be UTF-8 text, found {value!r}") from None
+            raise SnapshotError(f"{where}: {name} must be UTF-8 text, found {found(value)}") from None
     if isinstance(value, str):
         return str(value)
-    raise SnapshotError(f"{where}: {name} must be text, found {value!r}")
+    raise SnapshotError(f"{where}: {name} must be text, found {found(value)}")
 
 
 def attribute_number(value, name, where) -> float:
@@ -101,7 +109,7 @@ def attribute_number(value, name, where) -> float:
             raise TypeError
         number = float(array.reshape(-1)[0])
     except (TypeError, ValueError):
-        raise SnapshotError(f"{where}: {name} must be one number, found {value!r}") from None
+        raise SnapshotError(f"{where}: {name} must be one number, found {found(value)}") from None
     if not np.isfinite(number):
         raise SnapshotError(f"{where}: {name} must be finite, found {number!r}")
     return number
@@ -111,7 +119,7 @@ def attribute_vector(value, name, where) -> tuple:
     """Three finite floats from an attribute value, or a message naming it."""
     array = np.asarray(value)
     if array.dtype.kind not in "iuf" or array.size != 3:
-        raise SnapshotError(f"{where}: {name} must be 3 numbers, found {value!r}")
+        raise SnapshotError(f"{where}: {name} must be 3 numbers, found {found(value)}")
     values = tuple(float(v) for v in array.reshape(-1))
     if not all(np.isfinite(values)):
         raise SnapshotError(f"{where}: {name} must be finite, found {values}")

@@ -42,7 +42,7 @@ import numpy as np
 from ..quantities import COMPONENTS, NAMES
 from .errors import SnapshotError
 from .levels import (attribute_number, attribute_text, attribute_vector, build_level,
-                     chunk_bytes_of, chunk_rows_of)
+                     chunk_bytes_of, chunk_rows_of, found)
 
 __all__ = ["FORMAT_NAME", "FORMAT_VERSION", "LEVELS_GROUP", "NativeSource", "native_levels"]
 
@@ -100,9 +100,9 @@ def _open(group, name, where):
 def native_levels(h5file, path, listing) -> list:
     """The :class:`~.levels.TimeLevel` objects of a native file (``listing``: callable -> str)."""
     where = f"snapshot {path!r}"
-    found = h5file.attrs.get("format")
-    if found is None or _text_or_none(found) != FORMAT_NAME:
-        what = "missing" if found is None else f"{found!r}"
+    stored = h5file.attrs.get("format")
+    if stored is None or _text_or_none(stored) != FORMAT_NAME:
+        what = "missing" if stored is None else found(stored)
         raise SnapshotError(
             f"{where} is not in the emsource layout (root attribute format {what}, expected "
             f"{FORMAT_NAME!r}); give a layout mapping for other layouts. Objects in the file: "
@@ -111,7 +111,7 @@ def native_levels(h5file, path, listing) -> list:
     if version.dtype.kind not in "iu" or version.shape != () or int(version) != FORMAT_VERSION:
         raise SnapshotError(f"{where}: root attribute format_version must be the integer "
                             f"{FORMAT_VERSION} (the version this emsource reads), found "
-                            f"{h5file.attrs.get('format_version')!r}")
+                            f"{found(h5file.attrs.get('format_version'))}")
     if LEVELS_GROUP not in h5file or not isinstance(h5file[LEVELS_GROUP], h5py.Group):
         raise SnapshotError(f"{where}: group /{LEVELS_GROUP} missing. Objects in the file: "
                             f"{listing()}")
