@@ -259,8 +259,8 @@ def test_damaged_object_header_is_named_not_skipped(tmp_path, rng, capsys):
     snapshot.write_snapshot(path, curved_levels(rng))
     _damage(path, _object_header(path, "time_levels/1/lapse"))
     before = checksums(tmp_path)
-    with pytest.raises(SnapshotError, match=r"/time_levels/1/lapse cannot be opened \(damaged "
-                                            r"HDF5 metadata\?\).*version"):
+    with pytest.raises(SnapshotError, match=r"object 'lapse' under /time_levels/1 cannot be "
+                                            r"opened \(damaged HDF5 metadata\?\).*version"):
         snapshot.open_snapshot(path)
     assert main(["integrate", str(path), "--quiet"]) == EXIT_BAD_INPUT
     assert f"{path}" in capsys.readouterr().err

@@ -18,8 +18,8 @@ from ..quantities import COMPONENTS, NAMES
 from .errors import SnapshotError
 
 __all__ = ["AXIS_ORDERS", "UNIT_SYSTEMS", "DataSource", "TimeLevel", "build_level",
-           "attribute_number", "attribute_vector", "attribute_text", "found", "level_at",
-           "choose_levels", "chunk_rows_of", "chunk_bytes_of"]
+           "attribute_number", "attribute_vector", "attribute_text", "found", "open_object",
+           "kind_of", "level_at", "choose_levels", "chunk_rows_of", "chunk_bytes_of"]
 
 AXIS_ORDERS = ("xyz", "zyx")
 UNIT_SYSTEMS = ("gaussian", "heaviside_lorentz")
@@ -79,6 +79,24 @@ def _grid_part(quantity, shape):
     return tuple(shape[1:]) if COMPONENTS[quantity] else tuple(shape)
 
 
+def open_object(parent, path, where, error=SnapshotError):
+    """``parent[path]``, or None if there is no such link. An object that exists but that HDF5
+    cannot open (a damaged object header, say) raises ``error`` naming it: it must not pass for
+    an absent one (``Group.items()`` maps it to None)."""
+    try:
+        if path not in parent:
+            return None
+        return parent[path]
+    except (KeyError, OSError, RuntimeError, ValueError) as failure:
+        raise error(f"{where}: object {path!r} under {parent.name} cannot be opened (damaged "
+                    f"HDF5 metadata?): {failure}") from None
+
+
+def kind_of(obj) -> str:
+    """"dataset", "group", "datatype" (a committed type), or "dangling link" for None."""
+    return "dangling link" if obj is None else type(obj).__name__.lower()
+
+
 def found(value) -> str:
     """An attribute value for a one-line message: arrays on one line with shape and type."""
     if isinstance(value, np.ndarray) and value.ndim > 0:
@@ -95,7 +113,8 @@ def attribute_text(value, name, where) -> str:
         try:
             return value.decode()
         except UnicodeDecodeError:
-            raise SnapshotError(f"{where}: {name} must be UTF-8 text, found {found(value)}") from None
+            raise SnapshotError(f"{where}: {name} must be UTF-8 text, "
+                                f"found {found(value)}") from None
     if isinstance(value, str):
         return str(value)
     raise SnapshotError(f"{where}: {name} must be text, found {found(value)}")
@@ -254,11 +273,11 @@ class TimeLevel:
         bad = (stored != 0) & (stored != 1)
         if bad.any():
             first = np.unravel_index(int(np.argmax(bad)), bad.shape)
-            index = (first[0] + start,) + tuple(int(i) for i in first[1:])
+            index = tuple(int(i) + (start if axis == 0 else 0) for axis, i in enumerate(first))
             raise SnapshotError(
                 f"{self.where}: 'valid_mask' ({', '.join(source.paths)}) of time level "
                 f"{self.label!r} must hold 0 (excluded) or 1 (valid); found "
-                f"{stored[first].item()!r} at storage index {tuple(int(i) for i in index)} "
+                f"{stored[first].item()!r} at storage index {index} "
                 f"({int(np.count_nonzero(bad))} such point(s) in rows {start}:"
                 f"{start + stored.shape[0]})")
 

@@ -54,7 +54,7 @@ import numpy as np
 from ..quantities import BY_NAME, COMPONENTS, NAMES
 from .errors import MappingError
 from .levels import (AXIS_ORDERS, UNIT_SYSTEMS, attribute_number, attribute_vector, build_level,
-                     chunk_bytes_of, chunk_rows_of)
+                     chunk_bytes_of, chunk_rows_of, kind_of, open_object)
 
 if sys.version_info >= (3, 11):
     import tomllib
@@ -116,35 +116,22 @@ class _Checker:
         return float(value)
 
 
-def _open(parent, path, where):
-    """``parent[path]``, or None if no such link; an object that exists but that HDF5 cannot
-    open (damaged metadata) is an error naming it."""
-    try:
-        if path not in parent:
-            return None
-        return parent[path]
-    except (KeyError, OSError, RuntimeError, ValueError) as error:
-        raise MappingError(f"{where}: object {path!r} under {parent.name} cannot be opened "
-                           f"(damaged HDF5 metadata?): {error}") from None
-
-
 def _object(group, relative, where):
     if relative in (".", ""):
         return group
-    obj = _open(group, relative, where)
+    obj = open_object(group, relative, where, MappingError)
     if obj is None:
         raise MappingError(f"{where}: object {relative!r} not found under {group.name}")
     return obj
 
 
 def _dataset(h5file, group, path, where, listing):
-    obj = _open(h5file if path.startswith("/") else group, path, where)
+    obj = open_object(h5file if path.startswith("/") else group, path, where, MappingError)
     if obj is None:
         raise MappingError(f"{where}: dataset {path!r} not found. Objects in the file: "
                            f"{listing()}")
     if not isinstance(obj, h5py.Dataset):
-        raise MappingError(f"{where}: {obj.name!r} is a {type(obj).__name__.lower()}, expected "
-                           "a dataset")
+        raise MappingError(f"{where}: {obj.name!r} is a {kind_of(obj)}, expected a dataset")
     return obj
 
 

@@ -42,7 +42,8 @@ import numpy as np
 from ..quantities import COMPONENTS, NAMES
 from .errors import SnapshotError
 from .levels import (attribute_number, attribute_text, attribute_vector, build_level,
-                     chunk_bytes_of, chunk_rows_of, found)
+                     chunk_bytes_of, chunk_rows_of, found, kind_of,
+                     open_object)
 
 __all__ = ["FORMAT_NAME", "FORMAT_VERSION", "LEVELS_GROUP", "NativeSource", "native_levels"]
 
@@ -87,16 +88,6 @@ def _text_or_none(value):
         return None
 
 
-def _open(group, name, where):
-    """``group[name]``; an object whose header HDF5 cannot decode is an error naming it (not
-    skipped, as ``group.items()`` would: a damaged lapse must not read as a missing one)."""
-    try:
-        return group[name]
-    except (KeyError, OSError, RuntimeError) as error:
-        raise SnapshotError(f"{where}/{name} cannot be opened (damaged HDF5 metadata?): "
-                            f"{error}") from None
-
-
 def native_levels(h5file, path, listing) -> list:
     """The :class:`~.levels.TimeLevel` objects of a native file (``listing``: callable -> str)."""
     where = f"snapshot {path!r}"
@@ -119,10 +110,11 @@ def native_levels(h5file, path, listing) -> list:
     labels = sorted(group.keys(), key=lambda s: (not s.isdigit(), int(s) if s.isdigit() else 0, s))
     levels = []
     for label in labels:
-        g = _open(group, label, f"{where}, /{LEVELS_GROUP}")
+        g = open_object(group, label, where)
         lw = f"{where}, /{LEVELS_GROUP}/{label}"
         if not isinstance(g, h5py.Group):
-            raise SnapshotError(f"{lw} is a dataset; /{LEVELS_GROUP} must hold one group per level")
+            raise SnapshotError(f"{lw} is a {kind_of(g)}; /{LEVELS_GROUP} must hold one group "
+                                "per level")
         axis_order = attribute_text(_attribute(g, "axis_order", lw), "attribute 'axis_order'", lw)
         units = attribute_text(_attribute(g, "units", lw), "attribute 'units'", lw)
         time = attribute_number(_attribute(g, "time", lw), "attribute 'time'", lw)
@@ -131,10 +123,9 @@ def native_levels(h5file, path, listing) -> list:
         stored = {}
         for name in g:
             if name in COMPONENTS:
-                obj = _open(g, name, lw)
+                obj = open_object(g, name, where)
                 if not isinstance(obj, h5py.Dataset):
-                    raise SnapshotError(f"{lw}/{name} is a {type(obj).__name__.lower()}, "
-                                        "expected a dataset")
+                    raise SnapshotError(f"{lw}/{name} is a {kind_of(obj)}, expected a dataset")
                 stored[name] = NativeSource(obj)
         if not stored:
             raise SnapshotError(f"{lw}: no known dataset; expected some of {', '.join(NAMES)}"
