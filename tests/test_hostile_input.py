@@ -322,7 +322,7 @@ def apply_native_edit(f, edit):
             for name in list(group):
                 del group[name]
         elif how == "extra":
-            group.create_group("2")
+            group.require_group("2")
 
 
 def _run_command(directory, command, level, extra, mapping=None, snap=SNAP, *, record=True):
