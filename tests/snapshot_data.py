@@ -43,6 +43,9 @@ def checksums(directory):
     import hashlib
     import os
 
-    return {name: hashlib.sha256(open(os.path.join(directory, name), "rb").read()).hexdigest()
-            for name in sorted(os.listdir(directory))
+    def digest(path):
+        with open(path, "rb") as handle:
+            return hashlib.sha256(handle.read()).hexdigest()
+
+    return {name: digest(os.path.join(directory, name)) for name in sorted(os.listdir(directory))
             if os.path.isfile(os.path.join(directory, name))}

@@ -1,6 +1,7 @@
 """Malformed mappings and snapshots: a message naming the file, key or dataset, exit code 3."""
 
 import os
+from collections import Counter
 
 import h5py
 import numpy as np
@@ -50,6 +51,9 @@ CASES = {
     "spacing booleans": ('spacing = { attribute = "cell_size" }', "spacing = [true, true, true]",
                          ["[grid] spacing", "True"]),
     "units missing": ('units = "heaviside_lorentz"', "", ["required key 'units' missing"]),
+    "scale of a mask": ('components = ["fields/inside_domain"]',
+                        'components = ["fields/inside_domain"]\nscale = 2.0',
+                        ["[quantities.valid_mask] takes no scale", "2.0"]),
     "units misspelt": ('units = "heaviside_lorentz"', 'units = "HL"', ["units must be one of"]),
 }
 
@@ -192,3 +196,119 @@ def test_level_out_of_range_in_the_constraint_commands(tmp_path, rng, command):
     assert code == EXIT_BAD_INPUT
     assert "time level index 99 out of range: the file has 1 level(s)" in out + err
     assert "list index" not in out + err and "Traceback" not in err
+
+
+# --- attributes of the wrong form, damaged metadata (found by tests/test_hostile_input.py) ----
+
+WRONG_FORMS = [
+    # (where, attribute, value, words the message must hold)
+    ("0", "time", h5py.Empty("f8"), "attribute 'time' must be one number, found Empty"),
+    ("0", "time", np.array([0.0, 1.0]), "attribute 'time' must be one number, found array"),
+    ("1", "spacing", 0.25, "attribute 'spacing' must be 3 numbers, found np.float64(0.25)"),
+    ("1", "spacing", h5py.Empty("f8"), "attribute 'spacing' must be 3 numbers, found Empty"),
+    ("0", "origin", np.zeros((3, 3)), "attribute 'origin' must be 3 numbers, found array "
+     "[[0., 0., 0.], [0., 0., 0.], [0., 0., 0.]] (shape (3, 3), float64)"),
+    ("0", "axis_order", h5py.Empty("S1"), "attribute 'axis_order' must be text, found Empty"),
+    ("0", "axis_order", np.array([b"xyz", b"zyx"]), "attribute 'axis_order' must be text"),
+    ("1", "units", 1.0, "attribute 'units' must be text, found np.float64(1.0)"),
+    ("1", "units", np.bytes_(b"\xff"), "attribute 'units' must be UTF-8 text"),
+    ("/", "format_version", np.array([1, 1]),
+     "root attribute format_version must be the integer 1 (the version this emsource reads), "
+     "found array [1, 1] (shape (2,), int64)"),
+    ("/", "format", h5py.Empty("S1"), "root attribute format Empty"),
+]
+
+
+@pytest.mark.parametrize("where, name, value, words", WRONG_FORMS,
+                         ids=[f"{w[1]}={type(w[2]).__name__}" for w in WRONG_FORMS])
+def test_attributes_of_the_wrong_form_are_named(tmp_path, rng, where, name, value, words):
+    # Before: h5py Empty, arrays where a scalar belongs and the reverse escaped as TypeError
+    # or were printed as the text of their repr.
+    path = tmp_path / "snap.h5"
+    snapshot.write_snapshot(path, curved_levels(rng))
+    with h5py.File(path, "a") as f:
+        (f if where == "/" else f[f"time_levels/{where}"]).attrs[name] = value
+    with pytest.raises(SnapshotError) as error:
+        snapshot.open_snapshot(path)
+    assert str(path) in str(error.value) and words in str(error.value), str(error.value)
+    assert "\n" not in str(error.value)  # one line on stderr (numpy prints arrays on several)
+
+
+def test_dataset_with_too_few_axes_is_named(tmp_path, rng):
+    path = _native(tmp_path, rng, **{"1/lapse": np.float64(1.0)})  # before: IndexError
+    with pytest.raises(SnapshotError, match=r"'lapse' \(/time_levels/1/lapse\) has shape \(\), "
+                                            r"expected \(n0, n1, n2\)"):
+        snapshot.open_snapshot(path)
+
+
+def _object_header(path, name):
+    with h5py.File(path, "r") as f:
+        return h5py.h5o.get_info(f[name].id).addr
+
+
+def _damage(path, offset):
+    with open(path, "r+b") as handle:
+        handle.seek(offset)
+        handle.write(b"\xfe")  # an object header version HDF5 does not know
+
+
+def test_damaged_object_header_is_named_not_skipped(tmp_path, rng, capsys):
+    # h5py's Group.items() maps an object it cannot open to None: a damaged lapse read as an
+    # absent one, and integrate went on with alpha = 1. It must be bad input naming the object.
+    path = tmp_path / "snap.h5"
+    snapshot.write_snapshot(path, curved_levels(rng))
+    _damage(path, _object_header(path, "time_levels/1/lapse"))
+    before = checksums(tmp_path)
+    with pytest.raises(SnapshotError, match=r"object 'lapse' under /time_levels/1 cannot be "
+                                            r"opened \(damaged HDF5 metadata\?\).*version"):
+        snapshot.open_snapshot(path)
+    assert main(["integrate", str(path), "--quiet"]) == EXIT_BAD_INPUT
+    assert f"{path}" in capsys.readouterr().err
+    assert checksums(tmp_path) == before
+
+
+def test_damaged_object_header_through_a_mapping(tmp_path, foreign):
+    copy = tmp_path / "foreign.h5"
+    copy.write_bytes(foreign.read_bytes())
+    _damage(copy, _object_header(copy, "run/step_0000/fields/Ey"))
+    mapping = _mapping(tmp_path, "# How", "# How")
+    # The search for level groups visits every object and meets the damage first (before: a
+    # RuntimeError from h5py's visititems escaped as a traceback).
+    with pytest.raises(SnapshotError, match=f"snapshot '{copy}' cannot be read \\(damaged or "
+                                            "truncated HDF5 metadata\\?\\).*object header"):
+        snapshot.open_snapshot(copy, mapping)
+
+
+def test_damaged_level_group_is_bad_input_naming_the_file(tmp_path, rng):
+    path = tmp_path / "snap.h5"
+    snapshot.write_snapshot(path, curved_levels(rng))
+    _damage(path, _object_header(path, "time_levels"))
+    with pytest.raises(SnapshotError, match=f"snapshot '{path}'.*damaged"):
+        snapshot.open_snapshot(path)
+
+
+def test_every_damaged_byte_of_a_dataset_header_is_harmless_or_named(tmp_path, rng):
+    # Each byte of electric_field's object header (and the symbol-table bytes after it) set to
+    # 0xff in turn. HDF5 reports such damage as KeyError, RuntimeError or ValueError (for
+    # instance "Insufficient precision in available types" for a damaged float type), or turns
+    # the dataset into another kind of object; each must become a SnapshotError naming the file
+    # (before, the ValueError reached the command's guard without the file's name, and an
+    # object that was no longer a dataset was skipped as absent).
+    path = tmp_path / "snap.h5"
+    snapshot.write_snapshot(path, curved_levels(rng, shape=(3, 4, 5), times=(0.0,)))
+    original = path.read_bytes()
+    start = _object_header(path, "time_levels/0/electric_field")
+    outcomes = Counter()
+    for offset in range(start, min(start + 320, len(original))):
+        damaged = bytearray(original)
+        damaged[offset] = 0xFF
+        path.write_bytes(bytes(damaged))
+        try:
+            data = snapshot.read_level(path)
+        except SnapshotError as error:
+            assert str(path) in str(error), (offset, str(error))
+            outcomes["refused"] += 1
+        else:
+            assert data["electric_field"].shape == (3, 3, 4, 5), offset
+            outcomes["harmless"] += 1
+    assert outcomes["refused"] > 0 and outcomes["harmless"] > 0, outcomes

@@ -492,7 +492,10 @@ def integrate_open_snapshot(snap: SnapshotFile, *, radii=(), theta_points=32,
                  + (sphere_working_bytes(interpolation_points) if radii else 0))
         n = rows or slab_rows(level, INTEGRATION_VALUES_PER_POINT, dtype.itemsize,
                               memory_limit, fixed=fixed, halo=halo)
-        spheres = [_Sphere(r, level.grid, theta_points, interpolation_points) for r in radii]
+        try:
+            spheres = [_Sphere(r, level.grid, theta_points, interpolation_points) for r in radii]
+        except SnapshotError as error:
+            raise SnapshotError(f"{level.where}, time level {level.label!r}: {error}") from None
         plans.append((level, dtype, int(min(n, level.storage_shape[0])), spheres))
     bar = progress_bar(sum(len(slabs(lv.storage_shape[0], n)) for lv, _, n, _ in plans),
                        "integrate", progress)
@@ -526,6 +529,8 @@ def _integrate_level(level, dtype, rows, halo, spheres, bar):
         except GridPointError as error:  # its index is already in the whole grid
             raise error.relocated(where=f"{level.where}, time level {level.label!r} "
                                         f"({'xyz'[level.slab_axis]} rows {start}:{stop})") from None
+        except SnapshotError as error:  # a sphere's stencil reaches excised points
+            raise SnapshotError(f"{level.where}, time level {level.label!r}: {error}") from None
         partial = combine(partial, piece)
         bar.update(1)
     return LevelIntegrals.from_partial(partial, level.label, level.time,

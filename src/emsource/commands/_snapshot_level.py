@@ -6,6 +6,10 @@ read into memory in (x, y, z) order, with the names the constraint functions use
 
 from __future__ import annotations
 
+from contextlib import contextmanager
+
+import numpy as np
+
 #: snapshot quantity -> key in the returned dict
 NEEDED = {
     "spatial_metric": "gamma",
@@ -15,35 +19,43 @@ NEEDED = {
 }
 
 
-class SliceFileError(ValueError):
-    """A snapshot lacks what a constraint command needs."""
-
-
 def read_slice(path, level=0, mapping=None):
     """gamma, K, E, B, mask, spacing, origin and units of time level ``level`` of ``path``.
 
-    Raises ``emsource.snapshot.SnapshotError`` (a ValueError) for a bad file or mapping and a
-    level index out of range, and :class:`SliceFileError` if a needed quantity is missing.
+    The fields are returned in float64 whatever their stored type (float32 or float64, mixed
+    too), as ``integrate`` computes. Raises ``emsource.snapshot.SnapshotError`` for a bad file
+    or mapping, a level index out of range, a missing quantity or a grid that is not 3D.
     """
-    from ..snapshot import read_level
+    from ..snapshot import SnapshotError, read_level
 
     data = read_level(path, level, mapping)
     missing = [q for q in NEEDED if q not in data]
     if missing:
         found = sorted(k for k in data if k not in ("time", "grid", "units", "label"))
-        raise SliceFileError(f"{path}, level {level}: needs {', '.join(missing)} "
-                             f"(found {', '.join(found) or 'nothing'})")
-    out = {key: data[q] for q, key in NEEDED.items()}
+        raise SnapshotError(f"snapshot {path!r}, time level {level}: the constraints need "
+                            f"{', '.join(missing)} (found {', '.join(found) or 'nothing'})")
+    out = {key: data[q].astype(np.float64, copy=False) for q, key in NEEDED.items()}
     grid = data["grid"]
-    if grid.ndim != 3:
-        raise SliceFileError(f"{path}, level {level}: the constraints need a 3D grid, "
-                             f"found shape {grid.shape}")
     out["spacing"] = grid.spacing
     out["origin"] = grid.origin
     out["units"] = data.get("units")
     mask = data.get("valid_mask")
     out["mask"] = None if mask is None else mask.astype(bool)
     return out
+
+
+@contextmanager
+def input_errors(path, level):
+    """Turn a ``ValueError`` of a diagnostic on the data of ``path`` (a bad grid point, a grid
+    too small for the stencil) into a ``SnapshotError`` naming the file and the level."""
+    from ..snapshot import SnapshotError
+
+    try:
+        yield
+    except SnapshotError:
+        raise
+    except ValueError as error:
+        raise SnapshotError(f"snapshot {path!r}, time level {level}: {error}") from None
 
 
 def add_snapshot_arguments(parser):

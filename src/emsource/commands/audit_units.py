@@ -3,8 +3,9 @@
 from __future__ import annotations
 
 from .._arguments import DIFFERENCE_ORDERS
-from . import EXIT_BAD_INPUT, EXIT_CHECK_FAILED, EXIT_OK
-from ._snapshot_level import add_snapshot_arguments, read_slice
+from . import EXIT_CHECK_FAILED, EXIT_OK
+from ._snapshot_level import add_snapshot_arguments, input_errors, read_slice
+from ._snapshot_options import run_guarded
 
 
 def register(subparsers):
@@ -19,19 +20,16 @@ def register(subparsers):
     add_snapshot_arguments(p)
     p.add_argument("--order", type=int, choices=DIFFERENCE_ORDERS, default=4,
                    help="finite-difference order (default 4)")
-    p.set_defaults(run=run)
+    p.set_defaults(run=lambda args: run_guarded(_run, args))
 
 
-def run(args) -> int:
+def _run(args) -> int:
     from ..unit_audit import audit_units
 
-    try:
-        d = read_slice(args.snapshot, args.level, args.mapping)
+    d = read_slice(args.snapshot, args.level, args.mapping)
+    with input_errors(args.snapshot, args.level):
         audit = audit_units(d["gamma"], d["K"], d["E"], d["B"], spacing=d["spacing"],
                             order=args.order, valid_mask=d["mask"])
-    except (ValueError, TypeError, IndexError) as exc:
-        print(f"emsource audit-units: {exc}")
-        return EXIT_BAD_INPUT
     print(f"{args.snapshot} (units attribute: {d['units']})")
     print(audit.table())
     return EXIT_OK if audit.verdict not in ("none fits", "ambiguous") else EXIT_CHECK_FAILED

@@ -5,8 +5,9 @@ from __future__ import annotations
 import sys
 
 from .._arguments import DIFFERENCE_ORDERS
-from . import EXIT_BAD_INPUT, EXIT_CHECK_FAILED, EXIT_OK
-from ._snapshot_level import add_snapshot_arguments, read_slice
+from . import EXIT_CHECK_FAILED, EXIT_OK
+from ._snapshot_level import add_snapshot_arguments, input_errors, read_slice
+from ._snapshot_options import run_guarded
 
 
 #: Values of --sources: the file's units, a named unit system, or the vacuum constraints.
@@ -32,28 +33,25 @@ def register(subparsers):
                         "a named one, or vacuum (no EM sources)")
     p.add_argument("--tolerance", type=float, default=None,
                    help="exit with code 1 if a normalised l2 residual exceeds this")
-    p.set_defaults(run=run)
+    p.set_defaults(run=lambda args: run_guarded(_run, args))
 
 
-def run(args) -> int:
+def _run(args) -> int:
     from ..constraints import adm_constraints
 
     if args.sources == "none":
         print("emsource constraints: --sources none is a deprecated spelling of --sources vacuum",
               file=sys.stderr)
         args.sources = "vacuum"
-    try:
-        d = read_slice(args.snapshot, args.level, args.mapping)
-        units = (d["units"] or "gaussian") if args.sources == "file" else args.sources
+    d = read_slice(args.snapshot, args.level, args.mapping)
+    units = d["units"] if args.sources == "file" else args.sources
+    with input_errors(args.snapshot, args.level):
         if units == "vacuum":
             res = adm_constraints(d["gamma"], d["K"], spacing=d["spacing"], order=args.order,
                                   valid_mask=d["mask"])
         else:
             res = adm_constraints(d["gamma"], d["K"], d["E"], d["B"], spacing=d["spacing"],
                                   order=args.order, units=units, valid_mask=d["mask"])
-    except (ValueError, TypeError, IndexError) as exc:
-        print(f"emsource constraints: {exc}")
-        return EXIT_BAD_INPUT
     print(f"{args.snapshot}: order {args.order}, sources {units}, "
           f"{int(res.interior.sum())} interior points evaluated")
     print(f"{'constraint':<12} {'l2':>11} {'max':>11} {'norm. l2':>11} {'norm. max':>11}")

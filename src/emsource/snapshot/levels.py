@@ -18,8 +18,8 @@ from ..quantities import COMPONENTS, NAMES
 from .errors import SnapshotError
 
 __all__ = ["AXIS_ORDERS", "UNIT_SYSTEMS", "DataSource", "TimeLevel", "build_level",
-           "attribute_number", "attribute_vector", "attribute_text", "level_at", "choose_levels",
-           "chunk_rows_of", "chunk_bytes_of"]
+           "attribute_number", "attribute_vector", "attribute_text", "found", "open_object",
+           "kind_of", "level_at", "choose_levels", "chunk_rows_of", "chunk_bytes_of"]
 
 AXIS_ORDERS = ("xyz", "zyx")
 UNIT_SYSTEMS = ("gaussian", "heaviside_lorentz")
@@ -60,8 +60,8 @@ class DataSource(Protocol):
 
 def chunk_rows_of(dataset, lead: int) -> int:
     """Planes of the slowest grid axis per chunk (the whole axis for contiguous data)."""
-    chunks = dataset.chunks
-    return int(chunks[lead]) if chunks else int(dataset.shape[lead])
+    rows = dataset.chunks or dataset.shape
+    return int(rows[lead]) if len(rows) > lead else 1  # too few axes: build_level says so
 
 
 def chunk_bytes_of(dataset) -> int:
@@ -79,8 +79,45 @@ def _grid_part(quantity, shape):
     return tuple(shape[1:]) if COMPONENTS[quantity] else tuple(shape)
 
 
-def attribute_text(value) -> str:
-    return value.decode() if isinstance(value, bytes) else str(value)
+def open_object(parent, path, where, error=SnapshotError):
+    """``parent[path]``, or None if there is no such link. An object that exists but that HDF5
+    cannot open (a damaged object header, say) raises ``error`` naming it: it must not pass for
+    an absent one (``Group.items()`` maps it to None)."""
+    try:
+        if path not in parent:
+            return None
+        return parent[path]
+    except (KeyError, OSError, RuntimeError, ValueError) as failure:
+        raise error(f"{where}: object {path!r} under {parent.name} cannot be opened (damaged "
+                    f"HDF5 metadata?): {failure}") from None
+
+
+def kind_of(obj) -> str:
+    """"dataset", "group", "datatype" (a committed type), or "dangling link" for None."""
+    return "dangling link" if obj is None else type(obj).__name__.lower()
+
+
+def found(value) -> str:
+    """An attribute value for a one-line message: arrays on one line with shape and type."""
+    if isinstance(value, np.ndarray) and value.ndim > 0:
+        text = np.array2string(value, separator=", ", threshold=12, max_line_width=10**6)
+        return f"array {' '.join(text.split())} (shape {value.shape}, {value.dtype})"
+    return repr(value)
+
+
+def attribute_text(value, name, where) -> str:
+    """Text from an attribute value (str or bytes, also as a 0-d array), or a message naming it."""
+    if isinstance(value, np.ndarray) and value.shape == ():
+        value = value[()]
+    if isinstance(value, bytes):
+        try:
+            return value.decode()
+        except UnicodeDecodeError:
+            raise SnapshotError(f"{where}: {name} must be UTF-8 text, "
+                                f"found {found(value)}") from None
+    if isinstance(value, str):
+        return str(value)
+    raise SnapshotError(f"{where}: {name} must be text, found {found(value)}")
 
 
 def attribute_number(value, name, where) -> float:
@@ -91,7 +128,7 @@ def attribute_number(value, name, where) -> float:
             raise TypeError
         number = float(array.reshape(-1)[0])
     except (TypeError, ValueError):
-        raise SnapshotError(f"{where}: {name} must be one number, found {value!r}") from None
+        raise SnapshotError(f"{where}: {name} must be one number, found {found(value)}") from None
     if not np.isfinite(number):
         raise SnapshotError(f"{where}: {name} must be finite, found {number!r}")
     return number
@@ -101,7 +138,7 @@ def attribute_vector(value, name, where) -> tuple:
     """Three finite floats from an attribute value, or a message naming it."""
     array = np.asarray(value)
     if array.dtype.kind not in "iuf" or array.size != 3:
-        raise SnapshotError(f"{where}: {name} must be 3 numbers, found {value!r}")
+        raise SnapshotError(f"{where}: {name} must be 3 numbers, found {found(value)}")
     values = tuple(float(v) for v in array.reshape(-1))
     if not all(np.isfinite(values)):
         raise SnapshotError(f"{where}: {name} must be finite, found {values}")
@@ -218,12 +255,31 @@ class TimeLevel:
         elif out.shape != shape or out.dtype != dtype or not out.flags.c_contiguous:
             raise ValueError(f"read({quantity!r}): out must be C-contiguous {shape} {dtype}, "
                              f"found {out.shape} {out.dtype}")
+        # A mask is checked in its stored type (a conversion would clip -1 or 256 into range).
+        mask = quantity == "valid_mask"
+        target = np.empty(shape, source.dtype) if mask and source.dtype != dtype else out
         try:
-            source.read_into(out, start, stop)
-        except (OSError, RuntimeError, KeyError, TypeError) as error:
+            source.read_into(target, start, stop)
+        except (OSError, RuntimeError, KeyError, TypeError, ValueError) as error:
             raise SnapshotError(f"{self.where}: cannot read {quantity!r} of time level "
                                 f"{self.label!r} (rows {start}:{stop}): {error}") from error
+        if mask:
+            self._check_mask(source, target, start)
+            out[...] = target
         return self.to_xyz(out)
+
+    def _check_mask(self, source, stored, start):
+        """A valid_mask holds 0 (excluded) and 1 (valid) only: any other value is bad input."""
+        bad = (stored != 0) & (stored != 1)
+        if bad.any():
+            first = np.unravel_index(int(np.argmax(bad)), bad.shape)
+            index = tuple(int(i) + (start if axis == 0 else 0) for axis, i in enumerate(first))
+            raise SnapshotError(
+                f"{self.where}: 'valid_mask' ({', '.join(source.paths)}) of time level "
+                f"{self.label!r} must hold 0 (excluded) or 1 (valid); found "
+                f"{stored[first].item()!r} at storage index {index} "
+                f"({int(np.count_nonzero(bad))} such point(s) in rows {start}:"
+                f"{start + stored.shape[0]})")
 
     def to_xyz(self, stored: np.ndarray) -> np.ndarray:
         """View of a storage-order array (component axis first if any) in (x, y, z) order."""

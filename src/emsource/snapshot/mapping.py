@@ -51,10 +51,10 @@ from dataclasses import dataclass, field
 import h5py
 import numpy as np
 
-from ..quantities import COMPONENTS, NAMES
+from ..quantities import BY_NAME, COMPONENTS, NAMES
 from .errors import MappingError
 from .levels import (AXIS_ORDERS, UNIT_SYSTEMS, attribute_number, attribute_vector, build_level,
-                     chunk_bytes_of, chunk_rows_of)
+                     chunk_bytes_of, chunk_rows_of, kind_of, open_object)
 
 if sys.version_info >= (3, 11):
     import tomllib
@@ -119,20 +119,19 @@ class _Checker:
 def _object(group, relative, where):
     if relative in (".", ""):
         return group
-    try:
-        return group[relative]
-    except KeyError:
-        raise MappingError(f"{where}: object {relative!r} not found under {group.name}") from None
+    obj = open_object(group, relative, where, MappingError)
+    if obj is None:
+        raise MappingError(f"{where}: object {relative!r} not found under {group.name}")
+    return obj
 
 
 def _dataset(h5file, group, path, where, listing):
-    try:
-        obj = h5file[path] if path.startswith("/") else group[path]
-    except KeyError:
+    obj = open_object(h5file if path.startswith("/") else group, path, where, MappingError)
+    if obj is None:
         raise MappingError(f"{where}: dataset {path!r} not found. Objects in the file: "
-                           f"{listing()}") from None
+                           f"{listing()}")
     if not isinstance(obj, h5py.Dataset):
-        raise MappingError(f"{where}: {obj.name!r} is a group, expected a dataset")
+        raise MappingError(f"{where}: {obj.name!r} is a {kind_of(obj)}, expected a dataset")
     return obj
 
 
@@ -397,6 +396,9 @@ def load_mapping(path) -> LayoutMapping:
         ncomp = COMPONENTS[name]
         spec = QuantitySpec(name)
         if "scale" in q:
+            if BY_NAME[name].kind == "mask":
+                check.fail(f"{where} takes no scale: a mask holds 0 and 1, found scale = "
+                           f"{q['scale']!r}")
             spec.scale = check.number(q["scale"], f"{where} scale", nonzero=True)
         if "component_axis" in q:
             spec.component_axis = check.text(q["component_axis"], f"{where} component_axis",

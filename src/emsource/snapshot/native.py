@@ -42,7 +42,8 @@ import numpy as np
 from ..quantities import COMPONENTS, NAMES
 from .errors import SnapshotError
 from .levels import (attribute_number, attribute_text, attribute_vector, build_level,
-                     chunk_bytes_of, chunk_rows_of)
+                     chunk_bytes_of, chunk_rows_of, found, kind_of,
+                     open_object)
 
 __all__ = ["FORMAT_NAME", "FORMAT_VERSION", "LEVELS_GROUP", "NativeSource", "native_levels"]
 
@@ -80,18 +81,28 @@ def _attribute(obj, name, where):
         raise SnapshotError(f"{where}: attribute {name!r} cannot be read: {error}") from None
 
 
+def _text_or_none(value):
+    try:
+        return attribute_text(value, "", "")
+    except SnapshotError:
+        return None
+
+
 def native_levels(h5file, path, listing) -> list:
     """The :class:`~.levels.TimeLevel` objects of a native file (``listing``: callable -> str)."""
     where = f"snapshot {path!r}"
-    if attribute_text(h5file.attrs.get("format", "")) != FORMAT_NAME:
+    stored = h5file.attrs.get("format")
+    if stored is None or _text_or_none(stored) != FORMAT_NAME:
+        what = "missing" if stored is None else found(stored)
         raise SnapshotError(
-            f"{where} is not in the emsource layout (root attribute format={FORMAT_NAME!r} "
-            f"missing); give a layout mapping for other layouts. Objects in the file: "
+            f"{where} is not in the emsource layout (root attribute format {what}, expected "
+            f"{FORMAT_NAME!r}); give a layout mapping for other layouts. Objects in the file: "
             f"{listing()}")
-    version = h5file.attrs.get("format_version", -1)
-    if np.asarray(version).dtype.kind not in "iu" or int(version) != FORMAT_VERSION:
-        raise SnapshotError(f"{where}: format_version {version!r} not supported "
-                            f"(this emsource reads {FORMAT_VERSION})")
+    version = np.asarray(h5file.attrs.get("format_version", -1))
+    if version.dtype.kind not in "iu" or version.shape != () or int(version) != FORMAT_VERSION:
+        raise SnapshotError(f"{where}: root attribute format_version must be the integer "
+                            f"{FORMAT_VERSION} (the version this emsource reads), found "
+                            f"{found(h5file.attrs.get('format_version'))}")
     if LEVELS_GROUP not in h5file or not isinstance(h5file[LEVELS_GROUP], h5py.Group):
         raise SnapshotError(f"{where}: group /{LEVELS_GROUP} missing. Objects in the file: "
                             f"{listing()}")
@@ -99,17 +110,23 @@ def native_levels(h5file, path, listing) -> list:
     labels = sorted(group.keys(), key=lambda s: (not s.isdigit(), int(s) if s.isdigit() else 0, s))
     levels = []
     for label in labels:
-        g = group[label]
+        g = open_object(group, label, where)
         lw = f"{where}, /{LEVELS_GROUP}/{label}"
         if not isinstance(g, h5py.Group):
-            raise SnapshotError(f"{lw} is a dataset; /{LEVELS_GROUP} must hold one group per level")
-        axis_order = attribute_text(_attribute(g, "axis_order", lw))
-        units = attribute_text(_attribute(g, "units", lw))
+            raise SnapshotError(f"{lw} is a {kind_of(g)}; /{LEVELS_GROUP} must hold one group "
+                                "per level")
+        axis_order = attribute_text(_attribute(g, "axis_order", lw), "attribute 'axis_order'", lw)
+        units = attribute_text(_attribute(g, "units", lw), "attribute 'units'", lw)
         time = attribute_number(_attribute(g, "time", lw), "attribute 'time'", lw)
         origin = attribute_vector(_attribute(g, "origin", lw), "attribute 'origin'", lw)
         spacing = attribute_vector(_attribute(g, "spacing", lw), "attribute 'spacing'", lw)
-        stored = {name: NativeSource(obj) for name, obj in g.items()
-                  if name in COMPONENTS and isinstance(obj, h5py.Dataset)}
+        stored = {}
+        for name in g:
+            if name in COMPONENTS:
+                obj = open_object(g, name, where)
+                if not isinstance(obj, h5py.Dataset):
+                    raise SnapshotError(f"{lw}/{name} is a {kind_of(obj)}, expected a dataset")
+                stored[name] = NativeSource(obj)
         if not stored:
             raise SnapshotError(f"{lw}: no known dataset; expected some of {', '.join(NAMES)}"
                                 f"; found {sorted(g.keys())}")

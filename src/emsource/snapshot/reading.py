@@ -11,6 +11,7 @@ from __future__ import annotations
 import os
 
 import h5py
+import numpy as np
 
 from .errors import SnapshotError
 from .levels import choose_levels, level_at
@@ -75,8 +76,12 @@ class SnapshotFile:
         self.path = path
         self.levels = levels
         self.mapping_path = mapping_path
+        # Free text about the scenario; anything that is not text is left out.
         description = h5file.attrs.get("description", "")
-        self.description = description.decode() if isinstance(description, bytes) else str(description)
+        if isinstance(description, np.ndarray) and description.shape == ():
+            description = description[()]
+        self.description = (description.decode(errors="replace") if isinstance(description, bytes)
+                            else description if isinstance(description, str) else "")
         self._file = h5file
 
     @property
@@ -155,10 +160,24 @@ def open_snapshot(path, mapping=None) -> SnapshotFile:
             levels = native_levels(h5file, path, listing)
         else:
             levels = mapping.levels(h5file, path, listing)
+        return SnapshotFile(path, h5file, levels, None if mapping is None else mapping.path)
+    except SnapshotError:
+        h5file.close()
+        raise
+    except (OSError, RuntimeError, KeyError, ValueError) as error:
+        # h5py's errors for damaged metadata: an object header, heap, B-tree or type message
+        # that HDF5 cannot decode while the groups, datasets and attributes are scanned.
+        h5file.close()
+        raise SnapshotError(f"snapshot {path!r} cannot be read (damaged or truncated HDF5 "
+                            f"metadata?): {_first_line(error)}") from error
     except BaseException:
         h5file.close()
         raise
-    return SnapshotFile(path, h5file, levels, None if mapping is None else mapping.path)
+
+
+def _first_line(error) -> str:
+    text = str(error).strip() or type(error).__name__
+    return text.splitlines()[0]
 
 
 def read_level(path, index: int = 0, mapping=None) -> dict:

@@ -71,7 +71,8 @@ def slab_rows(level, values: int, itemsize: int, memory_limit: int, *, fixed: in
     rows = budget // plane - halo
     if rows < 1:
         need = (1 + halo) * plane + fixed
-        raise ValueError(f"memory limit {memory_limit / 2**20:.3g} MiB is too small for this grid: "
+        raise ValueError(f"{level.where}: memory limit {memory_limit / 2**20:.3g} MiB is too small "
+                         f"for its grid: "
                          f"one slab of {1 + halo} plane(s) of {level.storage_shape[1:]} points "
                          f"needs {need / 2**20:.3g} MiB")
     return int(min(rows, level.storage_shape[0]))

@@ -69,17 +69,26 @@ class SourcesReport:
     times: list = field(default_factory=list)
 
 
+def _checked(level) -> tuple:
+    """Quantities read only to check them: a valid_mask (one uint8 per point) must hold 0 and 1
+    in every file, whichever command reads it, although the sources of every point are
+    computed whatever the mask says."""
+    return ("valid_mask",) if level.has("valid_mask") else ()
+
+
 def plan_rows(level, dtype, memory_limit) -> int:
     """Planes per slab of :func:`compute_sources` under ``memory_limit`` (bytes).
 
     Counts the 23 slab buffers, the read scratch of each input and HDF5's caches and chunk
     buffers; the slab is a whole number of the inputs' chunks where it holds more than one.
     """
-    fixed = (CHUNK_CACHE_BYTES * 12 + CONVERSION_BUFFER_BYTES
-             + chunk_overhead(level, SOURCE_INPUTS))
+    read = SOURCE_INPUTS + _checked(level)
+    fixed = (CHUNK_CACHE_BYTES * (12 + len(read) - len(SOURCE_INPUTS)) + CONVERSION_BUFFER_BYTES
+             + chunk_overhead(level, read))
     rows = slab_rows(level, values_per_point(SOURCE_INPUTS + SOURCE_OUTPUTS),
                      np.dtype(dtype).itemsize, memory_limit, fixed=fixed,
-                     extra_per_row=read_scratch_per_row(level, SOURCE_INPUTS))
+                     extra_per_row=read_scratch_per_row(level, read)
+                     + len(_checked(level)) * level.plane_points)
     chunk = min(level.source(q).chunk_rows for q in SOURCE_INPUTS)
     if chunk < rows < level.storage_shape[0]:
         rows = rows // chunk * chunk
@@ -200,6 +209,7 @@ def _level_sources(level, dtype, rows, group, compression, check, written, repor
         datasets[q] = g.create_dataset(q, shape=shape, dtype=dtype, chunks=chunks,
                                        compression=compression)
     inputs = SlabBuffers(level, SOURCE_INPUTS, rows, dtype)
+    checked = SlabBuffers(level, _checked(level), rows, np.uint8)
     outputs = SlabBuffers(level, SOURCE_OUTPUTS, rows, dtype)
     low, high = report.energy_density_range
     if report.slabs == 0:
@@ -210,6 +220,8 @@ def _level_sources(level, dtype, rows, group, compression, check, written, repor
         E = inputs.read("electric_field", start, stop)
         B = inputs.read("magnetic_field", start, stop)
         report.bytes_read += (gamma.nbytes + E.nbytes + B.nbytes)
+        for q in _checked(level):
+            checked.read(q, start, stop)  # raises on a value other than 0 and 1
         out_stored = [outputs.storage(q, stop - start) for q in SOURCE_OUTPUTS]
         out_xyz = tuple(level.to_xyz(a) for a in out_stored)
         try:
