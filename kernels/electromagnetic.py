@@ -37,7 +37,7 @@ from .point_checks import is_finite
 __all__ = [
     "FORM_CONTRAVARIANT", "FORM_COVARIANT", "fields_both_indices", "metric_factors",
     "sqrt_determinant",
-    "projections", "momentum_upper", "energy_momentum_fluxes", "point_is_valid",
+    "projections", "momentum_upper", "energy_momentum_fluxes", "point_is_valid", "sources_bound",
     "point_underflows",
 ]
 
@@ -140,21 +140,36 @@ def energy_momentum_fluxes(alpha, b1, b2, b3, sg, rho, sx, sy, sz, ux, uy, uz, f
 
 @point_function
 def point_is_valid(d1, d2, d3, least_pivot, output_sum):
-    """The folded point check: gamma positive definite and every output finite.
+    """The folded point check: gamma positive definite and the outputs finite.
 
     Positive definite: all three pivots of gamma = L D L^T above ``least_pivot`` (NaN fails).
     The caller passes ``pivot_floor * tr(gamma)`` (see :func:`emsource._arguments.pivot_floor`):
     0 accepts every metric whose rounded pivots are positive; a floor of c eps tr(gamma) also
     rejects exactly singular metrics whose last pivot rounds to a tiny positive number, and
     no metric with a condition number below 1 / (3 c eps), since every pivot of a positive
-    definite gamma is at least its smallest eigenvalue, tr(gamma) / (3 kappa) or more. A NaN or Inf
-    anywhere in gamma, E or B reaches rho (each metric component multiplies a field component
-    in E_i, B_i; 0 * Inf = NaN), so ``output_sum`` (the sum of the outputs written at the
-    point) is not finite for every non-finite input, and also when a finite input overflows
-    (fields above ~1e154 in float64, ~1e19 in float32). Bitwise & keeps the loop branch-free.
+    definite gamma is at least its smallest eigenvalue, tr(gamma) / (3 kappa) or more.
+
+    ``output_sum`` is the sum of the outputs written at the point, or a bound of them
+    (:func:`sources_bound`). A NaN or Inf anywhere in gamma, E or B reaches rho (each metric
+    component multiplies a field component in E_i, B_i; 0 * Inf = NaN), so it is not finite
+    for every non-finite input, and also when a finite input overflows (fields above ~1e154
+    in float64, ~1e19 in float32). Bitwise & keeps the loop branch-free.
     """
     return ((d1 > least_pivot) & (d2 > least_pivot) & (d3 > least_pivot)
             & is_finite(output_sum))
+
+
+@point_function
+def sources_bound(rho, trace, one):
+    """rho (1 + tr gamma): finite exactly where rho is, and above every |S_i| and |S_ij| / 3.
+
+    |E_i|^2 <= lambda_max E^2 (E_i = gamma_ij E^j), so |S_ij| <= 3 lambda_max rho and
+    |S_i| <= sqrt(lambda_max) |S|_gamma <= sqrt(lambda_max) rho, with lambda_max <= tr gamma:
+    one product stands for the ten outputs in the check (reading them back costs 12-15 % of
+    the source kernel on strided views, measured). It errs on the safe side: outputs within
+    a factor 3 tr(gamma) of the largest finite number count as overflowing.
+    """
+    return rho * (one + trace)
 
 
 @point_function

@@ -52,6 +52,7 @@ from .electromagnetic import (
     point_is_valid,
     point_underflows,
     projections,
+    sources_bound,
     sqrt_determinant,
 )
 from .metric import inverse_metric
@@ -88,30 +89,31 @@ def _adm_point(n, gamma, gidx, E, B, rho, S_i, S_ij, S, form, coef, half):
 
 
 @point_function
-def _adm_point_valid(n, gamma, gidx, rho, S_i, S_ij, half, pivot_floor):
-    """The check of :func:`~emsource.kernels.electromagnetic.point_is_valid` at point ``n``,
-    from the inputs and the outputs just written.
+def _adm_point_status(n, gamma, gidx, E, B, form, coef, half, tiny, pivot_floor):
+    """The checks at point ``n`` as bits: 1 if it fails :func:`point_is_valid` (rho bounded
+    by :func:`sources_bound`), 2 if its energy density underflows (:func:`point_underflows`).
 
-    Kept apart from :func:`_adm_point` on purpose: returning flags from the large inlined
-    point function made the kernel 2-4 times slower (measured twice; LLVM stops vectorising),
-    while re-reading the values here costs nothing measurable (they are in registers or
-    cache, and LLVM merges the repeated factorisation).
+    Computed from the inputs alone, before :func:`_adm_point` writes the point: with no store
+    in between, LLVM merges these loads and this arithmetic with the physics' (no cost), where
+    after the stores it must assume they changed the inputs and load and compute again
+    (measured: 17-20 % slower on strided views). A function apart on purpose: returning flags
+    from the large inlined point function made the kernel 2-4 times slower (measured twice).
     """
+    one = half + half
     gxx = gamma[gidx[0], n]
+    gxy = gamma[gidx[1], n]
+    gxz = gamma[gidx[2], n]
     gyy = gamma[gidx[3], n]
+    gyz = gamma[gidx[4], n]
     gzz = gamma[gidx[5], n]
-    d1, d2, d3, _l21, _l31, _l32 = metric_factors(
-        gxx, gamma[gidx[1], n], gamma[gidx[2], n], gyy, gamma[gidx[4], n], gzz, half + half)
-    total = (rho[n] + (S_i[0, n] + S_i[1, n] + S_i[2, n])
-             + (S_ij[0, n] + S_ij[1, n] + S_ij[2, n] + S_ij[3, n] + S_ij[4, n] + S_ij[5, n]))
-    return point_is_valid(d1, d2, d3, pivot_floor * (gxx + gyy + gzz), total)
-
-
-@point_function
-def _underflows_at(n, rho, E, B, tiny):
-    """:func:`~emsource.kernels.electromagnetic.point_underflows` at point ``n``."""
-    return point_underflows(rho[n], (E[0, n], E[1, n], E[2, n], E[0, n], E[1, n], E[2, n],
-                                     B[0, n], B[1, n], B[2, n], B[0, n], B[1, n], B[2, n]), tiny)
+    d1, d2, d3, l21, l31, l32 = metric_factors(gxx, gxy, gxz, gyy, gyz, gzz, one)
+    fields = fields_both_indices(form, gxx, gxy, gxz, gyy, gyz, gzz, d1, d2, d3, l21, l31, l32,
+                                 E[0, n], E[1, n], E[2, n], B[0, n], B[1, n], B[2, n], one)
+    ex, ey, ez, exl, eyl, ezl, bx, by, bz, bxl, byl, bzl = fields
+    rho = coef * half * (ex * exl + ey * eyl + ez * ezl + bx * bxl + by * byl + bz * bzl)
+    trace = gxx + gyy + gzz
+    valid = point_is_valid(d1, d2, d3, pivot_floor * trace, sources_bound(rho, trace, one))
+    return (0 if valid else 1) + (2 if point_underflows(rho, fields, tiny) else 0)
 
 
 @point_function
@@ -238,11 +240,11 @@ def adm_sources_flat(gamma, gidx, E, B, rho, S_i, S_ij, S, form, coef, half, tin
     bad_count = 0
     underflow_count = 0
     for n in prange(rho.shape[0]):
-        _adm_point(n, gamma, gidx, E, B, rho, S_i, S_ij, S, form, coef, half)
         if check:
-            valid = _adm_point_valid(n, gamma, gidx, rho, S_i, S_ij, half, pivot_floor)
-            bad_count += 0 if valid else 1
-            underflow_count += 1 if _underflows_at(n, rho, E, B, tiny) else 0
+            status = _adm_point_status(n, gamma, gidx, E, B, form, coef, half, tiny, pivot_floor)
+            bad_count += status & 1
+            underflow_count += status >> 1
+        _adm_point(n, gamma, gidx, E, B, rho, S_i, S_ij, S, form, coef, half)
     return bad_count, underflow_count
 
 
@@ -264,15 +266,12 @@ def adm_sources_grid(gamma, gidx, E, B, rho, S_i, S_ij, S, form, coef, half, tin
         s_ij_c = S_ij[:, i, j]
         s_c = S[i, j]
         for k in range(nz):
+            if check:
+                status = _adm_point_status(k, g_c, gidx, e_c, b_c, form, coef, half, tiny,
+                                           pivot_floor)
+                bad_count += status & 1
+                underflow_count += status >> 1
             _adm_point(k, g_c, gidx, e_c, b_c, rho_c, s_i_c, s_ij_c, s_c, form, coef, half)
-        if check:
-            # A second pass over the column (in cache): reading back outputs in the loop that
-            # writes them needs more run-time overlap tests of the strided column views than
-            # LLVM allows, and that loop stopped vectorising (measured: 12-15 % slower).
-            for k in range(nz):
-                valid = _adm_point_valid(k, g_c, gidx, rho_c, s_i_c, s_ij_c, half, pivot_floor)
-                bad_count += 0 if valid else 1
-                underflow_count += 1 if _underflows_at(k, rho_c, e_c, b_c, tiny) else 0
     return bad_count, underflow_count
 
 
@@ -352,20 +351,15 @@ def first_failing_adm(gamma, gidx, E, B, rho, S_i, S_ij, S, form, coef, half, ti
 
     Run only after a driver counted such points: a min-reduction folded into the main pass
     made it 2-3 times slower (measured); this serial search on the error path re-evaluates
-    the same point function, so it applies exactly the driver's criterion. It rewrites the
-    outputs with the values the driver wrote there.
+    the same point function, so it applies exactly the driver's criterion.
     """
     nx, ny, nz = rho.shape
     for i in range(nx):
         for j in range(ny):
             for k in range(nz):
-                _adm_point(k, gamma[:, i, j], gidx, E[:, i, j], B[:, i, j], rho[i, j],
-                           S_i[:, i, j], S_ij[:, i, j], S[i, j], form, coef, half)
-                if underflow:
-                    failed = _underflows_at(k, rho[i, j], E[:, i, j], B[:, i, j], tiny)
-                else:
-                    failed = not _adm_point_valid(k, gamma[:, i, j], gidx, rho[i, j],
-                                                  S_i[:, i, j], S_ij[:, i, j], half, pivot_floor)
+                status = _adm_point_status(k, gamma[:, i, j], gidx, E[:, i, j], B[:, i, j],
+                                           form, coef, half, tiny, pivot_floor)
+                failed = (status & 2) != 0 if underflow else (status & 1) != 0
                 if failed:
                     return (i * ny + j) * nz + k
     return -1
