@@ -174,3 +174,33 @@ def test_integrals_name_file_level_and_absolute_index_from_a_slab(tmp_path, rng,
     with pytest.raises(emsource.GridPointError, match=rf"snap.h5', time level '1' \({rows}\)") as info:
         integrate_snapshot(path, rows=2)
     assert info.value.first_index == (6, 2, 5)
+
+
+def test_excised_points_are_neither_checked_nor_computed_by_sources(tmp_path, rng):
+    # Issue: "Masked points are neither checked nor used anywhere (sources write a documented
+    # fill value there)". NaN and a singular metric stand at excised points, as a writer puts
+    # them at a singularity; the command must succeed, write NaN there, copy the mask, and
+    # give at every valid point what the in-memory API gives for the same data.
+    levels = curved_levels(rng, times=(0.0,))
+    level = levels[0]
+    valid = np.ones(level["lapse"].shape, np.uint8)
+    valid[2:4, 1, 3] = 0
+    valid[7, 5, 0] = 0
+    level["valid_mask"] = valid
+    level["electric_field"][:, 2, 1, 3] = np.nan
+    level["spatial_metric"][:, 3, 1, 3] = 0.0
+    level["magnetic_field"][1, 7, 5, 0] = np.inf
+    path = tmp_path / "snap.h5"
+    snapshot.write_snapshot(path, levels, axis_order="zyx")
+    compute_sources(path, tmp_path / "out.h5", rows=2)
+    got = snapshot.read_level(tmp_path / "out.h5", 0)
+    keep = valid.astype(bool)
+    np.testing.assert_array_equal(got["valid_mask"], valid)
+    flat = np.array([1.0, 0.0, 0.0, 1.0, 0.0, 1.0])[:, None, None, None]
+    ref = emsource.adm_sources(np.where(keep, level["spatial_metric"], flat),
+                               np.where(keep, level["electric_field"], 0.0),
+                               np.where(keep, level["magnetic_field"], 0.0))
+    for q, r in zip(("energy_density", "momentum_density", "spatial_stress", "stress_trace"), ref):
+        assert np.isnan(got[q][..., ~keep]).all(), q
+        np.testing.assert_allclose(got[q][..., keep], r[..., keep], rtol=0,
+                                   atol=16 * np.finfo(float).eps * np.abs(r).max())

@@ -47,6 +47,7 @@ from .energy_flux import energy_fluxes
 from .reductions import LevelPartial, Sum, combine
 from .snapshot import CHUNK_CACHE_BYTES, SnapshotError, SnapshotFile, open_snapshot
 from .snapshot.slabs import (CONVERSION_BUFFER_BYTES, DEFAULT_MEMORY_LIMIT, SlabBuffers,
+                             neutralise_excised,
                              progress_bar, slab_rows, slabs)
 from .sources import GridPointError
 
@@ -297,33 +298,6 @@ def _flux_densities(alpha, beta, gamma, E, B, *, units):
     return fluxes.energy, fluxes.momentum, fluxes.flux
 
 
-def _harmless(arrays, valid, in_place):
-    """Arrays with flat metric, zero field, unit lapse and zero shift at invalid points.
-
-    Invalid points hold whatever the writer put there (NaN at a singularity): they are left out
-    of every sum, but the whole slab goes through one vectorised evaluation, which must not
-    see them. ``in_place`` overwrites the (caller-owned scratch) arrays; otherwise copies.
-    """
-    if valid is None or valid.all():
-        return arrays
-    invalid = ~valid
-    flat = {"spatial_metric": (1.0, 0.0, 0.0, 1.0, 0.0, 1.0), "lapse": 1.0}
-    out = {}
-    for name, a in arrays.items():
-        if a is None:
-            out[name] = a
-            continue
-        a = a if in_place else a.copy()
-        fill = flat.get(name, 0.0)
-        if a.ndim == invalid.ndim:
-            a[invalid] = fill
-        else:
-            for c in range(a.shape[0]):
-                a[c][invalid] = fill[c] if isinstance(fill, tuple) else fill
-        out[name] = a
-    return out
-
-
 @renamed_keywords(mask="valid_mask")
 def level_partial(grid, gamma, E, B, *, units="gaussian", lapse=None, shift=None, valid_mask=None,
                   spheres=(), axis=0, start=0, stop=None, in_place=False) -> LevelPartial:
@@ -351,7 +325,7 @@ def level_partial(grid, gamma, E, B, *, units="gaussian", lapse=None, shift=None
         if any(v is not None for v in named.values()):
             args.check_points("integrate", shape, named, valid=valid,
                               lapse="lapse" if lapse is not None else None)
-        arrays = _harmless({"spatial_metric": gamma, "electric_field": E, "magnetic_field": B,
+        arrays = neutralise_excised({"spatial_metric": gamma, "electric_field": E, "magnetic_field": B,
                             "lapse": lapse, "shift": shift}, valid, in_place)
         gamma, E, B = (arrays[q] for q in ("spatial_metric", "electric_field", "magnetic_field"))
         alpha = arrays["lapse"] if lapse is not None else np.ones(shape)

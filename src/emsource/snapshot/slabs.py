@@ -16,8 +16,8 @@ from .reading import CHUNK_CACHE_BYTES
 
 __all__ = ["DEFAULT_MEMORY_LIMIT", "CHUNK_CACHE_BYTES", "CONVERSION_BUFFER_BYTES",
            "values_per_point", "slab_rows", "SlabBuffers", "slabs", "choose_levels",
-           "common_field_dtype", "progress_bar", "slab_error", "read_overhead_bytes",
-           "read_scratch_per_row", "chunk_overhead"]
+           "common_field_dtype", "progress_bar", "slab_error", "neutralise_excised",
+           "read_overhead_bytes", "read_scratch_per_row", "chunk_overhead"]
 
 DEFAULT_MEMORY_LIMIT = 512 * 2**20  #: bytes
 #: HDF5's default type-conversion buffer (bytes), counted in the fixed part of the bound.
@@ -129,6 +129,34 @@ def progress_bar(total, description, enabled):
         from tqdm import tqdm
         return tqdm(total=total, desc=description, unit="slab", leave=False)
     return _Silent()
+
+
+def neutralise_excised(arrays: dict, valid, in_place: bool) -> dict:
+    """Arrays with flat metric, zero field, unit lapse and zero shift where ``valid`` is False.
+
+    Excised points (valid_mask = 0) hold whatever the writer put there (NaN at a singularity):
+    they are neither checked nor used, but a whole slab goes through one kernel call, which
+    must not see them. ``arrays`` maps quantity names to (x, y, z)-order arrays (None allowed);
+    ``in_place`` overwrites them (caller-owned scratch buffers), otherwise copies are changed.
+    """
+    if valid is None or valid.all():
+        return arrays
+    invalid = ~valid
+    flat = {"spatial_metric": (1.0, 0.0, 0.0, 1.0, 0.0, 1.0), "lapse": 1.0}
+    out = {}
+    for name, a in arrays.items():
+        if a is None:
+            out[name] = a
+            continue
+        a = a if in_place else a.copy()
+        fill = flat.get(name, 0.0)
+        if a.ndim == invalid.ndim:
+            a[invalid] = fill
+        else:
+            for c in range(a.shape[0]):
+                a[c][invalid] = fill[c] if isinstance(fill, tuple) else fill
+        out[name] = a
+    return out
 
 
 def slab_error(error, level, start, stop):

@@ -36,8 +36,8 @@ from ..sources import GridPointError
 from .native import LEVELS_GROUP
 from .reading import CHUNK_CACHE_BYTES, open_snapshot
 from .slabs import (CONVERSION_BUFFER_BYTES, DEFAULT_MEMORY_LIMIT, SlabBuffers, chunk_overhead,
-                    common_field_dtype, progress_bar, read_overhead_bytes, read_scratch_per_row,
-                    slab_error, slab_rows, slabs, values_per_point)
+                    common_field_dtype, neutralise_excised, progress_bar, read_overhead_bytes,
+                    read_scratch_per_row, slab_error, slab_rows, slabs, values_per_point)
 from .writing import (atomic_output, check_output, chunk_shape, hdf5_output,
                       write_level_attributes, write_root_attributes)
 
@@ -70,17 +70,21 @@ class SourcesReport:
 
 
 def _checked(level) -> tuple:
-    """Quantities read only to check them: a valid_mask (one uint8 per point) must hold 0 and 1
-    in every file, whichever command reads it, although the sources of every point are
-    computed whatever the mask says."""
+    """The valid_mask where the level has one (one uint8 per point, 0 or 1 in every file,
+    whichever command reads it): excised points (0) are neither checked nor computed, the
+    outputs hold :data:`EXCISED_FILL` there, and the mask is copied to the output."""
     return ("valid_mask",) if level.has("valid_mask") else ()
+
+
+#: What the outputs hold at excised points (valid_mask = 0): not a number, never computed.
+EXCISED_FILL = np.nan
 
 
 def plan_rows(level, dtype, memory_limit) -> int:
     """Planes per slab of :func:`compute_sources` under ``memory_limit`` (bytes).
 
-    Counts the 23 slab buffers, the read scratch of each input and HDF5's caches and chunk
-    buffers; the slab is a whole number of the inputs' chunks where it holds more than one.
+    Counts the 23 slab buffers, the read scratch of each input, HDF5's caches and chunk
+    buffers, and per point 3 bytes for the valid_mask (its buffer and two boolean masks); the slab is a whole number of the inputs' chunks where it holds more than one.
     """
     read = SOURCE_INPUTS + _checked(level)
     fixed = (CHUNK_CACHE_BYTES * (12 + len(read) - len(SOURCE_INPUTS)) + CONVERSION_BUFFER_BYTES
@@ -88,7 +92,7 @@ def plan_rows(level, dtype, memory_limit) -> int:
     rows = slab_rows(level, values_per_point(SOURCE_INPUTS + SOURCE_OUTPUTS),
                      np.dtype(dtype).itemsize, memory_limit, fixed=fixed,
                      extra_per_row=read_scratch_per_row(level, read)
-                     + len(_checked(level)) * level.plane_points)
+                     + 3 * len(_checked(level)) * level.plane_points)
     chunk = min(level.source(q).chunk_rows for q in SOURCE_INPUTS)
     if chunk < rows < level.storage_shape[0]:
         rows = rows // chunk * chunk
@@ -208,6 +212,9 @@ def _level_sources(level, dtype, rows, group, compression, check, written, repor
         chunks = ((1,) if ncomp else ()) + (chunk_rows,) + stored[1:]
         datasets[q] = g.create_dataset(q, shape=shape, dtype=dtype, chunks=chunks,
                                        compression=compression)
+    for q in _checked(level):  # the valid_mask, so that the output says where it holds NaN
+        datasets[q] = g.create_dataset(q, shape=stored, dtype=np.uint8,
+                                       chunks=(chunk_rows,) + stored[1:], compression=compression)
     inputs = SlabBuffers(level, SOURCE_INPUTS, rows, dtype)
     checked = SlabBuffers(level, _checked(level), rows, np.uint8)
     outputs = SlabBuffers(level, SOURCE_OUTPUTS, rows, dtype)
@@ -220,14 +227,24 @@ def _level_sources(level, dtype, rows, group, compression, check, written, repor
         E = inputs.read("electric_field", start, stop)
         B = inputs.read("magnetic_field", start, stop)
         report.bytes_read += (gamma.nbytes + E.nbytes + B.nbytes)
-        for q in _checked(level):
-            checked.read(q, start, stop)  # raises on a value other than 0 and 1
+        valid = True  # every point, where the level has no valid_mask
+        for q in _checked(level):  # raises on a value other than 0 and 1
+            valid = checked.read(q, start, stop).astype(bool)
+            neutralise_excised({"spatial_metric": gamma, "electric_field": E,
+                                "magnetic_field": B}, valid, in_place=True)
         out_stored = [outputs.storage(q, stop - start) for q in SOURCE_OUTPUTS]
         out_xyz = tuple(level.to_xyz(a) for a in out_stored)
         try:
             adm_sources(gamma, E, B, units=level.units, check=check, out=out_xyz)
         except GridPointError as error:
             raise slab_error(error, level, start, stop) from None
+        rho = out_xyz[0]
+        low = min(low, float(rho.min(where=valid, initial=np.inf)))
+        high = max(high, float(rho.max(where=valid, initial=-np.inf)))
+        if not np.all(valid):
+            excised = ~valid
+            for a in out_xyz:
+                a[..., excised] = EXCISED_FILL
         for q, a in zip(SOURCE_OUTPUTS, out_stored):
             if q not in datasets:
                 continue
@@ -235,9 +252,8 @@ def _level_sources(level, dtype, rows, group, compression, check, written, repor
                 datasets[q][:, start:stop] = a
             else:
                 datasets[q][start:stop] = a
+        for q in _checked(level):
+            datasets[q][start:stop] = checked.storage(q, stop - start)
         interruption.check()
-        rho = out_stored[0]
-        low = min(low, float(rho.min()))
-        high = max(high, float(rho.max()))
         bar.update(1)
     report.energy_density_range = (low, high)
