@@ -55,13 +55,20 @@ def test_foreign_sample_gives_the_native_numbers(dipole_files, tmp_path):
     compute_sources(native, tmp_path / "n.h5")
     compute_sources(foreign, tmp_path / "f.h5", mapping=mapping)
     a, b = snapshot.read_level(tmp_path / "n.h5"), snapshot.read_level(tmp_path / "f.h5")
-    rho = a["energy_density"].astype(np.float64)
-    assert rho.max() > 1  # a real field, not zeros
-    for q in OUTPUTS:
-        difference = np.abs(a[q].astype(np.float64) - b[q].astype(np.float64))
-        assert np.all(difference <= 2 * 18 * U32 * rho + 1e-30), q
     mask = snapshot.read_level(foreign, mapping=mapping)["valid_mask"]
     assert np.array_equal(mask, snapshot.read_level(native)["valid_mask"])
+    # Both outputs carry the mask and hold NaN exactly at its excised points (r < 0.4).
+    valid = mask.astype(bool)
+    assert not valid.all()
+    for out in (a, b):
+        assert np.array_equal(out["valid_mask"], mask)
+    rho = a["energy_density"].astype(np.float64)[valid]
+    assert rho.max() > 1  # a real field, not zeros
+    for q in OUTPUTS:
+        for out in (a, b):
+            assert np.isnan(out[q][..., ~valid]).all() and np.isfinite(out[q][..., valid]).all(), q
+        difference = np.abs(a[q].astype(np.float64) - b[q].astype(np.float64))[..., valid]
+        assert np.all(difference <= 2 * 18 * U32 * rho + 1e-30), q
 
 
 def test_stacked_component_last_layout_is_bit_for_bit(tmp_path, rng):
