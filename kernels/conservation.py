@@ -30,8 +30,6 @@ data's dtype.
 
 from __future__ import annotations
 
-import math
-
 import numpy as np
 from numba import prange
 

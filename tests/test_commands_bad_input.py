@@ -14,7 +14,7 @@ from emsource import snapshot
 from emsource.cli import main
 from emsource.commands import EXIT_BAD_INPUT, EXIT_CHECK_FAILED, EXIT_OK
 
-from snapshot_data import checksums, curved_levels
+from snapshot_data import checksums, curved_levels, run_cli
 
 SHAPE = (10, 10, 11)  # audit-units needs 10 points per axis at order 4
 COMMANDS = ("sources", "integrate", "constraints", "audit-units")
@@ -184,3 +184,19 @@ def test_slab_messages_name_the_file(tmp_path, rng, capsys):
         assert main(argv) == EXIT_BAD_INPUT
         err = capsys.readouterr().err
         assert str(good) in err and ("too small" in err or "does not fit" in err), err
+
+
+@pytest.mark.parametrize("command, option, value", [
+    ("integrate", "--theta-points", "0"),
+    ("integrate", "--theta-points", "x"),
+    ("integrate", "--angular-points", "1"),
+    ("integrate", "--interpolation-points", "3"),
+    ("integrate", "--interpolation-points", "0"),
+    ("constraints", "--tolerance", "nan"),
+    ("constraints", "--tolerance", "-1"),
+])
+def test_bad_option_values_are_usage_errors_naming_the_option(tmp_path, command, option, value):
+    # Exit 2 (usage) before any file is read, naming the option: a bad value is the caller's
+    # mistake, not the file's (exit 3 would blame the input).
+    code, out, err = run_cli(command, tmp_path / "absent.h5", option, value)
+    assert code == 2 and option in err and "Traceback" not in err and out == ""

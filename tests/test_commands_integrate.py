@@ -63,10 +63,17 @@ def test_outputs_are_checked_before_the_work(dipole, tmp_path, capsys):
     assert existing.read_text() == "old" and not (tmp_path / "t.h5").exists()
 
 
+@pytest.mark.parametrize("mass", ["-1", "0", "nan", "inf", "abc"])
+def test_mass_that_is_not_a_positive_number_is_a_usage_error(dipole, capsys, mass):
+    # Like --radius: an option value the caller got wrong (exit 2), named, before any reading.
+    with pytest.raises(SystemExit) as stop:
+        main(["integrate", str(dipole), "--mass", mass, "--quiet"])
+    assert stop.value.code == EXIT_USAGE and "--mass" in capsys.readouterr().err
+
+
 def test_sphere_that_does_not_fit_is_bad_input(dipole, capsys):
     assert main(["integrate", str(dipole), "--radius", "2.95", "--quiet"]) == EXIT_BAD_INPUT
     assert "does not fit in the grid" in capsys.readouterr().err
-    assert main(["integrate", str(dipole), "--mass", "-1", "--quiet"]) == EXIT_BAD_INPUT
     assert main(["integrate", str(dipole), "--levels", "5", "--quiet"]) == EXIT_BAD_INPUT
     assert "out of range" in capsys.readouterr().err
     assert math.isfinite(rotating_dipole_luminosity())

@@ -25,6 +25,27 @@ def positive_number(text: str, what: str, unit: str = "") -> float:
     return value
 
 
+def tolerance(text: str) -> float:
+    """``--tolerance``: a positive, finite number (NaN would make every comparison fail)."""
+    return positive_number(text, "tolerance")
+
+
+def whole_number_at_least(minimum: int, what: str, even: bool = False):
+    """An argparse type: an integer >= ``minimum`` (and even, if asked), else a usage error
+    naming ``what``."""
+    def parse(text: str) -> int:
+        try:
+            value = int(text)
+        except ValueError:
+            raise argparse.ArgumentTypeError(f"{what} must be a whole number, found {text!r}") from None
+        if value < minimum or (even and value % 2):
+            kind = "an even whole number" if even else "a whole number"
+            raise argparse.ArgumentTypeError(f"{what} must be {kind} of at least {minimum}, "
+                                             f"found {text!r}")
+        return value
+    return parse
+
+
 def memory_limit(text: str) -> int:
     """``--memory-limit`` in MiB (a positive number) -> bytes."""
     value = positive_number(text, "memory limit", " of MiB")

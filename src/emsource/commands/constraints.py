@@ -7,7 +7,7 @@ import sys
 from .._arguments import DIFFERENCE_ORDERS
 from . import EXIT_CHECK_FAILED, EXIT_OK
 from ._snapshot_level import add_snapshot_arguments, input_errors, read_slice
-from ._snapshot_options import run_guarded
+from ._snapshot_options import run_guarded, tolerance
 
 
 #: Values of --sources: the file's units, a named unit system, or the vacuum constraints.
@@ -31,7 +31,7 @@ def register(subparsers):
                    metavar="{" + ",".join(SOURCES) + "}",
                    help="unit system of the EM sources: the file's 'units' attribute (default), "
                         "a named one, or vacuum (no EM sources)")
-    p.add_argument("--tolerance", type=float, default=None,
+    p.add_argument("--tolerance", type=tolerance, default=None,
                    help="exit with code 1 if a normalised l2 residual exceeds this")
     p.set_defaults(run=lambda args: run_guarded(_run, args))
 

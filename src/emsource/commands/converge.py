@@ -16,6 +16,7 @@ from pathlib import Path
 
 from .._arguments import DIFFERENCE_ORDERS
 from . import EXIT_BAD_INPUT, EXIT_CHECK_FAILED, EXIT_OK, EXIT_OUTPUT_ERROR
+from ._snapshot_options import tolerance
 
 
 def register(subparsers):
@@ -41,7 +42,7 @@ def register(subparsers):
     parser.add_argument("--no-plot", action="store_true",
                         help="write no plot (also the default without --plot)")
     parser.add_argument("--json", metavar="PATH", help="also write the table as JSON")
-    parser.add_argument("--tolerance", type=float, default=0.3,
+    parser.add_argument("--tolerance", type=tolerance, default=0.3,
                         help="allowed distance of the observed from the design order (default 0.3)")
     parser.add_argument("--list", action="store_true", help="list the cases and exit")
     parser.set_defaults(run=run)

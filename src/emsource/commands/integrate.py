@@ -5,9 +5,9 @@ from __future__ import annotations
 import argparse
 import math
 
-from . import EXIT_BAD_INPUT, EXIT_OK, EXIT_OUTPUT_ERROR
+from . import EXIT_OK, EXIT_OUTPUT_ERROR
 from ._snapshot_options import (add_input_options, check_new_output, fail, positive_number,
-                               run_guarded, show_progress)
+                               run_guarded, show_progress, whole_number_at_least)
 
 HELP = "integrate energy, momentum, face fluxes and sphere luminosities over a snapshot file"
 
@@ -33,14 +33,18 @@ def register(subparsers):
     add_input_options(parser)
     parser.add_argument("--radius", metavar="R", type=radius, action="append", default=[],
                         help="radius of a luminosity sphere (code units); repeat for several")
-    parser.add_argument("--theta-points", metavar="N", type=int, default=32,
+    parser.add_argument("--theta-points", metavar="N", default=32,
+                        type=whole_number_at_least(2, "theta points"),
                         help="Gauss-Legendre nodes in theta (2N in phi); default 32")
     # Deprecated spelling of --theta-points, still accepted.
-    parser.add_argument("--angular-points", dest="theta_points", type=int,
+    parser.add_argument("--angular-points", dest="theta_points",
+                        type=whole_number_at_least(2, "theta points"),
                         default=argparse.SUPPRESS, help=argparse.SUPPRESS)
-    parser.add_argument("--interpolation-points", metavar="P", type=int, default=4,
+    parser.add_argument("--interpolation-points", metavar="P", default=4,
+                        type=whole_number_at_least(2, "interpolation points", even=True),
                         help="Lagrange points per axis (even; default 4, cubic)")
-    parser.add_argument("--mass", metavar="MSUN", type=float,
+    parser.add_argument("--mass", metavar="MSUN",
+                        type=lambda text: positive_number(text, "mass", " of solar masses"),
                         help="mass scale in solar masses: also report cgs and SI values")
     parser.add_argument("--csv", metavar="FILE", help="write the time series as CSV")
     parser.add_argument("--hdf5", metavar="FILE", help="write the time series as HDF5")
@@ -66,8 +70,6 @@ def _run(args) -> int:
             import matplotlib  # noqa: F401
         except ImportError:
             return fail(EXIT_OUTPUT_ERROR, "--plot needs matplotlib: pip install 'emsource[plot]'")
-    if args.mass is not None and not (math.isfinite(args.mass) and args.mass > 0):
-        return fail(EXIT_BAD_INPUT, f"--mass must be a positive number of solar masses, found {args.mass}")
     # One open file serves the description, the grid, the integration and the provenance.
     with open_snapshot(args.snapshot, args.mapping) as snap:
         description, units, grid = snap.description, snap.units, snap.grid

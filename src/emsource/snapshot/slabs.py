@@ -10,7 +10,6 @@ from __future__ import annotations
 import numpy as np
 
 from ..quantities import BY_NAME, COMPONENTS
-from .errors import SnapshotError
 from .levels import choose_levels
 from .reading import CHUNK_CACHE_BYTES
 
