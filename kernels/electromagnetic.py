@@ -139,7 +139,7 @@ def energy_momentum_fluxes(alpha, b1, b2, b3, sg, rho, sx, sy, sz, ux, uy, uz, f
 
 
 @point_function
-def point_is_valid(d1, d2, d3, least_pivot, output_sum):
+def point_is_valid(d1, d2, d3, least_pivot, outputs_size):
     """The folded point check: gamma positive definite and the outputs finite.
 
     Positive definite: all three pivots of gamma = L D L^T above ``least_pivot`` (NaN fails).
@@ -149,14 +149,14 @@ def point_is_valid(d1, d2, d3, least_pivot, output_sum):
     no metric with a condition number below 1 / (3 c eps), since every pivot of a positive
     definite gamma is at least its smallest eigenvalue, tr(gamma) / (3 kappa) or more.
 
-    ``output_sum`` is the sum of the outputs written at the point, or a bound of them
+    ``outputs_size`` is the sum of the outputs written at the point, or a bound of them
     (:func:`sources_bound`). A NaN or Inf anywhere in gamma, E or B reaches rho (each metric
     component multiplies a field component in E_i, B_i; 0 * Inf = NaN), so it is not finite
     for every non-finite input, and also when a finite input overflows (fields above ~1e154
     in float64, ~1e19 in float32). Bitwise & keeps the loop branch-free.
     """
     return ((d1 > least_pivot) & (d2 > least_pivot) & (d3 > least_pivot)
-            & is_finite(output_sum))
+            & is_finite(outputs_size))
 
 
 @point_function
