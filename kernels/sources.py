@@ -60,15 +60,23 @@ from .point_checks import is_finite
 
 
 @point_function
-def _adm_point(n, gamma, gidx, E, B, rho, S_i, S_ij, S, form, coef, half):
-    """Write rho, S_i, S_ij, S at point ``n`` of (ncomp, npoints) arrays."""
+def _adm_point(n, gamma, gidx, E, B, rho, S_i, S_ij, S, form, coef, half, tiny, pivot_floor):
+    """Write rho, S_i, S_ij, S at point ``n`` of (ncomp, npoints) arrays; return the checks as
+    bits: 1 if it fails :func:`point_is_valid` (the ten outputs bounded by :func:`sources_bound`),
+    2 if its energy density underflows (:func:`point_underflows`).
+
+    The checks come back as one integer: returning boolean flags from this inlined function
+    made the kernel 2-4 times slower (measured twice; LLVM stopped vectorising), and a check
+    apart from it, re-reading inputs or outputs after the stores, cost 10-20 % on strided views
+    (measured), where this costs 0-4 % against the plain finiteness test it replaced.
+    """
+    one = half + half
     gxx = gamma[gidx[0], n]
     gxy = gamma[gidx[1], n]
     gxz = gamma[gidx[2], n]
     gyy = gamma[gidx[3], n]
     gyz = gamma[gidx[4], n]
     gzz = gamma[gidx[5], n]
-    one = half + half
     d1, d2, d3, l21, l31, l32 = metric_factors(gxx, gxy, gxz, gyy, gyz, gzz, one)
     sg = sqrt_determinant(d1, d2, d3)
     fields = fields_both_indices(form, gxx, gxy, gxz, gyy, gyz, gzz, d1, d2, d3, l21, l31, l32,
@@ -86,34 +94,9 @@ def _adm_point(n, gamma, gidx, E, B, rho, S_i, S_ij, S, form, coef, half):
     S_ij[3, n] = syy
     S_ij[4, n] = syz
     S_ij[5, n] = szz
-
-
-@point_function
-def _adm_point_status(n, gamma, gidx, E, B, form, coef, half, tiny, pivot_floor):
-    """The checks at point ``n`` as bits: 1 if it fails :func:`point_is_valid` (rho bounded
-    by :func:`sources_bound`), 2 if its energy density underflows (:func:`point_underflows`).
-
-    Computed from the inputs alone, before :func:`_adm_point` writes the point: with no store
-    in between, LLVM merges these loads and this arithmetic with the physics' (no cost), where
-    after the stores it must assume they changed the inputs and load and compute again
-    (measured: 17-20 % slower on strided views). A function apart on purpose: returning flags
-    from the large inlined point function made the kernel 2-4 times slower (measured twice).
-    """
-    one = half + half
-    gxx = gamma[gidx[0], n]
-    gxy = gamma[gidx[1], n]
-    gxz = gamma[gidx[2], n]
-    gyy = gamma[gidx[3], n]
-    gyz = gamma[gidx[4], n]
-    gzz = gamma[gidx[5], n]
-    d1, d2, d3, l21, l31, l32 = metric_factors(gxx, gxy, gxz, gyy, gyz, gzz, one)
-    fields = fields_both_indices(form, gxx, gxy, gxz, gyy, gyz, gzz, d1, d2, d3, l21, l31, l32,
-                                 E[0, n], E[1, n], E[2, n], B[0, n], B[1, n], B[2, n], one)
-    ex, ey, ez, exl, eyl, ezl, bx, by, bz, bxl, byl, bzl = fields
-    rho = coef * half * (ex * exl + ey * eyl + ez * ezl + bx * bxl + by * byl + bz * bzl)
     trace = gxx + gyy + gzz
-    valid = point_is_valid(d1, d2, d3, pivot_floor * trace, sources_bound(rho, trace, one))
-    return (0 if valid else 1) + (2 if point_underflows(rho, fields, tiny) else 0)
+    valid = point_is_valid(d1, d2, d3, pivot_floor * trace, sources_bound(r, trace, one))
+    return (0 if valid else 1) + (2 if point_underflows(r, fields, tiny) else 0)
 
 
 @point_function
@@ -242,11 +225,11 @@ def adm_sources_flat(gamma, gidx, E, B, rho, S_i, S_ij, S, form, coef, half, tin
     bad_count = 0
     underflow_count = 0
     for n in prange(rho.shape[0]):
+        status = _adm_point(n, gamma, gidx, E, B, rho, S_i, S_ij, S, form, coef, half, tiny,
+                            pivot_floor)
         if check:
-            status = _adm_point_status(n, gamma, gidx, E, B, form, coef, half, tiny, pivot_floor)
             bad_count += status & 1
             underflow_count += status >> 1
-        _adm_point(n, gamma, gidx, E, B, rho, S_i, S_ij, S, form, coef, half)
     return bad_count, underflow_count
 
 
@@ -268,12 +251,11 @@ def adm_sources_grid(gamma, gidx, E, B, rho, S_i, S_ij, S, form, coef, half, tin
         s_ij_c = S_ij[:, i, j]
         s_c = S[i, j]
         for k in range(nz):
+            status = _adm_point(k, g_c, gidx, e_c, b_c, rho_c, s_i_c, s_ij_c, s_c, form, coef,
+                                half, tiny, pivot_floor)
             if check:
-                status = _adm_point_status(k, g_c, gidx, e_c, b_c, form, coef, half, tiny,
-                                           pivot_floor)
                 bad_count += status & 1
                 underflow_count += status >> 1
-            _adm_point(k, g_c, gidx, e_c, b_c, rho_c, s_i_c, s_ij_c, s_c, form, coef, half)
     return bad_count, underflow_count
 
 
@@ -359,8 +341,9 @@ def first_failing_adm(gamma, gidx, E, B, rho, S_i, S_ij, S, form, coef, half, ti
     for i in range(nx):
         for j in range(ny):
             for k in range(nz):
-                status = _adm_point_status(k, gamma[:, i, j], gidx, E[:, i, j], B[:, i, j],
-                                           form, coef, half, tiny, pivot_floor)
+                status = _adm_point(k, gamma[:, i, j], gidx, E[:, i, j], B[:, i, j], rho[i, j],
+                                    S_i[:, i, j], S_ij[:, i, j], S[i, j], form, coef, half, tiny,
+                                    pivot_floor)
                 failed = (status & 2) != 0 if underflow else (status & 1) != 0
                 if failed:
                     return (i * ny + j) * nz + k
