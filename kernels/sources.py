@@ -335,7 +335,8 @@ def first_failing_adm(gamma, gidx, E, B, rho, S_i, S_ij, S, form, coef, half, ti
 
     Run only after a driver counted such points: a min-reduction folded into the main pass
     made it 2-3 times slower (measured); this serial search on the error path re-evaluates
-    the same point function, so it applies exactly the driver's criterion.
+    the same point function, so it applies exactly the driver's criterion (and writes the
+    values the driver wrote).
     """
     nx, ny, nz = rho.shape
     for i in range(nx):
