@@ -9,8 +9,8 @@ How the convergence tolerances are derived: a centred difference of order p has 
 error C h^p (1 + O(h^2)), so the order observed between two grids h1 > h2 is
 p + O(h1^2) deviation; on the grids used here (>= 11 points per wavelength) the measured deviation
 is below 0.15, so the tolerance 0.3 leaves a margin of two. An order counts only where the finest
-normalised residual is far above float64 round-off of the largest term (~1e-13, trap 2 of
-/work/shared/testing-notes.md): asserted as > 1e-10.
+normalised residual is far above float64 round-off of the largest term (~1e-13; common practice,
+see "Convergence traps" in DEVELOPERS.md): asserted as > 1e-10.
 """
 
 from __future__ import annotations
