@@ -31,12 +31,11 @@ from __future__ import annotations
 import math
 
 from ._compile import point_function
-from .metric import contract_index, inverse_metric, metric_factors
+from .metric import contract_index, inverse_metric
 from .point_checks import is_finite
 
 __all__ = [
-    "FORM_CONTRAVARIANT", "FORM_COVARIANT", "fields_both_indices", "metric_factors",
-    "sqrt_determinant",
+    "FORM_CONTRAVARIANT", "FORM_COVARIANT", "fields_both_indices", "sqrt_determinant",
     "projections", "momentum_upper", "energy_momentum_fluxes", "point_is_valid", "sources_bound",
     "point_underflows",
 ]
