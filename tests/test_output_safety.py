@@ -9,7 +9,7 @@ import time
 import numpy as np
 import pytest
 
-from emsource import snapshot
+from emsource import interruption, snapshot
 from emsource.cli import main
 from emsource.commands import EXIT_INTERRUPTED, EXIT_OK, EXIT_OUTPUT_ERROR, EXIT_SIGNAL_BASE
 from emsource.snapshot import writing
@@ -223,3 +223,36 @@ def test_python_dash_m_runs_the_command_line():
     assert code == 0 and out.startswith("emsource "), err
     code, _, err = run_cli("sources")
     assert code == 2 and "required" in err
+
+
+def _stop_turned_into(error_type, signum):
+    """A command body that records a stop request the way the handler does, without the raise
+    (as when a library catches it), and then fails with the library's own error."""
+    def run(args):
+        interruption._pending = signum
+        raise error_type("Operation not defined for data type class")
+    return run
+
+
+@pytest.mark.parametrize("error_type", [TypeError, ValueError])
+@pytest.mark.parametrize("signum", [signal.SIGINT, signal.SIGTERM])
+def test_a_stop_that_a_library_turned_into_its_own_error_is_still_the_stop(monkeypatch, capsys,
+                                                                            error_type, signum):
+    # Seen in CI: SIGINT arrived while h5py ran a type-conversion callback and h5py re-raised
+    # it as TypeError, so the command ended with a traceback and exit 1 instead of 130. With a
+    # stop request pending, any error is the stop (exit 130 or 128 + N), through the guard of
+    # the snapshot commands (ValueError) or past it (TypeError).
+    from emsource.commands import sources as sources_command
+
+    def register(subparsers):
+        parser = subparsers.add_parser("sources")
+        parser.set_defaults(run=lambda args: sources_command.run_guarded(
+            _stop_turned_into(error_type, signum), args))
+
+    monkeypatch.setattr(sources_command, "register", register)
+    code = main(["sources"])
+    expected = EXIT_INTERRUPTED if signum == signal.SIGINT else EXIT_SIGNAL_BASE + signum
+    assert code == expected
+    err = capsys.readouterr().err
+    assert "partial outputs removed" in err and "error:" not in err
+    assert interruption.pending() is None  # reset for the next command

@@ -61,7 +61,14 @@ def main(argv=None) -> int:
         try:
             parser = build_parser()
             args = parser.parse_args(argv)
-            code = int(args.run(args))
+            try:
+                code = int(args.run(args))
+            except Exception:
+                # A stop request raised inside a library's callback may come out as the
+                # library's own error (h5py turns it into a TypeError inside a type-conversion
+                # callback, seen in CI): with a request pending, it is the stop.
+                interruption.check()
+                raise
             interruption.check()  # a request no checkpoint saw: the outputs are complete
             return code
         except KeyboardInterrupt:

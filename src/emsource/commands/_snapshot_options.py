@@ -6,6 +6,7 @@ import argparse
 import math
 import sys
 
+from .. import interruption
 from . import EXIT_BAD_INPUT, EXIT_OUTPUT_ERROR
 
 MIB = 2**20
@@ -71,6 +72,9 @@ def show_progress(args) -> bool:
 
 
 def fail(code: int, message: str) -> int:
+    """Report an error and return ``code``; a pending stop request outranks it (raised instead:
+    the error may be what a library made of the stop, see :func:`emsource.cli.main`)."""
+    interruption.check()
     print(f"emsource: error: {message}", file=sys.stderr)
     return code
 
