@@ -45,20 +45,25 @@ def build_parser() -> argparse.ArgumentParser:
     return parser
 
 
-def _install_handlers():
-    previous = {}
+def _install_handlers(previous: dict):
+    """Install the stop-request handlers, recording each replaced handler in ``previous`` as it
+    goes: a signal may arrive between two installations, and what was installed must still be
+    restored."""
     for signum in interruption.SIGNALS:
         try:
             previous[signum] = signal.signal(signum, interruption.handle)
         except (ValueError, OSError):  # not the main thread: leave the signals alone
-            return {}
-    return previous
+            return
 
 
 def main(argv=None) -> int:
-    previous = _install_handlers()
+    previous = {}
     try:
         try:
+            # Inside the try: a SIGINT that arrives after the first handler is installed but
+            # before the last one raises here, and must still end as "interrupted" (exit 130),
+            # not as a process killed by the signal (seen under load as return code -2).
+            _install_handlers(previous)
             parser = build_parser()
             args = parser.parse_args(argv)
             try:
