@@ -264,7 +264,8 @@ def test_non_finite_data_and_shapes(small):
     E = d.E.copy()
     E[1, 14, 8, 8] = np.nan  # x = 1.5, on the sphere's stencils
     before = E.copy()
-    with pytest.raises(SnapshotError, match="electric_field interpolated to the node .* not finite"):
+    with pytest.raises(SnapshotError, match=r"electric_field component 1 is not finite at grid "
+                                            r"index \(14, 8, 8\)"):
         spheres.measure(d.gamma, E, d.B)
     np.testing.assert_array_equal(E, before)  # inputs are never modified
     with pytest.raises(ValueError, match=r"gamma must have shape \(6, 17, 17, 17\)"):
@@ -309,3 +310,16 @@ def test_time_series_from_an_evolution_loop(tmp_path):
         assert np.angle(ratio) == pytest.approx(-0.25 * OMEGA, abs=1e-3)
         assert f["power_extrapolated"][0] == pytest.approx(
             float(rows[0]["power_extrapolated"]), rel=1e-15)
+
+
+def test_non_finite_value_in_a_streamed_snapshot_names_the_grid_index(small, tmp_path):
+    grid, d = small
+    E = d.E.copy()
+    E[2, 14, 8, 8] = np.inf
+    path = tmp_path / "bad.h5"
+    io.write_snapshot(path, [{"spatial_metric": d.gamma, "electric_field": E,
+                              "magnetic_field": d.B, "time": 0.0, "grid": grid}])
+    # rows=3: the bad point lies in a later slab than the first; its index is in the whole grid
+    with pytest.raises(SnapshotError, match=r"bad.h5.*time level '0'.*electric_field component 2 "
+                                            r"is not finite at grid index \(14, 8, 8\)"):
+        radiation_snapshot(path, radii=(1.5,), l_max=1, theta_points=6, rows=3)

@@ -250,11 +250,28 @@ class ExtractionSpheres:
             for first in range(0, nodes.size, SPHERE_GATHER_NODES):
                 batch = slice(first, first + SPHERE_GATHER_NODES)
                 row = 0
-                for array in arrays:
-                    ncomp = array.shape[0]
-                    values[row:row + ncomp, nodes[batch]] = sphere.interpolate(
-                        array, valid, axis, start, points[:, batch])
+                for (quantity, ncomp), array in zip(_FIELDS, arrays):
+                    found = sphere.interpolate(array, valid, axis, start, points[:, batch])
+                    if not np.all(np.isfinite(found)):
+                        self._raise_non_finite(sphere, quantity, array, found, points[:, batch],
+                                               axis, start)
+                    values[row:row + ncomp, nodes[batch]] = found
                     row += ncomp
+
+    def _raise_non_finite(self, sphere, quantity, array, found, points, axis, start):
+        """Name the first non-finite grid value in the stencil of the first bad node."""
+        k = int(np.argmax(~np.all(np.isfinite(found), axis=0)))
+        p = self.interpolation_points
+        lows = [int(np.floor((points[a, k] - self.grid.origin[a]) / self.grid.spacing[a]))
+                - (p // 2 - 1) - (start if a == axis else 0) for a in range(3)]
+        block = array[(slice(None),) + tuple(slice(lo, lo + p) for lo in lows)]
+        c, i, j, m = np.unravel_index(int(np.argmax(~np.isfinite(block))), block.shape)
+        index = [lows[0] + i, lows[1] + j, lows[2] + m]
+        index[axis] += start
+        raise SnapshotError(
+            f"sphere of radius {sphere.radius}: {quantity} component {c} is not finite at grid "
+            f"index {tuple(int(v) for v in index)}, inside the interpolation stencil of the node "
+            f"at x = {tuple(round(float(v), 6) for v in points[:, k])}")
 
     def evaluate(self, node_values, *, units="gaussian", label="0", time=0.0) -> LevelRadiation:
         """Scalars, modes and powers from the filled node values of every sphere."""
