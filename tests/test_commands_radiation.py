@@ -71,6 +71,7 @@ def test_bad_spheres_exit_3_and_write_nothing(dipole, tmp_path, capsys, options,
 @pytest.mark.parametrize("options, message", [
     (["--radius", "1.5", "--l-max", "6", "--theta-points", "6"], "--theta-points of at least 7"),
     (["--l-max", "2"], "at least one --radius"),
+    (["--radius", "1.5", "--l-max", "25", "--theta-points", "40"], "--l-max must be at most 24"),
     (["--radius", "1.5", "--extrapolation-order", "1"], "needs at least 2 distinct radii"),
 ])
 def test_usage_errors_exit_2(dipole, tmp_path, capsys, options, message):

@@ -49,7 +49,8 @@ Spin weights (see :mod:`emsource.spin_harmonics`): +1, 0, -1. Identities used by
 :math:`|\Phi_2|^2 - |\Phi_0|^2 = \epsilon_{ijk}\hat r^i E^j B^k` (4 pi times the radial Poynting
 flux in Gaussian units, 1 times in Heaviside-Lorentz) and
 :math:`|\Phi_0|^2 + 2|\Phi_1|^2 + |\Phi_2|^2 = (E^2 + B^2)/2`.
-For an outgoing wave in flat space (B = r-hat x E) :math:`\Phi_0 = 0`, :math:`\Phi_2 = E_\theta - iE_\phi`.
+For an outgoing wave in flat space (B = r-hat x E) :math:`\Phi_0 = 0` and
+:math:`\Phi_2 = E_\theta - iE_\phi`.
 """
 
 from __future__ import annotations

@@ -17,9 +17,10 @@ def register(subparsers):
         "spin-weighted harmonics of weight +1, 0, -1; power = kappa r^2 oint |Phi2|^2 dOmega "
         "with kappa = 1/(4 pi) (Gaussian) or 1 (Heaviside-Lorentz); net flux = the same with "
         "|Phi2|^2 - |Phi0|^2 (the Poynting luminosity in flat space).",
-        epilog="Exit codes: 0 done, 2 usage (no --radius, --l-max not below --theta-points, an "
-               "--extrapolation-order with too few radii), 3 bad input (a sphere that does not "
-               "fit in the grid or whose interpolation reaches excised points, non-finite data "
+        epilog="Exit codes: 0 done, 2 usage (no --radius, --l-max above 24 or not below "
+               "--theta-points, an --extrapolation-order with too few radii), 3 bad input (a "
+               "sphere that does not fit in the grid or whose interpolation reaches excised "
+               "points, non-finite data "
                "or a metric that is not positive definite on a sphere, a missing quantity), "
                "4 an output exists (use --force) or cannot be written, 130 interrupted. "
                "Nothing is written unless every level succeeds.")
@@ -57,6 +58,11 @@ def _run(args) -> int:
 
     if not args.radius:
         return fail(EXIT_USAGE, "give at least one --radius R")
+    from ..spin_harmonics import MAX_DEGREE
+
+    if args.l_max > MAX_DEGREE:
+        return fail(EXIT_USAGE, f"--l-max must be at most {MAX_DEGREE} (round-off of the "
+                                f"spin-weighted harmonics), found {args.l_max}")
     if args.l_max >= args.theta_points:
         return fail(EXIT_USAGE, f"--l-max {args.l_max} needs --theta-points of at least "
                                 f"{args.l_max + 1} (found {args.theta_points})")
