@@ -21,9 +21,10 @@ LAYERS = (
     ("kernels", ("emsource.kernels",)),
     ("foundation", ("emsource._arguments", "emsource.errors", "emsource.grid", "emsource.unit_systems",
                     "emsource.quantities", "emsource.input_forms", "emsource._threading",
-                    "emsource.interruption", "emsource._deprecated_names")),
+                    "emsource.interruption", "emsource._deprecated_names",
+                    "emsource.spin_harmonics")),
     ("point physics", ("emsource.sources", "emsource.energy_flux", "emsource.reductions",
-                       "emsource.physical_units")),
+                       "emsource.physical_units", "emsource.newman_penrose")),
     ("package root", ("emsource",)),
     ("exact data", ("emsource.exact",)),
     ("diagnostics", ("emsource.conservation", "emsource.constraints", "emsource.unit_audit",
@@ -31,7 +32,8 @@ LAYERS = (
     ("snapshot files", ("emsource.snapshot", "emsource.io", "emsource.layout_mapping",
                         "emsource.streaming")),
     ("post-processing", ("emsource.integrals", "emsource.time_series",
-                         "emsource.sample_grids")),
+                         "emsource.sample_grids", "emsource.radiation",
+                         "emsource.radiation_output")),
     ("command line", ("emsource.commands", "emsource.cli", "emsource.__main__")),
 )
 

@@ -138,6 +138,12 @@ class _SphereRule:
         weights = self.w_mu[it] * (2 * np.pi / self.n_phi) * self.radius**2
         return self.radius * normals, normals, weights
 
+    def angles(self):
+        """Polar and azimuthal angles (theta, phi) of every node, in node order (radians)."""
+        k = np.arange(self.count)
+        it = k // self.n_phi
+        return np.arccos(self.mu[it]), 2 * np.pi * (k - it * self.n_phi) / self.n_phi
+
 
 @renamed_keywords(n_theta="theta_points")
 def sphere_quadrature(radius: float, theta_points: int):
@@ -259,6 +265,16 @@ class _Sphere:
 
     def _interpolated_flux(self, flux, valid, axis, start, points, normals, weights) -> Sum:
         """Sum of w F^i n_i over a few nodes, F^i Lagrange-interpolated from the slab."""
+        interpolated = self.interpolate(flux, valid, axis, start, points)
+        return Sum.of(np.einsum("cn,cn->n", interpolated, normals) * weights)
+
+    def interpolate(self, values, valid, axis, start, points) -> np.ndarray:
+        """``values`` (ncomp, rows, ...) Lagrange-interpolated to ``points`` (3, n): (ncomp, n).
+
+        ``values`` and ``valid`` cover the rows ``start:`` of ``axis`` (a slab with its halo, or
+        the whole grid with ``start`` 0); every node's stencil must lie in them. A stencil that
+        reaches a point with ``valid`` False is an error (:class:`SnapshotError`).
+        """
         p = self.npoints
         offsets = np.arange(p)
         index = []
@@ -274,9 +290,21 @@ class _Sphere:
         if valid is not None and not valid[index[0], index[1], index[2]].all():
             raise SnapshotError(f"the interpolation stencil of the sphere of radius {self.radius} "
                                 "reaches excised points (valid_mask = 0); choose a larger radius")
-        values = flux[:, index[0], index[1], index[2]]  # (3, n, p, p, p)
-        interpolated = np.einsum("cnijk,ni,nj,nk->cn", values, *stencil)
-        return Sum.of(np.einsum("cn,cn->n", interpolated, normals) * weights)
+        gathered = values[:, index[0], index[1], index[2]]  # (ncomp, n, p, p, p)
+        return np.einsum("cnijk,ni,nj,nk->cn", gathered, *stencil)
+
+    def slab_nodes(self, axis, start, stop):
+        """Node numbers (ascending) whose interpolation stencil starts in rows start:stop of
+        ``axis``, and their points (3, n): the nodes one slab of a streamed level serves."""
+        chosen, points = [], []
+        for first in range(0, self.count, SPHERE_SCAN_NODES):
+            last = min(first + SPHERE_SCAN_NODES, self.count)
+            p, _, _ = self.rule.nodes(first, last)
+            i0 = self._starts(p[axis], axis)
+            here = np.nonzero((i0 >= start) & (i0 < stop))[0]
+            chosen.append(here + first)
+            points.append(p[:, here])
+        return np.concatenate(chosen), np.concatenate(points, axis=1)
 
 
 def _trapezoid(n, h):
