@@ -116,10 +116,15 @@ def _run(args) -> int:
         scale, origin = physical_scale(args.mass, units), "--mass"
     elif args.code_scale is not None:
         scale, origin = scale_of(*args.code_scale, units), "--code-scale"
-    elif mapping_scale is not None:
-        scale, origin = mapping_scale, "the mapping's code_scale"
     else:
-        scale, origin = None, ""
+        scale, origin = mapping_scale, "the mapping's code_scale"
+    if scale is not None and mapping_scale is not None and not math.isclose(
+            scale.mass_solar, mapping_scale.mass_solar, rel_tol=1e-12):
+        # the stored physical values were converted with the mapping's scale: reporting them
+        # with another would give wrong physical numbers
+        return fail(EXIT_USAGE, f"{origin} gives M = {scale.mass_solar:.6g} M_sun, but the "
+                    f"mapping's code_scale is M = {mapping_scale.mass_solar:.6g} M_sun; leave "
+                    "the option out or make them agree")
     table = time_series_table(results, scale)
     attributes["mass_scale_solar"] = float(scale.mass_solar if scale is not None else 0.0)
     attributes["units"] = units
