@@ -290,7 +290,7 @@ class LayoutMapping:
                                "or identity = true) to give B^i = [ijk] d_j A_k / sqrt(gamma)")
         add_curl_sources(stored, derived, order=self.quantities["vector_potential"].curl_order,
                          spacing_xyz=spacing, axis_order=self.axis_order,
-                         identity_metric=derived.get("spatial_metric"))
+                         identity_metric=derived.get("spatial_metric"), where=where)
 
     def _time(self, group, index, where):
         if "per_index" in self.time:

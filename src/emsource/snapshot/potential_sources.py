@@ -22,6 +22,7 @@ from __future__ import annotations
 import numpy as np
 
 from ..potential import curl_interior, magnetic_field_from_potential, potential_radii
+from .errors import MappingError
 
 __all__ = ["add_curl_sources"]
 
@@ -44,14 +45,18 @@ def _halo_rows(start, stop, rows, radius):
 class _Halo:
     """What both derived sources share: the storage geometry and the stored valid_mask."""
 
-    def __init__(self, storage_shape, axis_order, order, mask_source):
+    def __init__(self, storage_shape, axis_order, order, mask_source, where):
         self.storage_shape = tuple(storage_shape)
         self.axis_order = axis_order
         self.order = order
         self.mask_source = mask_source
         xyz = self.storage_shape if axis_order == "xyz" else self.storage_shape[::-1]
         # also checks that every axis fits a stencil (an error naming the axis otherwise)
-        radii = potential_radii("vector_potential", order, xyz)
+        try:
+            radii = potential_radii("vector_potential", order, xyz)
+        except ValueError as error:
+            raise MappingError(f"{where}: [quantities.vector_potential] curl_order = {order} "
+                               f"on the grid {xyz}: {error}") from None
         self.radius = radii[0] if axis_order == "xyz" else radii[2]
 
     def to_xyz(self, stored):
@@ -135,7 +140,8 @@ class CurlValidMask:
         out[...] = interior[start - lo:stop - lo]
 
 
-def add_curl_sources(stored, derived, *, order, spacing_xyz, axis_order, identity_metric):
+def add_curl_sources(stored, derived, *, order, spacing_xyz, axis_order, identity_metric,
+                     where=""):
     """Register the derived ``magnetic_field`` and ``valid_mask`` of a level whose ``stored``
     sources hold ``vector_potential`` (module docstring).
 
@@ -146,7 +152,7 @@ def add_curl_sources(stored, derived, *, order, spacing_xyz, axis_order, identit
     mask = stored.get("valid_mask")
 
     def halo(storage):
-        return _Halo(storage, axis_order, order, mask)
+        return _Halo(storage, axis_order, order, mask, where)
 
     def magnetic_field(storage):
         metric = stored.get("spatial_metric") or identity_metric(storage)
