@@ -9,6 +9,13 @@ order 2: w = (1/2),            c = -2,      v = (1)
 order 4: w = (2/3, -1/12),     c = -5/2,    v = (4/3, -1/12)
 order 6: w = (3/4, -3/20, 1/60), c = -49/18, v = (3/2, -3/20, 1/90)
 
+Staggered first derivative at the half point x + h/2, from values at x + (m - 1/2 +- 1/2) h
+(used where a quantity sits between the points of another, as on an edge-staggered grid):
+
+    f'(x + h/2) ~ (1/h) sum_{m=1..r} s_m (f(x + m h) - f(x - (m - 1) h))
+
+order 2: s = (1),  order 4: s = (9/8, -1/24)  (staggered orders: :data:`STAGGERED_ORDERS`).
+
 Reference: B. Fornberg, "Generation of finite difference formulas on arbitrarily spaced grids",
 Math. Comp. 51, 699 (1988), Table 1 (values from memory; ``tests/test_stencils.py`` derives
 them independently from Taylor series with sympy).
@@ -31,13 +38,16 @@ from ._compile import point_function
 
 __all__ = [
     "SUPPORTED_ORDERS",
+    "STAGGERED_ORDERS",
     "first_derivative_weights",
+    "staggered_derivative_weights",
     "second_derivative_weights",
     "stencil_radius",
     "d1",
     "d2",
     "d11",
     "d1_column",
+    "d1_staggered",
 ]
 
 SUPPORTED_ORDERS = (2, 4, 6)
@@ -46,6 +56,12 @@ _FIRST = {
     2: (1.0 / 2.0,),
     4: (2.0 / 3.0, -1.0 / 12.0),
     6: (3.0 / 4.0, -3.0 / 20.0, 1.0 / 60.0),
+}
+STAGGERED_ORDERS = (2, 4)
+
+_STAGGERED = {
+    2: (1.0,),
+    4: (9.0 / 8.0, -1.0 / 24.0),
 }
 _SECOND = {
     2: (-2.0, (1.0,)),
@@ -70,6 +86,14 @@ def first_derivative_weights(order: int, dtype=np.float64) -> np.ndarray:
     return np.array(_FIRST[_check_order(order)], dtype=dtype)
 
 
+def staggered_derivative_weights(order: int, dtype=np.float64) -> np.ndarray:
+    """Weights s_1..s_r of the staggered first derivative at a half point (module docstring)."""
+    if order not in STAGGERED_ORDERS:
+        raise ValueError(f"staggered finite-difference order must be one of {STAGGERED_ORDERS}, "
+                         f"found {order!r}")
+    return np.array(_STAGGERED[order], dtype=dtype)
+
+
 def second_derivative_weights(order: int, dtype=np.float64) -> np.ndarray:
     """Weights (c, v_1..v_r) of the centred second derivative, centre weight first."""
     centre, sides = _SECOND[_check_order(order)]
@@ -92,6 +116,23 @@ def d1(f, c, i, j, k, axis, weights, inv_h):
     for m in range(1, weights.shape[0] + 1):
         ip, jp, kp = _shift(i, j, k, axis, m)
         im, jm, km = _shift(i, j, k, axis, -m)
+        total += weights[m - 1] * (f[c, ip, jp, kp] - f[c, im, jm, km])
+    return total * inv_h
+
+
+@point_function
+def d1_staggered(f, c, i, j, k, axis, weights, inv_h):
+    """d f[c] / d x^axis half a step beyond (i, j, k) along ``axis`` (at index + 1/2).
+
+    ``weights`` from :func:`staggered_derivative_weights`; reaches indices index - r + 1 to
+    index + r along ``axis``. Indices must be signed: a ``prange(n)`` index is unsigned in
+    Numba, and unsigned + signed is float64 (an invalid index); start such loops at a signed
+    variable (``prange(first, n)``).
+    """
+    total = f[c, i, j, k] * 0
+    for m in range(1, weights.shape[0] + 1):
+        ip, jp, kp = _shift(i, j, k, axis, m)
+        im, jm, km = _shift(i, j, k, axis, 1 - m)
         total += weights[m - 1] * (f[c, ip, jp, kp] - f[c, im, jm, km])
     return total * inv_h
 

@@ -38,7 +38,7 @@ def test_summary_csv_hdf5_and_plot(dipole, tmp_path, capsys):
     assert code == EXIT_OK
     text = capsys.readouterr().out
     assert "scenario     test dipole" in text and "L(r=2.5)" in text and "erg/s" in text
-    assert " G = " in text and " T" in text
+    assert "max |B| [G]" in text and "max |B| [T]" in text
     with open(csv_path) as handle:
         rows = list(csv.DictReader(handle))
     assert [float(r["time"]) for r in rows] == [0.0, 0.5]

@@ -112,7 +112,10 @@ BASE_MAPPING = {
         "magnetic_field": {"components": ["fields/Bx", "fields/By", "/run/step_0/fields/Bz"]},
         "valid_mask": {"components": ["fields/ok"]},
     },
+    # physical-unit keys (emsource.snapshot.mapping_units), so that random edits reach them
+    "physical_units": {"code_scale": {"value": 1.0, "unit": "solar_mass"}, "time_unit": "s"},
 }
+BASE_MAPPING["quantities"]["electric_field"]["unit"] = "statV/cm"
 
 
 def _zyx(a):

@@ -60,7 +60,7 @@ def test_mechanical_units():
 
 def test_bad_mass_scale():
     for bad in (0.0, -1.0, float("nan"), float("inf")):
-        with pytest.raises(ValueError, match="mass scale must be positive"):
+        with pytest.raises(ValueError, match="mass_solar must be a positive finite number"):
             physical_scale(bad)
     with pytest.raises(ValueError, match="units must be one of"):
         physical_scale(1.0, "si")

@@ -42,6 +42,24 @@ def test_weights_match_a_taylor_series_derivation(order):
     assert all(second[-m] == second[m] for m in range(1, r + 1))
 
 
+@pytest.mark.parametrize("order", stencils.STAGGERED_ORDERS)
+def test_staggered_weights_match_a_taylor_series_derivation(order):
+    # Points at half-integer offsets +-1/2, +-3/2, ... around the evaluation point: the weights
+    # that reproduce f'(0) h through order p (a Vandermonde system in the offsets, common
+    # practice), antisymmetric, so s_m is the weight of offset m - 1/2.
+    r = order // 2
+    offsets = [sp.Rational(2 * m - 1, 2) for m in range(1, r + 1)]
+    offsets = [-o for o in reversed(offsets)] + offsets
+    c = sp.symbols(f"c0:{len(offsets)}")
+    equations = [sum(ci * o**q for ci, o in zip(c, offsets)) - (1 if q == 1 else 0)
+                 for q in range(len(offsets))]
+    solution = sp.solve(equations, c)
+    derived = [float(solution[c[r + m]]) for m in range(r)]
+    np.testing.assert_allclose(stencils.staggered_derivative_weights(order), derived, rtol=1e-15)
+    with pytest.raises(ValueError, match=r"staggered finite-difference order must be one of"):
+        stencils.staggered_derivative_weights(6)
+
+
 def test_unsupported_order_is_rejected():
     with pytest.raises(ValueError, match=r"order must be one of \(2, 4, 6\), found 3"):
         stencils.first_derivative_weights(3)

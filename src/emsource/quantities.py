@@ -21,7 +21,8 @@ kind
     indices), or "mask" (uint8 flags, 1 = valid).
 dimension
     Unit dimension in code units (G = c = 1): "dimensionless", "1/length", "field" (E, B),
-    "field^2" (energy density and stresses), "field^2/c" (momentum density), "charge/length^3", "charge/length^2/time".
+    "field^2" (energy density and stresses), "field^2/c" (momentum density), "field*length" (the vector
+    potential A_i), "charge/length^3", "charge/length^2/time".
 role
     "input" (read by the computations), "mask" or "output" (written by ``emsource sources``).
 
@@ -69,6 +70,8 @@ TABLE = (
     Quantity("magnetic_field", "B", 3, "vector", "field", "input"),
     Quantity("charge_density", "charge_density", 0, "scalar", "charge/length^3", "input"),
     Quantity("current_density", "current_density", 3, "vector", "charge/length^2/time", "input"),
+    # A_i: read through a mapping, which derives B^i from it (emsource.snapshot.potential_sources)
+    Quantity("vector_potential", "A", 3, "covector", "field*length", "input"),
     Quantity("valid_mask", "valid_mask", 0, "mask", "dimensionless", "mask"),
     Quantity("energy_density", "rho", 0, "scalar", "field^2", "output"),
     Quantity("momentum_density", "S_i", 3, "covector", "field^2/c", "output"),
@@ -99,7 +102,8 @@ DIMENSIONS = {
     "field": {"E": ("electric_field_statV_cm", "electric_field_V_m"),
               "B": ("magnetic_field_G", "magnetic_field_T")},
     "field^2": ("energy_density_erg_cm3", "energy_density_J_m3"),
-    "field^2/c": None,
+    "field^2/c": ("momentum_density_g_cm2_s", "momentum_density_kg_m2_s"),
+    "field*length": ("vector_potential_G_cm", "vector_potential_T_m"),
     "charge/length^3": None,
     "charge/length^2/time": None,
 }
@@ -116,10 +120,10 @@ def components(name: str) -> int:
 def heaviside_lorentz_factor(name: str) -> float:
     """Factor that turns a Gaussian code-unit value of ``name`` into Heaviside-Lorentz.
 
-    1 / sqrt(4 pi) for fields, sqrt(4 pi) for charge and current densities, 1 otherwise.
+    1 / sqrt(4 pi) for fields and the vector potential, sqrt(4 pi) for charge and current densities, 1 otherwise.
     """
     dimension = BY_NAME[name].dimension
-    if dimension == "field":
+    if dimension in ("field", "field*length"):
         return 1.0 / math.sqrt(4.0 * math.pi)
     if dimension.startswith("charge"):
         return math.sqrt(4.0 * math.pi)

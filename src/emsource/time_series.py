@@ -3,9 +3,14 @@
 One row per time level. Columns (code units, G = c = 1, the snapshot's unit system):
 ``level, time, energy, momentum_x, momentum_y, momentum_z, flux_x_lower, flux_x_upper,
 flux_y_lower, flux_y_upper, flux_z_lower, flux_z_upper, net_flux, max_electric_field,
-max_magnetic_field`` and ``luminosity_r<R>`` for each sphere radius R. With a mass scale, the
-physical columns ``energy_erg, energy_J, luminosity_r<R>_erg_s, luminosity_r<R>_W,
-max_magnetic_field_G, max_magnetic_field_T`` follow.
+max_magnetic_field`` and ``luminosity_r<R>`` for each sphere radius R. With a physical scale
+(:class:`emsource.physical_units.PhysicalScale`), every code column but ``level`` gets its value
+in cgs and in SI units, in columns named ``<column>_<unit>`` after the code columns
+(:data:`PHYSICAL_COLUMNS`): ``time_s``; ``energy_erg, energy_J``; ``momentum_x_g_cm_s,
+momentum_x_kg_m_s`` (and y, z); ``flux_<face>_erg_s, flux_<face>_W`` and ``net_flux_erg_s,
+net_flux_W``; ``max_electric_field_statV_cm, max_electric_field_V_m``; ``max_magnetic_field_G,
+max_magnetic_field_T``; ``luminosity_r<R>_erg_s, luminosity_r<R>_W``. The radius R in a column
+name stays in code units.
 
 The HDF5 file holds one 1D dataset per column under the root, with attributes ``columns`` (the
 order), ``mass_scale_solar`` (0 if none) and the provenance attributes of
@@ -23,7 +28,31 @@ import numpy as np
 from .integrals import FACES
 from .snapshot import atomic_output, hdf5_output
 
-__all__ = ["time_series_table", "write_csv", "write_hdf5", "write_plot"]
+__all__ = ["PHYSICAL_COLUMNS", "time_series_table", "write_csv", "write_hdf5", "write_plot"]
+
+#: Code column (or its prefix, for momentum, fluxes and luminosities) -> the (unit suffix,
+#: PhysicalScale attribute) pairs of its physical columns, cgs first.
+PHYSICAL_COLUMNS = {
+    "time": (("s", "time_s"),),
+    "energy": (("erg", "energy_erg"), ("J", "energy_J")),
+    "momentum_": (("g_cm_s", "momentum_g_cm_s"), ("kg_m_s", "momentum_kg_m_s")),
+    "flux_": (("erg_s", "power_erg_s"), ("W", "power_W")),
+    "net_flux": (("erg_s", "power_erg_s"), ("W", "power_W")),
+    "max_electric_field": (("statV_cm", "electric_field_statV_cm"),
+                           ("V_m", "electric_field_V_m")),
+    "max_magnetic_field": (("G", "magnetic_field_G"), ("T", "magnetic_field_T")),
+    "luminosity_r": (("erg_s", "power_erg_s"), ("W", "power_W")),
+}
+
+
+def _physical_units_of(column):
+    """The (suffix, attribute) pairs of a code column ("" for ``level``)."""
+    if column in PHYSICAL_COLUMNS:
+        return PHYSICAL_COLUMNS[column]
+    for prefix in ("momentum_", "flux_", "luminosity_r"):
+        if column.startswith(prefix):
+            return PHYSICAL_COLUMNS[prefix]
+    return ()
 
 
 def _radius_name(r: float) -> str:
@@ -45,14 +74,10 @@ def time_series_table(results, scale=None) -> dict:
     for radius in radii:
         table[_radius_name(radius)] = [r.luminosity[radius] for r in results]
     if scale is not None:
-        table["energy_erg"] = [v * scale.energy_erg for v in table["energy"]]
-        table["energy_J"] = [v * scale.energy_J for v in table["energy"]]
-        for radius in radii:
-            name = _radius_name(radius)
-            table[f"{name}_erg_s"] = [v * scale.luminosity_erg_s for v in table[name]]
-            table[f"{name}_W"] = [v * scale.luminosity_W for v in table[name]]
-        table["max_magnetic_field_G"] = [v * scale.magnetic_field_G for v in table["max_magnetic_field"]]
-        table["max_magnetic_field_T"] = [v * scale.magnetic_field_T for v in table["max_magnetic_field"]]
+        for column in list(table):
+            for suffix, attribute in _physical_units_of(column):
+                factor = getattr(scale, attribute)
+                table[f"{column}_{suffix}"] = [v * factor for v in table[column]]
     return table
 
 

@@ -5,7 +5,7 @@ from __future__ import annotations
 import argparse
 import math
 
-from . import EXIT_OK, EXIT_OUTPUT_ERROR
+from . import EXIT_OK, EXIT_OUTPUT_ERROR, EXIT_USAGE
 from ._snapshot_options import (add_input_options, check_new_output, fail, positive_number,
                                run_guarded, show_progress, whole_number_at_least)
 
@@ -15,6 +15,24 @@ HELP = "integrate energy, momentum, face fluxes and sphere luminosities over a s
 def radius(text: str) -> float:
     """``--radius``: a positive finite number (anything else is a usage error, exit 2)."""
     return positive_number(text, "a sphere radius")
+
+
+class _CodeScale(argparse.Action):
+    """``--code-scale VALUE UNIT``: a positive number and a unit of :data:`SCALE_UNITS`
+    (anything else is a usage error, exit 2)."""
+
+    def __call__(self, parser, namespace, values, option_string=None):
+        from ..physical_units import SCALE_UNITS
+
+        text, unit = values
+        try:
+            value = positive_number(text, "the code scale")
+        except argparse.ArgumentTypeError as error:
+            parser.error(f"argument {option_string}: {error}")
+        if unit not in SCALE_UNITS:
+            parser.error(f"argument {option_string}: unit must be one of "
+                         f"{', '.join(SCALE_UNITS)}, found {unit!r}")
+        setattr(namespace, self.dest, (value, unit))
 
 
 def register(subparsers):
@@ -46,6 +64,10 @@ def register(subparsers):
     parser.add_argument("--mass", metavar="MSUN",
                         type=lambda text: positive_number(text, "mass", " of solar masses"),
                         help="mass scale in solar masses: also report cgs and SI values")
+    parser.add_argument("--code-scale", nargs=2, metavar=("VALUE", "UNIT"), action=_CodeScale,
+                        help="one code unit of length (m, cm), time (s) or mass (g, kg, "
+                             "solar_mass), e.g. '--code-scale 1 m': also report cgs and SI "
+                             "values (default: the mapping's [physical_units] code_scale)")
     parser.add_argument("--csv", metavar="FILE", help="write the time series as CSV")
     parser.add_argument("--hdf5", metavar="FILE", help="write the time series as HDF5")
     parser.add_argument("--plot", metavar="PNG", help="plot energy and fluxes against time "
@@ -57,9 +79,11 @@ def register(subparsers):
 def _run(args) -> int:
     from ..integrals import integrate_open_snapshot
     from ..snapshot import open_snapshot
-    from ..physical_units import physical_scale
+    from ..physical_units import physical_scale, scale_of
     from ..time_series import time_series_table, write_csv, write_hdf5, write_plot
 
+    if args.mass is not None and args.code_scale is not None:
+        return fail(EXIT_USAGE, "give --mass or --code-scale, not both")
     outputs = [p for p in (args.csv, args.hdf5, args.plot) if p]
     if len(set(outputs)) != len(outputs):
         return fail(EXIT_OUTPUT_ERROR, "--csv, --hdf5 and --plot must name different files")
@@ -82,12 +106,27 @@ def _run(args) -> int:
         options = {"radii": args.radius, "theta_points": args.theta_points,
                    "interpolation_points": args.interpolation_points, "mass_solar": args.mass,
                    "memory_limit_bytes": args.memory_limit, "levels": [r.label for r in results]}
+        if args.code_scale is not None:
+            options["code_scale"] = list(map(str, args.code_scale))
         attributes = snap.provenance(chosen, ("spatial_metric", "electric_field",
                                               "magnetic_field", "lapse", "shift", "valid_mask"),
                                      options)
-    scale = physical_scale(args.mass, units) if args.mass is not None else None
+        mapping_scale = snap.physical_scale
+    if args.mass is not None:
+        scale, origin = physical_scale(args.mass, units), "--mass"
+    elif args.code_scale is not None:
+        scale, origin = scale_of(*args.code_scale, units), "--code-scale"
+    else:
+        scale, origin = mapping_scale, "the mapping's code_scale"
+    if scale is not None and mapping_scale is not None and not math.isclose(
+            scale.mass_solar, mapping_scale.mass_solar, rel_tol=1e-12):
+        # the stored physical values were converted with the mapping's scale: reporting them
+        # with another would give wrong physical numbers
+        return fail(EXIT_USAGE, f"{origin} gives M = {scale.mass_solar:.6g} M_sun, but the "
+                    f"mapping's code_scale is M = {mapping_scale.mass_solar:.6g} M_sun; leave "
+                    "the option out or make them agree")
     table = time_series_table(results, scale)
-    attributes["mass_scale_solar"] = float(args.mass or 0.0)
+    attributes["mass_scale_solar"] = float(scale.mass_solar if scale is not None else 0.0)
     attributes["units"] = units
     if args.csv:
         write_csv(args.csv, table, force=args.force)
@@ -96,11 +135,11 @@ def _run(args) -> int:
     if args.plot:
         write_plot(args.plot, table, force=args.force)
     if not args.quiet:
-        print(summary(args, results, scale, description, units, grid, count, outputs))
+        print(summary(args, results, scale, description, units, grid, count, outputs, origin))
     return EXIT_OK
 
 
-def summary(args, results, scale, description, units, grid, count, outputs) -> str:
+def summary(args, results, scale, description, units, grid, count, outputs, origin="--mass") -> str:
     nx, ny, nz = grid.shape
     lines = ["emsource integrate: done",
              f"  input        {args.snapshot}"
@@ -125,22 +164,44 @@ def summary(args, results, scale, description, units, grid, count, outputs) -> s
     if any(r.excised_points for r in results):
         lines.append(f"  excised      {results[0].excised_points} points (valid_mask = 0) "
                      "left out of the volume integrals")
-    last = results[-1]
     if scale is not None:
-        lines.append(f"  physical units for M = {scale.mass_solar:g} M_sun (length unit "
-                     f"{scale.length_cm:.4g} cm, time unit {scale.time_s:.4g} s), last level:")
-        lines.append(f"    {'energy':<17}{last.energy * scale.energy_erg:.4g} erg = "
-                     f"{last.energy * scale.energy_J:.4g} J")
-        for radius in radii:
-            value = last.luminosity[radius]
-            lines.append(f"    {'L(r=' + format(radius, 'g') + ')':<17}{value * scale.luminosity_erg_s:.4g} erg/s = "
-                         f"{value * scale.luminosity_W:.4g} W   (r = {radius * scale.length_cm:.4g} cm)")
-        lines.append(f"    {'max |B|':<17}{last.max_magnetic_field * scale.magnetic_field_G:.4g} G "
-                     f"= {last.max_magnetic_field * scale.magnetic_field_T:.4g} T")
-        lines.append(f"    {'max |E|':<17}{last.max_electric_field * scale.electric_field_statV_cm:.4g}"
-                     f" statV/cm = {last.max_electric_field * scale.electric_field_V_m:.4g} V/m")
+        lines.extend(physical_lines(results, scale, radii, origin))
     else:
-        lines.append("  (give --mass MSUN for cgs and SI values)")
+        lines.append("  (give --mass MSUN or --code-scale VALUE UNIT, or a mapping's code_scale, "
+                     "for cgs and SI values)")
     for path in outputs:
         lines.append(f"  wrote        {path}")
     return "\n".join(lines)
+
+
+#: (heading, unit, PhysicalScale attribute) of each summary column in SI and in cgs.
+_PHYSICAL_SUMMARY = {
+    "SI": (("t", "s", "time_s"), ("energy", "J", "energy_J"),
+           ("|momentum|", "kg m/s", "momentum_kg_m_s"), ("flux out", "W", "power_W"),
+           ("max |E|", "V/m", "electric_field_V_m"), ("max |B|", "T", "magnetic_field_T")),
+    "cgs": (("t", "s", "time_s"), ("energy", "erg", "energy_erg"),
+            ("|momentum|", "g cm/s", "momentum_g_cm_s"), ("flux out", "erg/s", "power_erg_s"),
+            ("max |E|", "statV/cm", "electric_field_statV_cm"),
+            ("max |B|", "G", "magnetic_field_G")),
+}
+
+
+def physical_lines(results, scale, radii, origin) -> list:
+    """The summary's SI and cgs tables: every reported quantity of every level."""
+    lines = [f"  physical units ({origin}): M = {scale.mass_solar:.6g} M_sun, code length "
+             f"{scale.length_m:.6g} m = {scale.length_cm:.6g} cm, code time {scale.time_s:.6g} s"]
+    for system, columns in _PHYSICAL_SUMMARY.items():
+        power = columns[3]
+        headings = [f"{name} [{unit}]" for name, unit, _ in columns]
+        headings += [f"L(r={r:g}) [{power[1]}]" for r in radii]
+        lines.append(f"  {system}:" + "".join(f" {h:>19}" for h in headings))
+        for r in results:
+            p = math.sqrt(float(sum(v * v for v in r.momentum)))
+            values = [r.time, r.energy, p, r.net_flux, r.max_electric_field, r.max_magnetic_field]
+            row = [v * getattr(scale, attribute) for v, (_, _, attribute) in zip(values, columns)]
+            row += [r.luminosity[radius] * getattr(scale, power[2]) for radius in radii]
+            lines.append("      " + "".join(f" {v:>19.6g}" for v in row))
+    if radii:
+        lines.append("  sphere radii: " + ", ".join(f"r = {r:g} (code) = {r * scale.length_m:.6g} m"
+                                                   for r in radii))
+    return lines

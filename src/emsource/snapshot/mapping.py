@@ -27,6 +27,17 @@ levels are found and where the grid's spacing and origin come from. Example (eve
     [quantities.spatial_metric]
     identity = true                         # flat metric gamma_ij = delta_ij, nothing stored
 
+    [quantities.vector_potential]           # A_i stored instead of magnetic_field: B^i is its
+    dataset = "A"                           # curl (emsource.snapshot.potential_sources)
+    curl_order = 4                          # centred differences of order 2 (default), 4 or 6
+    unit = "T m"                            # stored in physical units (see below)
+
+    [physical_units]                        # optional (emsource.snapshot.mapping_units)
+    code_scale = { value = 1.0, unit = "m" }   # one code unit: length (m, cm), time (s) or
+                                            # mass (g, kg, solar_mass)
+    length_unit = "m"                       # spacing and origin stored in m (or cm)
+    time_unit = "s"                         # level times stored in seconds
+
 One rule for the order of the grid triples: ``spacing`` and ``origin`` are read in the file's
 storage order (``axis_order``), whether they are given as three values or as an attribute; for
 ``axis_order = "zyx"`` both mean (z, y, x). Component lists and packed tensors are always in
@@ -53,6 +64,8 @@ import numpy as np
 
 from ..quantities import BY_NAME, COMPONENTS, NAMES
 from .errors import MappingError
+from .mapping_units import MappingUnits, parse_physical_units
+from .potential_sources import add_curl_sources
 from .levels import (AXIS_ORDERS, UNIT_SYSTEMS, attribute_number, attribute_vector, build_level,
                      chunk_bytes_of, chunk_rows_of, kind_of, open_object)
 
@@ -65,12 +78,14 @@ __all__ = ["LayoutMapping", "QuantitySpec", "load_mapping", "MAPPING_VERSION"]
 
 MAPPING_VERSION = 1
 
-_TOP_KEYS = {"mapping_version", "axis_order", "units", "time_levels", "grid", "quantities"}
+_TOP_KEYS = {"mapping_version", "axis_order", "units", "time_levels", "grid", "quantities",
+             "physical_units"}
 _LEVEL_KEYS = {"pattern", "time"}
 _TIME_KEYS = {"attribute", "object", "per_index"}
 _GRID_KEYS = {"spacing", "origin"}
 _ATTRIBUTE_KEYS = {"attribute", "object"}
-_QUANTITY_KEYS = {"dataset", "components", "component_axis", "scale", "identity"}
+_QUANTITY_KEYS = {"dataset", "components", "component_axis", "scale", "identity", "unit",
+                  "curl_order"}
 
 
 @dataclass
@@ -83,6 +98,7 @@ class QuantitySpec:
     component_axis: str = "first"
     scale: float = 1.0
     identity: bool = False
+    curl_order: int = 2
 
 
 class _Checker:
@@ -218,6 +234,7 @@ class LayoutMapping:
     spacing: object
     origin: object
     quantities: dict = field(default_factory=dict)
+    physical_units: MappingUnits = field(default_factory=MappingUnits)
 
     def _level_groups(self, h5file):
         regex = re.compile("^" + re.escape(self.pattern.strip("/")).replace(
@@ -247,20 +264,33 @@ class LayoutMapping:
         for index, name in groups:
             group = h5file[name]
             lw = f"{where}, level /{name}"
-            time = self._time(group, index, lw)
+            time = self._time(group, index, lw) * self.physical_units.time_factor
             spacing = self._vector(group, self.spacing, "spacing", lw)
             origin = self._vector(group, self.origin, "origin", lw)
+            spacing, origin = (tuple(v * self.physical_units.length_factor for v in triple)
+                               for triple in (spacing, origin))
             stored, derived = {}, {}
             for q, spec in self.quantities.items():
                 if spec.identity:
                     derived[q] = _IdentityMetric
                 else:
                     stored[q] = self._source(h5file, group, spec, lw, listing)
+            if "vector_potential" in stored:
+                self._curl_sources(stored, derived, spacing, lw)
             levels.append(build_level(
                 str(index), time, self.units, self.axis_order, origin, spacing, stored, where,
                 derived=derived, listing=text,
                 expected_grid=levels[0].storage_shape if levels else None))
         return levels
+
+    def _curl_sources(self, stored, derived, spacing, where):
+        """B^i from the stored vector potential (:mod:`.potential_sources`)."""
+        if "spatial_metric" not in stored and "spatial_metric" not in derived:
+            raise MappingError(f"{where}: vector_potential needs the spatial_metric (a dataset, "
+                               "or identity = true) to give B^i = [ijk] d_j A_k / sqrt(gamma)")
+        add_curl_sources(stored, derived, order=self.quantities["vector_potential"].curl_order,
+                         spacing_xyz=spacing, axis_order=self.axis_order,
+                         identity_metric=derived.get("spatial_metric"), where=where)
 
     def _time(self, group, index, where):
         if "per_index" in self.time:
@@ -389,6 +419,10 @@ def load_mapping(path) -> LayoutMapping:
 
     quantities = table["quantities"]
     check.keys(quantities, set(NAMES), "[quantities]")
+    unit_scales, unit_factors = parse_physical_units(table, quantities, units, check)
+    if "vector_potential" in quantities and "magnetic_field" in quantities:
+        check.fail("[quantities] names both magnetic_field and vector_potential; B^i is derived "
+                   "from vector_potential, give one of them")
     specs = {}
     for name, q in quantities.items():
         where = f"[quantities.{name}]"
@@ -400,6 +434,14 @@ def load_mapping(path) -> LayoutMapping:
                 check.fail(f"{where} takes no scale: a mask holds 0 and 1, found scale = "
                            f"{q['scale']!r}")
             spec.scale = check.number(q["scale"], f"{where} scale", nonzero=True)
+        if "curl_order" in q:
+            if name != "vector_potential":
+                check.fail(f"{where} curl_order applies to vector_potential only")
+            order = q["curl_order"]
+            if isinstance(order, bool) or order not in (2, 4, 6):
+                check.fail(f"{where} curl_order must be one of [2, 4, 6], found {order!r}")
+            spec.curl_order = int(order)
+        spec.scale *= unit_factors.get(name, 1.0)
         if "component_axis" in q:
             spec.component_axis = check.text(q["component_axis"], f"{where} component_axis",
                                              ("first", "last"))
@@ -429,4 +471,5 @@ def load_mapping(path) -> LayoutMapping:
         specs[name] = spec
     return LayoutMapping(path=os.path.abspath(path), axis_order=axis_order, units=units,
                          pattern=pattern, time=time, spacing=vectors["spacing"],
-                         origin=vectors["origin"], quantities=specs)
+                         origin=vectors["origin"], quantities=specs,
+                         physical_units=unit_scales)

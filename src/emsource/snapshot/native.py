@@ -20,6 +20,8 @@ One HDF5 file holds one or more time levels of one 3D uniform grid::
             +-- magnetic_field          (3, *grid)     B^i
             +-- charge_density          (*grid)
             +-- current_density         (3, *grid)
+            +-- vector_potential        (3, *grid)     A_i (covariant); B^i is derived from it
+            |                                          through a mapping only (.potential_sources)
             +-- valid_mask              (*grid) uint8, 1 where the data are valid (optional)
             +-- energy_density          (*grid)        outputs of ``emsource sources``: rho,
             +-- momentum_density        (3, *grid)     S_i (covariant),

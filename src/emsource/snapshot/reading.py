@@ -70,12 +70,15 @@ class SnapshotFile:
         The layout mapping used, if any (absolute).
     description : str
         The root attribute ``description`` (free text about the scenario), or "".
+    physical_scale : PhysicalScale or None
+        The code's physical scale declared by the mapping (``[physical_units] code_scale``).
     """
 
-    def __init__(self, path, h5file, levels, mapping_path=None):
+    def __init__(self, path, h5file, levels, mapping_path=None, physical_scale=None):
         self.path = path
         self.levels = levels
         self.mapping_path = mapping_path
+        self.physical_scale = physical_scale
         # Free text about the scenario; anything that is not text is left out.
         description = h5file.attrs.get("description", "")
         if isinstance(description, np.ndarray) and description.shape == ():
@@ -160,7 +163,9 @@ def open_snapshot(path, mapping=None) -> SnapshotFile:
             levels = native_levels(h5file, path, listing)
         else:
             levels = mapping.levels(h5file, path, listing)
-        return SnapshotFile(path, h5file, levels, None if mapping is None else mapping.path)
+        if mapping is None:
+            return SnapshotFile(path, h5file, levels)
+        return SnapshotFile(path, h5file, levels, mapping.path, mapping.physical_units.scale)
     except SnapshotError:
         h5file.close()
         raise
