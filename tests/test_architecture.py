@@ -23,7 +23,7 @@ LAYERS = (
                     "emsource.quantities", "emsource.input_forms", "emsource._threading",
                     "emsource.interruption", "emsource._deprecated_names")),
     ("point physics", ("emsource.sources", "emsource.energy_flux", "emsource.reductions",
-                       "emsource.physical_units")),
+                       "emsource.physical_units", "emsource.patches")),
     ("package root", ("emsource",)),
     ("exact data", ("emsource.exact",)),
     ("diagnostics", ("emsource.conservation", "emsource.constraints", "emsource.unit_audit",
