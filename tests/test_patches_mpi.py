@@ -115,3 +115,46 @@ def test_every_rank_has_the_single_process_results(ranks, reference, tmp_path):
     for layout, results in first.items():
         assert set(results) <= set(ref) and results, layout
         check_against_reference(results, ref, magnitudes, ranks)
+
+
+#: Scenario of ``bad_patches.py`` -> (ranks that must be named, text the message must hold).
+BAD_PATCHES = {
+    "overlap": ([0], "overlaps rank 1's at global indices (4, 0, 0) to (4, 11, 10)"),
+    "gap": ([2], "leave 132 of 1716 grid points unowned (a gap), first at global index (12, 0, 0)"),
+    "spacing": ([1], "spacing (0.08333333333333333, 0.08636363636363636"),
+    "origin": ([2], "global origin (0.0, 0.0, 0.01) differs from rank 0's (0.0, 0.0, 0.0)"),
+    "thin_ghosts": ([1], "order 4 (stencil radius 2) needs 2 valid ghost layers next to a "
+                         "neighbouring patch, found 1 (ghost = 1)"),
+    "too_few_valid": ([0, 1, 2], "found 1 (ghost = 2, valid_ghosts = 1)"),
+    "nan_on_one_rank": ([2], "grid index (11, 3, 4): non-finite value(s): E[1] = nan"),
+    "wrong_shape": ([0], "gamma must cover the patch's local array, grid axes (7, 12, 11)"),
+    "not_a_patch": ([1], "the grid is not an emsource.patches.PatchGrid"),
+}
+
+
+def test_bad_patches_and_bad_data_are_reported_on_every_rank(tmp_path):
+    """Overlaps, gaps, another spacing or origin, too few ghosts, NaN or a wrong shape on some
+    ranks: every rank raises PatchError naming the offending ranks, and all ranks go on to the
+    next scenario (nobody is left waiting in a collective call)."""
+    done = run_ranks(3, "bad_patches.py", tmp_path, timeout=120)
+    assert done.returncode == 0, done.stderr[-3000:]
+    outputs = [json.loads((tmp_path / f"rank-{r}.json").read_text()) for r in range(3)]
+    assert outputs[2]["fine"] == {"error": None}
+    for name, (ranks, text) in BAD_PATCHES.items():
+        for r, out in enumerate(outputs):
+            found = out[name]
+            assert found["error"] == "PatchError", (name, r, found)
+            assert found["rank"] == r and f"reported on rank {r} of 3" in found["message"]
+            assert [f[0] for f in found["failures"]] == ranks, (name, found)
+            assert text in found["message"], (name, found["message"])
+            assert found["failures"] == outputs[0][name]["failures"]
+
+
+def test_an_exception_on_one_rank_ends_every_rank(tmp_path):
+    """Rank 1 raises in the caller's code while rank 0 waits in a global quantity: under
+    abort_on_error the job ends with an error (the timeout would catch a hang)."""
+    done = run_ranks(2, "failing_rank.py", timeout=60)
+    assert done.returncode != 0
+    assert ("emsource: rank 1 of 2 failed (RuntimeError: the caller's right-hand side blew up "
+            "on this rank); aborting all ranks") in done.stderr
+    assert "finished" not in done.stdout

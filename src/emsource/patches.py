@@ -202,8 +202,9 @@ class PatchGrid(UniformGrid):
             a = short[0]
             raise ValueError(
                 f"{function}: {what} needs {needed} valid ghost layers next to a neighbouring "
-                f"patch, found {min(v, self.ghost)} (ghost = {self.ghost}, valid_ghosts = "
-                f"{valid_ghosts}) along {'xyz'[a]} of the patch owning global indices "
+                f"patch, found {min(v, self.ghost)} (ghost = {self.ghost}"
+                + ("" if valid_ghosts is None else f", valid_ghosts = {valid_ghosts}")
+                + f") along {'xyz'[a]} of the patch owning global indices "
                 f"{self.owned_start} to {tuple(s - 1 for s in self.owned_stop)}")
         return int(v)
 
@@ -438,24 +439,32 @@ def _tiling_failures(described) -> list:
     owned = int(np.sum(np.prod(stop - start, axis=1)))
     total = math.prod(shape)
     if owned != total:
-        failures.append((0, f"the owned boxes leave {total - owned} of {total} grid points "
-                            f"unowned (a gap){_first_gap(start, stop, shape)}"))
+        point = _first_gap(start, stop, shape)
+        if point is None:
+            failures.append((0, f"the owned boxes leave {total - owned} of {total} grid "
+                                "points unowned (a gap)"))
+        else:  # named after the rank whose box is nearest to the gap
+            distance = np.sum(np.maximum(start - point, 0) + np.maximum(point - stop + 1, 0),
+                              axis=1)
+            failures.append((int(np.argmin(distance)), f"the owned boxes leave {total - owned} "
+                             f"of {total} grid points unowned (a gap), first at global index "
+                             f"{tuple(int(i) for i in point)}, next to this rank's box"))
     return failures
 
 
-def _first_gap(start, stop, shape) -> str:
-    """', first at global index ...' of an unowned point, found on the grid compressed to the
-    boxes' boundaries (empty when that grid would be too large to mark)."""
+def _first_gap(start, stop, shape):
+    """Global index of an unowned point, found on the grid compressed to the boxes'
+    boundaries (None when that grid would be too large to mark)."""
     cuts = [np.unique(np.concatenate([[0, n], start[:, a], stop[:, a]]))
             for a, n in enumerate(shape)]
     if math.prod(len(c) - 1 for c in cuts) > 10**7:
-        return ""
+        return None
     covered = np.zeros([len(c) - 1 for c in cuts], bool)
     for lo, hi in zip(start, stop):
         covered[tuple(slice(np.searchsorted(c, l), np.searchsorted(c, h))
                       for c, l, h in zip(cuts, lo, hi))] = True
     cell = np.argwhere(~covered)[0]
-    return f", first at global index {tuple(int(c[i]) for c, i in zip(cuts, cell))}"
+    return np.array([c[i] for c, i in zip(cuts, cell)], dtype=np.int64)
 
 
 @contextmanager
