@@ -65,8 +65,8 @@ from .kernels import conservation as kernels
 from .kernels.stencils import first_derivative_weights, stencil_radius
 from .reductions import (BalancePartial, BalanceTerms, GlobalBalance, NormPartial, ResidualNorms,
                          Sum, combine_all)
-from .patches import (PatchGrid, global_partial, local_arrays, patch_of, relocated,
-                      require_patch)
+from .patches import (PatchGrid, embedded, global_partial, local_arrays, patch_of, relocated,
+                      require_patch, without_interior)
 from .sources import GridPointError
 from .unit_systems import check_unit_system, stress_energy_prefactor
 
@@ -527,50 +527,59 @@ def conservation_residual(alpha, beta, gamma, K, E, B, *, spacing, order=4, unit
 
 
 def _patch_residual(patch, comm, valid_ghosts, order, arrays, levels, options):
-    """:func:`conservation_residual` on a rank's patch, with the norms of the whole grid."""
+    """:func:`conservation_residual` on a rank's patch, with the norms of the whole grid.
+
+    The kernels run on the owned box plus ``order / 2`` ghost layers (no more): the interior
+    of that extent is then exactly the owned part of the whole grid's interior, so the
+    kernels' own per-column partial sums are this rank's partial. With more ghost layers than
+    that, the inputs are first copied without the extra layers.
+    """
     function = "conservation_residual"
     local = {}
 
     def compute():
         grid = require_patch(function, patch)
         arg.choice(function, "order", order, arg.DIFFERENCE_ORDERS)
-        v = grid.require_ghosts(function, valid_ghosts, stencil_radius(order),
-                                f"order {order} (stencil radius {stencil_radius(order)})")
-        extent = grid.valid_extent(v)
+        radius = stencil_radius(order)
+        grid.require_ghosts(function, valid_ghosts, radius,
+                            f"order {order} (stencil radius {radius})")
+        extent = grid.valid_extent(radius)
         inputs = local_arrays(function, grid, extent, arrays)
         for which, level in levels.items():
             if level is not None:
-                inputs[which] = local_arrays(function, grid, extent, {
-                    f"{which}.{q}": _field(level, q) for q in ("gamma", "E", "B")})
-                inputs[which] = {q: inputs[which][f"{which}.{q}"] for q in ("gamma", "E", "B")}
+                named = local_arrays(function, grid, extent,
+                                     {f"{which}.{q}": _field(level, q) for q in ("gamma", "E", "B")})
+                inputs[which] = {q: named[f"{which}.{q}"] for q in ("gamma", "E", "B")}
+        if without_interior(grid, extent, radius):  # owns boundary-layer points only
+            local.update(r=None, extent=extent, grid=grid)
+            return NormPartial.empty(4)
         try:
             r = conservation_residual(**inputs, **options, order=order)
         except GridPointError as error:
             raise relocated(error, grid, extent) from None
-        owned = np.zeros(r.interior.shape, bool)
-        owned[tuple(slice(o.start - e.start, o.stop - e.start)
-                    for o, e in zip(grid.owned, extent))] = True
-        interior = r.interior & owned
-        residual = np.concatenate([r.energy[None], r.momentum])
-        scale = np.concatenate([r.energy_scale[None], r.momentum_scale])
-        local.update(r=r, extent=extent, interior=interior, grid=grid)
-        return NormPartial.of_points(residual[:, interior], scale[:, interior])
+        local.update(r=r, extent=extent, grid=grid)
+        return r.norm_partial
 
     partial = global_partial(function, comm, patch, compute)
     r, extent, grid = local["r"], local["extent"], local["grid"]
-
-    def full(a, ncomp):  # back on the whole local array, NaN outside the owned interior
-        out = np.full(((ncomp,) if ncomp else ()) + grid.shape, np.nan, a.dtype)
-        out[(Ellipsis,) + tuple(extent)] = np.where(local["interior"], a, np.nan)
-        return out
-
-    interior = np.zeros(grid.shape, bool)
-    interior[tuple(extent)] = local["interior"]
     energy_norms, momentum_norms = _split_norms(partial)
+    if r is None:
+        dtype = arrays["E"].dtype
+        nan = np.full((4,) + grid.shape, np.nan, dtype)
+        return ConservationResidual(
+            energy=nan[0], momentum=nan[1:], energy_scale=nan[0].copy(),
+            momentum_scale=nan[1:].copy(), interior=np.zeros(grid.shape, bool),
+            energy_norms=energy_norms, momentum_norms=momentum_norms, order=order,
+            radius=stencil_radius(order),
+            time_derivatives="supplied" if arrays["dt_E"] is not None else "levels",
+            norm_partial=partial)
     return ConservationResidual(
-        energy=full(r.energy, 0), momentum=full(r.momentum, 3),
-        energy_scale=full(r.energy_scale, 0), momentum_scale=full(r.momentum_scale, 3),
-        interior=interior, energy_norms=energy_norms, momentum_norms=momentum_norms,
+        energy=embedded(r.energy, grid, extent, np.nan),
+        momentum=embedded(r.momentum, grid, extent, np.nan),
+        energy_scale=embedded(r.energy_scale, grid, extent, np.nan),
+        momentum_scale=embedded(r.momentum_scale, grid, extent, np.nan),
+        interior=embedded(r.interior, grid, extent, False),
+        energy_norms=energy_norms, momentum_norms=momentum_norms,
         order=order, radius=r.radius, time_derivatives=r.time_derivatives, norm_partial=partial)
 
 
@@ -657,6 +666,9 @@ def balance_partial(s, times, k, *, order=4, spacing=None, units=None, include_c
                                  f"order {order} (stencil radius {stencil_radius(order)})")
         extent = patch.valid_extent(v)
         named = local_arrays(function, patch, extent, named)
+        if without_interior(patch, extent, stencil_radius(order)):
+            zero = Sum.zero(4)  # the patch owns points of the boundary layer only
+            return BalancePartial.of_level(times, k, zero, zero, zero)
         global_shape = patch.global_shape
         array_start = [o + e.start for o, e in zip(patch.offset, extent)]
         owned = (patch.owned_start, patch.owned_stop)

@@ -27,7 +27,8 @@ from ._threading import kernel_call
 from .kernels.constraints import adm_constraints_grid
 from .kernels.stencils import first_derivative_weights, second_derivative_weights, stencil_radius
 from .errors import GridPointError
-from .patches import global_partial, local_arrays, patch_of, relocated, require_patch
+from .patches import (embedded, global_partial, local_arrays, patch_of, relocated,
+                      require_patch, without_interior)
 from .reductions import NormPartial, ResidualNorms
 from .sources import adm_sources
 from .unit_systems import check_unit_system
@@ -272,7 +273,11 @@ def adm_constraints(gamma, K, E=None, B=None, *, spacing, order=4, units="gaussi
 
 
 def _patch_constraints(patch, comm, valid_ghosts, order, arrays, options):
-    """:func:`adm_constraints` on a rank's patch, with the norms of the whole grid."""
+    """:func:`adm_constraints` on a rank's patch, with the norms of the whole grid.
+
+    Runs on the owned box plus ``order / 2`` ghost layers: the interior points of that extent
+    are exactly the owned part of the whole grid's interior points.
+    """
     function = "adm_constraints"
     local = {}
 
@@ -280,32 +285,32 @@ def _patch_constraints(patch, comm, valid_ghosts, order, arrays, options):
         grid = require_patch(function, patch)
         args.choice(function, "order", order, args.DIFFERENCE_ORDERS)
         radius = stencil_radius(order)
-        v = grid.require_ghosts(function, valid_ghosts, radius,
-                                f"order {order} (stencil radius {radius})")
-        extent = grid.valid_extent(v)
+        grid.require_ghosts(function, valid_ghosts, radius,
+                            f"order {order} (stencil radius {radius})")
+        extent = grid.valid_extent(radius)
+        inputs = local_arrays(function, grid, extent, arrays)
+        if without_interior(grid, extent, radius):  # owns boundary-layer points only
+            local.update(r=None, extent=extent, grid=grid)
+            return NormPartial.empty(4)
         try:
-            r = adm_constraints(**local_arrays(function, grid, extent, arrays), **options,
-                                order=order)
+            r = adm_constraints(**inputs, **options, order=order)
         except GridPointError as error:
             raise relocated(error, grid, extent) from None
-        owned = np.zeros(r.interior.shape, bool)
-        owned[tuple(slice(o.start - e.start, o.stop - e.start)
-                    for o, e in zip(grid.owned, extent))] = True
-        local.update(r=r, extent=extent, grid=grid, interior=r.interior & owned)
-        return norm_partial(r.hamiltonian, r.momentum, r.hamiltonian_scale, r.momentum_scale,
-                            local["interior"])
+        local.update(r=r, extent=extent, grid=grid)
+        return r.norm_partial
 
     partial = global_partial(function, comm, patch, compute)
     r, extent, grid = local["r"], local["extent"], local["grid"]
-
-    def full(a, ncomp):  # back on the whole local array, NaN outside the owned interior
-        out = np.full(((ncomp,) if ncomp else ()) + grid.shape, np.nan)
-        out[(Ellipsis,) + tuple(extent)] = np.where(local["interior"], a, np.nan)
-        return out
-
-    interior = np.zeros(grid.shape, bool)
-    interior[tuple(extent)] = local["interior"]
-    return ConstraintResiduals(hamiltonian=full(r.hamiltonian, 0), momentum=full(r.momentum, 3),
-                               hamiltonian_scale=full(r.hamiltonian_scale, 0),
-                               momentum_scale=full(r.momentum_scale, 3), interior=interior,
-                               order=order, units=r.units, global_partial=partial)
+    if r is None:
+        nan = np.full((4,) + grid.shape, np.nan)
+        return ConstraintResiduals(
+            hamiltonian=nan[0], momentum=nan[1:], hamiltonian_scale=nan[0].copy(),
+            momentum_scale=nan[1:].copy(), interior=np.zeros(grid.shape, bool), order=order,
+            units=None if arrays["E"] is None else options["units"], global_partial=partial)
+    return ConstraintResiduals(
+        hamiltonian=embedded(r.hamiltonian, grid, extent, np.nan),
+        momentum=embedded(r.momentum, grid, extent, np.nan),
+        hamiltonian_scale=embedded(r.hamiltonian_scale, grid, extent, np.nan),
+        momentum_scale=embedded(r.momentum_scale, grid, extent, np.nan),
+        interior=embedded(r.interior, grid, extent, False), order=order, units=r.units,
+        global_partial=partial)

@@ -45,7 +45,8 @@ import numpy as np
 from .grid import UniformGrid
 
 __all__ = ["PatchGrid", "PatchError", "decompose", "process_grid", "global_partial",
-           "check_patches", "patch_of", "require_patch", "local_arrays", "relocated", "abort_on_error", "mpi_available"]
+           "check_patches", "patch_of", "require_patch", "local_arrays", "relocated", "embedded",
+           "without_interior", "abort_on_error", "mpi_available"]
 
 
 def mpi_available() -> bool:
@@ -299,6 +300,23 @@ def local_arrays(function: str, patch: PatchGrid, extent, named: dict) -> dict:
             raise ValueError(f"{function}: {name} must cover the patch's local array, grid axes "
                              f"{patch.shape} (ghosts included), found {found}")
         out[name] = a if whole else np.ascontiguousarray(a[(Ellipsis,) + tuple(extent)])
+    return out
+
+
+def without_interior(patch: PatchGrid, extent, radius: int) -> bool:
+    """True if ``extent`` is too thin along an axis with extent for a stencil of ``radius``:
+    the patch then owns only points of the whole grid's boundary layer (no interior point)."""
+    return any(e.stop - e.start <= 2 * radius for e, n in zip(extent, patch.global_shape)
+               if n > 1)
+
+
+def embedded(a, patch: PatchGrid, extent, fill):
+    """``a`` (computed on ``extent`` of the local array) on the whole local array, ``fill``
+    elsewhere; ``a`` itself when the extent is the whole array."""
+    if all(e.start == 0 and e.stop == n for e, n in zip(extent, patch.shape)):
+        return a
+    out = np.full(a.shape[: a.ndim - patch.ndim] + patch.shape, fill, a.dtype)
+    out[(Ellipsis,) + tuple(extent)] = a
     return out
 
 
