@@ -13,7 +13,8 @@ Global quantities (energy, momentum, face fluxes, luminosity, residual and const
 computes the mergeable partial (:mod:`emsource.reductions`) of the points it *owns*, and
 :func:`global_partial` merges the partials of all ranks with the same ``combine`` that merges the
 slabs of a snapshot: a reduction to rank 0 in rank order followed by a broadcast, so that every
-rank holds the same bits (2 log2(P) message latencies in a tree). Owned boxes tile the global grid,
+rank holds the same bits (2 log2(P) message latencies in binomial trees: common practice for
+reduce and broadcast, from memory). Owned boxes tile the global grid,
 so every point is summed once. A luminosity quadrature node at fractional grid index s belongs to
 the rank with ``owned_start <= floor(s) < owned_start + owned_shape`` on every axis (half-open
 intervals: exactly one rank).
@@ -246,7 +247,21 @@ def decompose(global_grid: UniformGrid, rank: int, size: int, *, ghost: int,
               dims=None) -> PatchGrid:
     """The patch of ``rank`` of ``size`` ranks: a block of a ``dims`` process grid (default
     :func:`process_grid`), ranks numbered in C order over it; uneven counts give the first
-    blocks along an axis one point more."""
+    blocks along an axis one point more.
+
+    Examples
+    --------
+    The middle of three ranks on a 10 x 9 x 8 grid owns x indices 4 to 6 and holds two ghost
+    layers on each side along x:
+
+    >>> from emsource.grid import UniformGrid
+    >>> box = UniformGrid.from_bounds((0, 0, 0), (1, 1, 1), (10, 9, 8))
+    >>> p = decompose(box, 1, 3, ghost=2)
+    >>> p.owned_start, p.owned_shape, p.shape, p.offset
+    ((4, 0, 0), (3, 9, 8), (7, 9, 8), (2, 0, 0))
+    >>> p.owned
+    (slice(2, 5, None), slice(0, 9, None), slice(0, 8, None))
+    """
     dims = process_grid(size, global_grid.shape) if dims is None else tuple(int(d) for d in dims)
     if len(dims) != global_grid.ndim or math.prod(dims) != size:
         raise ValueError(f"decompose: dims {dims} must have {global_grid.ndim} axes whose "
