@@ -67,8 +67,9 @@ def integrals_case(place, comm, valid_ghosts=None):
 
 
 def residual_cases(place, comm, valid_ghosts=None):
-    """Conservation norms: a gauge-wave level (lapse, metric, K; supplied time derivatives)
-    and a moving charge (charge and current terms; time derivatives from three levels)."""
+    """Conservation norms: a gauge-wave level (lapse, metric, K; supplied time derivatives),
+    a moving charge (charge and current terms; time derivatives from three levels) and a
+    rotating dipole with an excised core (valid_mask)."""
     out = {}
     wave = exact.plane_wave_gauge_wave(place(WAVE_GRID), 0.21)
     if valid_ghosts is not None:
@@ -84,6 +85,13 @@ def residual_cases(place, comm, valid_ghosts=None):
     out.update(_norms("charge energy", r.energy_norms))
     out.update(_norms("charge momentum", r.momentum_norms))
     out["charge interior points"] = [r.norm_partial.count]
+    # An excised core (valid_mask) that several patches share: interior points need their
+    # whole stencil on valid points, on whichever rank the neighbours live.
+    dipole = exact.rotating_dipole(place(DIPOLE_GRID), 0.3, excision_radius=0.6)
+    r = level_residual(dipole, order=2, valid_mask=dipole.valid_mask, comm=comm)
+    out.update(_norms("dipole energy", r.energy_norms))
+    out.update(_norms("dipole momentum", r.momentum_norms))
+    out["dipole interior points"] = [r.norm_partial.count]
     return out
 
 
