@@ -25,7 +25,7 @@ LAYERS = (
                     "emsource.spin_harmonics")),
     ("point physics", ("emsource.sources", "emsource.energy_flux", "emsource.reductions",
                        "emsource.physical_units", "emsource.newman_penrose",
-                       "emsource.potential")),
+                       "emsource.potential", "emsource.patches")),
     ("package root", ("emsource",)),
     ("exact data", ("emsource.exact",)),
     ("diagnostics", ("emsource.conservation", "emsource.constraints", "emsource.unit_audit",

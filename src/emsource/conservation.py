@@ -65,6 +65,8 @@ from .kernels import conservation as kernels
 from .kernels.stencils import first_derivative_weights, stencil_radius
 from .reductions import (BalancePartial, BalanceTerms, GlobalBalance, NormPartial, ResidualNorms,
                          Sum, combine_all)
+from .patches import (PatchGrid, embedded, global_partial, local_arrays, patch_of, relocated,
+                      require_patch, without_interior)
 from .sources import GridPointError
 from .unit_systems import check_unit_system, stress_energy_prefactor
 
@@ -358,7 +360,8 @@ def conservation_residual(alpha, beta, gamma, K, E, B, *, spacing, order=4, unit
                           charge_density=None, current_density=None,
                           dt_E=None, dt_B=None, dt_gamma=None,
                           before=None, after=None, time_step=None,
-                          valid_mask=None, check=True, work=None) -> ConservationResidual:
+                          valid_mask=None, check=True, work=None, patch=None, comm=None,
+                          valid_ghosts=None) -> ConservationResidual:
     r"""Pointwise residuals of the 3+1 energy and momentum equations, with norms.
 
     Evaluates left minus right side of the two equations in the module docstring at every
@@ -408,6 +411,16 @@ def conservation_residual(alpha, beta, gamma, K, E, B, *, spacing, order=4, unit
         Scratch array in the inputs' dtype, reused between calls (an evolution loop then
         allocates only the outputs); it holds the fluxes and time terms afterwards. Make it with
         :func:`new_work_array` (C-ordered; any (16, *grid) array works, more slowly).
+    patch : emsource.patches.PatchGrid, optional
+        Under MPI: the rank's patch; the arrays cover its local array, ghosts included.
+    comm : mpi4py communicator, optional
+        With ``patch``: the norms (and ``norm_partial``) are those of the whole grid, the same
+        on every rank; the pointwise arrays stay local, and ``interior`` marks the owned
+        interior points. An error on any rank is raised on all
+        (:class:`emsource.patches.PatchError`).
+    valid_ghosts : int, optional
+        How many ghost layers hold valid data (default: all ``patch.ghost``); the stencils need
+        order / 2. The layers beyond are not read.
 
     Returns
     -------
@@ -437,6 +450,13 @@ def conservation_residual(alpha, beta, gamma, K, E, B, *, spacing, order=4, unit
     (0.0, 0.0)
     """
     function = "conservation_residual"
+    if comm is not None:
+        return _patch_residual(patch, comm, valid_ghosts, order, dict(
+            alpha=alpha, beta=beta, gamma=gamma, K=K, E=E, B=B, charge_density=charge_density,
+            current_density=current_density, dt_E=dt_E, dt_B=dt_B, dt_gamma=dt_gamma,
+            valid_mask=valid_mask), dict(before=before, after=after), dict(
+            spacing=spacing, units=units, time_step=time_step, check=check))
+    patch_of(function, patch, None)
     p = _prepare(function, alpha, beta, gamma, K, E, B, charge_density, current_density,
                  spacing, order, units, True)
     supplied = [x is not None for x in (dt_E, dt_B, dt_gamma)]
@@ -506,9 +526,67 @@ def conservation_residual(alpha, beta, gamma, K, E, B, *, spacing, order=4, unit
         norm_partial=partial)
 
 
+def _patch_residual(patch, comm, valid_ghosts, order, arrays, levels, options):
+    """:func:`conservation_residual` on a rank's patch, with the norms of the whole grid.
+
+    The kernels run on the owned box plus ``order / 2`` ghost layers (no more): the interior
+    of that extent is then exactly the owned part of the whole grid's interior, so the
+    kernels' own per-column partial sums are this rank's partial. With more ghost layers than
+    that, the inputs are first copied without the extra layers.
+    """
+    function = "conservation_residual"
+    local = {}
+
+    def compute():
+        grid = require_patch(function, patch)
+        arg.choice(function, "order", order, arg.DIFFERENCE_ORDERS)
+        radius = stencil_radius(order)
+        grid.require_ghosts(function, valid_ghosts, radius,
+                            f"order {order} (stencil radius {radius})")
+        extent = grid.valid_extent(radius)
+        inputs = local_arrays(function, grid, extent, arrays)
+        for which, level in levels.items():
+            if level is not None:
+                named = local_arrays(function, grid, extent,
+                                     {f"{which}.{q}": _field(level, q) for q in ("gamma", "E", "B")})
+                inputs[which] = {q: named[f"{which}.{q}"] for q in ("gamma", "E", "B")}
+        if without_interior(grid, extent, radius):  # owns boundary-layer points only
+            local.update(r=None, extent=extent, grid=grid)
+            return NormPartial.empty(4)
+        try:
+            r = conservation_residual(**inputs, **options, order=order)
+        except GridPointError as error:
+            raise relocated(error, grid, extent) from None
+        local.update(r=r, extent=extent, grid=grid)
+        return r.norm_partial
+
+    partial = global_partial(function, comm, patch, compute)
+    r, extent, grid = local["r"], local["extent"], local["grid"]
+    energy_norms, momentum_norms = _split_norms(partial)
+    if r is None:
+        dtype = arrays["E"].dtype
+        nan = np.full((4,) + grid.shape, np.nan, dtype)
+        return ConservationResidual(
+            energy=nan[0], momentum=nan[1:], energy_scale=nan[0].copy(),
+            momentum_scale=nan[1:].copy(), interior=np.zeros(grid.shape, bool),
+            energy_norms=energy_norms, momentum_norms=momentum_norms, order=order,
+            radius=stencil_radius(order),
+            time_derivatives="supplied" if arrays["dt_E"] is not None else "levels",
+            norm_partial=partial)
+    return ConservationResidual(
+        energy=embedded(r.energy, grid, extent, np.nan),
+        momentum=embedded(r.momentum, grid, extent, np.nan),
+        energy_scale=embedded(r.energy_scale, grid, extent, np.nan),
+        momentum_scale=embedded(r.momentum_scale, grid, extent, np.nan),
+        interior=embedded(r.interior, grid, extent, False),
+        energy_norms=energy_norms, momentum_norms=momentum_norms,
+        order=order, radius=r.radius, time_derivatives=r.time_derivatives, norm_partial=partial)
+
+
 @renamed_keywords(mask="valid_mask")
 def level_residual(now, *, order=4, before=None, after=None, spacing=None, units=None,
-                   include_charges=True, valid_mask=None, check=True) -> ConservationResidual:
+                   include_charges=True, valid_mask=None, check=True, comm=None,
+                   valid_ghosts=None) -> ConservationResidual:
     """:func:`conservation_residual` for :class:`emsource.exact.TimeLevelFields` objects.
 
     With ``before`` and ``after`` (time levels at now.t -+ the same step) the time terms come
@@ -516,9 +594,12 @@ def level_residual(now, *, order=4, before=None, after=None, spacing=None, units
     ``spacing`` and ``units`` default to ``now.grid.spacing`` and ``now.units``.
     ``include_charges=False`` drops the charge and current terms (a diagnostic of their effect,
     not a physical option). ``valid_mask`` and ``check`` are passed on
-    (``valid_mask=now.valid_mask`` skips an excised region).
+    (``valid_mask=now.valid_mask`` skips an excised region). Under MPI ``now.grid`` is the
+    rank's :class:`emsource.patches.PatchGrid` and ``comm``, ``valid_ghosts`` are passed on.
     """
     function = "level_residual"
+    on_patch = {"comm": comm, "valid_ghosts": valid_ghosts,
+                "patch": now.grid if isinstance(now.grid, PatchGrid) else None}
     spacing = now.grid.spacing if spacing is None else spacing
     units = now.units if units is None else units
     charges = {}
@@ -534,14 +615,14 @@ def level_residual(now, *, order=4, before=None, after=None, spacing=None, units
         return conservation_residual(now.alpha, now.beta, now.gamma, now.K, now.E, now.B,
                                      spacing=spacing, order=order, units=units, **charges,
                                      before=before, after=after, time_step=step,
-                                     valid_mask=valid_mask, check=check)
+                                     valid_mask=valid_mask, check=check, **on_patch)
     if now.dt_E is None or now.dt_B is None or now.dt_gamma is None:
         raise ValueError(f"{function}: the time level carries no dt_E/dt_B/dt_gamma; give before "
                          "and after")
     return conservation_residual(now.alpha, now.beta, now.gamma, now.K, now.E, now.B,
                                  spacing=spacing, order=order, units=units, **charges,
                                  dt_E=now.dt_E, dt_B=now.dt_B, dt_gamma=now.dt_gamma,
-                                 valid_mask=valid_mask, check=check)
+                                 valid_mask=valid_mask, check=check, **on_patch)
 
 
 # --------------------------------------------------------------------------- global balance
@@ -556,7 +637,7 @@ def _trapezoid_weights(n, h):
 
 
 def balance_partial(s, times, k, *, order=4, spacing=None, units=None, include_charges=True,
-                    rows=None, check=True) -> BalancePartial:
+                    rows=None, check=True, valid_ghosts=None) -> BalancePartial:
     """The contribution of time level ``s`` (number ``k`` of the series at ``times``) to a balance.
 
     Sums the box integrals of the level over the box rows ``rows = (start, stop)`` along the
@@ -567,35 +648,64 @@ def balance_partial(s, times, k, *, order=4, spacing=None, units=None, include_c
     Arguments as for :func:`global_balance`; ``check`` raises :class:`emsource.GridPointError`
     at the first point with a non-finite input, a lapse that is not positive or a metric that is
     not positive definite.
+
+    When ``s.grid`` is a :class:`emsource.patches.PatchGrid`, the level's arrays cover the
+    patch's local array and the partial is that of the points the patch owns (``rows`` then
+    counts box rows of the whole grid); ``valid_ghosts`` (default all) ghost layers are read.
     """
     function = "global_balance"
     spacing = s.grid.spacing if spacing is None else spacing
     units = s.units if units is None else units
     charges = (s.charge_density, s.current_density) if include_charges else (None, None)
-    p = _prepare(function, s.alpha, s.beta, s.gamma, s.K, s.E, s.B, *charges,
+    named = {"alpha": s.alpha, "beta": s.beta, "gamma": s.gamma, "K": s.K, "E": s.E, "B": s.B,
+             "charge_density": charges[0], "current_density": charges[1]}
+    patch = s.grid if isinstance(s.grid, PatchGrid) else None
+    if patch is not None:
+        arg.choice(function, "order", order, arg.DIFFERENCE_ORDERS)
+        v = patch.require_ghosts(function, valid_ghosts, stencil_radius(order),
+                                 f"order {order} (stencil radius {stencil_radius(order)})")
+        extent = patch.valid_extent(v)
+        named = local_arrays(function, patch, extent, named)
+        if without_interior(patch, extent, stencil_radius(order)):
+            zero = Sum.zero(4)  # the patch owns points of the boundary layer only
+            return BalancePartial.of_level(times, k, zero, zero, zero)
+        global_shape = patch.global_shape
+        array_start = [o + e.start for o, e in zip(patch.offset, extent)]
+        owned = (patch.owned_start, patch.owned_stop)
+    p = _prepare(function, named["alpha"], named["beta"], named["gamma"], named["K"], named["E"],
+                 named["B"], named["charge_density"], named["current_density"],
                  spacing, order, units, include_charges)
+    if patch is None:
+        global_shape, array_start, owned = p.grid, (0,) * len(p.grid), ((0,) * 3, p.grid)
     v = p.views
     if check:
-        arg.check_points(function, p.grid,
-                         {"alpha": s.alpha, "beta": s.beta, "gamma": s.gamma, "K": s.K, "E": s.E,
-                          "B": s.B, "charge_density": charges[0], "current_density": charges[1]},
-                         lapse="alpha", metric=("gamma", v["gamma"], p.gidx))
+        try:
+            arg.check_points(function, p.grid, named, lapse="alpha",
+                             metric=("gamma", v["gamma"], p.gidx))
+        except GridPointError as error:
+            raise (relocated(error, patch, extent) if patch is not None else error) from None
     rates = (v["gamma"], p.gidx, v["E"], v["B"], v["gamma"], p.gidx, v["E"], v["B"])
     # Pass 1 in mode 0 leaves fluxes and densities in its work array; pass 2 the sources.
     _, _, src, _, work = _run_kernels(p, order, 0, rates, 0.0, True, function=function)
     src = src[(Ellipsis,) + (None,) * (3 - len(p.grid))]
     h = tuple(1.0 / x if x else 1.0 for x in p.inv_h)
-    shape3 = work.shape[1:]
+    pad = (1,) * (3 - len(p.grid))
+    global_shape, array_start = tuple(global_shape) + pad, tuple(array_start) + (0,) * len(pad)
+    # The box of the whole grid (global indices lo..hi) and the part of it this piece sums.
     lo = list(p.radii)
-    hi = [n - 1 - r for n, r in zip(shape3, p.radii)]
-    weights = [_trapezoid_weights(hi[a] - lo[a] + 1, h[a]) for a in range(3)]
+    hi = [n - 1 - r for n, r in zip(global_shape, p.radii)]
+    first = [max(lo[a], owned[0][a] if a < len(owned[0]) else 0) for a in range(3)]
+    last = [min(hi[a], (owned[1][a] if a < len(owned[1]) else 1) - 1) for a in range(3)]
     nrows = hi[0] - lo[0] + 1
     start, stop = (0, nrows) if rows is None else (int(rows[0]), int(rows[1]))
     if not 0 <= start <= stop <= nrows:
         raise ValueError(f"{function}: rows must satisfy 0 <= start <= stop <= {nrows}, "
                          f"found {rows!r}")
-    weights[0] = weights[0][start:stop]
-    box3 = (slice(lo[0] + start, lo[0] + stop),) + tuple(slice(lo[a], hi[a] + 1) for a in (1, 2))
+    first[0], last[0] = max(first[0], lo[0] + start), min(last[0], lo[0] + stop - 1)
+    last = [max(f - 1, l) for f, l in zip(first, last)]  # an empty range stays empty
+    weights = [_trapezoid_weights(hi[a] - lo[a] + 1, h[a])[first[a] - lo[a]:last[a] - lo[a] + 1]
+               for a in range(3)]
+    box3 = tuple(slice(f - o, l + 1 - o) for f, l, o in zip(first, last, array_start))
     wx, wy, wz = weights
     cell = wx[:, None, None] * wy[None, :, None] * wz[None, None, :]
     density = work[12:16][(slice(None),) + box3].astype(np.float64)
@@ -610,10 +720,10 @@ def balance_partial(s, times, k, *, order=4, spacing=None, units=None, include_c
         # Flux components across faces normal to ``axis``: F^axis (energy), M^axis_j.
         comps = [axis] + [3 + 3 * axis + j for j in range(3)]
         for index, sign in ((hi[axis], 1.0), (lo[axis], -1.0)):
-            if axis == 0 and not lo[0] + start <= index < lo[0] + stop:
-                continue  # this face lies in another piece's rows
+            if not first[axis] <= index <= last[axis]:
+                continue  # this face lies in another piece
             face = list(box3)
-            face[axis] = index
+            face[axis] = index - array_start[axis]
             f = work[comps][(slice(None),) + tuple(face)].astype(np.float64)
             terms.append((sign * f * area).reshape(4, -1))
     outflow = Sum.of(np.concatenate(terms, axis=1), axis=1) if terms else Sum.zero(4)
@@ -622,7 +732,7 @@ def balance_partial(s, times, k, *, order=4, spacing=None, units=None, include_c
 
 @renamed_keywords(slices="levels")
 def global_balance(levels, *, order=4, spacing=None, units=None, include_charges=True,
-                   check=True) -> GlobalBalance:
+                   check=True, comm=None, valid_ghosts=None) -> GlobalBalance:
     r"""Change of the total energy and momentum in a box against face fluxes and volume sources.
 
     Integrates the two conservation laws of the module docstring over the box of interior points
@@ -653,12 +763,19 @@ def global_balance(levels, *, order=4, spacing=None, units=None, include_charges
         Raise :class:`emsource.GridPointError` at the first point of a level with a non-finite
         input, a lapse that is not positive or a metric that is not positive definite.
 
+    comm : mpi4py communicator, optional
+        Under MPI: the levels' grids are the rank's :class:`emsource.patches.PatchGrid` and
+        their arrays cover its local array; every rank gets the balance of the whole grid (an
+        error on any rank is raised on all, :class:`emsource.patches.PatchError`).
+    valid_ghosts : int, optional
+        Ghost layers holding valid data (default all); the sources' stencils need order / 2.
+
     Returns
     -------
     GlobalBalance
         The mismatch of each law is reported absolute and relative to the largest field
         energy in the box over the levels (:class:`emsource.reductions.BalanceTerms`).
-        Computed as a sum of :func:`balance_partial` over the levels.
+        Computed as a sum of :func:`balance_partial` over the levels (and the ranks).
 
     References
     ----------
@@ -675,10 +792,22 @@ def global_balance(levels, *, order=4, spacing=None, units=None, include_charges
     first = levels[0]
     spacing = first.grid.spacing if spacing is None else spacing
     units = first.units if units is None else units
-    partial = combine_all(balance_partial(s, times, k, order=order, spacing=spacing, units=units,
-                                          include_charges=include_charges, check=check)
-                          for k, s in enumerate(levels))
-    grid = first.E.shape[1:]
+    patch = patch_of(function, first.grid, comm)
+
+    def compute():
+        if patch is not None:
+            for s in levels:
+                require_patch(function, s.grid)
+                if s.grid != patch:
+                    raise ValueError(f"{function}: every level must be on the same patch; "
+                                     f"found {s.grid} and {patch}")
+        return combine_all(balance_partial(s, times, k, order=order, spacing=spacing,
+                                           units=units, include_charges=include_charges,
+                                           check=check, valid_ghosts=valid_ghosts)
+                           for k, s in enumerate(levels))
+
+    partial = compute() if comm is None else global_partial(function, comm, patch, compute)
+    grid = patch.global_shape if patch is not None else first.E.shape[1:]
     r = stencil_radius(order)
     box = tuple(slice(r, n - r) if n > 1 else slice(0, 1) for n in grid)
     return partial.finalise(box)

@@ -26,6 +26,9 @@ from ._deprecated_names import renamed_attribute, renamed_function, renamed_keyw
 from ._threading import kernel_call
 from .kernels.constraints import adm_constraints_grid
 from .kernels.stencils import first_derivative_weights, second_derivative_weights, stencil_radius
+from .errors import GridPointError
+from .patches import (embedded, global_partial, local_arrays, patch_of, relocated,
+                      require_patch, without_interior)
 from .reductions import NormPartial, ResidualNorms
 from .sources import adm_sources
 from .unit_systems import check_unit_system
@@ -109,6 +112,9 @@ class ConstraintResiduals:
     order : int
     units : str or None
         Unit system of the electromagnetic sources, None for vacuum.
+    global_partial : NormPartial or None
+        Under MPI, the partial of the whole grid (all ranks) from which the norms and
+        ``norm_partial`` are taken; None: this grid's interior points.
     """
 
     hamiltonian: np.ndarray
@@ -121,12 +127,15 @@ class ConstraintResiduals:
     hamiltonian_norms: ResidualNorms = field(init=False)
     momentum_norms: ResidualNorms = field(init=False)
     norm_partial: NormPartial = field(init=False)
+    global_partial: NormPartial | None = field(default=None, repr=False, compare=False)
 
     evaluated = renamed_attribute("evaluated", "interior")
 
     def __post_init__(self):
-        partial = norm_partial(self.hamiltonian, self.momentum, self.hamiltonian_scale,
-                               self.momentum_scale, self.interior)
+        partial = self.global_partial
+        if partial is None:
+            partial = norm_partial(self.hamiltonian, self.momentum, self.hamiltonian_scale,
+                                   self.momentum_scale, self.interior)
         object.__setattr__(self, "norm_partial", partial)
         object.__setattr__(self, "hamiltonian_norms", partial.finalise(0, zero_scale=math.nan))
         object.__setattr__(self, "momentum_norms",
@@ -135,7 +144,8 @@ class ConstraintResiduals:
 
 @renamed_keywords(mask="valid_mask")
 def adm_constraints(gamma, K, E=None, B=None, *, spacing, order=4, units="gaussian",
-                    field_index="upper", valid_mask=None, check=True) -> ConstraintResiduals:
+                    field_index="upper", valid_mask=None, check=True, patch=None, comm=None,
+                    valid_ghosts=None) -> ConstraintResiduals:
     """Hamiltonian and momentum constraints with electromagnetic sources, by finite differences.
 
     Implements H = R + K^2 - K_ij K^ij - 16 pi rho and M_i = D_j K^j_i - D_i K - 8 pi S_i
@@ -166,6 +176,13 @@ def adm_constraints(gamma, K, E=None, B=None, *, spacing, order=4, units="gaussi
     check : bool
         Check that the data are finite and gamma positive definite wherever ``valid_mask`` is
         True.
+    patch, comm : emsource.patches.PatchGrid and mpi4py communicator, optional
+        Under MPI: the arrays cover the rank's local array (ghosts included); the norms are
+        those of the whole grid on every rank, the pointwise residuals stay local (NaN outside
+        the owned interior points). An error on any rank is raised on all
+        (:class:`emsource.patches.PatchError`).
+    valid_ghosts : int, optional
+        Ghost layers holding valid data (default all ``patch.ghost``); order / 2 are needed.
 
     Returns
     -------
@@ -190,6 +207,11 @@ def adm_constraints(gamma, K, E=None, B=None, *, spacing, order=4, units="gaussi
     True
     """
     function = "adm_constraints"
+    if comm is not None:
+        return _patch_constraints(patch, comm, valid_ghosts, order, dict(
+            gamma=gamma, K=K, E=E, B=B, valid_mask=valid_mask), dict(
+            spacing=spacing, units=units, field_index=field_index, check=check))
+    patch_of(function, patch, None)
     args.choice(function, "order", order, args.DIFFERENCE_ORDERS)
     args.choice(function, "field_index", field_index, args.FIELD_INDICES)
     gamma = args.float_array(function, "gamma", gamma)
@@ -248,3 +270,47 @@ def adm_constraints(gamma, K, E=None, B=None, *, spacing, order=4, units="gaussi
     return ConstraintResiduals(hamiltonian=H, momentum=M, hamiltonian_scale=H_scale,
                                momentum_scale=M_scale, interior=interior, order=order,
                                units=None if vacuum else units)
+
+
+def _patch_constraints(patch, comm, valid_ghosts, order, arrays, options):
+    """:func:`adm_constraints` on a rank's patch, with the norms of the whole grid.
+
+    Runs on the owned box plus ``order / 2`` ghost layers: the interior points of that extent
+    are exactly the owned part of the whole grid's interior points.
+    """
+    function = "adm_constraints"
+    local = {}
+
+    def compute():
+        grid = require_patch(function, patch)
+        args.choice(function, "order", order, args.DIFFERENCE_ORDERS)
+        radius = stencil_radius(order)
+        grid.require_ghosts(function, valid_ghosts, radius,
+                            f"order {order} (stencil radius {radius})")
+        extent = grid.valid_extent(radius)
+        inputs = local_arrays(function, grid, extent, arrays)
+        if without_interior(grid, extent, radius):  # owns boundary-layer points only
+            local.update(r=None, extent=extent, grid=grid)
+            return NormPartial.empty(4)
+        try:
+            r = adm_constraints(**inputs, **options, order=order)
+        except GridPointError as error:
+            raise relocated(error, grid, extent) from None
+        local.update(r=r, extent=extent, grid=grid)
+        return r.norm_partial
+
+    partial = global_partial(function, comm, patch, compute)
+    r, extent, grid = local["r"], local["extent"], local["grid"]
+    if r is None:
+        nan = np.full((4,) + grid.shape, np.nan)
+        return ConstraintResiduals(
+            hamiltonian=nan[0], momentum=nan[1:], hamiltonian_scale=nan[0].copy(),
+            momentum_scale=nan[1:].copy(), interior=np.zeros(grid.shape, bool), order=order,
+            units=None if arrays["E"] is None else options["units"], global_partial=partial)
+    return ConstraintResiduals(
+        hamiltonian=embedded(r.hamiltonian, grid, extent, np.nan),
+        momentum=embedded(r.momentum, grid, extent, np.nan),
+        hamiltonian_scale=embedded(r.hamiltonian_scale, grid, extent, np.nan),
+        momentum_scale=embedded(r.momentum_scale, grid, extent, np.nan),
+        interior=embedded(r.interior, grid, extent, False), order=order, units=r.units,
+        global_partial=partial)

@@ -29,6 +29,7 @@ import numpy as np
 
 from ._deprecated_names import renamed_fields, renamed_keywords
 from .conservation import level_residual
+from .patches import global_partial
 
 __all__ = [
     "ConvergenceTable",
@@ -160,19 +161,42 @@ class ConvergenceTable:
         return path
 
 
+@dataclass(frozen=True)
+class _SameOnEveryRank:
+    """A result every rank computed on its own and that must agree: combine checks equality."""
+
+    value: tuple
+
+    def combine(self, other: "_SameOnEveryRank") -> "_SameOnEveryRank":
+        (h, errors), (h2, errors2) = self.value, other.value
+        same = (np.array_equal(h, h2, equal_nan=True) and list(errors) == list(errors2)
+                and all(np.array_equal(errors[k], errors2[k], equal_nan=True) for k in errors))
+        if not same:
+            raise ValueError(f"its (spacing, errors) {other.value} differ from {self.value}: "
+                             "compute must return global values (pass comm= to the quantities)")
+        return self
+
+
 def convergence_study(compute: Callable, resolutions, *, case="custom", design_order=None,
-                      extra_names=()) -> ConvergenceTable:
+                      extra_names=(), comm=None) -> ConvergenceTable:
     """Run ``compute(resolution)`` at each resolution and tabulate errors and orders.
 
     ``compute`` returns ``(spacing, errors)`` with ``errors`` a dict of name to float; names in
-    ``extra_names`` are shown in the table but get no order.
+    ``extra_names`` are shown in the table but get no order. Under MPI (``comm``) every rank
+    runs ``compute``, which computes global quantities (with ``comm=``); the results must be
+    the same on every rank, and an error or a disagreement on any rank is raised on all
+    (:class:`emsource.patches.PatchError`).
     """
     resolutions = tuple(int(n) for n in resolutions)
     if len(resolutions) < 2:
         raise ValueError(f"convergence_study: need at least two resolutions, found {resolutions}")
     spacings, columns = [], {}
     for n in resolutions:
-        h, errors = compute(n)
+        if comm is None:
+            h, errors = compute(n)
+        else:
+            h, errors = global_partial("convergence_study", comm, None,
+                                       lambda: _SameOnEveryRank(_plain(compute(n)))).value
         spacings.append(float(h))
         for name, value in errors.items():
             columns.setdefault(name, []).append(float(value))
@@ -185,10 +209,16 @@ def convergence_study(compute: Callable, resolutions, *, case="custom", design_o
     return ConvergenceTable(case, design_order, resolutions, spacings, errors, orders, extra)
 
 
+def _plain(result):
+    """(spacing, errors) of a compute function as floats, ready to compare and to send."""
+    h, errors = result
+    return float(h), {str(k): float(v) for k, v in errors.items()}
+
+
 @renamed_keywords(make_slice="make_level")
 def residual_convergence(make_level: Callable, resolutions, *, order=4, time_derivatives="supplied",
                          t=0.37, time_step_factor=0.4, case="custom",
-                         include_charges=True) -> ConvergenceTable:
+                         include_charges=True, comm=None, valid_ghosts=None) -> ConvergenceTable:
     """Convergence of the conservation residual on exact data.
 
     Parameters
@@ -209,6 +239,11 @@ def residual_convergence(make_level: Callable, resolutions, *, order=4, time_der
         space differences cancel exactly.
     include_charges : bool
         Passed to :func:`emsource.conservation.level_residual`.
+    comm, valid_ghosts : optional
+        Under MPI: ``make_level`` returns the rank's patch of the level (its ``grid`` an
+        :class:`emsource.patches.PatchGrid`, e.g. ``exact.plane_wave(decompose(...), t)``);
+        passed to :func:`emsource.conservation.level_residual`, so every rank gets the table
+        of the whole grid.
 
     Returns
     -------
@@ -223,12 +258,14 @@ def residual_convergence(make_level: Callable, resolutions, *, order=4, time_der
 
     def compute(n):
         now = make_level(n, t)
+        on_patch = {"comm": comm, "valid_ghosts": valid_ghosts}
         if time_derivatives == "supplied":
-            r = level_residual(now, order=order, include_charges=include_charges)
+            r = level_residual(now, order=order, include_charges=include_charges, **on_patch)
         else:
             dt = time_step_factor * now.grid.spacing[0]
             r = level_residual(now, order=order, before=make_level(n, t - dt),
-                               after=make_level(n, t + dt), include_charges=include_charges)
+                               after=make_level(n, t + dt), include_charges=include_charges,
+                               **on_patch)
         momentum = math.sqrt(float(np.sum(np.square(r.momentum_norms.l2))))
         normalised = significant_normalised_l2(r)
         return now.grid.spacing[0], {"energy L2": r.energy_norms.l2, "momentum L2": momentum,
@@ -236,7 +273,7 @@ def residual_convergence(make_level: Callable, resolutions, *, order=4, time_der
 
     design = order if time_derivatives == "supplied" else min(order, 2)
     return convergence_study(compute, resolutions, case=case, design_order=design,
-                             extra_names=("normalised",))
+                             extra_names=("normalised",), comm=comm)
 
 
 def significant_normalised_l2(residual, floor=1e-12) -> float:

@@ -44,6 +44,7 @@ import numpy as np
 from . import _arguments as args
 from ._deprecated_names import renamed_attribute, renamed_keywords
 from .energy_flux import energy_fluxes
+from .patches import global_partial, local_arrays, patch_of, require_patch
 from .reductions import LevelPartial, Sum, combine
 from .snapshot import CHUNK_CACHE_BYTES, SnapshotError, SnapshotFile, open_snapshot
 from .snapshot.slabs import (CONVERSION_BUFFER_BYTES, DEFAULT_MEMORY_LIMIT, SlabBuffers,
@@ -207,7 +208,7 @@ class _Sphere:
     Holds only the rule (:class:`_SphereRule`, O(theta_points) numbers): the nodes, their
     normals, weights and interpolation stencils are computed per batch when a slab is summed,
     so memory stays bounded for any ``theta_points``. Immutable after construction:
-    :meth:`slab_sum` returns a partial sum and changes nothing.
+    :meth:`box_sum` returns a partial sum and changes nothing.
     """
 
     def __init__(self, radius, grid, theta_points, npoints):
@@ -244,36 +245,45 @@ class _Sphere:
         s = (coordinate - self.grid.origin[a]) / self.grid.spacing[a]
         return np.floor(s).astype(np.int64) - (self.npoints // 2 - 1)
 
-    def slab_sum(self, flux, valid, axis, start, stop) -> Sum:
-        """Partial luminosity of the nodes whose stencil starts in rows start:stop of ``axis``.
+    def box_sum(self, flux, valid, lower, upper, array_start, *, by_position=False) -> Sum:
+        """Partial luminosity of the nodes owned by the box ``lower:upper`` (global indices).
 
-        ``flux`` and ``valid`` cover rows start: (with the stencils' halo). Each node belongs
-        to exactly one slab, the one holding its stencil start.
+        ``flux`` and ``valid`` hold the points from global index ``array_start`` on, with the
+        stencils' halo. A node at fractional index s is owned where, on every axis,
+        lower <= key < upper, with key = floor(s) (``by_position``: a patch of a domain
+        decomposition) or key = its stencil start floor(s) - (p/2 - 1) (a slab of a file,
+        which holds the rows above it). Boxes that tile the grid own each node once.
         """
+        shift = self.npoints // 2 - 1 if by_position else 0  # key - (stencil start)
         total = Sum.zero()
         for first in range(0, self.count, SPHERE_SCAN_NODES):
             points, normals, weights = self.rule.nodes(first, min(first + SPHERE_SCAN_NODES,
                                                                   self.count))
-            i0 = self._starts(points[axis], axis)
-            chosen = np.nonzero((i0 >= start) & (i0 < stop))[0]
+            owned = np.ones(points.shape[1], bool)
+            for a in range(3):
+                key = self._starts(points[a], a) + shift
+                owned &= (key >= lower[a]) & (key < upper[a])
+            chosen = np.nonzero(owned)[0]
             for g in range(0, chosen.size, SPHERE_GATHER_NODES):
                 nodes = chosen[g:g + SPHERE_GATHER_NODES]
                 total = total.combine(self._interpolated_flux(
-                    flux, valid, axis, start, points[:, nodes], normals[:, nodes],
+                    flux, valid, array_start, points[:, nodes], normals[:, nodes],
                     weights[nodes]))
         return total
 
-    def _interpolated_flux(self, flux, valid, axis, start, points, normals, weights) -> Sum:
-        """Sum of w F^i n_i over a few nodes, F^i Lagrange-interpolated from the slab."""
-        interpolated = self.interpolate(flux, valid, axis, start, points)
+    def _interpolated_flux(self, flux, valid, array_start, points, normals, weights) -> Sum:
+        """Sum of w F^i n_i over a few nodes, F^i Lagrange-interpolated from the arrays whose
+        first point is global index ``array_start``."""
+        interpolated = self.interpolate(flux, valid, array_start, points)
         return Sum.of(np.einsum("cn,cn->n", interpolated, normals) * weights)
 
-    def interpolate(self, values, valid, axis, start, points) -> np.ndarray:
-        """``values`` (ncomp, rows, ...) Lagrange-interpolated to ``points`` (3, n): (ncomp, n).
+    def interpolate(self, values, valid, array_start, points) -> np.ndarray:
+        """``values`` (ncomp, ...) Lagrange-interpolated to ``points`` (3, n): (ncomp, n).
 
-        ``values`` and ``valid`` cover the rows ``start:`` of ``axis`` (a slab with its halo, or
-        the whole grid with ``start`` 0); every node's stencil must lie in them. A stencil that
-        reaches a point with ``valid`` False is an error (:class:`SnapshotError`).
+        ``values`` and ``valid`` hold the points from global index ``array_start`` (three
+        integers) on: a slab with its halo, a rank's patch, or the whole grid (0, 0, 0); every
+        node's stencil must lie in them. A stencil that reaches a point with ``valid`` False is
+        an error (:class:`SnapshotError`).
         """
         p = self.npoints
         offsets = np.arange(p)
@@ -282,7 +292,7 @@ class _Sphere:
         for a in range(3):
             s = (points[a] - self.grid.origin[a]) / self.grid.spacing[a]
             i0, w = lagrange_weights(s, p)
-            i = i0[:, None] + offsets - (start if a == axis else 0)
+            i = i0[:, None] + offsets - array_start[a]
             shape = [i.shape[0], 1, 1, 1]
             shape[1 + a] = p
             index.append(i.reshape(shape))
@@ -345,7 +355,21 @@ def level_partial(grid, gamma, E, B, *, units="gaussian", lapse=None, shift=None
     and the lapse positive (:class:`emsource.GridPointError`, with the index in the whole grid).
     """
     stop = grid.shape[axis] if stop is None else stop
-    nrows = stop - start
+    lower, upper, array_start = [0, 0, 0], list(grid.shape), [0, 0, 0]
+    lower[axis], upper[axis], array_start[axis] = start, stop, start
+    return _box_partial(grid, gamma, E, B, units=units, lapse=lapse, shift=shift,
+                        valid_mask=valid_mask, spheres=spheres, lower=lower, upper=upper,
+                        array_start=array_start, in_place=in_place, by_position=False)
+
+
+def _box_partial(grid, gamma, E, B, *, units, lapse, shift, valid_mask, spheres, lower, upper,
+                 array_start, in_place, by_position) -> LevelPartial:
+    """Partial integrals of the box of global indices ``lower:upper`` of ``grid``.
+
+    The arrays hold the points from global index ``array_start`` on (the box and the halo of
+    the spheres' stencils). A slab of a file (:func:`level_partial`) is a box spanning two axes;
+    a patch of a domain decomposition (``by_position`` node ownership) is any box.
+    """
     valid = None if valid_mask is None else np.asarray(valid_mask).astype(bool, copy=False)
     shape = gamma.shape[1:]
     try:
@@ -360,12 +384,11 @@ def level_partial(grid, gamma, E, B, *, units="gaussian", lapse=None, shift=None
         beta = arrays["shift"] if shift is not None else np.zeros((3,) + shape)
         energy, momentum, flux = _flux_densities(alpha, beta, gamma, E, B, units=units)
     except GridPointError as error:
-        raise error.relocated(axis, start) from None
-    own = [slice(None)] * 3
-    own[axis] = slice(0, nrows)
-    own = tuple(own)
-    w = [_trapezoid(grid.shape[a], grid.spacing[a]) for a in range(3)]
-    w[axis] = w[axis][start:stop]
+        for a in range(3):
+            error = error.relocated(a, array_start[a])
+        raise error from None
+    own = tuple(slice(lo - s, hi - s) for lo, hi, s in zip(lower, upper, array_start))
+    w = [_trapezoid(grid.shape[a], grid.spacing[a])[lower[a]:upper[a]] for a in range(3)]
     cell = (w[0][:, None, None] * w[1][None, :, None]) * w[2][None, None, :]
     density = energy[own]
     momentum = momentum[(slice(None),) + own]
@@ -389,21 +412,18 @@ def level_partial(grid, gamma, E, B, *, units="gaussian", lapse=None, shift=None
     for a in range(3):
         others = [b for b in range(3) if b != a]
         for side in (0, 1):
-            if a == axis:
-                row = 0 if side == 0 else nrows - 1
-                if start + row != (0 if side == 0 else grid.shape[axis] - 1):
-                    faces.append(Sum.zero())  # this face lies in another piece's rows
-                    continue
-            else:
-                row = 0 if side == 0 else grid.shape[a] - 1
-            index = [slice(None)] * 3
-            index[axis] = slice(0, nrows)
-            index[a] = row
+            row = 0 if side == 0 else grid.shape[a] - 1
+            if not lower[a] <= row < upper[a]:
+                faces.append(Sum.zero())  # this face lies in another piece
+                continue
+            index = list(own)
+            index[a] = row - array_start[a]
             sheet = flux[a][tuple(index)]
             area = w[others[0]][:, None] * w[others[1]][None, :]
             faces.append(Sum.of((sheet * area) if side == 1 else -(sheet * area)))
     face_flux = Sum(np.array([f.value for f in faces]), np.array([f.magnitude for f in faces]))
-    spheres_sum = [sphere.slab_sum(flux, valid, axis, start, stop) for sphere in spheres]
+    spheres_sum = [sphere.box_sum(flux, valid, lower, upper, array_start,
+                                  by_position=by_position) for sphere in spheres]
     luminosity = Sum(np.array([x.value for x in spheres_sum]),
                      np.array([x.magnitude for x in spheres_sum]))
     return LevelPartial(Sum.of(density * cell), Sum.of(momentum * cell, axis=(1, 2, 3)),
@@ -413,16 +433,48 @@ def level_partial(grid, gamma, E, B, *, units="gaussian", lapse=None, shift=None
 @renamed_keywords(mask="valid_mask", n_theta="theta_points")
 def integrate_level_arrays(grid, gamma, E, B, *, units="gaussian", lapse=None, shift=None,
                            valid_mask=None, radii=(), theta_points=32, interpolation_points=4,
-                           label="0", time=0.0) -> LevelIntegrals:
+                           label="0", time=0.0, comm=None, valid_ghosts=None) -> LevelIntegrals:
     """Integrated quantities of in-memory (x, y, z)-order arrays (one slab: the whole grid).
 
     ``valid_mask`` (nonzero = valid) leaves points out of the sums and out of the checks; the
     inputs are never modified.
+
+    Under MPI, ``grid`` is the rank's :class:`emsource.patches.PatchGrid`, the arrays cover
+    its local array (ghosts included) and ``comm`` is the communicator: every rank gets the
+    integrals of the whole grid. A sphere's node is interpolated by the rank that owns it
+    (:mod:`emsource.patches`), whose ``interpolation_points / 2`` ghost layers must hold valid
+    data; ``valid_ghosts`` says how many do (default all). Errors on any rank are raised on
+    every rank (:class:`emsource.patches.PatchError`).
     """
-    spheres = [_Sphere(r, grid, theta_points, interpolation_points) for r in radii]
-    partial = level_partial(grid, gamma, E, B, units=units, lapse=lapse, shift=shift,
-                            valid_mask=valid_mask, spheres=spheres)
-    return LevelIntegrals.from_partial(partial, label, time, [s.radius for s in spheres])
+    function = "integrate_level_arrays"
+    patch = patch_of(function, grid, comm)
+    if patch is None:
+        spheres = [_Sphere(r, grid, theta_points, interpolation_points) for r in radii]
+        partial = level_partial(grid, gamma, E, B, units=units, lapse=lapse, shift=shift,
+                                valid_mask=valid_mask, spheres=spheres)
+        return LevelIntegrals.from_partial(partial, label, time, [s.radius for s in spheres])
+
+    def compute():
+        patch = require_patch(function, grid)
+        whole = patch.global_grid
+        spheres = [_Sphere(r, whole, theta_points, interpolation_points) for r in radii]
+        needed = interpolation_points // 2 if spheres else 0
+        v = patch.require_ghosts(function, valid_ghosts, needed,
+                                 f"the {interpolation_points}-point interpolation of the spheres")
+        extent = patch.valid_extent(v)
+        # Only the valid layers: ghosts beyond them may hold anything (NaN included).
+        local = local_arrays(function, patch, extent,
+                             {"gamma": gamma, "E": E, "B": B, "lapse": lapse, "shift": shift,
+                              "valid_mask": valid_mask})
+        start = [o + e.start for o, e in zip(patch.offset, extent)]
+        return _box_partial(whole, local["gamma"], local["E"], local["B"], units=units,
+                            lapse=local["lapse"], shift=local["shift"],
+                            valid_mask=local["valid_mask"], spheres=spheres,
+                            lower=patch.owned_start, upper=patch.owned_stop, array_start=start,
+                            in_place=False, by_position=True)
+
+    partial = global_partial(function, comm, grid, compute)
+    return LevelIntegrals.from_partial(partial, label, time, [_check_radius(r) for r in radii])
 
 
 @renamed_keywords(n_theta="theta_points")

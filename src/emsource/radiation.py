@@ -245,13 +245,15 @@ class ExtractionSpheres:
         """Fill ``node_values`` (from :meth:`empty_node_values`) at the nodes whose stencil
         starts in rows start:stop of ``axis``; ``arrays`` = (gamma, E, B), ``valid`` cover
         rows ``start:`` with the halo (whole-grid arrays: start 0, stop = the axis length)."""
+        array_start = [0, 0, 0]
+        array_start[axis] = start
         for sphere, values in zip(self.spheres, node_values):
             nodes, points = sphere.slab_nodes(axis, start, stop)
             for first in range(0, nodes.size, SPHERE_GATHER_NODES):
                 batch = slice(first, first + SPHERE_GATHER_NODES)
                 row = 0
                 for (quantity, ncomp), array in zip(_FIELDS, arrays):
-                    found = sphere.interpolate(array, valid, axis, start, points[:, batch])
+                    found = sphere.interpolate(array, valid, array_start, points[:, batch])
                     if not np.all(np.isfinite(found)):
                         self._raise_non_finite(sphere, quantity, array, found, points[:, batch],
                                                axis, start)
