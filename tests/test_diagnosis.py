@@ -308,3 +308,57 @@ def test_command_exit_codes_for_none_fits_and_bad_input(tmp_path, capsys):
     assert err.count("\n") == 1
     assert sorted(p.name for p in tmp_path.iterdir()) == ["user.h5"]   # nothing written
 
+
+
+def test_command_reads_the_users_sources_through_a_mapping(tmp_path, capsys):
+    """Another code's layout: grid stored (z, y, x), one dataset per momentum component, the
+    stress component-last; the user's sources carry the Heaviside-Lorentz formula's missing
+    1/(4 pi) (so 4 pi times the Gaussian sources)."""
+    import h5py
+
+    alpha, beta, gamma, E, B = _state(19)
+    rho, S_i, S_ij = user_sources(alpha, beta, gamma, E, B, (), amplitude=4 * math.pi)
+
+    def zyx(a):   # (n, x, y, z) -> (n, z, y, x); scalars (x, y, z) -> (z, y, x)
+        return np.ascontiguousarray(a.T if a.ndim == 3 else np.swapaxes(a, 1, 3))
+
+    path = tmp_path / "foreign.h5"
+    with h5py.File(path, "w") as f:
+        g = f.create_group("run/step_4")
+        g["lapse"], g["shift"], g["metric"] = zyx(alpha), zyx(beta), zyx(gamma)
+        g["efield"], g["bfield"], g["rho"] = zyx(E), zyx(B), zyx(rho)
+        for c, axis in enumerate("xyz"):
+            g[f"mom_{axis}"] = zyx(S_i[c][None])[0]
+        g["stress"] = np.moveaxis(zyx(S_ij), 0, -1)
+    mapping = tmp_path / "foreign.toml"
+    mapping.write_text("""
+mapping_version = 1
+axis_order = "zyx"
+units = "gaussian"
+[time_levels]
+pattern = "run/step_{index}"
+time = { per_index = 0.5 }
+[grid]
+spacing = [0.1, 0.1, 0.1]
+origin = [0.0, 0.0, 0.0]
+[quantities.lapse]
+dataset = "lapse"
+[quantities.shift]
+dataset = "shift"
+[quantities.spatial_metric]
+dataset = "metric"
+[quantities.electric_field]
+dataset = "efield"
+[quantities.magnetic_field]
+dataset = "bfield"
+[quantities.energy_density]
+dataset = "rho"
+[quantities.momentum_density]
+components = ["mom_x", "mom_y", "mom_z"]
+[quantities.spatial_stress]
+dataset = "stress"
+component_axis = "last"
+""")
+    assert main(["diagnose-sources", str(path), "--mapping", str(mapping)]) == EXIT_OK
+    out = capsys.readouterr().out
+    assert "explained: unit_factor" in out and "[amplitude 4 pi]" in out

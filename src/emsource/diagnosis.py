@@ -72,7 +72,7 @@ from .unit_systems import UNIT_SYSTEMS, stress_energy_prefactor
 
 __all__ = ["SourceSet", "InputState", "Candidate", "CATALOGUE", "BY_NAME", "NAMED_FACTORS",
            "ROUNDINGS", "Explanation", "Diagnosis", "diagnose_sources", "apply_candidates",
-           "round_off_tolerance", "VERDICTS"]
+           "round_off_tolerance", "VERDICTS", "named_factor", "factor_name"]
 
 FUNCTION = "diagnose_sources"
 #: Roundings (in units of eps) two correct routes and a candidate's transformation may differ by
@@ -355,13 +355,19 @@ class Explanation:
                 "residual": _json_number(self.residual), "explains": self.residual <= tolerance}
 
 
-def factor_name(amplitude: float, tolerance: float) -> str:
-    """'4 pi', '-(1/2)', ... when |amplitude| is a named factor to ``tolerance``, else the number."""
+def named_factor(amplitude: float, tolerance: float):
+    """'4 pi', '-(1/2)', ... when |amplitude| is a named factor to ``tolerance``, else None."""
     size = abs(amplitude)
     for name, value in NAMED_FACTORS.items():
         if abs(size / value - 1.0) <= max(tolerance, 4 * np.finfo(float).eps):
             return name if amplitude > 0 else f"-({name})"
-    return f"{amplitude:.6g} (not a named unit factor)"
+    return None
+
+
+def factor_name(amplitude: float, tolerance: float) -> str:
+    """The named factor the amplitude matches, or its value marked as not a named one."""
+    return (named_factor(amplitude, tolerance)
+            or f"{amplitude:.6g} (not a named unit factor)")
 
 
 def _json_number(x):
@@ -552,13 +558,22 @@ class Diagnosis:
                  f"{'candidate(s)':<58} {'amplitude':>22} {'residual':>10}  explains",
                  f"{'(none: the package sources)':<58} {'':>22} {self.agreement:10.3e}  "
                  f"{'yes' if self.agreement <= tau else 'no'}"]
-        shown = sorted(self.singles + self.pairs, key=lambda e: e.residual)[:rows]
+        shown, seen = [], set()
+        for e in sorted(self.singles + self.pairs, key=lambda e: e.residual):
+            # Two orders of commuting steps give the same numbers: show the pair once.
+            key = (frozenset(e.names), float(f"{e.residual:.6e}"), float(f"{e.amplitude:.6e}"))
+            if key not in seen and len(shown) < rows:
+                seen.add(key)
+                shown.append(e)
         for e in shown:
-            amp = e.factor_name(tau) if e.has_amplitude else ""
-            lines.append(f"{e.label:<58} {amp[:22]:>22} {e.residual:10.3e}  "
+            amp = ""
+            if e.has_amplitude:
+                named = named_factor(e.amplitude, tau)
+                amp = f"{e.amplitude:.6g}" + (f" = {named}" if named else "")
+            lines.append(f"{e.label:<58} {amp:>22} {e.residual:10.3e}  "
                          f"{'yes' if e.residual <= tau else 'no'}")
-        lines.append(f"({len(self.singles)} single candidates and {len(self.pairs)} pairs "
-                     f"searched; {rows} best shown)")
+        lines.append(f"({len(self.singles)} single candidates and {len(self.pairs)} ordered pairs "
+                     f"searched; the {len(shown)} best shown, commuting pairs once)")
         lines.append(self.message)
         return "\n".join(lines)
 
