@@ -265,14 +265,16 @@ def test_inputs_are_not_modified_and_excised_points_are_ignored():
 
 
 # ----------------------------------------------------------------------------- command line
-def _snapshot(tmp_path, names, *, noise=0.0, outputs=("energy_density", "momentum_density",
-                                                         "spatial_stress")):
+def _snapshot(tmp_path, names, *, noise=0.0, nan_at=None,
+              outputs=("energy_density", "momentum_density", "spatial_stress")):
     from emsource.grid import UniformGrid
     from emsource.snapshot import write_snapshot
 
     alpha, beta, gamma, E, B = _state(17)
     rho, S_i, S_ij = user_sources(alpha, beta, gamma, E, B, names)
     S_i = S_i + noise * np.random.default_rng(3).standard_normal(S_i.shape)
+    if nan_at is not None:
+        S_i[(0,) + nan_at] = np.nan
     level = {"lapse": alpha, "shift": beta, "spatial_metric": gamma, "electric_field": E,
              "magnetic_field": B, "time": 0.0, "grid": UniformGrid(GRID, (0, 0, 0), (0.1,) * 3),
              "units": "gaussian"}
@@ -307,6 +309,12 @@ def test_command_exit_codes_for_none_fits_and_bad_input(tmp_path, capsys):
     assert "needs at least one of energy_density" in err and "Traceback" not in err
     assert err.count("\n") == 1
     assert sorted(p.name for p in tmp_path.iterdir()) == ["user.h5"]   # nothing written
+    (tmp_path / "user.h5").unlink()
+    path = _snapshot(tmp_path, (), nan_at=(2, 1, 3))
+    assert main(["diagnose-sources", str(path), "--json", str(out)]) == EXIT_BAD_INPUT
+    err = capsys.readouterr().err
+    assert "time level 0" in err and "(2, 1, 3)" in err and "S_i = momentum_density" in err
+    assert "S_i[0] = nan" in err and not out.exists()
 
 
 

@@ -67,7 +67,12 @@ def _run(args) -> int:
     kwargs = read_inputs(args.snapshot, args.level, args.mapping)
     with input_errors(args.snapshot, args.level):
         alpha, beta, gamma, E, B = (kwargs.pop(k) for k in ("alpha", "beta", "gamma", "E", "B"))
-        diagnosis = diagnose_sources(alpha, beta, gamma, E, B, pairs=not args.no_pairs, **kwargs)
+        try:
+            diagnosis = diagnose_sources(alpha, beta, gamma, E, B, pairs=not args.no_pairs,
+                                         **kwargs)
+        except ValueError as error:   # the API's names, with the datasets they were read from
+            names = ", ".join(f"{k} = {q}" for q, k in {**INPUTS, **USER_OUTPUTS}.items())
+            raise ValueError(f"{error} (datasets: {names})") from None
     if args.json:
         with atomic_output(args.json, force=args.force, inputs=(args.snapshot,)) as temporary:
             with open(temporary, "w") as f:
