@@ -32,7 +32,8 @@ independent correct routes differ by at most 24 u = 12 eps times the sum of the 
 of the terms. A candidate's own transformation adds up to 6 eps (a contraction with gamma^ij,
 n = 3, twice for S^ij) and moving an index through gamma^ij amplifies relative errors by up to the
 condition number kappa(gamma) (first-order perturbation of a linear system; Higham ch. 7, from
-memory). With a margin of 1.5 for the order in which a user's code rounds, the tolerance is
+memory). (12 + 6) eps with a margin of 1.5 for the order in which a user's code rounds is 27 eps,
+rounded up to 32; the tolerance is
 
     tau = N eps kappa chi,   N = 32 (:data:`ROUNDINGS`),
 
@@ -52,6 +53,10 @@ unit factor) is decided on an independent, seeded random curved state on the sam
 *probe*): equal there to round-off means equal; else the data cannot tell them apart. Candidates
 that leave the package's sources unchanged on the user's data but not on the probe are listed as
 *not testable on these data*, with the reason where it is a plain property of the inputs.
+
+The transformations act on the (possibly already transformed) sources with NumPy, so that two of
+them compose; that is why T_tt and T_ti are written here again from rho, S_i, S_ij instead of being
+taken from :func:`emsource.stress_energy_4d`, which starts from the fields.
 
 Adding a candidate: one row of :data:`CATALOGUE` (a :class:`Candidate`: name, description,
 transformation, stage, and whether it has a free amplitude); the tests run over the catalogue.
@@ -83,7 +88,7 @@ VERDICTS = ("agree", "explained", "ambiguous", "not explained")
 #: Output names in the order of :class:`SourceSet` (the API names of :mod:`emsource.quantities`).
 OUTPUTS = ("rho", "S_i", "S_ij")
 #: Seed of the probe state (any fixed value; it only has to be independent of the user's data).
-PROBE_SEED = 14_2026
+PROBE_SEED = 142026
 #: Indices of the packed (xx, xy, xz, yy, yz, zz) components in a full 3x3 matrix.
 _PACKED = np.array([[0, 1, 2], [1, 3, 4], [2, 4, 5]])
 _ROWS, _COLS = np.array([0, 0, 0, 1, 1, 2]), np.array([0, 1, 2, 1, 2, 2])
