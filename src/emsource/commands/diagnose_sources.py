@@ -28,7 +28,7 @@ def register(subparsers):
     )
     add_snapshot_arguments(p)
     p.add_argument("--no-pairs", action="store_true",
-                   help="fit single candidates only (the pair search costs about 30 times more)")
+                   help="fit single candidates only (the pair search costs about 10 times more)")
     p.add_argument("--rows", type=int, default=12, metavar="N",
                    help="rows of the verdict table (default 12)")
     p.add_argument("--json", metavar="PATH", help="also write the diagnosis as JSON")
