@@ -29,7 +29,7 @@ LAYERS = (
     ("package root", ("emsource",)),
     ("exact data", ("emsource.exact",)),
     ("diagnostics", ("emsource.conservation", "emsource.constraints", "emsource.unit_audit",
-                     "emsource.convergence")),
+                     "emsource.convergence", "emsource.diagnosis")),
     ("snapshot files", ("emsource.snapshot", "emsource.io", "emsource.layout_mapping",
                         "emsource.streaming")),
     ("post-processing", ("emsource.integrals", "emsource.time_series",
