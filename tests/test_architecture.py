@@ -21,7 +21,8 @@ LAYERS = (
     ("kernels", ("emsource.kernels",)),
     ("foundation", ("emsource._arguments", "emsource.errors", "emsource.grid", "emsource.unit_systems",
                     "emsource.quantities", "emsource.input_forms", "emsource._threading",
-                    "emsource.interruption", "emsource._deprecated_names")),
+                    "emsource.interruption", "emsource._deprecated_names",
+                    "emsource.staggering")),
     ("point physics", ("emsource.sources", "emsource.energy_flux", "emsource.reductions",
                        "emsource.physical_units")),
     ("package root", ("emsource",)),
@@ -31,7 +32,7 @@ LAYERS = (
     ("snapshot files", ("emsource.snapshot", "emsource.io", "emsource.layout_mapping",
                         "emsource.streaming")),
     ("post-processing", ("emsource.integrals", "emsource.time_series",
-                         "emsource.sample_grids")),
+                         "emsource.sample_grids", "emsource.snapshot_balance")),
     ("command line", ("emsource.commands", "emsource.cli", "emsource.__main__")),
 )
 

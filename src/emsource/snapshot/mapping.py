@@ -391,6 +391,10 @@ class LayoutMapping:
             datasets = [_dataset(h5file, group, p, where, listing) for p in spec.components]
             shapes = {d.shape for d in datasets}
             if len(shapes) != 1:
+                hint = staggered.undeclared_staggering([(d.name, d.shape) for d in datasets],
+                                                       where)
+                if hint is not None:
+                    raise hint
                 found = ", ".join(f"{d.name} {d.shape}" for d in datasets)
                 raise MappingError(f"{where}: components of {spec.name!r} differ in shape: {found}")
             return _ComponentSource(datasets, spec.scale, COMPONENTS[spec.name] == 0)
