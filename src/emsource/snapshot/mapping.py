@@ -345,12 +345,14 @@ class LayoutMapping:
                                                          listing)
             return raw[j, spec.name]
 
-        entries = [(q, tuple(s.shape[1:]) if COMPONENTS[q] else tuple(s.shape), (0, 0, 0))
+        entries = [(f"[quantities.{q}] ({', '.join(s.paths)})",
+                    tuple(s.shape[1:]) if COMPONENTS[q] else tuple(s.shape), (0, 0, 0))
                    for q, s in stored.items()]
         for spec in specs:
             for c, (comp, offsets) in enumerate(zip(components(k, spec),
                                                     spec.staggering.offsets)):
-                entries.append((comp.path, comp.shape, offsets))
+                entries.append((f"[quantities.{spec.name}] {spec.staggering.key} (component "
+                                f"{c}, {comp.path})", comp.shape, offsets))
         vertex_shape = staggered.vertex_storage_shape(entries, lw)
         for spec in specs:
             nodes = staggered.time_nodes(times, k, spec.staggering.time_offset * scale,

@@ -13,6 +13,7 @@ memory bound.
 
 from __future__ import annotations
 
+from collections import Counter
 from dataclasses import dataclass
 
 import numpy as np
@@ -162,9 +163,14 @@ def vertex_storage_shape(entries, where) -> tuple:
             shape.append(plain.pop())
             continue
         if len(plain) > 1:
-            detail = ", ".join(f"{label} {s}" for label, s, o in entries if o[axis] == 0)
+            counts = Counter(s[axis] for _, s, o in entries if o[axis] == 0)
+            expected = max(counts, key=lambda n: (counts[n], n))
+            wrong = "; ".join(f"{label} has shape {s}" for label, s, o in entries
+                              if o[axis] == 0 and s[axis] != expected)
             raise MappingError(f"{where}: the datasets stored on the vertices along storage axis "
-                               f"{axis} differ in length ({detail}); expected one vertex count")
+                               f"{axis} (offset 0 there) differ in length: expected {expected} "
+                               f"points along that axis (as most of them), found: {wrong}. "
+                               "Check the declared centring or offsets")
         stored = {s[axis] + 1 for _, s, o in entries}
         if len(stored) > 1:
             detail = ", ".join(f"{label} {s}" for label, s, _ in entries)
