@@ -175,12 +175,30 @@ def interpolate_axis(values, axis: int, starts, weights, *, base: int = 0, out=N
         out = np.empty(shape, values.dtype)
     pre = int(np.prod(shape[:axis]))
     post = int(np.prod(shape[axis + 1:]))
+    starts = np.asarray(starts, np.int64)
+    weights = np.asarray(weights, values.dtype)
+    lo, hi = _shared_stencil_rows(starts, weights)
     with kernel_call():
-        interpolate_middle_axis(values.reshape(pre, values.shape[axis], post),
-                                np.asarray(starts, np.int64),
-                                np.asarray(weights, values.dtype), int(base),
-                                out.reshape(pre, shape[axis], post))
+        interpolate_middle_axis(values.reshape(pre, values.shape[axis], post), starts, weights,
+                                int(base), lo, hi, out.reshape(pre, shape[axis], post))
     return out
+
+
+def _shared_stencil_rows(starts, weights):
+    """The longest run of rows lo:hi with one stencil (equal weights, starts rising by one):
+    the kernel runs it as one contiguous loop."""
+    n = len(starts)
+    if n == 0:
+        return 0, 0
+    same = np.ones(n, bool)
+    same[1:] = np.all(weights[1:] == weights[:-1], axis=1) & (np.diff(starts) == 1)
+    best, lo = (0, 0), 0
+    for j in range(1, n + 1):
+        if j == n or not same[j]:
+            if j - lo > best[1] - best[0]:
+                best = (lo, j)
+            lo = j
+    return best
 
 
 def to_vertices(values, offset, *, points=None, order: int = 2) -> np.ndarray:

@@ -336,6 +336,7 @@ class LayoutMapping:
         specs = [spec for spec in self.quantities.values() if spec.staggering is not None]
         if not specs:
             return
+        pool = raw.setdefault("pool", staggered.ScratchPool())
         lw = found[k][3]
         scale = float(self.time.get("scale", 1.0))
 
@@ -360,7 +361,7 @@ class LayoutMapping:
             stored[spec.name] = staggered.StaggeredSource(
                 spec.name, [(w, components(j, spec)) for j, w in nodes], spec.staggering,
                 vertex_shape, self.interpolation_order, spec.scale, COMPONENTS[spec.name] == 0,
-                lw)
+                lw, pool)
 
     def _time(self, group, index, where):
         scale = float(self.time.get("scale", 1.0))

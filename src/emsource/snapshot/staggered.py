@@ -13,6 +13,7 @@ memory bound.
 
 from __future__ import annotations
 
+import threading
 from collections import Counter
 from dataclasses import dataclass
 
@@ -198,6 +199,29 @@ def undeclared_staggering(shapes, where):
         "in its [quantities.<name>] table")
 
 
+class ScratchPool:
+    """Reused work buffers of the staggered sources of one open file, one set per thread.
+
+    A fresh buffer per read costs a page fault per 4 KiB on first touch, which made the
+    interpolation several times slower than the arithmetic (measured on 96^3: 7 ms instead
+    of about 1 ms per component and axis); reused buffers are touched once. Each slot grows to
+    the largest request and is kept while the file is open: the sources count that memory in
+    ``scratch_bytes_per_row``.
+    """
+
+    def __init__(self):
+        self._local = threading.local()
+
+    def array(self, slot, shape, dtype):
+        slots = self._local.__dict__.setdefault("slots", {})
+        dtype = np.dtype(dtype)
+        size = int(np.prod(shape)) * dtype.itemsize
+        buffer = slots.get(slot)
+        if buffer is None or buffer.nbytes < size:
+            buffer = slots[slot] = np.empty(max(size, 1), np.uint8)
+        return buffer[:size].view(dtype).reshape(shape)
+
+
 class StaggeredSource:
     """A ``DataSource`` that reads a staggered quantity at the vertices (module docstring).
 
@@ -216,10 +240,14 @@ class StaggeredSource:
     scalar : bool
     where : str
         The level and mapping, for messages.
+    pool : ScratchPool, optional
+        Work buffers shared with the other staggered sources of the file.
     """
 
-    def __init__(self, name, nodes, staggering, vertex_shape, order, scale, scalar, where):
+    def __init__(self, name, nodes, staggering, vertex_shape, order, scale, scalar, where,
+                 pool=None):
         self.name = name
+        self.pool = ScratchPool() if pool is None else pool
         self.nodes = nodes
         self.scale = scale
         self.scalar = scalar
@@ -272,16 +300,20 @@ class StaggeredSource:
         if not staggered:
             raw.read(dest, lo, hi)
             return
-        work = np.empty((hi - lo,) + raw.shape[1:], dtype)
+        work = self.pool.array("stored", (hi - lo,) + raw.shape[1:], dtype)
         raw.read(work, lo, hi)
-        for axis in staggered:
+        shape = list(work.shape)
+        for step, axis in enumerate(staggered):
             starts, weights = stencils[axis]
             if axis == 0:
                 starts, weights, base = starts[start:stop], weights[start:stop], lo
             else:
                 base = 0
-            out = dest if axis == staggered[-1] else None
-            work = interpolate_axis(work, axis, starts, weights.astype(dtype), base=base, out=out)
+            shape[axis] = len(starts)
+            out = (dest if axis == staggered[-1]
+                   else self.pool.array(f"step{step % 2}", tuple(shape), dtype))
+            work = interpolate_axis(work, axis, starts, weights.astype(dtype, copy=False),
+                                    base=base, out=out)
 
     def read_into(self, out, start, stop):
         buffer = None
@@ -294,7 +326,7 @@ class StaggeredSource:
                         target *= out.dtype.type(weight)
                     continue
                 if buffer is None:
-                    buffer = np.empty(target.shape, out.dtype)
+                    buffer = self.pool.array("time", target.shape, out.dtype)
                 self._component(comps[c], self.stencils[c], start, stop, out.dtype, buffer)
                 buffer *= out.dtype.type(weight)
                 target += buffer
