@@ -272,3 +272,23 @@ def test_padded_unstaggered_quantity_mixed_with_staggered_ones(tmp_path):
         f["sim/out0/alpha"] = np.ones((9, 9, 10))
     with pytest.raises(MappingError, match="differ in length"):
         open_snapshot(tmp_path / "s.h5", tmp_path / "m.toml")
+
+
+@pytest.mark.parametrize("axis", ["first", "last"])
+def test_stacked_dataset_with_a_component_axis(tmp_path, axis):
+    """B (padded: every component n values along every axis) stored as one dataset with the
+    component axis first or last reads as the three datasets do."""
+    h, dt = write_staggered(tmp_path / "s.h5", 9)
+    with h5py.File(tmp_path / "s.h5", "a") as f:
+        for k in range(5):
+            g = f[f"sim/out{k}"]
+            stacked = np.stack([g[f"B{a}"][()] for a in "xyz"])
+            g["B"] = stacked if axis == "first" else np.moveaxis(stacked, 0, -1)
+    want = read_level(tmp_path / "s.h5", 2, write_mapping(tmp_path / "a.toml", h, dt))
+    b_layout = (f'dataset = "B"\ncomponent_axis = "{axis}"\ncentring = "face"\n'
+                f"time_offset = {dt / 2!r}")
+    body = write_mapping(tmp_path / "b.toml", h, dt, b_layout=b_layout).read_text()
+    (tmp_path / "b.toml").write_text(body.replace(
+        'components = ["Bx", "By", "Bz"]\ndataset', 'dataset'))
+    got = read_level(tmp_path / "s.h5", 2, tmp_path / "b.toml")
+    assert np.array_equal(got["magnetic_field"], want["magnetic_field"])
