@@ -22,7 +22,7 @@ LAYERS = (
     ("foundation", ("emsource._arguments", "emsource.errors", "emsource.grid", "emsource.unit_systems",
                     "emsource.quantities", "emsource.input_forms", "emsource._threading",
                     "emsource.interruption", "emsource._deprecated_names",
-                    "emsource.spin_harmonics")),
+                    "emsource.spin_harmonics", "emsource.staggering")),
     ("point physics", ("emsource.sources", "emsource.energy_flux", "emsource.reductions",
                        "emsource.physical_units", "emsource.newman_penrose",
                        "emsource.potential", "emsource.patches")),
@@ -34,7 +34,7 @@ LAYERS = (
                         "emsource.streaming")),
     ("post-processing", ("emsource.integrals", "emsource.time_series",
                          "emsource.sample_grids", "emsource.radiation",
-                         "emsource.radiation_output")),
+                         "emsource.radiation_output", "emsource.snapshot_balance")),
     ("command line", ("emsource.commands", "emsource.cli", "emsource.__main__")),
 )
 

@@ -17,7 +17,9 @@ in a fresh interpreter (``tests/snapshot_data.py: run_cli``), as a user would:
   datasets' raw data, whose places h5py reports);
 - TOML layout mappings for a small file in a foreign layout: the working mapping with values at
   random keys replaced by values of any TOML type (strings, integers, floats with NaN and Inf,
-  booleans, dates, arrays, tables), keys deleted or unknown keys added, or its text damaged.
+  booleans, dates, arrays, tables), keys deleted or unknown keys added, or its text damaged
+  (the working mapping holds the staggering keys ``centring``, ``time_offset``,
+  ``interpolation_order`` and a time ``scale`` at values that change nothing, so edits reach them).
 
 The property, for every example (issue 10, "Nothing lost, no traceback"): the exit code is a
 documented one (:mod:`emsource.commands`: 0 ok, 1 a check failed, 2 usage, 3 bad input, 4 output
@@ -101,14 +103,18 @@ BASE_MAPPING = {
     "mapping_version": 1,
     "axis_order": "zyx",
     "units": "gaussian",
-    "time_levels": {"pattern": "/run/step_{index}", "time": {"attribute": "sim_time"}},
+    # Keys of the staggered layouts, at values that change nothing, so that edits reach them.
+    "interpolation_order": 2,
+    "time_levels": {"pattern": "/run/step_{index}",
+                    "time": {"attribute": "sim_time", "scale": 1.0}},
     "grid": {"spacing": {"attribute": "cell_size"},
              "origin": {"attribute": "corner", "object": "fields"}},
     "quantities": {
         "spatial_metric": {"dataset": "fields/metric"},
         "extrinsic_curvature": {"dataset": "fields/curv", "component_axis": "first",
                                 "scale": 1.0},
-        "electric_field": {"components": ["fields/Ex", "fields/Ey", "fields/Ez"]},
+        "electric_field": {"components": ["fields/Ex", "fields/Ey", "fields/Ez"],
+                           "centring": "vertex", "time_offset": 0.0},
         "magnetic_field": {"components": ["fields/Bx", "fields/By", "/run/step_0/fields/Bz"]},
         "valid_mask": {"components": ["fields/ok"]},
     },

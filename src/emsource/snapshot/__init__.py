@@ -6,6 +6,7 @@ Modules, each importing only those above it:
 ``errors``             :class:`SnapshotError`, :class:`MappingError`, :class:`OutputError`
 ``levels``             :class:`TimeLevel`, the ``DataSource`` protocol, ``build_level``, level choice
 ``native``             the native layout (its documentation) and its reader
+``staggered``          staggered quantities of a mapping: their keys and ``StaggeredSource``
 ``mapping``            TOML layout mappings (its documentation) and their sources
 ``writing``            atomic output, overwrite and same-file checks, write failures, provenance,
                        :func:`write_snapshot`

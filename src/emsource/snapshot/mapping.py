@@ -6,11 +6,15 @@ levels are found and where the grid's spacing and origin come from. Example (eve
     mapping_version = 1
     axis_order = "zyx"              # storage order of the grid axes: "xyz" or "zyx"
     units = "heaviside_lorentz"     # unit system of the stored fields: or "gaussian" (required)
+    interpolation_order = 2         # staggered data to the vertices: 2 or 4 points per staggered
+                                    # direction (default 2; see "Staggered data" below)
 
     [time_levels]
     pattern = "/run/step_{index}"   # HDF5 group of each level; {index} matches digits
     time = { attribute = "sim_time" }       # an attribute of the level group, or
     # time = { per_index = 0.25 }           # time = index * per_index
+    # time = { attribute = "t", scale = 299792458.0 }   # optional "scale": stored time * scale
+                                            # = code time (a time unit; here seconds -> metres)
 
     [grid]
     spacing = { attribute = "cell_size" }   # an attribute, or
@@ -23,6 +27,14 @@ levels are found and where the grid's spacing and origin come from. Example (eve
     # dataset = "E"                         # one dataset holding all components
     # component_axis = "first"              # ... with the component axis "first" or "last"
     scale = 1.0                             # stored value * scale = value in `units`
+
+    [quantities.magnetic_field]
+    components = ["fields/Bx", "fields/By", "fields/Bz"]
+    centring = "face"                       # where it is stored: "vertex" (default), "cell",
+                                            # "face" or "edge" (vectors), or instead
+    # offsets = [[0.5, 0, 0], [0, 0.5, 0], [0, 0, 0.5]]  # one triple per component (x, y, z),
+                                            # each 0 or 0.5 along the grid axes (storage order)
+    time_offset = 0.005                     # stored at level time + 0.005 (file time unit)
 
     [quantities.spatial_metric]
     identity = true                         # flat metric gamma_ij = delta_ij, nothing stored
@@ -42,6 +54,19 @@ One rule for the order of the grid triples: ``spacing`` and ``origin`` are read 
 storage order (``axis_order``), whether they are given as three values or as an attribute; for
 ``axis_order = "zyx"`` both mean (z, y, x). Component lists and packed tensors are always in
 (x, y, z) order: (x, y, z) for vectors, (xx, xy, xz, yy, yz, zz) for symmetric tensors.
+
+Staggered data. ``centring``, ``offsets`` and ``time_offset`` say where a quantity is stored
+(positions and interpolation: :mod:`emsource.staggering`): "face" puts component c at the
+centre of the face normal to axis c (B^x at (i, j + 1/2, k + 1/2)), "edge" at the centre of the
+edge along axis c (E^x at (i + 1/2, j, k)), "cell" every component at (i + 1/2, j + 1/2,
+k + 1/2). Along an axis with offset 1/2 a component stores n - 1 values (between the n vertices)
+or n (padded: the last half a cell outside). The vertex count of an axis is the length of the
+datasets stored with offset 0 along it, or the stored length + 1 where every dataset is offset
+there. Each quantity is read at the vertices, at the time of its level (``time_offset``: from
+the levels around it), by Lagrange interpolation of ``interpolation_order``; the slab readers
+read the halo rows the stencils need. A stored shape that does not fit its declared offsets
+is an error naming the key, the expected and the found shape; shapes that differ by one point
+while the mapping declares no offsets are an error saying that the data look staggered.
 
 Quantity names are those of the native layout (:data:`emsource.quantities.NAMES`). Dataset paths
 are relative to the level group unless they start with "/". ``units`` is required: a silent
@@ -68,6 +93,7 @@ from .mapping_units import MappingUnits, parse_physical_units
 from .potential_sources import add_curl_sources
 from .levels import (AXIS_ORDERS, UNIT_SYSTEMS, attribute_number, attribute_vector, build_level,
                      chunk_bytes_of, chunk_rows_of, kind_of, open_object)
+from . import staggered
 
 if sys.version_info >= (3, 11):
     import tomllib
@@ -79,13 +105,13 @@ __all__ = ["LayoutMapping", "QuantitySpec", "load_mapping", "MAPPING_VERSION"]
 MAPPING_VERSION = 1
 
 _TOP_KEYS = {"mapping_version", "axis_order", "units", "time_levels", "grid", "quantities",
-             "physical_units"}
+             "physical_units", "interpolation_order"}
 _LEVEL_KEYS = {"pattern", "time"}
-_TIME_KEYS = {"attribute", "object", "per_index"}
+_TIME_KEYS = {"attribute", "object", "per_index", "scale"}
 _GRID_KEYS = {"spacing", "origin"}
 _ATTRIBUTE_KEYS = {"attribute", "object"}
-_QUANTITY_KEYS = {"dataset", "components", "component_axis", "scale", "identity", "unit",
-                  "curl_order"}
+_QUANTITY_KEYS = ({"dataset", "components", "component_axis", "scale", "identity", "unit",
+                   "curl_order"} | staggered.QUANTITY_KEYS)
 
 
 @dataclass
@@ -99,6 +125,7 @@ class QuantitySpec:
     scale: float = 1.0
     identity: bool = False
     curl_order: int = 2
+    staggering: staggered.Staggering | None = None
 
 
 class _Checker:
@@ -235,6 +262,7 @@ class LayoutMapping:
     origin: object
     quantities: dict = field(default_factory=dict)
     physical_units: MappingUnits = field(default_factory=MappingUnits)
+    interpolation_order: int = staggered.DEFAULT_ORDER
 
     def _level_groups(self, h5file):
         regex = re.compile("^" + re.escape(self.pattern.strip("/")).replace(
@@ -261,10 +289,14 @@ class LayoutMapping:
             raise MappingError(f"{where}: the mapping names no stored dataset")
         levels = []
         text = listing()
+        found = []
         for index, name in groups:
             group = h5file[name]
             lw = f"{where}, level /{name}"
-            time = self._time(group, index, lw) * self.physical_units.time_factor
+            found.append((index, name, group, lw, self._time(group, index, lw)))
+        times = [t for *_, t in found]
+        raw = {}  # (level number, quantity) -> stored components of a staggered quantity
+        for k, (index, name, group, lw, time) in enumerate(found):
             spacing = self._vector(group, self.spacing, "spacing", lw)
             origin = self._vector(group, self.origin, "origin", lw)
             spacing, origin = (tuple(v * self.physical_units.length_factor for v in triple)
@@ -273,9 +305,11 @@ class LayoutMapping:
             for q, spec in self.quantities.items():
                 if spec.identity:
                     derived[q] = _IdentityMetric
-                else:
+                elif spec.staggering is None:
                     stored[q] = self._source(h5file, group, spec, lw, listing)
-            if "vector_potential" in stored:
+            self._check_undeclared_staggering(h5file, group, stored, lw, listing)
+            self._staggered_sources(h5file, found, times, k, stored, raw, listing)
+            if "vector_potential" in stored:  # after staggering: A is on the vertices
                 self._curl_sources(stored, derived, spacing, lw)
             levels.append(build_level(
                 str(index), time, self.units, self.axis_order, origin, spacing, stored, where,
@@ -292,15 +326,87 @@ class LayoutMapping:
                          spacing_xyz=spacing, axis_order=self.axis_order,
                          identity_metric=derived.get("spatial_metric"), where=where)
 
+    def _raw_components(self, h5file, group, spec, where, listing):
+        """The stored components of a staggered quantity at one level (shapes may differ)."""
+        ncomp = COMPONENTS[spec.name]
+        if spec.components is not None:
+            comps = [staggered.RawComponent(_dataset(h5file, group, p, where, listing))
+                     for p in spec.components]
+        else:
+            dataset = _dataset(h5file, group, spec.dataset, where, listing)
+            if not ncomp:
+                comps = [staggered.RawComponent(dataset)]
+            else:
+                last = spec.component_axis == "last"
+                expected = (f"(n0, n1, n2, {ncomp})" if last else f"({ncomp}, n0, n1, n2)")
+                if dataset.ndim != 4 or dataset.shape[-1 if last else 0] != ncomp:
+                    raise MappingError(f"{where}: {dataset.name!r} ({spec.name}, component axis "
+                                       f"{spec.component_axis}) has shape {dataset.shape}, "
+                                       f"expected {expected}")
+                comps = [staggered.RawComponent(dataset, c, last) for c in range(ncomp)]
+        for c in comps:
+            staggered.check_raw(c, where, f"[quantities.{spec.name}]")
+        return comps
+
+    def _check_undeclared_staggering(self, h5file, group, stored, where, listing):
+        """Shapes that differ by one point while the mapping declares no offsets: an error that
+        says so (see :func:`.staggered.undeclared_staggering`)."""
+        if any(spec.staggering is not None for spec in self.quantities.values()):
+            return
+        shapes = [(q, tuple(s.shape[1:]) if COMPONENTS[q] else tuple(s.shape))
+                  for q, s in stored.items()]
+        error = staggered.undeclared_staggering(shapes, where)
+        if error is not None:
+            raise error
+
+    def _staggered_sources(self, h5file, found, times, k, stored, raw, listing):
+        """Add the :class:`.staggered.StaggeredSource` of every staggered quantity of level
+        ``k`` to ``stored`` (``raw`` caches the stored components of each level)."""
+        specs = [spec for spec in self.quantities.values() if spec.staggering is not None]
+        if not specs:
+            return
+        pool = raw.setdefault("pool", staggered.ScratchPool())
+        lw = found[k][3]
+
+        def components(j, spec):
+            if (j, spec.name) not in raw:
+                raw[j, spec.name] = self._raw_components(h5file, found[j][2], spec, found[j][3],
+                                                         listing)
+            return raw[j, spec.name]
+
+        entries = [(f"[quantities.{q}] ({', '.join(s.paths)})",
+                    tuple(s.shape[1:]) if COMPONENTS[q] else tuple(s.shape), (0, 0, 0))
+                   for q, s in stored.items()]
+        for spec in specs:
+            for c, (comp, offsets) in enumerate(zip(components(k, spec),
+                                                    spec.staggering.offsets)):
+                entries.append((f"[quantities.{spec.name}] {spec.staggering.key} (component "
+                                f"{c}, {comp.path})", comp.shape, offsets))
+        vertex_shape = staggered.vertex_storage_shape(entries, lw)
+        for spec in specs:
+            nodes = staggered.time_nodes(times, k, spec.staggering.time_offset * self._time_factor(),
+                                         self.interpolation_order, lw, spec.name)
+            stored[spec.name] = staggered.StaggeredSource(
+                spec.name, [(w, components(j, spec)) for j, w in nodes], spec.staggering,
+                vertex_shape, self.interpolation_order, spec.scale, COMPONENTS[spec.name] == 0,
+                lw, pool)
+
+    def _time_factor(self) -> float:
+        """Stored time (and time offset) * this = code time: the time spec's ``scale`` times
+        the ``[physical_units]`` time unit's factor (both 1 unless given)."""
+        return float(self.time.get("scale", 1.0)) * self.physical_units.time_factor
+
     def _time(self, group, index, where):
+        scale = self._time_factor()
         if "per_index" in self.time:
-            return index * float(self.time["per_index"])
+            return index * float(self.time["per_index"]) * scale
         obj = _object(group, self.time.get("object", "."), where)
         name = self.time["attribute"]
         if name not in obj.attrs:
             raise MappingError(f"{where}: time attribute {name!r} not on {obj.name}; found "
                                f"{sorted(obj.attrs.keys()) or 'no attributes'}")
-        return attribute_number(obj.attrs[name], f"time attribute {name!r} of {obj.name}", where)
+        return scale * attribute_number(obj.attrs[name], f"time attribute {name!r} of {obj.name}",
+                                        where)
 
     def _vector(self, group, spec, what, where):
         """(x, y, z)-order triple from a list or an attribute, both in storage order."""
@@ -321,6 +427,10 @@ class LayoutMapping:
             datasets = [_dataset(h5file, group, p, where, listing) for p in spec.components]
             shapes = {d.shape for d in datasets}
             if len(shapes) != 1:
+                hint = staggered.undeclared_staggering([(d.name, d.shape) for d in datasets],
+                                                       where)
+                if hint is not None:
+                    raise hint
                 found = ", ".join(f"{d.name} {d.shape}" for d in datasets)
                 raise MappingError(f"{where}: components of {spec.name!r} differ in shape: {found}")
             return _ComponentSource(datasets, spec.scale, COMPONENTS[spec.name] == 0)
@@ -350,7 +460,7 @@ def _read_table(path, check):
 
 
 def _attribute_spec(spec, where, check):
-    check.keys(spec, _ATTRIBUTE_KEYS | ({"per_index"} if "time" in where else set()), where)
+    check.keys(spec, _TIME_KEYS if "time" in where else _ATTRIBUTE_KEYS, where)
     if "attribute" in spec:
         check.text(spec["attribute"], f"{where} attribute")
     if "object" in spec:
@@ -396,6 +506,9 @@ def load_mapping(path) -> LayoutMapping:
                    f"{sorted(time)}")
     if "per_index" in time:
         check.number(time["per_index"], "[time_levels] time per_index")
+    if "scale" in time:
+        if check.number(time["scale"], "[time_levels] time scale") <= 0:
+            check.fail(f"[time_levels] time scale must be positive, found {time['scale']!r}")
 
     grid = table["grid"]
     check.keys(grid, _GRID_KEYS, "[grid]")
@@ -468,8 +581,10 @@ def load_mapping(path) -> LayoutMapping:
             spec.dataset = check.text(q["dataset"], f"{where} dataset")
         if spec.identity and ("scale" in q or "component_axis" in q):
             check.fail(f"{where} identity takes no scale or component_axis")
+        spec.staggering = staggered.parse_staggering(q, name, ncomp, axis_order, where, check)
         specs[name] = spec
     return LayoutMapping(path=os.path.abspath(path), axis_order=axis_order, units=units,
                          pattern=pattern, time=time, spacing=vectors["spacing"],
                          origin=vectors["origin"], quantities=specs,
-                         physical_units=unit_scales)
+                         physical_units=unit_scales,
+                         interpolation_order=staggered.parse_interpolation_order(table, check))

@@ -1,0 +1,148 @@
+"""``emsource balance``: local and global energy-momentum conservation check of a file's time levels."""
+
+from __future__ import annotations
+
+import csv
+
+from .._arguments import DIFFERENCE_ORDERS
+from . import EXIT_BAD_INPUT, EXIT_CHECK_FAILED, EXIT_OK
+from ._snapshot_options import check_new_output, fail, run_guarded, tolerance
+
+HELP = "energy and momentum conservation of a snapshot's time levels (local residual, global balance)"
+
+#: Default of --tolerance: relative mismatch of the global balance.
+DEFAULT_TOLERANCE = 1e-3
+
+
+def register(subparsers):
+    p = subparsers.add_parser(
+        "balance", help=HELP,
+        description=HELP + ". Local: at each level with an equally spaced level on either side, "
+        "the residual of the flux-conservative 3+1 energy and momentum equations (centred "
+        "differences, time derivative from the two neighbours), as norms. Global: the change of "
+        "the total energy and momentum in the box of interior points from the first to the last "
+        "level, against the time-integrated outflow through the box faces and the volume "
+        "sources (trapezoid rules: the mismatch of smooth data falls as h^2 and dt^2). Absent "
+        "lapse, shift, extrinsic curvature and charges take their empty flat-space values.",
+        epilog="Exit codes: 0 the balance closes: the relative mismatch (|change + outflow - "
+               "source| / largest box energy) of the energy and of every momentum component is "
+               "at most --tolerance, and, if --residual-tolerance is given, every normalised l2 "
+               "residual is at most that; 1 it does not close; 2 usage; 3 bad input (a missing "
+               "or malformed file, mapping or dataset, fewer than two levels, a bad grid point); "
+               "4 the CSV exists (use --force) or cannot be written.")
+    p.add_argument("snapshot", help="HDF5 snapshot (native layout, or any with --mapping)")
+    p.add_argument("--mapping", metavar="TOML",
+                   help="layout mapping file for a snapshot in another code's layout")
+    p.add_argument("--levels", metavar="I", type=int, nargs="+",
+                   help="indices of the time levels to use (default: all), at least two")
+    p.add_argument("--order", type=int, choices=DIFFERENCE_ORDERS, default=2,
+                   help="order of the centred space differences (default 2)")
+    p.add_argument("--tolerance", type=tolerance, default=DEFAULT_TOLERANCE,
+                   help="largest relative mismatch of the global balance that passes "
+                        f"(default {DEFAULT_TOLERANCE:g})")
+    p.add_argument("--residual-tolerance", type=tolerance, default=None,
+                   help="also fail if a normalised l2 residual of a level exceeds this")
+    p.add_argument("--csv", metavar="FILE",
+                   help="write one row per level (time, box totals, outflow, residual norms)")
+    p.add_argument("--force", action="store_true", help="replace an existing CSV")
+    p.add_argument("--quiet", action="store_true", help="no table, only the exit status")
+    p.set_defaults(run=lambda args: run_guarded(_run, args))
+
+
+def _run(args) -> int:
+    from ..snapshot import open_snapshot
+    from ..snapshot_balance import balance_open_snapshot
+
+    if args.csv:
+        check_new_output(args.csv, args.force)
+    with open_snapshot(args.snapshot, args.mapping) as snap:
+        if args.csv:
+            check_new_output(args.csv, args.force, snap.inputs)
+        result = balance_open_snapshot(snap, levels=args.levels, order=args.order)
+        inputs = snap.inputs
+    rows = _rows(result)
+    if args.csv:
+        _write_csv(args.csv, rows, args.force, inputs)
+    energy, momentum = result.balance.energy, result.balance.momentum
+    worst = max([energy.relative_mismatch] + [float(m) for m in momentum.relative_mismatch])
+    residual = [r["energy_norm_l2"] for r in rows if r["energy_norm_l2"] != ""]
+    residual += [r[f"momentum_{a}_norm_l2"] for r in rows for a in "xyz"
+                 if r[f"momentum_{a}_norm_l2"] != ""]
+    worst_residual = max(residual) if residual else None
+    closes = worst <= args.tolerance
+    if args.residual_tolerance is not None:
+        if worst_residual is None:
+            return fail(EXIT_BAD_INPUT, f"{args.snapshot}: --residual-tolerance needs three equally spaced "
+                           "time levels; none has a neighbour on both sides")
+        closes = closes and worst_residual <= args.residual_tolerance
+    if not args.quiet:
+        print(_summary(args, result, rows, worst, worst_residual, closes))
+    return EXIT_OK if closes else EXIT_CHECK_FAILED
+
+
+def _rows(result) -> list:
+    b = result.balance
+    rows = []
+    for k, r in enumerate(result.residuals):
+        row = {"level": r.label, "t": r.time, "energy": b.totals[k, 0],
+               "momentum_x": b.totals[k, 1], "momentum_y": b.totals[k, 2],
+               "momentum_z": b.totals[k, 3], "energy_outflow_rate": b.outflow_rates[k, 0],
+               "energy_source_rate": b.source_rates[k, 0]}
+        row["energy_norm_l2"] = "" if r.energy is None else float(r.energy.normalised_l2)
+        for i, a in enumerate("xyz"):
+            row[f"momentum_{a}_norm_l2"] = ("" if r.momentum is None
+                                            else float(r.momentum.normalised_l2[i]))
+        row["energy_residual_l2"] = "" if r.energy is None else float(r.energy.l2)
+        rows.append(row)
+    return rows
+
+
+def _write_csv(path, rows, force, inputs):
+    from ..snapshot import atomic_output
+
+    with atomic_output(path, force=force, inputs=inputs) as temporary:
+        with open(temporary, "w", newline="") as handle:
+            writer = csv.writer(handle)
+            writer.writerow(list(rows[0]))
+            for row in rows:
+                writer.writerow([v if isinstance(v, str) else repr(float(v))
+                                 for v in row.values()])
+
+
+def _summary(args, result, rows, worst, worst_residual, closes) -> str:
+    b = result.balance
+    lines = [f"emsource balance: {args.snapshot}"
+             + (f"  (mapping {args.mapping})" if args.mapping else "  (native layout)"),
+             f"  {len(rows)} time levels, t = {rows[0]['t']:.6g} to {rows[-1]['t']:.6g}; "
+             f"centred differences of order {result.order}; code units (G = c = 1)"]
+    if result.absent:
+        lines.append(f"  absent, taken as empty flat space: {', '.join(result.absent)}")
+    lines.append(f"  {'level':>6} {'t':>11} {'energy':>13} {'outflow rate':>13} "
+                 f"{'res. energy':>11} {'res. mom. x':>11} {'res. mom. y':>11} "
+                 f"{'res. mom. z':>11}")
+    for row in rows:
+        def cell(value):
+            return f"{'-':>11}" if value == "" else f"{value:11.3e}"
+        lines.append(f"  {row['level']:>6} {row['t']:11.5g} {row['energy']:13.6g} "
+                     f"{row['energy_outflow_rate']:13.6g} {cell(row['energy_norm_l2'])} "
+                     + " ".join(cell(row[f'momentum_{a}_norm_l2']) for a in "xyz"))
+    lines.append("  res. = normalised l2 of the local residual (residual / largest term); "
+                 "'-': no equally spaced level on both sides")
+    e, m = b.energy, b.momentum
+    lines.append(f"  global balance over t = {b.times[0]:.6g} to {b.times[-1]:.6g}:")
+    lines.append(f"    {'':<10} {'change':>13} {'outflow':>13} {'source':>13} {'mismatch':>13} "
+                 f"{'relative':>10}")
+    lines.append(f"    {'energy':<10} {e.change:13.6g} {e.outflow:13.6g} {e.source:13.6g} "
+                 f"{e.mismatch:13.4e} {e.relative_mismatch:10.3e}")
+    for i, a in enumerate("xyz"):
+        lines.append(f"    {'momentum ' + a:<10} {m.change[i]:13.6g} {m.outflow[i]:13.6g} "
+                     f"{m.source[i]:13.6g} {m.mismatch[i]:13.4e} {m.relative_mismatch[i]:10.3e}")
+    verdict = "closes" if closes else "does NOT close"
+    detail = f"largest relative mismatch {worst:.3e}, tolerance {args.tolerance:g}"
+    if args.residual_tolerance is not None:
+        detail += (f"; largest normalised residual {worst_residual:.3e}, tolerance "
+                   f"{args.residual_tolerance:g}")
+    lines.append(f"  the balance {verdict} ({detail})")
+    if args.csv:
+        lines.append(f"  wrote        {args.csv}")
+    return "\n".join(lines)
