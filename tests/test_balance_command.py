@@ -17,6 +17,7 @@ energy is the SI energy in joules. Checks against outside references:
 from __future__ import annotations
 
 import csv
+import re
 
 import h5py
 import numpy as np
@@ -199,3 +200,35 @@ def test_human_readable_table(yee_runs, capsys):
     assert "global balance over t = 0 to 0.1" in text
     assert "absent, taken as empty flat space: lapse, shift, extrinsic_curvature" in text
     assert "the balance does NOT close (largest relative mismatch" in text
+
+
+def test_physical_unit_keys_give_the_balance_of_the_scale_keys(yee_runs, balance_rows, tmp_path):
+    """The same SI file read through the mapping's ``[physical_units]`` keys (one code length of
+    1 m, times in s, E in V/m, H in A/m) instead of hand-computed ``scale`` keys: a second,
+    independent conversion route (c, G, eps0, mu0 from scipy.constants, CODATA). Code energies
+    then come in units of c^4/G * 1 m; times the package's energy unit in joules they equal the
+    scale-key route's energies in joules. Tolerance 1e-11: CODATA's eps0 mu0 c^2 = 1 holds only
+    to about 1.2e-12 in scipy's values, and a few roundings per conversion add to it. The time
+    offset (a half step in seconds) goes through the same time unit, so the times agree too."""
+    from emsource.physical_units import physical_scale
+
+    path, mappings, dt = yee_runs[1]
+    text = mappings[2].read_text()
+    text = re.sub(r"time = \{ attribute = \"clock_s\", scale = [^}]*\}",
+                  'time = { attribute = "clock_s" }', text)
+    text = re.sub(r"\nscale = [^\n]*", "", text)
+    text = text.replace('centring = "edge"', 'centring = "edge"\nunit = "V/m"')
+    text = text.replace('centring = "face"', 'centring = "face"\nunit = "A/m"')
+    text = text.replace("[time_levels]", '[physical_units]\ncode_scale = { value = 1.0, unit = "m" }\n'
+                        'length_unit = "m"\ntime_unit = "s"\n\n[time_levels]')
+    assert "scale =" not in text.replace("code_scale =", "")
+    mapping = tmp_path / "units.toml"
+    mapping.write_text(text)
+    code, rows = _balance(path, mapping, tmp_path / "units.csv", "--tolerance", "1")
+    assert code == EXIT_OK
+    reference = balance_rows(1, 2)
+    joules = physical_scale(length_m=1.0, units="heaviside_lorentz").energy_J
+    assert len(rows) == len(reference)
+    for row, ref in zip(rows, reference):
+        assert float(row["t"]) == pytest.approx(float(ref["t"]), rel=1e-13)
+        assert float(row["energy"]) * joules == pytest.approx(float(ref["energy"]), rel=1e-11)
