@@ -171,9 +171,13 @@ def test_unwritable_output_directory(tmp_path, monkeypatch):
     directory = tmp_path / "locked"
     directory.mkdir()
     if os.geteuid() == 0:  # root writes anywhere: make the temporary file creation fail instead
-        def refuse(*args, **kwargs):
-            raise PermissionError(13, "Permission denied")
-        monkeypatch.setattr(snapshot.writing.tempfile, "mkstemp", refuse)
+        real_open = os.open
+
+        def refuse(path, *args, **kwargs):
+            if str(path).endswith(".partial"):
+                raise PermissionError(13, "Permission denied")
+            return real_open(path, *args, **kwargs)
+        monkeypatch.setattr(snapshot.writing.os, "open", refuse)
     else:
         os.chmod(directory, 0o555)
     with pytest.raises(snapshot.OutputError, match="cannot write in output directory"):

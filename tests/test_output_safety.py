@@ -256,3 +256,22 @@ def test_a_stop_that_a_library_turned_into_its_own_error_is_still_the_stop(monke
     err = capsys.readouterr().err
     assert "partial outputs removed" in err and "error:" not in err
     assert interruption.pending() is None  # reset for the next command
+
+
+
+def test_a_stop_request_right_after_the_partial_file_is_created_removes_it(tmp_path,
+                                                                          monkeypatch):
+    """The first statement after the partial file's creation is interrupted (the window a
+    signal under load hit: the file on disk, its name not yet known to the caller): the file
+    is still removed and the directory is as before."""
+    def interrupted_close(fd):
+        real_close(fd)
+        raise KeyboardInterrupt
+
+    real_close = os.close
+    monkeypatch.setattr(writing.os, "close", interrupted_close)
+    with pytest.raises(KeyboardInterrupt):
+        with writing.atomic_output(tmp_path / "out.h5"):
+            pass
+    monkeypatch.undo()
+    assert os.listdir(tmp_path) == []

@@ -27,7 +27,7 @@ import datetime
 import io
 import json
 import os
-import tempfile
+import secrets
 from contextlib import contextmanager
 
 import h5py
@@ -110,16 +110,22 @@ def atomic_output(path, *, force: bool = False, inputs=()):
     """
     path = check_output(path, force=force, inputs=inputs)
     directory = os.path.dirname(path)
-    try:
-        handle, temporary = tempfile.mkstemp(prefix="." + os.path.basename(path) + ".",
-                                             suffix=".partial", dir=directory)
-    except OSError as error:
-        raise OutputError(f"cannot write in output directory {directory!r}: {error}") from error
-    os.close(handle)
+    # The name is chosen (128 random bits) before the file is created, so that a stop request
+    # arriving right after the creation, before a call could return the name, still finds it
+    # to remove (seen under load with a name returned by the creating call).
+    temporary = os.path.join(directory, f".{os.path.basename(path)}.{secrets.token_hex(16)}"
+                                        ".partial")
     try:
         try:
+            handle = os.open(temporary, os.O_CREAT | os.O_EXCL | os.O_RDWR | os.O_CLOEXEC, 0o600)
+        except OSError as error:
+            temporary = None  # not created here: nothing of ours to remove
+            raise OutputError(f"cannot write in output directory {directory!r}: "
+                              f"{error}") from error
+        os.close(handle)
+        try:
             yield temporary
-            # mkstemp makes the file private (0600); give it the permissions of a new file.
+            # Created private (0600); give it the permissions of a new file.
             umask = os.umask(0)
             os.umask(umask)
             os.chmod(temporary, 0o666 & ~umask)
@@ -132,10 +138,11 @@ def atomic_output(path, *, force: bool = False, inputs=()):
         except OSError as error:
             raise OutputError(f"cannot write output {path!r}: {_reason(error)}") from error
     except BaseException:
-        try:
-            os.unlink(temporary)
-        except FileNotFoundError:
-            pass
+        if temporary is not None:
+            try:
+                os.unlink(temporary)
+            except FileNotFoundError:
+                pass
         raise
 
 
