@@ -150,7 +150,7 @@ def faraday_tensor(alpha, beta, gamma, E, B, *, index="lower", field_index="uppe
     >>> g = np.zeros((6, 2)); g[[0, 3, 5]] = 1.0
     >>> E = np.zeros((3, 2)); E[0] = 1.0; B = np.zeros((3, 2)); B[2] = 2.0
     >>> F = faraday_tensor(np.ones(2), np.zeros((3, 2)), g, E, B)
-    >>> F[:, 0].tolist()          # F_tx = -E_x, F_xy = B^z
+    >>> (F[:, 0] + 0.0).tolist()          # F_tx = -E_x, F_xy = B^z
     [-1.0, 0.0, 0.0, 2.0, 0.0, 0.0]
     """
     function = "faraday_tensor"

@@ -126,8 +126,8 @@ def ideal_mhd_fields(alpha, beta, gamma, B, velocity, *, velocity_kind="eulerian
     >>> g = np.zeros((6, 1)); g[[0, 3, 5]] = 1.0
     >>> B = np.array([[0.0], [0.0], [1.0]]); v = np.array([[0.5], [0.0], [0.0]])
     >>> f = ideal_mhd_fields(np.ones(1), np.zeros((3, 1)), g, B, v)
-    >>> f.E[:, 0].tolist()        # E = -v x B
-    [-0.0, 0.5, -0.0]
+    >>> (f.E[:, 0] + 0.0).tolist()        # E = -v x B
+    [0.0, 0.5, 0.0]
     """
     function = "ideal_mhd_fields"
     arg.choice(function, "velocity_kind", velocity_kind, tuple(VELOCITY_KINDS))
