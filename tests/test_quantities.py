@@ -38,7 +38,8 @@ def test_mapping_keys_and_command_choices_come_from_the_table(tmp_path):
 
 def test_components_match_the_kinds():
     for q in quantities.TABLE:
-        expected = {"scalar": 0, "mask": 0, "vector": 3, "covector": 3, "symmetric_lower": 6}
+        expected = {"scalar": 0, "mask": 0, "vector": 3, "covector": 3, "symmetric_lower": 6,
+                    "antisymmetric": 6}
         assert q.components == expected[q.kind], q.name
         assert q.dimension in quantities.DIMENSIONS, q.name
 

@@ -18,7 +18,8 @@ components
     (xx, xy, xz, yy, yz, zz).
 kind
     "scalar", "vector" (upper index), "covector" (lower index), "symmetric_lower" (two lower
-    indices), or "mask" (uint8 flags, 1 = valid).
+    indices), "antisymmetric" (a 4x4 antisymmetric tensor packed (tx, ty, tz, xy, xz, yz), see
+    :mod:`emsource.faraday`), or "mask" (uint8 flags, 1 = valid).
 dimension
     Unit dimension in code units (G = c = 1): "dimensionless", "1/length", "field" (E, B),
     "field^2" (energy density and stresses), "field^2/c" (momentum density), "charge/length^3", "charge/length^2/time".
@@ -69,6 +70,9 @@ TABLE = (
     Quantity("magnetic_field", "B", 3, "vector", "field", "input"),
     Quantity("charge_density", "charge_density", 0, "scalar", "charge/length^3", "input"),
     Quantity("current_density", "current_density", 3, "vector", "charge/length^2/time", "input"),
+    Quantity("conformal_factor", "conformal_factor", 0, "scalar", "dimensionless", "input"),
+    Quantity("faraday_tensor", "F", 6, "antisymmetric", "field", "input"),
+    Quantity("fluid_velocity", "velocity", 3, "vector", "dimensionless", "input"),
     Quantity("valid_mask", "valid_mask", 0, "mask", "dimensionless", "mask"),
     Quantity("energy_density", "rho", 0, "scalar", "field^2", "output"),
     Quantity("momentum_density", "S_i", 3, "covector", "field^2/c", "output"),
@@ -97,7 +101,7 @@ DIMENSIONS = {
     "dimensionless": None,
     "1/length": None,
     "field": {"E": ("electric_field_statV_cm", "electric_field_V_m"),
-              "B": ("magnetic_field_G", "magnetic_field_T")},
+              "B": ("magnetic_field_G", "magnetic_field_T"), "F": None},
     "field^2": ("energy_density_erg_cm3", "energy_density_J_m3"),
     "field^2/c": None,
     "charge/length^3": None,

@@ -27,6 +27,15 @@ levels are found and where the grid's spacing and origin come from. Example (eve
     [quantities.spatial_metric]
     identity = true                         # flat metric gamma_ij = delta_ij, nothing stored
 
+    [forms]                                 # optional: how the stored fields and metric are
+    fields = "upper"                        # written (:mod:`.stored_forms`): "upper", "lower",
+                                            # "densitized", "faraday_lower", "faraday_upper"
+                                            # (faraday_tensor, lapse, shift) or "ideal_mhd"
+                                            # (magnetic_field, fluid_velocity, lapse, shift)
+    metric = "physical"                     # or "chi", "w", "phi": spatial_metric holds the
+                                            # conformal metric, conformal_factor the factor
+    velocity = "eulerian"                   # ideal_mhd: v^i, or "four_velocity" (u^i)
+
 One rule for the order of the grid triples: ``spacing`` and ``origin`` are read in the file's
 storage order (``axis_order``), whether they are given as three values or as an attribute; for
 ``axis_order = "zyx"`` both mean (z, y, x). Component lists and packed tensors are always in
@@ -52,6 +61,7 @@ import h5py
 import numpy as np
 
 from ..quantities import BY_NAME, COMPONENTS, NAMES
+from . import stored_forms
 from .errors import MappingError
 from .levels import (AXIS_ORDERS, UNIT_SYSTEMS, attribute_number, attribute_vector, build_level,
                      chunk_bytes_of, chunk_rows_of, kind_of, open_object)
@@ -65,7 +75,8 @@ __all__ = ["LayoutMapping", "QuantitySpec", "load_mapping", "MAPPING_VERSION"]
 
 MAPPING_VERSION = 1
 
-_TOP_KEYS = {"mapping_version", "axis_order", "units", "time_levels", "grid", "quantities"}
+_TOP_KEYS = {"mapping_version", "axis_order", "units", "time_levels", "grid", "quantities",
+             "forms"}
 _LEVEL_KEYS = {"pattern", "time"}
 _TIME_KEYS = {"attribute", "object", "per_index"}
 _GRID_KEYS = {"spacing", "origin"}
@@ -218,6 +229,7 @@ class LayoutMapping:
     spacing: object
     origin: object
     quantities: dict = field(default_factory=dict)
+    forms: dict = field(default_factory=dict)
 
     def _level_groups(self, h5file):
         regex = re.compile("^" + re.escape(self.pattern.strip("/")).replace(
@@ -256,6 +268,7 @@ class LayoutMapping:
                     derived[q] = _IdentityMetric
                 else:
                     stored[q] = self._source(h5file, group, spec, lw, listing)
+            derived.update(stored_forms.derived_sources(self.forms, stored, derived))
             levels.append(build_level(
                 str(index), time, self.units, self.axis_order, origin, spacing, stored, where,
                 derived=derived, listing=text,
@@ -427,6 +440,32 @@ def load_mapping(path) -> LayoutMapping:
         if spec.identity and ("scale" in q or "component_axis" in q):
             check.fail(f"{where} identity takes no scale or component_axis")
         specs[name] = spec
+    forms = _forms(table.get("forms", {}), specs, check)
     return LayoutMapping(path=os.path.abspath(path), axis_order=axis_order, units=units,
                          pattern=pattern, time=time, spacing=vectors["spacing"],
-                         origin=vectors["origin"], quantities=specs)
+                         origin=vectors["origin"], quantities=specs, forms=forms)
+
+
+def _forms(table, specs, check) -> dict:
+    """The checked ``[forms]`` table: each value one of its choices, every quantity it reads
+    named under [quantities] (stored, not identity where converted), none that it computes."""
+    check.keys(table, stored_forms.FORMS_KEYS, "[forms]")
+    choices = {"fields": stored_forms.FIELD_FORMS, "metric": stored_forms.METRIC_FORMS,
+               "velocity": stored_forms.VELOCITY_FORMS}
+    forms = {key: check.text(value, f"[forms] {key}", choices[key]) for key, value in table.items()}
+    if "velocity" in forms and forms.get("fields") != "ideal_mhd":
+        check.fail(f"[forms] velocity applies to fields = 'ideal_mhd' only, found fields = "
+                   f"{forms.get('fields', 'upper')!r}")
+    needed, replaced = stored_forms.needed_quantities(forms)
+    for q in needed:
+        if q not in specs:
+            check.fail(f"[forms] {', '.join(f'{k} = {v!r}' for k, v in forms.items())} needs "
+                       f"[quantities.{q}], which is missing")
+    if forms.get("metric", "physical") != "physical" and specs["spatial_metric"].identity:
+        check.fail("[forms] metric = conformal needs a stored conformal metric: "
+                   "[quantities.spatial_metric] identity = true does not hold one")
+    for q in replaced:
+        if q in specs:
+            check.fail(f"[forms] fields = {forms['fields']!r} computes {q}: remove "
+                       f"[quantities.{q}]")
+    return forms

@@ -1,0 +1,125 @@
+"""Mapping key [forms] (emsource.snapshot.stored_forms): snapshots that store conformal metrics,
+densitized fields, a Faraday tensor or B with a fluid velocity give, through a mapping file
+alone, the sources of the physical E^i, B^i, gamma_ij (adm_sources on data converted here in
+NumPy from each form's defining relation; the forms themselves are checked against the 4D route
+in test_faraday.py, test_ideal_mhd.py, test_conformal.py).
+
+Tolerance: float64 data of order one (random_curved_data, kappa ~ 10); each route rounds to a
+few tens of eps kappa of rho, so 1e-11 (1 + max |rho|) has a wide margin, while a form read as
+another (e.g. densitized as plain) differs by order one.
+"""
+
+import h5py
+import numpy as np
+import pytest
+
+import emsource
+from emsource import snapshot
+from emsource.cli import main
+from emsource.commands import EXIT_BAD_INPUT
+from emsource.faraday import faraday_tensor
+from emsource.ideal_mhd import ideal_mhd_fields
+from emsource.snapshot import MappingError, load_mapping
+from emsource.snapshot.sources_pipeline import compute_sources
+from conftest import random_curved_data, unpack_symmetric
+
+GRID = (4, 3, 5)
+
+HEAD = """mapping_version = 1
+axis_order = "xyz"
+units = "gaussian"
+[time_levels]
+pattern = "/run/step_{index}"
+[grid]
+spacing = [0.1, 0.2, 0.3]
+origin = [0.0, 0.0, 0.0]
+"""
+
+
+def _case(rng, name):
+    """(datasets to store, [quantities] + [forms] text, E^i, B^i, gamma_ij of the truth)."""
+    alpha, beta, gamma, E, B = random_curved_data(rng, GRID)
+    beta *= 0.3
+    sg = np.sqrt(np.linalg.det(np.moveaxis(unpack_symmetric(gamma), (0, 1), (-2, -1))))
+    chi = sg ** (-2.0 / 3.0)          # det tilde-gamma = 1
+    q = '[quantities.{0}]\ndataset = "{1}"\n'
+    if name == "densitized_chi":
+        data = {"gt": gamma * chi, "chi": chi, "E": sg * E, "B": sg * B}
+        text = (q.format("spatial_metric", "gt") + q.format("conformal_factor", "chi")
+                + q.format("electric_field", "E") + q.format("magnetic_field", "B")
+                + '[forms]\nfields = "densitized"\nmetric = "chi"\n')
+    elif name == "faraday_phi":
+        data = {"gt": gamma * chi, "phi": -np.log(chi) / 4, "alpha": alpha, "beta": beta,
+                "F": faraday_tensor(alpha, beta, gamma, E, B, index="upper")}
+        text = (q.format("spatial_metric", "gt") + q.format("conformal_factor", "phi")
+                + q.format("lapse", "alpha") + q.format("shift", "beta")
+                + q.format("faraday_tensor", "F")
+                + '[forms]\nfields = "faraday_upper"\nmetric = "phi"\n')
+    else:  # ideal_mhd with u^i
+        norm = np.sqrt(np.einsum("ij...,i...,j...->...", unpack_symmetric(gamma), E, E))
+        v = 0.8 * E / norm
+        fluid = ideal_mhd_fields(alpha, beta, gamma, B, v)
+        E = fluid.E
+        data = {"g": gamma, "alpha": alpha, "beta": beta, "B": B,
+                "u": np.ascontiguousarray(fluid.u[1:])}
+        text = (q.format("spatial_metric", "g") + q.format("lapse", "alpha")
+                + q.format("shift", "beta") + q.format("magnetic_field", "B")
+                + q.format("fluid_velocity", "u")
+                + '[forms]\nfields = "ideal_mhd"\nvelocity = "four_velocity"\n')
+    return data, text, E, B, gamma
+
+
+def _write(path, data):
+    with h5py.File(path, "w") as f:
+        group = f.create_group("run/step_0")
+        for name, values in data.items():
+            group[name] = values
+
+
+@pytest.mark.parametrize("name", ["densitized_chi", "faraday_phi", "ideal_mhd_u"])
+def test_stored_forms_give_the_physical_sources(rng, tmp_path, name):
+    data, text, E, B, gamma = _case(rng, name)
+    _write(tmp_path / "in.h5", data)
+    (tmp_path / "map.toml").write_text(HEAD + text)
+    assert main(["sources", str(tmp_path / "in.h5"), "--mapping", str(tmp_path / "map.toml"),
+                 "-o", str(tmp_path / "out.h5"), "--quiet"]) == 0
+    got = snapshot.read_level(tmp_path / "out.h5")
+    ref = emsource.adm_sources(gamma, E, B)
+    tol = 1e-11 * (1 + np.abs(ref.rho).max())
+    np.testing.assert_allclose(got["energy_density"], ref.rho, rtol=0, atol=tol)
+    np.testing.assert_allclose(got["momentum_density"], ref.S_i, rtol=0, atol=tol)
+    np.testing.assert_allclose(got["spatial_stress"], ref.S_ij, rtol=0, atol=3 * tol)
+
+
+@pytest.mark.parametrize("forms, message", [
+    ('fields = "faraday_lower"\n', "needs [quantities.faraday_tensor], which is missing"),
+    ('metric = "psi"\n', "[forms] metric must be one of"),
+    ('speed = 1\n', "unknown key(s) ['speed'] in [forms]"),
+    ('velocity = "eulerian"\n', "velocity applies to fields = 'ideal_mhd' only"),
+    ('fields = "ideal_mhd"\n', "computes electric_field: remove [quantities.electric_field]"),
+])
+def test_bad_forms_are_named(rng, tmp_path, forms, message):
+    data, text, _, _, _ = _case(rng, "densitized_chi")
+    text = text.split("[forms]")[0] + "[quantities.fluid_velocity]\ndataset = 'v'\n" \
+        "[quantities.lapse]\ndataset = 'a'\n[quantities.shift]\ndataset = 'b'\n"
+    (tmp_path / "map.toml").write_text(HEAD + text + "[forms]\n" + forms)
+    with pytest.raises(MappingError) as info:
+        load_mapping(tmp_path / "map.toml")
+    assert message in str(info.value)
+    _write(tmp_path / "in.h5", data)
+    assert main(["sources", str(tmp_path / "in.h5"), "--mapping", str(tmp_path / "map.toml"),
+                 "-o", str(tmp_path / "out.h5"), "--quiet"]) == EXIT_BAD_INPUT
+    assert not (tmp_path / "out.h5").exists()
+
+
+def test_bad_point_in_a_stored_form_is_bad_input(rng, tmp_path, capsys):
+    data, text, _, _, _ = _case(rng, "ideal_mhd_u")
+    data["u"][:, 2, 1, 3] = 0.0
+    data["beta"][:, 2, 1, 3] = [50.0, 0.0, 0.0]   # |beta| > alpha: u^i does not fix u^t
+    _write(tmp_path / "in.h5", data)
+    (tmp_path / "map.toml").write_text(HEAD + text)
+    assert main(["sources", str(tmp_path / "in.h5"), "--mapping", str(tmp_path / "map.toml"),
+                 "-o", str(tmp_path / "out.h5"), "--quiet"]) == EXIT_BAD_INPUT
+    err = capsys.readouterr().err
+    assert "electric_field" in err and "(2, 1, 3)" in err and "not below alpha" in err, err
+    assert not (tmp_path / "out.h5").exists()
