@@ -45,13 +45,13 @@ def _case(rng, name):
     q = '[quantities.{0}]\ndataset = "{1}"\n'
     if name == "densitized_chi":
         data = {"gt": gamma * chi, "chi": chi, "E": sg * E, "B": sg * B}
-        text = (q.format("spatial_metric", "gt") + q.format("conformal_factor", "chi")
+        text = (q.format("conformal_metric", "gt") + q.format("conformal_factor", "chi")
                 + q.format("electric_field", "E") + q.format("magnetic_field", "B")
                 + '[forms]\nfields = "densitized"\nmetric = "chi"\n')
     elif name == "faraday_phi":
         data = {"gt": gamma * chi, "phi": -np.log(chi) / 4, "alpha": alpha, "beta": beta,
                 "F": faraday_tensor(alpha, beta, gamma, E, B, index="upper")}
-        text = (q.format("spatial_metric", "gt") + q.format("conformal_factor", "phi")
+        text = (q.format("conformal_metric", "gt") + q.format("conformal_factor", "phi")
                 + q.format("lapse", "alpha") + q.format("shift", "beta")
                 + q.format("faraday_tensor", "F")
                 + '[forms]\nfields = "faraday_upper"\nmetric = "phi"\n')
@@ -93,23 +93,48 @@ def test_stored_forms_give_the_physical_sources(rng, tmp_path, name):
 
 @pytest.mark.parametrize("forms, message", [
     ('fields = "faraday_lower"\n', "needs [quantities.faraday_tensor], which is missing"),
+    ('metric = "chi"\n', "needs [quantities.conformal_metric], which is missing"),
     ('metric = "psi"\n', "[forms] metric must be one of"),
+    ('fields = 3\n', "[forms] fields must be a non-empty string, found 3"),
     ('speed = 1\n', "unknown key(s) ['speed'] in [forms]"),
     ('velocity = "eulerian"\n', "velocity applies to fields = 'ideal_mhd' only"),
-    ('fields = "ideal_mhd"\n', "computes electric_field: remove [quantities.electric_field]"),
+    ('fields = "ideal_mhd"\n', "[forms] fields = 'ideal_mhd' computes electric_field: remove "
+                               "[quantities.electric_field]"),
 ])
 def test_bad_forms_are_named(rng, tmp_path, forms, message):
-    data, text, _, _, _ = _case(rng, "densitized_chi")
-    text = text.split("[forms]")[0] + "[quantities.fluid_velocity]\ndataset = 'v'\n" \
-        "[quantities.lapse]\ndataset = 'a'\n[quantities.shift]\ndataset = 'b'\n"
+    alpha, beta, gamma, E, B = random_curved_data(rng, GRID)
+    _write(tmp_path / "in.h5", {"g": gamma, "E": E, "B": B, "v": 0 * E, "a": alpha, "b": beta})
+    text = "".join(f'[quantities.{q}]\ndataset = "{d}"\n' for q, d in (
+        ("spatial_metric", "g"), ("electric_field", "E"), ("magnetic_field", "B"),
+        ("fluid_velocity", "v"), ("lapse", "a"), ("shift", "b")))
     (tmp_path / "map.toml").write_text(HEAD + text + "[forms]\n" + forms)
     with pytest.raises(MappingError) as info:
         load_mapping(tmp_path / "map.toml")
-    assert message in str(info.value)
-    _write(tmp_path / "in.h5", data)
+    assert message in str(info.value) and "map.toml" in str(info.value)
     assert main(["sources", str(tmp_path / "in.h5"), "--mapping", str(tmp_path / "map.toml"),
                  "-o", str(tmp_path / "out.h5"), "--quiet"]) == EXIT_BAD_INPUT
     assert not (tmp_path / "out.h5").exists()
+
+
+def test_excised_points_are_not_converted(rng, tmp_path):
+    # NaN at an excised point (valid_mask = 0) of a conformal, densitized file: the conversion
+    # fills it like the pipeline does, the output holds NaN there and the truth elsewhere.
+    data, text, E, B, gamma = _case(rng, "densitized_chi")
+    mask = np.ones(GRID, np.uint8)
+    mask[1, 2, 3] = 0
+    data["chi"][1, 2, 3] = np.nan
+    data["E"][:, 1, 2, 3] = np.nan
+    data["mask"] = mask
+    _write(tmp_path / "in.h5", data)
+    (tmp_path / "map.toml").write_text(HEAD + text.replace(
+        "[forms]", '[quantities.valid_mask]\ndataset = "mask"\n[forms]'))
+    assert main(["sources", str(tmp_path / "in.h5"), "--mapping", str(tmp_path / "map.toml"),
+                 "-o", str(tmp_path / "out.h5"), "--quiet"]) == 0
+    rho = snapshot.read_level(tmp_path / "out.h5")["energy_density"]
+    ref = emsource.adm_sources(gamma, E, B).rho
+    assert np.isnan(rho[1, 2, 3]) and np.isnan(rho).sum() == 1
+    valid = mask.astype(bool)
+    np.testing.assert_allclose(rho[valid], ref[valid], rtol=0, atol=1e-11 * (1 + ref.max()))
 
 
 def test_bad_point_in_a_stored_form_is_bad_input(rng, tmp_path, capsys):

@@ -70,6 +70,7 @@ TABLE = (
     Quantity("magnetic_field", "B", 3, "vector", "field", "input"),
     Quantity("charge_density", "charge_density", 0, "scalar", "charge/length^3", "input"),
     Quantity("current_density", "current_density", 3, "vector", "charge/length^2/time", "input"),
+    Quantity("conformal_metric", "gamma_tilde", 6, "symmetric_lower", "dimensionless", "input"),
     Quantity("conformal_factor", "conformal_factor", 0, "scalar", "dimensionless", "input"),
     Quantity("faraday_tensor", "F", 6, "antisymmetric", "field", "input"),
     Quantity("fluid_velocity", "velocity", 3, "vector", "dimensionless", "input"),

@@ -32,8 +32,8 @@ levels are found and where the grid's spacing and origin come from. Example (eve
                                             # "densitized", "faraday_lower", "faraday_upper"
                                             # (faraday_tensor, lapse, shift) or "ideal_mhd"
                                             # (magnetic_field, fluid_velocity, lapse, shift)
-    metric = "physical"                     # or "chi", "w", "phi": spatial_metric holds the
-                                            # conformal metric, conformal_factor the factor
+    metric = "physical"                     # or "chi", "w", "phi": conformal_metric and
+                                            # conformal_factor stored, spatial_metric computed
     velocity = "eulerian"                   # ideal_mhd: v^i, or "four_velocity" (u^i)
 
 One rule for the order of the grid triples: ``spacing`` and ``origin`` are read in the file's
@@ -461,11 +461,8 @@ def _forms(table, specs, check) -> dict:
         if q not in specs:
             check.fail(f"[forms] {', '.join(f'{k} = {v!r}' for k, v in forms.items())} needs "
                        f"[quantities.{q}], which is missing")
-    if forms.get("metric", "physical") != "physical" and specs["spatial_metric"].identity:
-        check.fail("[forms] metric = conformal needs a stored conformal metric: "
-                   "[quantities.spatial_metric] identity = true does not hold one")
-    for q in replaced:
+    for q, key in replaced:
         if q in specs:
-            check.fail(f"[forms] fields = {forms['fields']!r} computes {q}: remove "
+            check.fail(f"[forms] {key} = {forms[key]!r} computes {q}: remove "
                        f"[quantities.{q}]")
     return forms

@@ -20,6 +20,7 @@ One HDF5 file holds one or more time levels of one 3D uniform grid::
             +-- magnetic_field          (3, *grid)     B^i
             +-- charge_density          (*grid)
             +-- current_density         (3, *grid)
+            +-- conformal_metric        (6, *grid) tilde-gamma_ij (mapped files, [forms] metric)
             +-- conformal_factor        (*grid) chi, W or phi (mapped files, [forms] metric)
             +-- faraday_tensor          (6, *grid) packed (tx, ty, tz, xy, xz, yz) (mapped files)
             +-- fluid_velocity          (3, *grid) v^i or u^i (mapped files, [forms] fields = "ideal_mhd")

@@ -9,7 +9,7 @@ physics):
 =========================  ==========================================  =========================
 key = value                stored quantities                            conversion
 =========================  ==========================================  =========================
-metric = "chi"/"w"/"phi"   spatial_metric (tilde-gamma), conformal_factor  :func:`emsource.conformal.physical_metric`
+metric = "chi"/"w"/"phi"   conformal_metric, conformal_factor          :func:`emsource.conformal.physical_metric`
 fields = "lower"           electric_field, magnetic_field (E_i, B_i)    :func:`emsource.faraday.faraday_tensor` and back
 fields = "densitized"      electric_field, magnetic_field (sqrt(gamma) E^i, ...)  the same
 fields = "faraday_lower"   faraday_tensor (F_ab), lapse, shift          :func:`emsource.faraday.fields_from_faraday`
@@ -19,7 +19,10 @@ fields = "ideal_mhd"       magnetic_field (B^i), fluid_velocity, lapse, shift; `
 =========================  ==========================================  =========================
 
 Bad values at grid points raise the functions' GridPointError, which the level reader reports
-as bad input with the file, level and rows.
+as bad input with the file, level and rows. Excised points (valid_mask = 0) are set to a flat
+metric, unit lapse, zero shift, field and velocity, and a unit conformal factor (phi = 0)
+before converting, with the fill values of the source pipeline (:func:`.slabs.neutralise_excised`,
+which this module cannot import: slabs reads through the mapping, which imports this module).
 """
 
 from __future__ import annotations
@@ -39,20 +42,29 @@ VELOCITY_FORMS = ("eulerian", "four_velocity")
 
 
 def needed_quantities(forms: dict) -> tuple:
-    """(needed, replaced): the stored quantities the forms read, and those they compute."""
+    """(needed, replaced): the stored quantities the forms read, and (quantity, [forms] key)
+    of those they compute."""
     fields = forms.get("fields", "upper")
     needed, replaced = [], []
-    if forms.get("metric", "physical") != "physical":
-        needed += ["spatial_metric", "conformal_factor"]
+    conformal = forms.get("metric", "physical") != "physical"
+    if conformal:
+        needed += ["conformal_metric", "conformal_factor"]
     if fields in ("lower", "densitized"):
         needed += ["spatial_metric", "electric_field", "magnetic_field"]
     elif fields.startswith("faraday"):
         needed += ["spatial_metric", "faraday_tensor", "lapse", "shift"]
-        replaced += ["electric_field", "magnetic_field"]
+        replaced += [("electric_field", "fields"), ("magnetic_field", "fields")]
     elif fields == "ideal_mhd":
         needed += ["spatial_metric", "magnetic_field", "fluid_velocity", "lapse", "shift"]
-        replaced += ["electric_field"]
+        replaced += [("electric_field", "fields")]
+    if conformal:
+        needed = [q for q in needed if q != "spatial_metric"]
+        replaced.append(("spatial_metric", "metric"))
     return tuple(dict.fromkeys(needed)), tuple(replaced)
+
+
+#: The flat metric, packed (xx, xy, xz, yy, yz, zz): the fill of excised points.
+_FLAT = (1.0, 0.0, 0.0, 1.0, 0.0, 1.0)
 
 
 def _components(source) -> int:
@@ -63,8 +75,10 @@ def _components(source) -> int:
 class _ConvertedSource:
     """A data source computed from other sources slab by slab (see ``levels.DataSource``)."""
 
-    def __init__(self, inputs: dict, convert, ncomp):
+    def __init__(self, inputs: dict, convert, ncomp, mask=None, factor_fill=1.0):
         self.inputs = inputs
+        self.mask = mask
+        self.factor_fill = factor_fill
         self.convert = convert
         self.ncomp = ncomp
         first = next(iter(inputs.values()))
@@ -87,6 +101,17 @@ class _ConvertedSource:
             a = np.empty(shape, source.dtype)
             source.read_into(a, start, stop)
             arrays[q] = a.astype(out.dtype, copy=False)
+        if self.mask is not None:
+            stored = np.empty((stop - start,) + self.grid[1:], self.mask.dtype)
+            self.mask.read_into(stored, start, stop)
+            excised = stored == 0
+            if excised.any():
+                fills = {"lapse": 1.0, "conformal_factor": self.factor_fill,
+                         "spatial_metric": _FLAT, "conformal_metric": _FLAT}
+                for q, a in arrays.items():
+                    fill = fills.get(q, 0.0)
+                    for c, row in enumerate(a.reshape((-1,) + excised.shape)):
+                        row[excised] = fill[c] if isinstance(fill, tuple) else fill
         out[...] = self.convert(arrays)
 
 
@@ -102,46 +127,51 @@ def derived_sources(forms: dict, stored: dict, derived_so_far: dict) -> dict:
     from ..ideal_mhd import ideal_mhd_fields
 
     derived = {}
+    mask = stored.get("valid_mask")
     metric_form = forms.get("metric", "physical")
     metric = stored.get("spatial_metric")
     if metric is None and "spatial_metric" in derived_so_far and stored:
         metric = derived_so_far["spatial_metric"](next(iter(stored.values())).shape[-3:])
     if metric_form != "physical":
         metric = _ConvertedSource(
-            {"conformal_factor": stored["conformal_factor"], "spatial_metric": metric},
-            lambda a: physical_metric(a["conformal_factor"], a["spatial_metric"],
-                                      decomposition=metric_form), 6)
+            {"conformal_factor": stored["conformal_factor"],
+             "conformal_metric": stored["conformal_metric"]},
+            lambda a: physical_metric(a["conformal_factor"], a["conformal_metric"],
+                                      decomposition=metric_form), 6,
+            mask, 0.0 if metric_form == "phi" else 1.0)
+        metric.decomposition = metric_form  # read by the conformal outputs of the pipeline
         derived["spatial_metric"] = metric
     fields = forms.get("fields", "upper")
 
     def spacetime(a):
-        return a["lapse"], a["shift"], a["metric"]
+        return a["lapse"], a["shift"], a["spatial_metric"]
 
     if fields in ("lower", "densitized"):
         def upper(a, which):
-            g = a["metric"]
+            g = a["spatial_metric"]
             ones, zeros = np.ones(g.shape[1:], g.dtype), np.zeros((3,) + g.shape[1:], g.dtype)
             F = faraday_tensor(ones, zeros, g, a["electric_field"], a["magnetic_field"],
                                field_index=fields)
             return fields_from_faraday(ones, zeros, g, F)[which]
-        inputs = {"metric": metric, "electric_field": stored["electric_field"],
+        inputs = {"spatial_metric": metric, "electric_field": stored["electric_field"],
                   "magnetic_field": stored["magnetic_field"]}
-        derived["electric_field"] = _ConvertedSource(inputs, lambda a: upper(a, 0), 3)
-        derived["magnetic_field"] = _ConvertedSource(inputs, lambda a: upper(a, 1), 3)
+        derived["electric_field"] = _ConvertedSource(inputs, lambda a: upper(a, 0), 3, mask)
+        derived["magnetic_field"] = _ConvertedSource(inputs, lambda a: upper(a, 1), 3, mask)
     elif fields.startswith("faraday"):
         index = fields.split("_")[1]
-        inputs = {"lapse": stored["lapse"], "shift": stored["shift"], "metric": metric,
+        inputs = {"lapse": stored["lapse"], "shift": stored["shift"], "spatial_metric": metric,
                   "faraday_tensor": stored["faraday_tensor"]}
         for which, q in enumerate(("electric_field", "magnetic_field")):
             derived[q] = _ConvertedSource(
                 inputs, lambda a, w=which: fields_from_faraday(*spacetime(a), a["faraday_tensor"],
-                                                               index=index)[w], 3)
+                                                               index=index)[w], 3, mask)
     elif fields == "ideal_mhd":
         kind = forms.get("velocity", "eulerian")
-        inputs = {"lapse": stored["lapse"], "shift": stored["shift"], "metric": metric,
+        inputs = {"lapse": stored["lapse"], "shift": stored["shift"], "spatial_metric": metric,
                   "magnetic_field": stored["magnetic_field"],
                   "fluid_velocity": stored["fluid_velocity"]}
         derived["electric_field"] = _ConvertedSource(
             inputs, lambda a: ideal_mhd_fields(*spacetime(a), a["magnetic_field"],
-                                               a["fluid_velocity"], velocity_kind=kind).E, 3)
+                                               a["fluid_velocity"], velocity_kind=kind).E, 3,
+            mask)
     return {q: (lambda storage, s=s: s) for q, s in derived.items()}
