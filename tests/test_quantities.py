@@ -30,7 +30,8 @@ def test_mapping_keys_and_command_choices_come_from_the_table(tmp_path):
     assert f"allowed: {sorted(quantities.NAMES)}" in str(error.value)
     sources = build_parser()._subparsers._group_actions[0].choices["sources"]
     outputs = next(a for a in sources._actions if a.dest == "outputs")
-    assert tuple(outputs.choices) == quantities.OUTPUTS == (
+    assert tuple(outputs.choices) == quantities.OUTPUTS + quantities.FORM_OUTPUTS
+    assert quantities.OUTPUTS == (
         "energy_density", "momentum_density", "spatial_stress", "stress_trace")
     assert tuple(emsource.AdmSources._fields) == tuple(quantities.BY_NAME[q].api
                                                        for q in quantities.OUTPUTS)

@@ -148,3 +148,47 @@ def test_bad_point_in_a_stored_form_is_bad_input(rng, tmp_path, capsys):
     err = capsys.readouterr().err
     assert "electric_field" in err and "(2, 1, 3)" in err and "not below alpha" in err, err
     assert not (tmp_path / "out.h5").exists()
+
+
+@pytest.mark.parametrize("axis_order", ["xyz", "zyx"])
+def test_form_outputs_of_the_sources_command(rng, tmp_path, axis_order):
+    # A conformal (phi) file storing F^ab: --outputs writes A_ij, F_ab, F^ab and the invariants,
+    # equal to the Python functions on the physical data (tolerance as above).
+    from emsource.conformal import conformal_sources
+    from emsource.faraday import field_invariants
+    data, text, E, B, gamma = _case(rng, "faraday_phi")
+    if axis_order == "zyx":  # grid axes stored as (z, y, x); components stay (x, y, z)
+        data = {k: np.ascontiguousarray(np.swapaxes(v, -1, -3)) for k, v in data.items()}
+    _write(tmp_path / "in.h5", data)
+    (tmp_path / "map.toml").write_text(HEAD.replace('"xyz"', f'"{axis_order}"') + text)
+    asked = ["energy_density", "conformal_tracefree_stress", "faraday_lower", "faraday_upper",
+             "field_invariant", "dual_invariant"]
+    assert main(["sources", str(tmp_path / "in.h5"), "--mapping", str(tmp_path / "map.toml"),
+                 "-o", str(tmp_path / "out.h5"), "--quiet", "--outputs", *asked]) == 0
+    got = snapshot.read_level(tmp_path / "out.h5")
+    alpha, beta = data["alpha"], data["beta"]
+    if axis_order == "zyx":
+        alpha, beta = np.swapaxes(alpha, -1, -3), np.swapaxes(beta, -1, -3)
+    chi = np.exp(-4 * (np.swapaxes(data["phi"], -1, -3) if axis_order == "zyx" else data["phi"]))
+    expected = {
+        "conformal_tracefree_stress": conformal_sources(
+            -np.log(chi) / 4, gamma * chi, E, B, decomposition="phi").A_ij,
+        "faraday_lower": faraday_tensor(alpha, beta, gamma, E, B),
+        "faraday_upper": faraday_tensor(alpha, beta, gamma, E, B, index="upper"),
+        "field_invariant": field_invariants(gamma, E, B).square,
+        "dual_invariant": field_invariants(gamma, E, B).dual,
+    }
+    for name, values in expected.items():
+        np.testing.assert_allclose(got[name], values, rtol=0,
+                                   atol=1e-11 * (1 + np.abs(values).max()), err_msg=name)
+    assert set(got) >= set(asked) and "spatial_stress" not in got
+
+
+def test_form_output_that_cannot_be_made_is_bad_input(rng, tmp_path):
+    data, text, _, _, _ = _case(rng, "ideal_mhd_u")  # physical metric: no conformal factor
+    _write(tmp_path / "in.h5", data)
+    (tmp_path / "map.toml").write_text(HEAD + text)
+    assert main(["sources", str(tmp_path / "in.h5"), "--mapping", str(tmp_path / "map.toml"),
+                 "-o", str(tmp_path / "out.h5"), "--quiet", "--outputs",
+                 "conformal_tracefree_stress"]) == EXIT_BAD_INPUT
+    assert not (tmp_path / "out.h5").exists()

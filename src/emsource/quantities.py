@@ -24,7 +24,8 @@ dimension
     Unit dimension in code units (G = c = 1): "dimensionless", "1/length", "field" (E, B),
     "field^2" (energy density and stresses), "field^2/c" (momentum density), "charge/length^3", "charge/length^2/time".
 role
-    "input" (read by the computations), "mask" or "output" (written by ``emsource sources``).
+    "input" (read by the computations), "mask" or "output" (written by ``emsource sources``), or
+    "form_output" (written by ``emsource sources --outputs NAME`` only when asked).
 
 Unit systems. Between Gaussian and Heaviside-Lorentz code units a field is divided by
 sqrt(4 pi) and a charge or current density multiplied by it, while the stress-energy (the
@@ -39,7 +40,7 @@ import math
 from dataclasses import dataclass
 
 __all__ = ["Quantity", "TABLE", "BY_NAME", "BY_API", "NAMES", "COMPONENTS", "INPUTS",
-           "OUTPUTS", "SOURCE_INPUTS", "components", "heaviside_lorentz_factor",
+           "OUTPUTS", "FORM_OUTPUTS", "SOURCE_INPUTS", "components", "heaviside_lorentz_factor",
            "physical_scale_attributes", "DIMENSIONS"]
 
 
@@ -79,6 +80,11 @@ TABLE = (
     Quantity("momentum_density", "S_i", 3, "covector", "field^2/c", "output"),
     Quantity("spatial_stress", "S_ij", 6, "symmetric_lower", "field^2", "output"),
     Quantity("stress_trace", "S", 0, "scalar", "field^2", "output"),
+    Quantity("conformal_tracefree_stress", "A_ij", 6, "symmetric_lower", "field^2", "form_output"),
+    Quantity("faraday_lower", "F_ab", 6, "antisymmetric", "field", "form_output"),
+    Quantity("faraday_upper", "F^ab", 6, "antisymmetric", "field", "form_output"),
+    Quantity("field_invariant", "F_ab F^ab", 0, "scalar", "field^2", "form_output"),
+    Quantity("dual_invariant", "F_ab *F^ab", 0, "scalar", "field^2", "form_output"),
 )
 
 BY_NAME = {q.name: q for q in TABLE}
@@ -91,6 +97,9 @@ COMPONENTS = {q.name: q.components for q in TABLE}
 INPUTS = tuple(q.name for q in TABLE if q.role in ("input", "mask"))
 #: What ``emsource sources`` can write, in the order of :class:`emsource.AdmSources`.
 OUTPUTS = tuple(q.name for q in TABLE if q.role == "output")
+#: What ``emsource sources --outputs`` can write besides :data:`OUTPUTS`: the stress in the form
+#: of a conformal decomposition, the Faraday tensor and the invariants (:mod:`emsource.snapshot.form_outputs`).
+FORM_OUTPUTS = tuple(q.name for q in TABLE if q.role == "form_output")
 #: What the sources need: gamma_ij, E^i, B^i.
 SOURCE_INPUTS = tuple(BY_API[a].name for a in ("gamma", "E", "B"))
 
@@ -102,7 +111,8 @@ DIMENSIONS = {
     "dimensionless": None,
     "1/length": None,
     "field": {"E": ("electric_field_statV_cm", "electric_field_V_m"),
-              "B": ("magnetic_field_G", "magnetic_field_T"), "F": None},
+              "B": ("magnetic_field_G", "magnetic_field_T"), "F": None, "F_ab": None,
+              "F^ab": None},
     "field^2": ("energy_density_erg_cm3", "energy_density_J_m3"),
     "field^2/c": None,
     "charge/length^3": None,
