@@ -190,7 +190,7 @@ def compute_sources(input_file, output_file, *, mapping=None, memory_limit=DEFAU
                                        report, bar)
                         report.times.append(level.time)
                 report.planned_bytes = max(
-                    (values_per_point(SOURCE_INPUTS + SOURCE_OUTPUTS) * dt.itemsize * n
+                    (values_per_point(SOURCE_INPUTS + SOURCE_OUTPUTS + extra) * dt.itemsize * n
                      * lv.plane_points + read_overhead_bytes(lv, SOURCE_INPUTS, n))
                     for lv, dt, n in plans)
         finally:

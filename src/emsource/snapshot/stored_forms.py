@@ -75,7 +75,7 @@ def _components(source) -> int:
 class _ConvertedSource:
     """A data source computed from other sources slab by slab (see ``levels.DataSource``)."""
 
-    def __init__(self, inputs: dict, convert, ncomp, mask=None, factor_fill=1.0):
+    def __init__(self, inputs: dict, convert, ncomp, mask=None, factor_fill=1.0, temporaries=0):
         self.inputs = inputs
         self.mask = mask
         self.factor_fill = factor_fill
@@ -90,7 +90,8 @@ class _ConvertedSource:
         self.chunk_rows = min(s.chunk_rows for s in inputs.values())
         self.chunk_bytes = max(s.chunk_bytes for s in inputs.values())
         plane = int(np.prod(grid[1:]))
-        self.scratch_bytes_per_row = sum(
+        # the inputs read, and ``temporaries`` values per point that the conversion allocates
+        self.scratch_bytes_per_row = plane * 8 * temporaries + sum(
             _components(s) * plane * 8 + s.scratch_bytes_per_row for s in inputs.values())
 
     def read_into(self, out, start, stop):
@@ -138,7 +139,7 @@ def derived_sources(forms: dict, stored: dict, derived_so_far: dict) -> dict:
              "conformal_metric": stored["conformal_metric"]},
             lambda a: physical_metric(a["conformal_factor"], a["conformal_metric"],
                                       decomposition=metric_form), 6,
-            mask, 0.0 if metric_form == "phi" else 1.0)
+            mask, 0.0 if metric_form == "phi" else 1.0, temporaries=0)
         metric.decomposition = metric_form  # read by the conformal outputs of the pipeline
         derived["spatial_metric"] = metric
     fields = forms.get("fields", "upper")
@@ -155,8 +156,10 @@ def derived_sources(forms: dict, stored: dict, derived_so_far: dict) -> dict:
             return fields_from_faraday(ones, zeros, g, F)[which]
         inputs = {"spatial_metric": metric, "electric_field": stored["electric_field"],
                   "magnetic_field": stored["magnetic_field"]}
-        derived["electric_field"] = _ConvertedSource(inputs, lambda a: upper(a, 0), 3, mask)
-        derived["magnetic_field"] = _ConvertedSource(inputs, lambda a: upper(a, 1), 3, mask)
+        derived["electric_field"] = _ConvertedSource(inputs, lambda a: upper(a, 0), 3, mask,
+                                                     temporaries=16)
+        derived["magnetic_field"] = _ConvertedSource(inputs, lambda a: upper(a, 1), 3, mask,
+                                                     temporaries=16)
     elif fields.startswith("faraday"):
         index = fields.split("_")[1]
         inputs = {"lapse": stored["lapse"], "shift": stored["shift"], "spatial_metric": metric,
@@ -164,7 +167,8 @@ def derived_sources(forms: dict, stored: dict, derived_so_far: dict) -> dict:
         for which, q in enumerate(("electric_field", "magnetic_field")):
             derived[q] = _ConvertedSource(
                 inputs, lambda a, w=which: fields_from_faraday(*spacetime(a), a["faraday_tensor"],
-                                                               index=index)[w], 3, mask)
+                                                               index=index)[w], 3, mask,
+                                     temporaries=6)
     elif fields == "ideal_mhd":
         kind = forms.get("velocity", "eulerian")
         inputs = {"lapse": stored["lapse"], "shift": stored["shift"], "spatial_metric": metric,
@@ -173,5 +177,5 @@ def derived_sources(forms: dict, stored: dict, derived_so_far: dict) -> dict:
         derived["electric_field"] = _ConvertedSource(
             inputs, lambda a: ideal_mhd_fields(*spacetime(a), a["magnetic_field"],
                                                a["fluid_velocity"], velocity_kind=kind).E, 3,
-            mask)
+            mask, temporaries=11)
     return {q: (lambda storage, s=s: s) for q, s in derived.items()}
