@@ -101,7 +101,7 @@ def test_stored_forms_give_the_physical_sources(rng, tmp_path, name):
     ('fields = "ideal_mhd"\n', "[forms] fields = 'ideal_mhd' computes electric_field: remove "
                                "[quantities.electric_field]"),
 ])
-def test_bad_forms_are_named(rng, tmp_path, forms, message):
+def test_bad_forms_are_named(rng, tmp_path, capsys, forms, message):
     alpha, beta, gamma, E, B = random_curved_data(rng, GRID)
     _write(tmp_path / "in.h5", {"g": gamma, "E": E, "B": B, "v": 0 * E, "a": alpha, "b": beta})
     text = "".join(f'[quantities.{q}]\ndataset = "{d}"\n' for q, d in (
@@ -111,8 +111,11 @@ def test_bad_forms_are_named(rng, tmp_path, forms, message):
     with pytest.raises(MappingError) as info:
         load_mapping(tmp_path / "map.toml")
     assert message in str(info.value) and "map.toml" in str(info.value)
+    capsys.readouterr()
     assert main(["sources", str(tmp_path / "in.h5"), "--mapping", str(tmp_path / "map.toml"),
                  "-o", str(tmp_path / "out.h5"), "--quiet"]) == EXIT_BAD_INPUT
+    err = capsys.readouterr().err
+    assert err.startswith("emsource: error:") and err.count("\n") == 1 and message in err, err
     assert not (tmp_path / "out.h5").exists()
 
 
