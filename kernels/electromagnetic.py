@@ -35,7 +35,7 @@ from .metric import contract_index, inverse_metric
 from .point_checks import is_finite
 
 __all__ = [
-    "FORM_CONTRAVARIANT", "FORM_COVARIANT", "fields_both_indices", "sqrt_determinant",
+    "FORM_CONTRAVARIANT", "FORM_COVARIANT", "FORM_DENSITIZED", "fields_both_indices", "sqrt_determinant",
     "projections", "momentum_upper", "energy_momentum_fluxes", "point_is_valid", "sources_bound",
     "point_underflows",
 ]
@@ -44,6 +44,8 @@ __all__ = [
 FORM_CONTRAVARIANT = 0
 #: E_i, B_i: the same fields with the index lowered by gamma_ij.
 FORM_COVARIANT = 1
+#: sqrt(gamma) E^i, sqrt(gamma) B^i: the contravariant fields densitized with the physical metric.
+FORM_DENSITIZED = 2
 
 
 @point_function
@@ -53,6 +55,8 @@ def fields_both_indices(form, gxx, gxy, gxz, gyy, gyz, gzz, d1, d2, d3, l21, l31
 
     FORM_CONTRAVARIANT: f = (E^x, E^y, E^z, B^x, B^y, B^z), lowered with gamma_ij.
     FORM_COVARIANT: f = (E_x, E_y, E_z, B_x, B_y, B_z), raised with gamma^ij (from the factors).
+    FORM_DENSITIZED: f = sg (E^x, E^y, E^z, B^x, B^y, B^z), divided by sg = sqrt(det gamma_ij)
+    (the caller's sg from the same pivots, so LLVM computes it once), then lowered.
     One assignment per branch and one return: LLVM then unswitches the loop on ``form``.
     """
     if form == FORM_COVARIANT:
@@ -61,6 +65,12 @@ def fields_both_indices(form, gxx, gxy, gxz, gyy, gyz, gzz, d1, d2, d3, l21, l31
         bxl, byl, bzl = f4, f5, f6
         ex, ey, ez = contract_index(ixx, ixy, ixz, iyy, iyz, izz, f1, f2, f3)
         bx, by, bz = contract_index(ixx, ixy, ixz, iyy, iyz, izz, f4, f5, f6)
+    elif form == FORM_DENSITIZED:
+        undensitize = one / sqrt_determinant(d1, d2, d3)
+        ex, ey, ez = f1 * undensitize, f2 * undensitize, f3 * undensitize
+        bx, by, bz = f4 * undensitize, f5 * undensitize, f6 * undensitize
+        exl, eyl, ezl = contract_index(gxx, gxy, gxz, gyy, gyz, gzz, ex, ey, ez)
+        bxl, byl, bzl = contract_index(gxx, gxy, gxz, gyy, gyz, gzz, bx, by, bz)
     else:
         ex, ey, ez = f1, f2, f3
         bx, by, bz = f4, f5, f6

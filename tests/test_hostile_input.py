@@ -19,7 +19,8 @@ in a fresh interpreter (``tests/snapshot_data.py: run_cli``), as a user would:
   random keys replaced by values of any TOML type (strings, integers, floats with NaN and Inf,
   booleans, dates, arrays, tables), keys deleted or unknown keys added, or its text damaged
   (the working mapping holds the staggering keys ``centring``, ``time_offset``,
-  ``interpolation_order`` and a time ``scale`` at values that change nothing, so edits reach them).
+  ``interpolation_order`` and a time ``scale`` at values that change nothing, so edits reach them);
+  the ``[forms]`` keys also set to valid form names that do not fit the stored data.
 
 The property, for every example (issue 10, "Nothing lost, no traceback"): the exit code is a
 documented one (:mod:`emsource.commands`: 0 ok, 1 a check failed, 2 usage, 3 bad input, 4 output
@@ -56,6 +57,7 @@ from hypothesis import strategies as st
 from emsource import snapshot
 from emsource.commands import (EXIT_BAD_INPUT, EXIT_CHECK_FAILED, EXIT_OK, EXIT_OUTPUT_ERROR,
                                EXIT_USAGE)
+from emsource.snapshot.stored_forms import FIELD_FORMS, FORMS_KEYS, METRIC_FORMS, VELOCITY_FORMS
 
 from snapshot_data import checksums, curved_levels, run_cli
 
@@ -120,6 +122,7 @@ BASE_MAPPING = {
     },
     # physical-unit keys (emsource.snapshot.mapping_units), so that random edits reach them
     "physical_units": {"code_scale": {"value": 1.0, "unit": "solar_mass"}, "time_unit": "s"},
+    "forms": {"fields": "upper", "metric": "physical"},
 }
 BASE_MAPPING["quantities"]["electric_field"]["unit"] = "statV/cm"
 
@@ -487,8 +490,14 @@ def key_paths(table, prefix=()):
 
 PATHS = key_paths(BASE_MAPPING)
 
+#: Valid names of the [forms] keys, most of them wrong for the stored data (a Faraday tensor or a
+#: conformal factor that is not there; a densitized reading that is merely different numbers).
+FORM_NAMES = st.sampled_from(FIELD_FORMS + METRIC_FORMS + VELOCITY_FORMS)
+
 mapping_edit = st.one_of(
     st.tuples(st.just("replace"), st.sampled_from(PATHS), TOML_VALUES),
+    st.tuples(st.just("replace"), st.sampled_from([("forms", k) for k in sorted(FORMS_KEYS)]),
+              FORM_NAMES),
     st.tuples(st.just("delete"), st.sampled_from(PATHS)),
     st.tuples(st.just("add"), st.sampled_from([()] + PATHS), TEXT, TOML_VALUES),
 )

@@ -38,10 +38,17 @@ def _lower(gamma, V):
                      V.astype(np.float64)).astype(V.dtype)
 
 
+def _densitize(gamma, V):
+    """sqrt(gamma) V^i, det gamma_ij by numpy.linalg.det in float64, rounded to the data's dtype."""
+    full = np.moveaxis(unpack_symmetric(gamma.astype(np.float64)), (0, 1), (-2, -1))
+    return (np.sqrt(np.linalg.det(full)) * V.astype(np.float64)).astype(V.dtype)
+
+
 #: The reference converter of every form: (gamma, E^i, B^i) -> the stored (E, B) of the form.
 REFERENCE_CONVERTERS = {
     "upper": lambda gamma, E, B: (E, B),
     "lower": lambda gamma, E, B: (_lower(gamma, E), _lower(gamma, B)),
+    "densitized": lambda gamma, E, B: (_densitize(gamma, E), _densitize(gamma, B)),
 }
 
 

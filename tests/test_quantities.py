@@ -30,7 +30,8 @@ def test_mapping_keys_and_command_choices_come_from_the_table(tmp_path):
     assert f"allowed: {sorted(quantities.NAMES)}" in str(error.value)
     sources = build_parser()._subparsers._group_actions[0].choices["sources"]
     outputs = next(a for a in sources._actions if a.dest == "outputs")
-    assert tuple(outputs.choices) == quantities.OUTPUTS == (
+    assert tuple(outputs.choices) == quantities.OUTPUTS + quantities.FORM_OUTPUTS
+    assert quantities.OUTPUTS == (
         "energy_density", "momentum_density", "spatial_stress", "stress_trace")
     assert tuple(emsource.AdmSources._fields) == tuple(quantities.BY_NAME[q].api
                                                        for q in quantities.OUTPUTS)
@@ -38,7 +39,8 @@ def test_mapping_keys_and_command_choices_come_from_the_table(tmp_path):
 
 def test_components_match_the_kinds():
     for q in quantities.TABLE:
-        expected = {"scalar": 0, "mask": 0, "vector": 3, "covector": 3, "symmetric_lower": 6}
+        expected = {"scalar": 0, "mask": 0, "vector": 3, "covector": 3, "symmetric_lower": 6,
+                    "antisymmetric": 6}
         assert q.components == expected[q.kind], q.name
         assert q.dimension in quantities.DIMENSIONS, q.name
 

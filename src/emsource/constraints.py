@@ -168,8 +168,8 @@ def adm_constraints(gamma, K, E=None, B=None, *, spacing, order=4, units="gaussi
         Order of the centred differences.
     units : {"gaussian", "heaviside_lorentz"}
         Unit system of E and B.
-    field_index : {"upper", "lower"}
-        Whether E and B are contravariant or covariant.
+    field_index : {"upper", "lower", "densitized"}
+        What E and B hold (:mod:`emsource.input_forms`).
     valid_mask : (nx, ny, nz) bool or integer ndarray or None
         True (nonzero) where the data are valid (False inside an excised region). None: all
         valid. Points outside it are neither checked nor used.

@@ -18,7 +18,7 @@ from typing import NamedTuple
 
 from .kernels import electromagnetic as point_physics
 
-__all__ = ["InputForm", "FORMS", "CONTRAVARIANT", "COVARIANT", "input_form"]
+__all__ = ["InputForm", "FORMS", "CONTRAVARIANT", "COVARIANT", "DENSITIZED", "input_form"]
 
 
 class InputForm(NamedTuple):
@@ -49,8 +49,13 @@ COVARIANT = InputForm(
     (("E", "E_i = gamma_ij E^j, (3, *grid)"),
      ("B", "B_i = gamma_ij B^j, (3, *grid)")))
 
+DENSITIZED = InputForm(
+    "densitized", point_physics.FORM_DENSITIZED,
+    (("E", "sqrt(gamma) E^i, gamma = det gamma_ij of the physical metric, (3, *grid)"),
+     ("B", "sqrt(gamma) B^i, (3, *grid)")))
+
 #: Every form, by the name that selects it.
-FORMS = {form.name: form for form in (CONTRAVARIANT, COVARIANT)}
+FORMS = {form.name: form for form in (CONTRAVARIANT, COVARIANT, DENSITIZED)}
 
 
 def input_form(function: str, name) -> InputForm:

@@ -18,13 +18,15 @@ components
     (xx, xy, xz, yy, yz, zz).
 kind
     "scalar", "vector" (upper index), "covector" (lower index), "symmetric_lower" (two lower
-    indices), or "mask" (uint8 flags, 1 = valid).
+    indices), "antisymmetric" (a 4x4 antisymmetric tensor packed (tx, ty, tz, xy, xz, yz), see
+    :mod:`emsource.faraday`), or "mask" (uint8 flags, 1 = valid).
 dimension
     Unit dimension in code units (G = c = 1): "dimensionless", "1/length", "field" (E, B),
     "field^2" (energy density and stresses), "field^2/c" (momentum density), "field*length" (the vector
     potential A_i), "charge/length^3", "charge/length^2/time".
 role
-    "input" (read by the computations), "mask" or "output" (written by ``emsource sources``).
+    "input" (read by the computations), "mask" or "output" (written by ``emsource sources``), or
+    "form_output" (written by ``emsource sources --outputs NAME`` only when asked).
 
 Unit systems. Between Gaussian and Heaviside-Lorentz code units a field is divided by
 sqrt(4 pi) and a charge or current density multiplied by it, while the stress-energy (the
@@ -39,7 +41,7 @@ import math
 from dataclasses import dataclass
 
 __all__ = ["Quantity", "TABLE", "BY_NAME", "BY_API", "NAMES", "COMPONENTS", "INPUTS",
-           "OUTPUTS", "SOURCE_INPUTS", "components", "heaviside_lorentz_factor",
+           "OUTPUTS", "FORM_OUTPUTS", "SOURCE_INPUTS", "components", "heaviside_lorentz_factor",
            "physical_scale_attributes", "DIMENSIONS"]
 
 
@@ -72,11 +74,20 @@ TABLE = (
     Quantity("current_density", "current_density", 3, "vector", "charge/length^2/time", "input"),
     # A_i: read through a mapping, which derives B^i from it (emsource.snapshot.potential_sources)
     Quantity("vector_potential", "A", 3, "covector", "field*length", "input"),
+    Quantity("conformal_metric", "gamma_tilde", 6, "symmetric_lower", "dimensionless", "input"),
+    Quantity("conformal_factor", "conformal_factor", 0, "scalar", "dimensionless", "input"),
+    Quantity("faraday_tensor", "F", 6, "antisymmetric", "field", "input"),
+    Quantity("fluid_velocity", "velocity", 3, "vector", "dimensionless", "input"),
     Quantity("valid_mask", "valid_mask", 0, "mask", "dimensionless", "mask"),
     Quantity("energy_density", "rho", 0, "scalar", "field^2", "output"),
     Quantity("momentum_density", "S_i", 3, "covector", "field^2/c", "output"),
     Quantity("spatial_stress", "S_ij", 6, "symmetric_lower", "field^2", "output"),
     Quantity("stress_trace", "S", 0, "scalar", "field^2", "output"),
+    Quantity("conformal_tracefree_stress", "A_ij", 6, "symmetric_lower", "field^2", "form_output"),
+    Quantity("faraday_lower", "F_ab", 6, "antisymmetric", "field", "form_output"),
+    Quantity("faraday_upper", "F^ab", 6, "antisymmetric", "field", "form_output"),
+    Quantity("field_invariant", "F_ab F^ab", 0, "scalar", "field^2", "form_output"),
+    Quantity("dual_invariant", "F_ab *F^ab", 0, "scalar", "field^2", "form_output"),
 )
 
 BY_NAME = {q.name: q for q in TABLE}
@@ -89,6 +100,9 @@ COMPONENTS = {q.name: q.components for q in TABLE}
 INPUTS = tuple(q.name for q in TABLE if q.role in ("input", "mask"))
 #: What ``emsource sources`` can write, in the order of :class:`emsource.AdmSources`.
 OUTPUTS = tuple(q.name for q in TABLE if q.role == "output")
+#: What ``emsource sources --outputs`` can write besides :data:`OUTPUTS`: the stress in the form
+#: of a conformal decomposition, the Faraday tensor and the invariants (:mod:`emsource.snapshot.form_outputs`).
+FORM_OUTPUTS = tuple(q.name for q in TABLE if q.role == "form_output")
 #: What the sources need: gamma_ij, E^i, B^i.
 SOURCE_INPUTS = tuple(BY_API[a].name for a in ("gamma", "E", "B"))
 
@@ -100,7 +114,8 @@ DIMENSIONS = {
     "dimensionless": None,
     "1/length": None,
     "field": {"E": ("electric_field_statV_cm", "electric_field_V_m"),
-              "B": ("magnetic_field_G", "magnetic_field_T")},
+              "B": ("magnetic_field_G", "magnetic_field_T"), "F": None, "F_ab": None,
+              "F^ab": None},
     "field^2": ("energy_density_erg_cm3", "energy_density_J_m3"),
     "field^2/c": ("momentum_density_g_cm2_s", "momentum_density_kg_m2_s"),
     "field*length": ("vector_potential_G_cm", "vector_potential_T_m"),

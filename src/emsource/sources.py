@@ -187,8 +187,9 @@ def adm_sources(gamma, E, B, *, units="gaussian", field_index="upper",
         (covariant E_i, B_i with ``field_index="lower"``).
     units : {"gaussian", "heaviside_lorentz"}
         Unit system of the fields; the sources come out in the same system.
-    field_index : {"upper", "lower"}
-        Index position of the E and B components given.
+    field_index : {"upper", "lower", "densitized"}
+        What the E and B components given are (:mod:`emsource.input_forms`): E^i, B^i; E_i,
+        B_i; or the densitized sqrt(gamma) E^i, sqrt(gamma) B^i.
     layout : {"component_first", "component_last"}
         ``component_last`` takes (*grid, 3), (*grid, 6) or (*grid, 3, 3) arrays and returns
         S_i and S_ij as (*grid, 3) and (*grid, 6). Either way the data are only viewed.

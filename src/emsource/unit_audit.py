@@ -198,7 +198,7 @@ def audit_units(gamma, K, E, B, *, spacing, order=4, field_index="upper", valid_
         Grid spacing h, code units. Every axis needs at least 4 order + 2 points so that the
         2 h grid has interior points.
     order : {2, 4, 6}
-    field_index : {"upper", "lower"}
+    field_index : {"upper", "lower", "densitized"}
     valid_mask : (nx, ny, nz) bool ndarray or None
         True where the data are valid.
     check : bool

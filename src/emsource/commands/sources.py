@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from ..quantities import OUTPUTS
+from ..quantities import FORM_OUTPUTS, OUTPUTS
 from . import EXIT_OK
 from ._snapshot_options import add_input_options, run_guarded, show_progress, size_text
 
@@ -23,8 +23,10 @@ def register(subparsers):
     parser.add_argument("--force", action="store_true", help="replace an existing output")
     parser.add_argument("--compress", action="store_true", help="gzip-compress the output datasets")
     parser.add_argument("--outputs", metavar="NAME", nargs="+",
-                        choices=OUTPUTS, default=list(OUTPUTS),
-                        help="datasets to write (default all four); writing dominates the time")
+                        choices=OUTPUTS + FORM_OUTPUTS, default=list(OUTPUTS),
+                        help="datasets to write (default the four sources; also the conformal "
+                             "trace-free stress, F_ab, F^ab and the invariants); writing "
+                             "dominates the time")
     parser.add_argument("--no-check", action="store_true",
                         help="skip the point checks (finite values, positive-definite metric)")
     parser.set_defaults(run=lambda args: run_guarded(_run, args))

@@ -50,6 +50,15 @@ levels are found and where the grid's spacing and origin come from. Example (eve
     length_unit = "m"                       # spacing and origin stored in m (or cm)
     time_unit = "s"                         # level times stored in seconds
 
+    [forms]                                 # optional: how the stored fields and metric are
+    fields = "upper"                        # written (:mod:`.stored_forms`): "upper", "lower",
+                                            # "densitized", "faraday_lower", "faraday_upper"
+                                            # (faraday_tensor, lapse, shift) or "ideal_mhd"
+                                            # (magnetic_field, fluid_velocity, lapse, shift)
+    metric = "physical"                     # or "chi", "w", "phi": conformal_metric and
+                                            # conformal_factor stored, spatial_metric computed
+    velocity = "eulerian"                   # ideal_mhd: v^i, or "four_velocity" (u^i)
+
 One rule for the order of the grid triples: ``spacing`` and ``origin`` are read in the file's
 storage order (``axis_order``), whether they are given as three values or as an attribute; for
 ``axis_order = "zyx"`` both mean (z, y, x). Component lists and packed tensors are always in
@@ -88,6 +97,7 @@ import h5py
 import numpy as np
 
 from ..quantities import BY_NAME, COMPONENTS, NAMES
+from . import stored_forms
 from .errors import MappingError
 from .mapping_units import MappingUnits, parse_physical_units
 from .potential_sources import add_curl_sources
@@ -105,7 +115,7 @@ __all__ = ["LayoutMapping", "QuantitySpec", "load_mapping", "MAPPING_VERSION"]
 MAPPING_VERSION = 1
 
 _TOP_KEYS = {"mapping_version", "axis_order", "units", "time_levels", "grid", "quantities",
-             "physical_units", "interpolation_order"}
+             "physical_units", "interpolation_order", "forms"}
 _LEVEL_KEYS = {"pattern", "time"}
 _TIME_KEYS = {"attribute", "object", "per_index", "scale"}
 _GRID_KEYS = {"spacing", "origin"}
@@ -263,6 +273,7 @@ class LayoutMapping:
     quantities: dict = field(default_factory=dict)
     physical_units: MappingUnits = field(default_factory=MappingUnits)
     interpolation_order: int = staggered.DEFAULT_ORDER
+    forms: dict = field(default_factory=dict)
 
     def _level_groups(self, h5file):
         regex = re.compile("^" + re.escape(self.pattern.strip("/")).replace(
@@ -311,6 +322,7 @@ class LayoutMapping:
             self._staggered_sources(h5file, found, times, k, stored, raw, listing)
             if "vector_potential" in stored:  # after staggering: A is on the vertices
                 self._curl_sources(stored, derived, spacing, lw)
+            derived.update(stored_forms.derived_sources(self.forms, stored, derived))
             levels.append(build_level(
                 str(index), time, self.units, self.axis_order, origin, spacing, stored, where,
                 derived=derived, listing=text,
@@ -583,8 +595,32 @@ def load_mapping(path) -> LayoutMapping:
             check.fail(f"{where} identity takes no scale or component_axis")
         spec.staggering = staggered.parse_staggering(q, name, ncomp, axis_order, where, check)
         specs[name] = spec
+    forms = _forms(table.get("forms", {}), specs, check)
     return LayoutMapping(path=os.path.abspath(path), axis_order=axis_order, units=units,
                          pattern=pattern, time=time, spacing=vectors["spacing"],
                          origin=vectors["origin"], quantities=specs,
                          physical_units=unit_scales,
-                         interpolation_order=staggered.parse_interpolation_order(table, check))
+                         interpolation_order=staggered.parse_interpolation_order(table, check),
+                         forms=forms)
+
+
+def _forms(table, specs, check) -> dict:
+    """The checked ``[forms]`` table: each value one of its choices, every quantity it reads
+    named under [quantities] (stored, not identity where converted), none that it computes."""
+    check.keys(table, stored_forms.FORMS_KEYS, "[forms]")
+    choices = {"fields": stored_forms.FIELD_FORMS, "metric": stored_forms.METRIC_FORMS,
+               "velocity": stored_forms.VELOCITY_FORMS}
+    forms = {key: check.text(value, f"[forms] {key}", choices[key]) for key, value in table.items()}
+    if "velocity" in forms and forms.get("fields") != "ideal_mhd":
+        check.fail(f"[forms] velocity applies to fields = 'ideal_mhd' only, found fields = "
+                   f"{forms.get('fields', 'upper')!r}")
+    needed, replaced = stored_forms.needed_quantities(forms)
+    for q in needed:
+        if q not in specs:
+            check.fail(f"[forms] {', '.join(f'{k} = {v!r}' for k, v in forms.items())} needs "
+                       f"[quantities.{q}], which is missing")
+    for q, key in replaced:
+        if q in specs:
+            check.fail(f"[forms] {key} = {forms[key]!r} computes {q}: remove "
+                       f"[quantities.{q}]")
+    return forms

@@ -22,11 +22,20 @@ One HDF5 file holds one or more time levels of one 3D uniform grid::
             +-- current_density         (3, *grid)
             +-- vector_potential        (3, *grid)     A_i (covariant); B^i is derived from it
             |                                          through a mapping only (.potential_sources)
+            +-- conformal_metric        (6, *grid)     tilde-gamma_ij (mapping key [forms] metric)
+            +-- conformal_factor        (*grid)        chi, W or phi ([forms] metric)
+            +-- faraday_tensor          (6, *grid)     F_ab or F^ab ([forms] fields)
+            +-- fluid_velocity          (3, *grid)     v^i or u^i ([forms] fields = "ideal_mhd")
             +-- valid_mask              (*grid) uint8, 1 where the data are valid (optional)
             +-- energy_density          (*grid)        outputs of ``emsource sources``: rho,
             +-- momentum_density        (3, *grid)     S_i (covariant),
             +-- spatial_stress          (6, *grid)     S_ij packed,
             +-- stress_trace            (*grid)        S = gamma^ij S_ij
+            +-- conformal_tracefree_stress (6, *grid)  c S_ij^TF (``--outputs``, [forms] metric)
+            +-- faraday_lower           (6, *grid)     F_ab packed (tx, ty, tz, xy, xz, yz)
+            +-- faraday_upper           (6, *grid)     F^ab packed
+            +-- field_invariant         (*grid)        F_ab F^ab = 2 (B^2 - E^2)
+            +-- dual_invariant          (*grid)        F_ab *F^ab = 4 E_i B^i
 
 The dataset names and component counts are those of :data:`emsource.quantities.TABLE`. Every
 dataset is optional; a computation says which ones it needs. The component axis comes first.

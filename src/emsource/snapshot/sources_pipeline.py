@@ -31,8 +31,9 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from .. import adm_sources, interruption
-from ..quantities import COMPONENTS, OUTPUTS, SOURCE_INPUTS
+from ..quantities import COMPONENTS, FORM_OUTPUTS, OUTPUTS, SOURCE_INPUTS
 from ..sources import GridPointError
+from . import form_outputs
 from .native import LEVELS_GROUP
 from .reading import CHUNK_CACHE_BYTES, open_snapshot
 from .slabs import (CONVERSION_BUFFER_BYTES, DEFAULT_MEMORY_LIMIT, SlabBuffers, chunk_overhead,
@@ -80,7 +81,7 @@ def _checked(level) -> tuple:
 EXCISED_FILL = np.nan
 
 
-def plan_rows(level, dtype, memory_limit) -> int:
+def plan_rows(level, dtype, memory_limit, extra=()) -> int:
     """Planes per slab of :func:`compute_sources` under ``memory_limit`` (bytes).
 
     Counts the 23 slab buffers, the read scratch of each input, HDF5's caches and chunk
@@ -89,7 +90,7 @@ def plan_rows(level, dtype, memory_limit) -> int:
     read = SOURCE_INPUTS + _checked(level)
     fixed = (CHUNK_CACHE_BYTES * (12 + len(read) - len(SOURCE_INPUTS)) + CONVERSION_BUFFER_BYTES
              + chunk_overhead(level, read))
-    rows = slab_rows(level, values_per_point(SOURCE_INPUTS + SOURCE_OUTPUTS),
+    rows = slab_rows(level, values_per_point(SOURCE_INPUTS + SOURCE_OUTPUTS + tuple(extra)),
                      np.dtype(dtype).itemsize, memory_limit, fixed=fixed,
                      extra_per_row=read_scratch_per_row(level, read)
                      + 3 * len(_checked(level)) * level.plane_points)
@@ -143,10 +144,12 @@ def compute_sources(input_file, output_file, *, mapping=None, memory_limit=DEFAU
         The output is an input, exists without ``force``, or cannot be written.
     """
     began = _time.perf_counter()
-    unknown = sorted(set(outputs) - set(SOURCE_OUTPUTS))
+    unknown = sorted(set(outputs) - set(SOURCE_OUTPUTS + FORM_OUTPUTS))
     if unknown or not outputs:
-        raise ValueError(f"outputs must be some of {', '.join(SOURCE_OUTPUTS)}; found {list(outputs)}")
-    outputs = tuple(q for q in SOURCE_OUTPUTS if q in set(outputs))
+        raise ValueError(f"outputs must be some of {', '.join(SOURCE_OUTPUTS + FORM_OUTPUTS)}; "
+                         f"found {list(outputs)}")
+    outputs = tuple(q for q in SOURCE_OUTPUTS + FORM_OUTPUTS if q in set(outputs))
+    extra = form_outputs.extra_quantities(outputs)
     mapping_path = getattr(mapping, "path", mapping)
     inputs = (input_file,) + ((mapping_path,) if mapping_path is not None else ())
     check_output(output_file, force=force, inputs=inputs)
@@ -158,8 +161,9 @@ def compute_sources(input_file, output_file, *, mapping=None, memory_limit=DEFAU
         for level in chosen:
             for q in SOURCE_INPUTS:
                 level.source(q)  # raises with the file's contents if missing
+            form_outputs.check_level(level, outputs)
             dtype = common_field_dtype(level)
-            n = rows or plan_rows(level, dtype, memory_limit)
+            n = rows or plan_rows(level, dtype, memory_limit, extra)
             plans.append((level, dtype, int(min(n, level.storage_shape[0]))))
         first = plans[0][0]
         report.levels = len(plans)
@@ -186,7 +190,7 @@ def compute_sources(input_file, output_file, *, mapping=None, memory_limit=DEFAU
                                        report, bar)
                         report.times.append(level.time)
                 report.planned_bytes = max(
-                    (values_per_point(SOURCE_INPUTS + SOURCE_OUTPUTS) * dt.itemsize * n
+                    (values_per_point(SOURCE_INPUTS + SOURCE_OUTPUTS + extra) * dt.itemsize * n
                      * lv.plane_points + read_overhead_bytes(lv, SOURCE_INPUTS, n))
                     for lv, dt, n in plans)
         finally:
@@ -245,7 +249,8 @@ def _level_sources(level, dtype, rows, group, compression, check, written, repor
             excised = ~valid
             for a in out_xyz:
                 a[..., excised] = EXCISED_FILL
-        for q, a in zip(SOURCE_OUTPUTS, out_stored):
+        extra = form_outputs.slab_outputs(level, written, start, stop, gamma, E, B, valid, check)
+        for q, a in list(zip(SOURCE_OUTPUTS, out_stored)) + list(extra.items()):
             if q not in datasets:
                 continue
             if a.ndim == 4:

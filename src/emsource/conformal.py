@@ -1,0 +1,196 @@
+r"""Sources from the conformal variables of BSSN- and CCZ4-type evolutions, in the forms their
+right-hand sides use.
+
+Decompositions (:mod:`emsource.metric_forms`; tilde-gamma_ij the conformal metric, usually with
+det tilde-gamma = 1, which is neither assumed nor checked here):
+
+================  ============================================  ==========================
+``decomposition``  physical metric                               rescale c
+================  ============================================  ==========================
+``"chi"``          gamma_ij = tilde-gamma_ij / chi                c = chi
+``"w"``            gamma_ij = tilde-gamma_ij / W^2, W = sqrt(chi)  c = W^2
+``"phi"``          gamma_ij = e^{4 phi} tilde-gamma_ij            c = e^{-4 phi}
+================  ============================================  ==========================
+
+Outputs (Gaussian units; Heaviside-Lorentz drops the 1/(4 pi)), computed with the physical
+metric at each point:
+
+.. math::
+
+    \rho = \frac{E^2 + B^2}{8\pi}, \quad S_i = \frac{\epsilon_{ijk} E^j B^k}{4\pi}, \quad
+    S = \gamma^{ij} S_{ij} = \rho,
+
+    A_{ij} \equiv c\,\big(S_{ij} - \tfrac13 \gamma_{ij} S\big)
+          = c\,S_{ij} - \tfrac13 \tilde\gamma_{ij} S
+    \quad (\text{e.g. } e^{-4\phi} S_{ij}^{TF} = \chi S_{ij}^{TF}).
+
+Where they enter (T. W. Baumgarte and S. L. Shapiro, Numerical Relativity (2010), sec. 11.5,
+eqs. for d_t K, d_t tilde-A_ij, d_t tilde-Gamma^i; M. Alcubierre, Introduction to 3+1 Numerical
+Relativity (2008), sec. 2.8; both from memory):
+
+    d_t K            = ... + 4 pi alpha (rho + S)
+    d_t tilde-A_ij   = ... - 8 pi alpha A_ij            (the trace-free part, rescaled by c)
+    d_t tilde-Gamma^i = ... - 16 pi alpha tilde-gamma^ij S_j
+
+and in the CCZ4 form the same A_ij, S_i, and rho, S in the equations of K and Theta (from
+memory). The electromagnetic S equals rho exactly; it is written separately so that a code can
+add matter sources to one of them.
+"""
+
+from __future__ import annotations
+
+from typing import NamedTuple
+
+import numpy as np
+
+from . import _arguments as arg
+from ._threading import kernel_call
+from .faraday import padded, raise_for_bad_points
+from .input_forms import input_form
+from .kernels import conformal as kernels
+from .metric_forms import decomposition as find_decomposition
+from .unit_systems import stress_energy_prefactor
+
+__all__ = ["ConformalSources", "conformal_sources", "physical_metric"]
+
+
+class ConformalSources(NamedTuple):
+    """The sources in the forms the conformal right-hand sides use (module docstring).
+
+    Attributes
+    ----------
+    rho : (*grid) ndarray
+        Energy density.
+    S_i : (3, *grid) ndarray
+        Momentum density (covariant).
+    S : (*grid) ndarray
+        Trace gamma^ij S_ij (= rho for the electromagnetic field).
+    A_ij : (6, *grid) ndarray
+        c (S_ij - gamma_ij S / 3), packed (xx, xy, xz, yy, yz, zz): the trace-free stress
+        rescaled by chi, W^2 or e^{-4 phi}.
+    """
+
+    rho: np.ndarray
+    S_i: np.ndarray
+    S: np.ndarray
+    A_ij: np.ndarray
+
+
+def _conformal_inputs(function, factor, gamma_tilde, grid, decomposition):
+    code = find_decomposition(function, decomposition).code
+    f = arg.float_array(function, "conformal_factor", factor)
+    if f.shape != grid:
+        raise ValueError(f"{function}: conformal_factor must have shape {grid}, found {f.shape}")
+    try:
+        metric, gidx = arg.spatial_metric(function, gamma_tilde, grid, "component_first")
+    except ValueError as error:  # name the argument as the caller knows it
+        raise ValueError(str(error).replace("gamma", "gamma_tilde", 1)) from None
+    return code, f, metric, gidx
+
+
+def _bad_factor_reason(decomposition, factor):
+    return (f"{'chi' if decomposition == 'chi' else 'W'} must be positive" if decomposition != "phi"
+            else "phi overflows exp(-4 phi)")
+
+
+def physical_metric(conformal_factor, gamma_tilde, *, decomposition):
+    """The physical gamma_ij (packed, (6, *grid)) from tilde-gamma_ij and chi, W or phi.
+
+    Parameters
+    ----------
+    conformal_factor : (*grid) ndarray
+        chi, W or phi, as ``decomposition`` says.
+    gamma_tilde : (6, *grid) or (3, 3, *grid) ndarray
+        The conformal metric tilde-gamma_ij.
+    decomposition : {"chi", "w", "phi"}
+        See the module docstring.
+
+    Returns
+    -------
+    (6, *grid) ndarray
+        gamma_ij, for every function of the package that takes ``gamma``. No point checks here
+        (those functions check the metric they are given).
+    """
+    function = "physical_metric"
+    f = arg.float_array(function, "conformal_factor", conformal_factor)
+    code, f, metric, gidx = _conformal_inputs(function, conformal_factor, gamma_tilde,
+                                              tuple(f.shape), decomposition)
+    dtype = arg.common_dtype(function, ("conformal_factor", "gamma_tilde"),
+                             (conformal_factor, gamma_tilde))
+    out = np.empty((6,) + f.shape, dtype)
+    if arg.has_points(f.shape):
+        views = padded([f, metric, out], f.shape)
+        with kernel_call():
+            kernels.physical_metric_grid(views[0], views[1], gidx, views[2], code)
+    return out
+
+
+def conformal_sources(conformal_factor, gamma_tilde, E, B, *, decomposition, units="gaussian",
+                      field_index="upper", check=True) -> ConformalSources:
+    r"""rho, S_i, S and the rescaled trace-free stress A_ij from conformal variables.
+
+    Parameters
+    ----------
+    conformal_factor : (*grid) ndarray
+        chi, W or phi (``decomposition``).
+    gamma_tilde : (6, *grid) or (3, 3, *grid) ndarray
+        The conformal metric tilde-gamma_ij.
+    E, B : (3, *grid) ndarray
+        The fields of the normal observer in the input form ``field_index`` ("upper",
+        "lower" or "densitized"; indices moved and densities taken with the physical metric).
+    decomposition : {"chi", "w", "phi"}
+        Required: which factor ``conformal_factor`` holds (never assumed).
+    units : {"gaussian", "heaviside_lorentz"}
+    check : bool
+        Raise :class:`GridPointError` at the first point with non-finite input or output, a
+        chi or W that is not positive, or a physical metric that is not positive definite.
+
+    Returns
+    -------
+    ConformalSources
+        (rho, S_i, S, A_ij), component axis first.
+
+    References
+    ----------
+    See the module docstring.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from emsource.conformal import conformal_sources
+    >>> chi = np.full(1, 0.25); gt = np.zeros((6, 1)); gt[[0, 3, 5]] = 1.0  # gamma = 4 delta
+    >>> E = np.array([[0.5], [0.0], [0.0]]); B = np.zeros((3, 1))
+    >>> s = conformal_sources(chi, gt, E, B, decomposition="chi", units="heaviside_lorentz")
+    >>> float(s.rho[0]), (s.A_ij[:, 0] + 0.0).round(6).tolist()   # E^2 = 4 * 0.25 = 1
+    (0.5, [-0.666667, 0.0, 0.0, 0.333333, 0.0, 0.333333])
+    """
+    function = "conformal_sources"
+    form = input_form(function, field_index)
+    prefactor = stress_energy_prefactor(units)
+    grid = arg.grid_of(function, "E", E, "component_first")
+    code, f, metric, gidx = _conformal_inputs(function, conformal_factor, gamma_tilde, grid,
+                                              decomposition)
+    e = arg.vector(function, "E", E, grid, "component_first")
+    b = arg.vector(function, "B", B, grid, "component_first")
+    names = ("conformal_factor", "gamma_tilde", "E", "B")
+    dtype = arg.common_dtype(function, names, (conformal_factor, gamma_tilde, E, B))
+    result = ConformalSources(np.empty(grid, dtype), np.empty((3,) + grid, dtype),
+                              np.empty(grid, dtype), np.empty((6,) + grid, dtype))
+    if not arg.has_points(grid):
+        return result
+    views = padded([f, metric, e, b, *result], grid)
+    with kernel_call():
+        count = kernels.conformal_sources_grid(views[0], views[1], gidx, *views[2:], code,
+                                               form.code, float(prefactor),
+                                               float(arg.pivot_floor(dtype)))
+    if check and count:
+        physical = physical_metric(conformal_factor, gamma_tilde, decomposition=decomposition)
+        positive = f if decomposition != "phi" else np.exp(-4.0 * f.astype(float))
+        raise_for_bad_points(
+            function, count, grid,
+            {"conformal_factor": f, "E": e, "B": b,
+             "out": np.concatenate([result.rho[None], result.A_ij])},
+            lapse=None if decomposition == "phi" else "conformal_factor",
+            metric=("gamma (physical)", physical, arg.PACKED_METRIC_INDEX),
+            reason=None if np.all(positive > 0) else _bad_factor_reason(decomposition, f))
+    return result
