@@ -234,33 +234,89 @@ def has_points(grid) -> bool:
     return 0 not in grid
 
 
+def _row_block(a: np.ndarray, ncomp_axes: int, ncomp: int, npoints: int):
+    """``a`` (component rows C-contiguous, spaced evenly) as a C-contiguous (ncomp, stride)
+    view that includes the gaps between the rows, or None where that memory is not known to
+    belong to the same allocation (then the caller takes the strided path).
+
+    The kernels read and write only the first ``npoints`` of each row; the view exists so that
+    Numba types it as C-contiguous: its strided ("A") arrays cost 10-20 % in the flat loop
+    (measured, ``benchmarks/bench_sources.py`` history in DEVELOPERS.md "Grid functions").
+    """
+    itemsize = a.itemsize
+    step = a.strides[0] if ncomp > 1 else npoints * itemsize
+    if step < npoints * itemsize or step % itemsize:
+        return None
+    for axis in range(1, ncomp_axes):  # further component axes, as (3, 3): evenly spaced too
+        if a.strides[axis] * a.shape[axis] != a.strides[axis - 1]:
+            return None
+    owner = a
+    while isinstance(owner.base, np.ndarray):
+        owner = owner.base
+    if owner.base is not None:  # memory of a foreign object (mmap, bytes): extent unknown
+        return None
+    offset = a.__array_interface__["data"][0] - owner.__array_interface__["data"][0]
+    if offset < 0 or offset + ncomp * step > owner.nbytes:
+        return None
+    return np.ndarray((ncomp, step // itemsize), a.dtype, buffer=owner, offset=offset)
+
+
 def kernel_views(arrays, grid):
     """Views of component-first ``arrays`` for the kernels, and whether the flat path applies.
 
-    All C-contiguous: each array becomes (ncomp, npoints) (or (npoints,) for a scalar), one
-    flat loop. Otherwise each becomes (ncomp, nx, ny, nz) with trailing length-1 axes added
-    for 1D and 2D grids, for the strided loop. Either way no data are copied.
+    The flat path takes each array as (ncomp, stride) (or (npoints,) for a scalar) and runs
+    one loop over the first npoints of every row. It applies when every component row is
+    C-contiguous: C-contiguous arrays (stride = npoints) and the padded grid functions of
+    :mod:`emsource.grid_arrays` (rows a little more than npoints apart; the loop never
+    touches the gaps). Otherwise each array becomes (ncomp, nx, ny, nz) with trailing
+    length-1 axes added for 1D and 2D grids, for the strided loop. Either way no data are
+    copied.
     """
     contiguous = True
     for a in arrays:
         contiguous = contiguous and a.flags.c_contiguous
+    if contiguous and len(grid) == 1:
+        return arrays, True
+    npoints = 1
+    for n in grid:
+        npoints *= n
     if contiguous:
-        if len(grid) == 1:
-            return arrays, True
-        npoints = 1
-        for n in grid:
-            npoints *= n
         scalar, vector = (npoints,), (-1, npoints)
         return [a.reshape(vector if a.ndim > len(grid) else scalar) for a in arrays], True
-    pad = (Ellipsis,) + (None,) * (3 - len(grid))
-    return [a[pad] for a in arrays], False
+    views = []
+    for a in arrays:
+        if a.flags.c_contiguous:
+            views.append(a.reshape((-1, npoints) if a.ndim > len(grid) else (npoints,)))
+            continue
+        block = None
+        if a.ndim > len(grid) and a.strides[len(a.shape) - len(grid):] == _c_strides(a, grid):
+            block = _row_block(a, a.ndim - len(grid), a.size // npoints, npoints)
+        if block is None:
+            pad = (Ellipsis,) + (None,) * (3 - len(grid))
+            return [a[pad] for a in arrays], False
+        views.append(block)
+    return views, True
 
 
-def as_grid_views(arrays, flat: bool):
-    """The (ncomp, nx, ny, nz) form of kernel views (a flat line becomes (ncomp, 1, 1, n))."""
+def _c_strides(a: np.ndarray, grid) -> tuple:
+    """The strides of a C-contiguous array of shape ``grid`` and ``a``'s dtype."""
+    strides = []
+    step = a.itemsize
+    for n in reversed(grid):
+        strides.append(step)
+        step *= n
+    return tuple(reversed(strides))
+
+
+def as_grid_views(arrays, flat: bool, grid):
+    """The (ncomp, nx, ny, nz) form of kernel views on ``grid`` (a flat line becomes
+    (ncomp, 1, 1, npoints); the gaps of padded rows are cut off)."""
     if not flat:
         return arrays
-    return [a.reshape(a.shape[:-1] + (1, 1, a.shape[-1])) for a in arrays]
+    npoints = 1
+    for n in grid:
+        npoints *= n
+    return [a[..., :npoints].reshape(a.shape[:-1] + (1, 1, npoints)) for a in arrays]
 
 
 #: Orders of the centred finite differences the diagnostics offer (kernels/stencils.py).

@@ -264,7 +264,7 @@ def adm_sources(gamma, E, B, *, units="gaussian", field_index="upper",
     with kernel_call():
         counts = driver(g, gidx, ev, bv, rho, s_i, s_ij, s, *constants, bool(check))
         if counts[0] or counts[1]:
-            grid_views = arg.as_grid_views([g, ev, bv, rho, s_i, s_ij, s], flat)
+            grid_views = arg.as_grid_views([g, ev, bv, rho, s_i, s_ij, s], flat, grid)
             raise_for_counts(function, counts, grid, dtype, kernels.first_failing_adm,
                              (grid_views[0], gidx, *grid_views[1:], *constants),
                              ("gamma", "E", "B"), grid_views[:3], grid_views[3:], gidx)
@@ -338,7 +338,7 @@ def stress_energy_4d(alpha, beta, gamma, E, B, *, units="gaussian", index="lower
     with kernel_call():
         counts = driver(a, be, g, gidx, ev, bv, t, *constants, bool(check))
         if counts[0] or counts[1]:
-            views = arg.as_grid_views([a, be, g, ev, bv, t], flat)
+            views = arg.as_grid_views([a, be, g, ev, bv, t], flat, grid)
             raise_for_counts(function, counts, grid, dtype, kernels.first_failing_stress_energy,
                              (views[0], views[1], views[2], gidx, views[3], views[4], views[5],
                               *constants), names, views[:5], views[5:], gidx)
