@@ -144,24 +144,38 @@ def outputs(function: str, names: tuple, values: tuple, shapes: tuple, component
     over foreign buffers) goes to ``np.may_share_memory``.
     """
     input_owners = [_owner(a) for a in inputs]
+    inputs_owned = True  # every input over memory of a plain owning ndarray
+    for o in input_owners:
+        if o is None:
+            inputs_owned = False
     output_owners = []
     views = []
+    # Written as plain loops with the messages built only on error: this runs on every call of
+    # an evolution loop, and generator expressions and f-strings here cost microseconds.
     for name, value, shape, ncomp in zip(names, values, shapes, component_axes):
-        label = f"out {name}" if name else "out"  # a function with one output names none
-        if not isinstance(value, np.ndarray):
+        if type(value) is not np.ndarray and not isinstance(value, np.ndarray):
+            label = f"out {name}" if name else "out"  # a function with one output names none
             raise TypeError(f"{function}: {label} must be a NumPy array, found {type(value).__name__}")
         if value.shape != shape or value.dtype != dtype:
+            label = f"out {name}" if name else "out"
             raise ValueError(
                 f"{function}: {label} must have shape {shape} and dtype {dtype}, "
                 f"found shape {value.shape} and dtype {value.dtype}"
             )
         if not value.flags.writeable:
+            label = f"out {name}" if name else "out"
             raise ValueError(f"{function}: {label} is read-only")
         owner = _owner(value)
         output_owners.append(owner)
-        if owner is None or any(o is None or o is owner for o in input_owners):
+        shared = owner is None or not inputs_owned
+        if not shared:
+            for o in input_owners:
+                if o is owner:
+                    shared = True
+        if shared:
             for input_name, a in zip(input_names, inputs):
                 if np.may_share_memory(value, a):
+                    label = f"out {name}" if name else "out"
                     raise ValueError(
                         f"{function}: {label} overlaps input {input_name}; "
                         "inputs are never overwritten"
@@ -178,8 +192,14 @@ def _outputs_apart(function: str, names: tuple, values: tuple, owners: list) -> 
     one over the other. Arrays that own their memory, each its own, are apart by construction
     (the common case, decided without a pairwise test); anything else goes to
     ``np.may_share_memory`` (bounds only: no false negatives)."""
-    if all(o is not None for o in owners) and len({id(o) for o in owners}) == len(owners):
-        return
+    distinct = set()
+    for o in owners:
+        if o is None:
+            break
+        distinct.add(id(o))
+    else:
+        if len(distinct) == len(owners):
+            return
     for m in range(len(values)):
         for n in range(m):
             if owners[m] is not None and owners[n] is not None and owners[m] is not owners[n]:
@@ -199,6 +219,23 @@ def smallest_normal(dtype):
     ``np.finfo`` costs a few tenths of a microsecond on every call of an evolution loop.
     """
     return _SMALLEST_NORMAL[dtype]
+
+
+_KERNEL_CONSTANTS = {}
+
+
+def kernel_constants(form: int, dtype, prefactor: float) -> tuple:
+    """(form, coef, half, tiny, pivot floor): the scalar arguments of the point-physics kernels,
+    in ``dtype`` (float32 data stay float32). Built once per (form, dtype, prefactor): making
+    the four NumPy scalars costs about a microsecond, a tenth of a small grid's call."""
+    key = (form, dtype, prefactor)
+    constants = _KERNEL_CONSTANTS.get(key)
+    if constants is None:
+        dtype = np.dtype(dtype)
+        constants = (form, dtype.type(prefactor), dtype.type(0.5), smallest_normal(dtype),
+                     pivot_floor(dtype))
+        _KERNEL_CONSTANTS[key] = constants
+    return constants
 
 
 #: Relative floor of the metric pivots, per dtype (see :func:`pivot_floor`).
@@ -274,15 +311,18 @@ def kernel_views(arrays, grid):
     """
     contiguous = True
     for a in arrays:
-        contiguous = contiguous and a.flags.c_contiguous
-    if contiguous and len(grid) == 1:
+        if not a.flags.c_contiguous:
+            contiguous = False
+            break
+    ndim = len(grid)
+    if contiguous and ndim == 1:
         return arrays, True
     npoints = 1
     for n in grid:
         npoints *= n
     if contiguous:
         scalar, vector = (npoints,), (-1, npoints)
-        return [a.reshape(vector if a.ndim > len(grid) else scalar) for a in arrays], True
+        return [a.reshape(vector) if a.ndim > ndim else a.reshape(scalar) for a in arrays], True
     views = []
     for a in arrays:
         if a.flags.c_contiguous:

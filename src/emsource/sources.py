@@ -259,8 +259,7 @@ def adm_sources(gamma, E, B, *, units="gaussian", field_index="upper",
         return result
     (g, ev, bv, rho, s_i, s_ij, s), flat = arg.kernel_views([metric, e, b] + views, grid)
     driver = kernels.adm_sources_flat if flat else kernels.adm_sources_grid
-    constants = (form, dtype.type(prefactor), dtype.type(0.5), arg.smallest_normal(dtype),
-                 arg.pivot_floor(dtype))
+    constants = arg.kernel_constants(form, dtype, prefactor)
     with kernel_call():
         counts = driver(g, gidx, ev, bv, rho, s_i, s_ij, s, *constants, bool(check))
         if counts[0] or counts[1]:
@@ -333,8 +332,7 @@ def stress_energy_4d(alpha, beta, gamma, E, B, *, units="gaussian", index="lower
         return result
     (a, be, g, ev, bv, t), flat = arg.kernel_views([lapse, shift, metric, e, b, t_view], grid)
     driver = kernels.stress_energy_flat if flat else kernels.stress_energy_grid
-    constants = (form, dtype.type(prefactor), dtype.type(0.5), arg.smallest_normal(dtype),
-                 arg.pivot_floor(dtype), index == "upper")
+    constants = arg.kernel_constants(form, dtype, prefactor) + (index == "upper",)
     with kernel_call():
         counts = driver(a, be, g, gidx, ev, bv, t, *constants, bool(check))
         if counts[0] or counts[1]:
