@@ -26,7 +26,9 @@ def _owner(a: np.ndarray):
 LAYOUTS = ("component_first", "component_last")
 #: Values of the ``field_index`` option: the names of the input forms.
 FIELD_INDICES = tuple(FORMS)
-FLOAT_DTYPES = (np.dtype(np.float32), np.dtype(np.float64))
+#: float64 first: ``in`` tests identity before equality, and NumPy's built-in dtypes are
+#: singletons, so the common case costs no dtype comparison (about 0.15 us each).
+FLOAT_DTYPES = (np.dtype(np.float64), np.dtype(np.float32))
 
 
 def choice(function: str, argument: str, value, allowed) -> None:
@@ -52,7 +54,7 @@ def common_dtype(function: str, names: tuple, arrays: tuple) -> np.dtype:
     """The one dtype all ``arrays`` share; mixed dtypes are an error (nothing is cast silently)."""
     dtype = arrays[0].dtype
     for a in arrays:
-        if a.dtype != dtype:
+        if a.dtype is not dtype and a.dtype != dtype:  # identity first: dtypes are singletons
             found = ", ".join(f"{name}: {a.dtype}" for name, a in zip(names, arrays))
             raise TypeError(f"{function}: all inputs must share one float dtype, found {found}")
     return dtype
@@ -156,7 +158,7 @@ def outputs(function: str, names: tuple, values: tuple, shapes: tuple, component
         if type(value) is not np.ndarray and not isinstance(value, np.ndarray):
             label = f"out {name}" if name else "out"  # a function with one output names none
             raise TypeError(f"{function}: {label} must be a NumPy array, found {type(value).__name__}")
-        if value.shape != shape or value.dtype != dtype:
+        if value.shape != shape or (value.dtype is not dtype and value.dtype != dtype):
             label = f"out {name}" if name else "out"
             raise ValueError(
                 f"{function}: {label} must have shape {shape} and dtype {dtype}, "
