@@ -58,3 +58,11 @@ def test_compile_command_calls_every_common_signature(capsys):
             for layout in ("contiguous", "strided"):
                 assert f"{what}, {dtype}, {layout}" in names
     assert out[-1].startswith("total")
+
+
+def test_silent_where_stderr_is_not_a_terminal(capsys):
+    # Scripts and pipelines rely on a successful command writing nothing to stderr.
+    with compile_notice() as listener:
+        for e in _events("emsource.kernels.sources"):
+            event.broadcast(e)
+    assert listener is None and capsys.readouterr().err == ""

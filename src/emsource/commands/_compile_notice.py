@@ -8,6 +8,10 @@ hang. Numba announces every compilation that misses its cache as a "numba:compil
 :func:`compile_notice` prints one line when the first emsource kernel starts compiling and one
 with the total time when the command ends; a command whose kernels are all cached prints
 nothing. ``emsource compile`` compiles the common signatures ahead.
+
+Only where stderr is a terminal (common practice for progress notes): scripts, pipelines and
+the test suite rely on a command that succeeds writing nothing to stderr, and on a failing
+one writing exactly one line (its error).
 """
 
 from __future__ import annotations
@@ -70,8 +74,15 @@ class CompileNotice(event.Listener):
 
 @contextlib.contextmanager
 def compile_notice(stream=None):
-    """Within the block, announce compilations of emsource kernels on ``stream`` (stderr);
-    on leaving it (also by an exception), the total time, if anything compiled."""
+    """Within the block, announce compilations of emsource kernels on ``stream``, by default
+    stderr if it is a terminal (else nothing is announced); on leaving the block (also by an
+    exception), the total time, if anything compiled."""
+    if stream is None:
+        isatty = getattr(sys.stderr, "isatty", None)
+        if isatty is None or not isatty():
+            yield None
+            return
+        stream = sys.stderr
     listener = CompileNotice(stream)
     event.register("numba:compile", listener)
     try:
