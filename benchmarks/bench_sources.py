@@ -1,18 +1,24 @@
 """Speed of the source kernels, measured side by side with a memory-bandwidth yardstick.
 
-Run:  python benchmarks/bench_sources.py [--quick] [--repeat N]
+Run:  python benchmarks/bench_sources.py [--quick] [--repeat N] [--sizes 128 256 ...]
 
-In one run and on the same Numba threads it measures
+In one run and on the same threads it measures, per grid size (default 128^3, 134^3 = 2^7 + 6,
+256^3, 262^3 = 2^8 + 6; float64, checks on, into preallocated ``out``):
   (a) a STREAM-style triad a = b + s c (bandwidth counted as 3 arrays moved, the usual way),
-  (b) emsource.adm_sources on 128^3 and 256^3 grids, float64 and float32, into preallocated
-      ``out`` arrays, with the point checks on and off, and on a strided ghost-zone view,
+  (b) emsource.adm_sources on C-contiguous arrays and on padded grid functions
+      (``emsource.grid_arrays``), the ghost-zone view of a 2^k + 6 grid (interior 2^k),
+      float32 on both layouts, and checks off;
+      the same-traffic copy kernel (12 rows read, 11 written, no physics) on both layouts, the
+      ceiling of the access pattern; and a hand-written C + OpenMP kernel on the same arrays
+      (``c_reference.py``, built now where a C compiler is found), with the time ratio
+      emsource / C of each pair;
   (c) a plain-NumPy implementation of the same formulas (einsum, linalg.det), 128^3 float64,
   (d) the per-call time on an 8^3 grid, through the public API with ``out``.
-It prints medians of several repetitions: points per second, the effective bandwidth counting
-each input and output array once (12 in, 11 out), that bandwidth as a share of the triad, and
-ratios. The machine is shared and noisy, so every kernel timing is taken right after a triad
-timing and the share of the triad is the median of those paired ratios: load that comes and
-goes affects both members of a pair alike. Read ratios, not absolute figures.
+Every timing is taken right after a triad timing, and the cases of one size run interleaved
+(triad, case 1, triad, case 2, ..., then again): load that comes and goes on this shared machine
+affects the members of a pair alike. It prints medians: points per second, the effective
+bandwidth counting each input and output array once (12 in, 11 out), that bandwidth as a
+share of the triad. Read ratios, not absolute figures.
 """
 
 from __future__ import annotations
@@ -26,6 +32,10 @@ import numba
 import numpy as np
 
 import emsource
+from emsource import _arguments as arg
+from emsource.grid_arrays import grid_function_like
+
+import c_reference
 
 ARRAYS_MOVED = 12 + 11  # gamma 6, E 3, B 3 in; rho, S_i 3, S_ij 6, S out
 
@@ -74,21 +84,6 @@ class Triad:
         return 3 * self.a.itemsize * self.a.size / (time.perf_counter() - start)
 
 
-def paired_rates(function, points, bytes_moved, triad, repeat):
-    """Median points/s, bytes/s and share of a triad timed just before each repetition."""
-    function()
-    rates, shares = [], []
-    for _ in range(repeat):
-        reference = triad.bandwidth_once()
-        start = time.perf_counter()
-        function()
-        seconds = time.perf_counter() - start
-        rates.append(points / seconds)
-        shares.append(bytes_moved / seconds / reference)
-    rate = statistics.median(rates)
-    return rate, rate * bytes_moved / points, statistics.median(shares)
-
-
 def flat_space_fields(shape, dtype, seed=1):
     rng = np.random.default_rng(seed)
     gamma = np.zeros((6,) + shape, dtype)
@@ -117,61 +112,149 @@ def numpy_sources(gamma, E, B):
     return rho, S_i, S_ij, rho.copy()
 
 
-def measure_kernel(shape, dtype, triad, repeat, check=True, ghost=0):
-    full_shape = tuple(n + 2 * ghost for n in shape)
-    gamma, E, B = flat_space_fields(full_shape, dtype)
-    if ghost:
-        inner = (slice(None),) + (slice(ghost, -ghost),) * len(shape)
-        gamma, E, B = gamma[inner], E[inner], B[inner]
-    out = emsource.adm_sources(gamma, E, B)  # allocates once; the loop below reuses it
-    points = math.prod(shape)
-    return paired_rates(lambda: emsource.adm_sources(gamma, E, B, out=out, check=check),
-                        points, ARRAYS_MOVED * np.dtype(dtype).itemsize * points, triad, repeat)
+def padded_copy(a):
+    """The same values in a padded grid function (``emsource.grid_arrays``)."""
+    p = grid_function_like(a)
+    p[...] = a
+    return p
 
 
-def measure_copy(shape, dtype, triad, repeat):
-    gamma, E, B = flat_space_fields(shape, dtype)
-    points = math.prod(shape)
-    out = [a.reshape(a.shape[0], points) if a.ndim > len(shape) else a.reshape(points)
-           for a in emsource.adm_sources(gamma, E, B)]
-    flat = [a.reshape(a.shape[0], points) for a in (gamma, E, B)]
-    return paired_rates(lambda: _same_traffic_copy(*flat, *out), points,
-                        ARRAYS_MOVED * np.dtype(dtype).itemsize * points, triad, repeat)
+class SizeCases:
+    """The arrays of one grid size and the calls timed on them (each a function of no argument)."""
+
+    def __init__(self, n, dtype, c_kernel):
+        shape = (n, n, n)
+        self.points = n ** 3
+        self.bytes = ARRAYS_MOVED * np.dtype(dtype).itemsize * self.points
+        gamma, E, B = flat_space_fields(shape, dtype)
+        out = emsource.adm_sources(gamma, E, B)
+        padded_in = [padded_copy(a) for a in (gamma, E, B)]
+        padded_out = emsource.AdmSources(*(padded_copy(a) for a in out))
+        self.layouts = {"contiguous": ((gamma, E, B), out), "padded": (padded_in, padded_out)}
+        self.dtype = np.dtype(dtype)
+        self.c_kernel = c_kernel if self.dtype == np.float64 else None
+
+    def api(self, layout, check=True):
+        inputs, out = self.layouts[layout]
+        return lambda: emsource.adm_sources(*inputs, out=out, check=check)
+
+    def flat(self, layout):
+        inputs, out = self.layouts[layout]
+        views, flat = arg.kernel_views(list(inputs) + [a for a in out], inputs[1].shape[1:])
+        assert flat, layout
+        return views
+
+    def copy(self, layout):
+        views = self.flat(layout)
+        return lambda: _same_traffic_copy(*views)
+
+    def c(self, layout):
+        views = self.flat(layout)
+        tiny, floor = arg.smallest_normal(self.dtype), arg.pivot_floor(self.dtype)
+        return lambda: self.c_kernel(*views, 1 / (4 * math.pi), float(tiny), float(floor))
+
+
+def interleaved(cases, triad, repeat):
+    """{name: (median seconds, median share of the paired triad)} of ``cases``
+    {name: (function, bytes moved)}, run in turn, each right after a triad, ``repeat`` times."""
+    for function, _ in cases.values():
+        function()  # warm-up: compilation, page faults
+    seconds = {name: [] for name in cases}
+    shares = {name: [] for name in cases}
+    for _ in range(repeat):
+        for name, (function, bytes_moved) in cases.items():
+            reference = triad.bandwidth_once()
+            start = time.perf_counter()
+            function()
+            elapsed = time.perf_counter() - start
+            seconds[name].append(elapsed)
+            shares[name].append(bytes_moved / elapsed / reference)
+    return {name: (seconds[name], statistics.median(shares[name])) for name in cases}
+
+
+def paired_ratio(numerators, denominators):
+    """Median of the ratios of timings taken in the same repetition."""
+    return statistics.median(a / b for a, b in zip(numerators, denominators))
+
+
+def ghost_cases(n, dtype):
+    """The adm_sources call on the interior n^3 of an (n + 6)^3 grid (3 ghost points a side),
+    arrays contiguous and padded: strided views, the column loop."""
+    full = (n + 6,) * 3
+    gamma, E, B = flat_space_fields(full, dtype)
+    inner = (slice(None),) + (slice(3, -3),) * 3
+    cases = {}
+    for layout, arrays in (("contiguous", (gamma, E, B)),
+                           ("padded", [padded_copy(a) for a in (gamma, E, B)])):
+        views = [a[inner] for a in arrays]
+        out = emsource.adm_sources(*views)
+        cases[layout] = (lambda views=views, out=out: emsource.adm_sources(*views, out=out))
+    return cases
 
 
 def main(argv=None):
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    parser.add_argument("--repeat", type=int, default=11, help="repetitions per median (default 11)")
-    parser.add_argument("--quick", action="store_true", help="skip the 256^3 grids")
+    parser.add_argument("--repeat", type=int, default=9, help="repetitions per median (default 9)")
+    parser.add_argument("--quick", action="store_true", help="only 128^3 and 134^3")
+    parser.add_argument("--sizes", type=int, nargs="+", help="grid sizes n (n^3 points)")
     args = parser.parse_args(argv)
+    sizes = args.sizes or ((128, 134) if args.quick else (128, 134, 256, 262))
     print(f"emsource {emsource.__version__}, numba {numba.__version__}, numpy {np.__version__}, "
           f"{numba.get_num_threads()} threads, medians of {args.repeat}")
+    c_kernel, c_description = c_reference.build()
+    print(f"C reference: {c_description}")
 
     triad = Triad()
     triad_rates = [triad.bandwidth_once() for _ in range(args.repeat)]
     print(f"\n(a) triad bandwidth: {statistics.median(triad_rates) / 1e9:.1f} GB/s "
           f"(median; range {min(triad_rates) / 1e9:.1f}-{max(triad_rates) / 1e9:.1f})")
 
-    print("\n(b) adm_sources into preallocated out arrays")
-    print(f"{'grid':>8} {'dtype':>8} {'checks':>7} {'layout':>10} {'Mpoints/s':>10} {'GB/s':>6} {'% triad':>8}")
-    rates = {}
-    sizes = (128,) if args.quick else (128, 256)
+    print("\n(b) adm_sources into preallocated out arrays (checks on unless said), share of the "
+          "paired triad; copy = same traffic, no physics; C = hand-written C + OpenMP")
+    print(f"{'grid':>6} {'dtype':>8} {'what':>28} {'Mpoints/s':>10} {'% triad':>8}")
     for n in sizes:
+        results, shares = {}, {}
         for dtype in (np.float64, np.float32):
-            for check in (True, False):
-                rate, bandwidth, share = measure_kernel((n, n, n), dtype, triad, args.repeat, check)
-                rates[(n, np.dtype(dtype).name, check)] = rate
-                print(f"{n:>6}^3 {np.dtype(dtype).name:>8} {str(check):>7} {'contiguous':>10} "
-                      f"{rate / 1e6:>10.1f} {bandwidth / 1e9:>6.1f} {100 * share:>7.0f}%")
-    for dtype in (np.float64, np.float32):
-        rate, bandwidth, share = measure_kernel((128, 128, 128), dtype, triad, args.repeat, True, ghost=3)
-        print(f"{128:>6}^3 {np.dtype(dtype).name:>8} {'True':>7} {'ghost view':>10} "
-              f"{rate / 1e6:>10.1f} {bandwidth / 1e9:>6.1f} {100 * share:>7.0f}%")
-    print("  same traffic, no physics (12 arrays read, 11 written): the ceiling of this access pattern")
-    for n in sizes:
-        rate, bandwidth, share = measure_copy((n, n, n), np.float64, triad, args.repeat)
-        print(f"{n:>6}^3 {'float64':>8} {'-':>7} {'copy only':>10} "
-              f"{rate / 1e6:>10.1f} {bandwidth / 1e9:>6.1f} {100 * share:>7.0f}%")
+            size = SizeCases(n, dtype, c_kernel)
+            cases = {}
+            for layout in ("contiguous", "padded"):
+                cases[("api", layout)] = (size.api(layout), size.bytes)
+                if size.dtype == np.float64:
+                    cases[("copy", layout)] = (size.copy(layout), size.bytes)
+                    if size.c_kernel is not None:
+                        cases[("C", layout)] = (size.c(layout), size.bytes)
+                    cases[("api, checks off", layout)] = (size.api(layout, False), size.bytes)
+            measured = interleaved(cases, triad, args.repeat)
+            for (what, layout), (seconds, share) in measured.items():
+                results[(np.dtype(dtype).name, what, layout)] = seconds
+                shares[(np.dtype(dtype).name, what, layout)] = share
+                print(f"{n:>4}^3 {np.dtype(dtype).name:>8} {what + ', ' + layout:>28} "
+                      f"{size.points / statistics.median(seconds) / 1e6:>10.1f} {100 * share:>7.0f}%")
+            del size, cases, measured
+        for layout in ("contiguous", "padded"):
+            api = results[("float64", "api", layout)]
+            # float32 and float64 run in separate groups (both sets of arrays at once would not
+            # fit beside the rest at 262^3), so their ratio comes from the shares of the paired
+            # triads: points per second per triad bandwidth = share / bytes per point.
+            float_ratio = 2 * shares[("float32", "api", layout)] / shares[("float64", "api", layout)]
+            line = (f"  {layout}: kernel / copy kernel {1 / paired_ratio(api, results[('float64', 'copy', layout)]):.2f} "
+                    f"(speed); float32 / float64 points per second {float_ratio:.2f} "
+                    "(from the triad shares)")
+            if ("float64", "C", layout) in results:
+                line += f"; time emsource / C {paired_ratio(api, results[('float64', 'C', layout)]):.2f}"
+            print(line)
+        print(f"  padded / contiguous time: kernel "
+              f"{paired_ratio(results[('float64', 'api', 'padded')], results[('float64', 'api', 'contiguous')]):.2f}, "
+              f"copy {paired_ratio(results[('float64', 'copy', 'padded')], results[('float64', 'copy', 'contiguous')]):.2f}")
+    for n in sorted({n - 6 for n in sizes if n - 6 in sizes}):
+        for dtype in (np.float64, np.float32):
+            ghost = ghost_cases(n, dtype)
+            nbytes = ARRAYS_MOVED * np.dtype(dtype).itemsize * n ** 3
+            measured = interleaved({k: (f, nbytes) for k, f in ghost.items()}, triad, args.repeat)
+            for layout, (seconds, share) in measured.items():
+                print(f"{n:>4}^3 {np.dtype(dtype).name:>8} {'ghost view of ' + layout:>28} "
+                      f"{n ** 3 / statistics.median(seconds) / 1e6:>10.1f} {100 * share:>7.0f}%")
+            del ghost, measured
     del triad
 
     gamma, E, B = flat_space_fields((128, 128, 128), np.float64)
@@ -188,10 +271,12 @@ def main(argv=None):
     ours = emsource.adm_sources(gamma, E, B)
     worst = max(float(np.max(np.abs(a - b)) / np.max(np.abs(b))) for a, b in zip(ours, reference))
     print(f"    largest relative difference kernel vs NumPy: {worst:.1e}")
-
-    for n in sizes:
-        print(f"    float32 / float64 points per second at {n}^3: "
-              f"{rates[(n, 'float32', True)] / rates[(n, 'float64', True)]:.2f} (checks on)")
+    if c_kernel is not None:
+        views, _ = arg.kernel_views([gamma, E, B] + list(out), (128, 128, 128))
+        c_kernel(*views, 1 / (4 * math.pi), float(arg.smallest_normal(np.dtype(np.float64))),
+                 float(arg.pivot_floor(np.float64)))
+        worst = max(float(np.max(np.abs(a - b)) / np.max(np.abs(b))) for a, b in zip(out, ours))
+        print(f"    largest relative difference kernel vs C: {worst:.1e}")
 
     small = flat_space_fields((8, 8, 8), np.float64)
     out = emsource.adm_sources(*small)

@@ -26,7 +26,9 @@ def _owner(a: np.ndarray):
 LAYOUTS = ("component_first", "component_last")
 #: Values of the ``field_index`` option: the names of the input forms.
 FIELD_INDICES = tuple(FORMS)
-FLOAT_DTYPES = (np.dtype(np.float32), np.dtype(np.float64))
+#: float64 first: ``in`` tests identity before equality, and NumPy's built-in dtypes are
+#: singletons, so the common case costs no dtype comparison (about 0.15 us each).
+FLOAT_DTYPES = (np.dtype(np.float64), np.dtype(np.float32))
 
 
 def choice(function: str, argument: str, value, allowed) -> None:
@@ -52,7 +54,7 @@ def common_dtype(function: str, names: tuple, arrays: tuple) -> np.dtype:
     """The one dtype all ``arrays`` share; mixed dtypes are an error (nothing is cast silently)."""
     dtype = arrays[0].dtype
     for a in arrays:
-        if a.dtype != dtype:
+        if a.dtype is not dtype and a.dtype != dtype:  # identity first: dtypes are singletons
             found = ", ".join(f"{name}: {a.dtype}" for name, a in zip(names, arrays))
             raise TypeError(f"{function}: all inputs must share one float dtype, found {found}")
     return dtype
@@ -144,24 +146,38 @@ def outputs(function: str, names: tuple, values: tuple, shapes: tuple, component
     over foreign buffers) goes to ``np.may_share_memory``.
     """
     input_owners = [_owner(a) for a in inputs]
+    inputs_owned = True  # every input over memory of a plain owning ndarray
+    for o in input_owners:
+        if o is None:
+            inputs_owned = False
     output_owners = []
     views = []
+    # Written as plain loops with the messages built only on error: this runs on every call of
+    # an evolution loop, and generator expressions and f-strings here cost microseconds.
     for name, value, shape, ncomp in zip(names, values, shapes, component_axes):
-        label = f"out {name}" if name else "out"  # a function with one output names none
-        if not isinstance(value, np.ndarray):
+        if type(value) is not np.ndarray and not isinstance(value, np.ndarray):
+            label = f"out {name}" if name else "out"  # a function with one output names none
             raise TypeError(f"{function}: {label} must be a NumPy array, found {type(value).__name__}")
-        if value.shape != shape or value.dtype != dtype:
+        if value.shape != shape or (value.dtype is not dtype and value.dtype != dtype):
+            label = f"out {name}" if name else "out"
             raise ValueError(
                 f"{function}: {label} must have shape {shape} and dtype {dtype}, "
                 f"found shape {value.shape} and dtype {value.dtype}"
             )
         if not value.flags.writeable:
+            label = f"out {name}" if name else "out"
             raise ValueError(f"{function}: {label} is read-only")
         owner = _owner(value)
         output_owners.append(owner)
-        if owner is None or any(o is None or o is owner for o in input_owners):
+        shared = owner is None or not inputs_owned
+        if not shared:
+            for o in input_owners:
+                if o is owner:
+                    shared = True
+        if shared:
             for input_name, a in zip(input_names, inputs):
                 if np.may_share_memory(value, a):
+                    label = f"out {name}" if name else "out"
                     raise ValueError(
                         f"{function}: {label} overlaps input {input_name}; "
                         "inputs are never overwritten"
@@ -178,8 +194,14 @@ def _outputs_apart(function: str, names: tuple, values: tuple, owners: list) -> 
     one over the other. Arrays that own their memory, each its own, are apart by construction
     (the common case, decided without a pairwise test); anything else goes to
     ``np.may_share_memory`` (bounds only: no false negatives)."""
-    if all(o is not None for o in owners) and len({id(o) for o in owners}) == len(owners):
-        return
+    distinct = set()
+    for o in owners:
+        if o is None:
+            break
+        distinct.add(id(o))
+    else:
+        if len(distinct) == len(owners):
+            return
     for m in range(len(values)):
         for n in range(m):
             if owners[m] is not None and owners[n] is not None and owners[m] is not owners[n]:
@@ -199,6 +221,23 @@ def smallest_normal(dtype):
     ``np.finfo`` costs a few tenths of a microsecond on every call of an evolution loop.
     """
     return _SMALLEST_NORMAL[dtype]
+
+
+_KERNEL_CONSTANTS = {}
+
+
+def kernel_constants(form: int, dtype, prefactor: float) -> tuple:
+    """(form, coef, half, tiny, pivot floor): the scalar arguments of the point-physics kernels,
+    in ``dtype`` (float32 data stay float32). Built once per (form, dtype, prefactor): making
+    the four NumPy scalars costs about a microsecond, a tenth of a small grid's call."""
+    key = (form, dtype, prefactor)
+    constants = _KERNEL_CONSTANTS.get(key)
+    if constants is None:
+        dtype = np.dtype(dtype)
+        constants = (form, dtype.type(prefactor), dtype.type(0.5), smallest_normal(dtype),
+                     pivot_floor(dtype))
+        _KERNEL_CONSTANTS[key] = constants
+    return constants
 
 
 #: Relative floor of the metric pivots, per dtype (see :func:`pivot_floor`).
@@ -234,33 +273,92 @@ def has_points(grid) -> bool:
     return 0 not in grid
 
 
+def _row_block(a: np.ndarray, ncomp_axes: int, ncomp: int, npoints: int):
+    """``a`` (component rows C-contiguous, spaced evenly) as a C-contiguous (ncomp, stride)
+    view that includes the gaps between the rows, or None where that memory is not known to
+    belong to the same allocation (then the caller takes the strided path).
+
+    The kernels read and write only the first ``npoints`` of each row; the view exists so that
+    Numba types it as C-contiguous: its strided ("A") arrays cost 10-20 % in the flat loop
+    (measured, ``benchmarks/bench_sources.py`` history in DEVELOPERS.md "Grid functions").
+    """
+    itemsize = a.itemsize
+    step = a.strides[0] if ncomp > 1 else npoints * itemsize
+    if step < npoints * itemsize or step % itemsize:
+        return None
+    for axis in range(1, ncomp_axes):  # further component axes, as (3, 3): evenly spaced too
+        if a.strides[axis] * a.shape[axis] != a.strides[axis - 1]:
+            return None
+    owner = a
+    while isinstance(owner.base, np.ndarray):
+        owner = owner.base
+    if owner.base is not None:  # memory of a foreign object (mmap, bytes): extent unknown
+        return None
+    offset = a.__array_interface__["data"][0] - owner.__array_interface__["data"][0]
+    if offset < 0 or offset + ncomp * step > owner.nbytes:
+        return None
+    return np.ndarray((ncomp, step // itemsize), a.dtype, buffer=owner, offset=offset)
+
+
 def kernel_views(arrays, grid):
     """Views of component-first ``arrays`` for the kernels, and whether the flat path applies.
 
-    All C-contiguous: each array becomes (ncomp, npoints) (or (npoints,) for a scalar), one
-    flat loop. Otherwise each becomes (ncomp, nx, ny, nz) with trailing length-1 axes added
-    for 1D and 2D grids, for the strided loop. Either way no data are copied.
+    The flat path takes each array as (ncomp, stride) (or (npoints,) for a scalar) and runs
+    one loop over the first npoints of every row. It applies when every component row is
+    C-contiguous: C-contiguous arrays (stride = npoints) and the padded grid functions of
+    :mod:`emsource.grid_arrays` (rows a little more than npoints apart; the loop never
+    touches the gaps). Otherwise each array becomes (ncomp, nx, ny, nz) with trailing
+    length-1 axes added for 1D and 2D grids, for the strided loop. Either way no data are
+    copied.
     """
     contiguous = True
     for a in arrays:
-        contiguous = contiguous and a.flags.c_contiguous
+        if not a.flags.c_contiguous:
+            contiguous = False
+            break
+    ndim = len(grid)
+    if contiguous and ndim == 1:
+        return arrays, True
+    npoints = 1
+    for n in grid:
+        npoints *= n
     if contiguous:
-        if len(grid) == 1:
-            return arrays, True
-        npoints = 1
-        for n in grid:
-            npoints *= n
         scalar, vector = (npoints,), (-1, npoints)
-        return [a.reshape(vector if a.ndim > len(grid) else scalar) for a in arrays], True
-    pad = (Ellipsis,) + (None,) * (3 - len(grid))
-    return [a[pad] for a in arrays], False
+        return [a.reshape(vector) if a.ndim > ndim else a.reshape(scalar) for a in arrays], True
+    views = []
+    for a in arrays:
+        if a.flags.c_contiguous:
+            views.append(a.reshape((-1, npoints) if a.ndim > len(grid) else (npoints,)))
+            continue
+        block = None
+        if a.ndim > len(grid) and a.strides[len(a.shape) - len(grid):] == _c_strides(a, grid):
+            block = _row_block(a, a.ndim - len(grid), a.size // npoints, npoints)
+        if block is None:
+            pad = (Ellipsis,) + (None,) * (3 - len(grid))
+            return [a[pad] for a in arrays], False
+        views.append(block)
+    return views, True
 
 
-def as_grid_views(arrays, flat: bool):
-    """The (ncomp, nx, ny, nz) form of kernel views (a flat line becomes (ncomp, 1, 1, n))."""
+def _c_strides(a: np.ndarray, grid) -> tuple:
+    """The strides of a C-contiguous array of shape ``grid`` and ``a``'s dtype."""
+    strides = []
+    step = a.itemsize
+    for n in reversed(grid):
+        strides.append(step)
+        step *= n
+    return tuple(reversed(strides))
+
+
+def as_grid_views(arrays, flat: bool, grid):
+    """The (ncomp, nx, ny, nz) form of kernel views on ``grid`` (a flat line becomes
+    (ncomp, 1, 1, npoints); the gaps of padded rows are cut off)."""
     if not flat:
         return arrays
-    return [a.reshape(a.shape[:-1] + (1, 1, a.shape[-1])) for a in arrays]
+    npoints = 1
+    for n in grid:
+        npoints *= n
+    return [a[..., :npoints].reshape(a.shape[:-1] + (1, 1, npoints)) for a in arrays]
 
 
 #: Orders of the centred finite differences the diagnostics offer (kernels/stencils.py).

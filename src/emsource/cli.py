@@ -17,6 +17,7 @@ import signal
 import sys
 
 from . import __version__, commands, interruption
+from .commands._compile_notice import compile_notice
 
 __all__ = ["main", "build_parser"]
 
@@ -67,7 +68,8 @@ def main(argv=None) -> int:
             parser = build_parser()
             args = parser.parse_args(argv)
             try:
-                code = int(args.run(args))
+                with compile_notice():  # one line on stderr when kernels compile (first use)
+                    code = int(args.run(args))
             except Exception:
                 # A stop request raised inside a library's callback may come out as the
                 # library's own error (h5py turns it into a TypeError inside a type-conversion

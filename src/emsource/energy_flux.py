@@ -103,8 +103,7 @@ def energy_fluxes(alpha, beta, gamma, E, B, *, units="gaussian", field_index="up
         return fluxes
     pad = (Ellipsis,) + (None,) * (3 - len(grid))
     views = [lapse[pad], shift[pad], metric[pad], e[pad], b[pad], result[pad]]
-    constants = (form, dtype.type(prefactor), dtype.type(0.5), arg.smallest_normal(dtype),
-                 arg.pivot_floor(dtype))
+    constants = arg.kernel_constants(form, dtype, prefactor)
     with kernel_call():
         counts = kernels.energy_fluxes_grid(views[0], views[1], views[2], gidx, views[3],
                                             views[4], views[5], *constants, bool(check))

@@ -260,12 +260,11 @@ def adm_sources(gamma, E, B, *, units="gaussian", field_index="upper",
         return result
     (g, ev, bv, rho, s_i, s_ij, s), flat = arg.kernel_views([metric, e, b] + views, grid)
     driver = kernels.adm_sources_flat if flat else kernels.adm_sources_grid
-    constants = (form, dtype.type(prefactor), dtype.type(0.5), arg.smallest_normal(dtype),
-                 arg.pivot_floor(dtype))
+    constants = arg.kernel_constants(form, dtype, prefactor)
     with kernel_call():
         counts = driver(g, gidx, ev, bv, rho, s_i, s_ij, s, *constants, bool(check))
         if counts[0] or counts[1]:
-            grid_views = arg.as_grid_views([g, ev, bv, rho, s_i, s_ij, s], flat)
+            grid_views = arg.as_grid_views([g, ev, bv, rho, s_i, s_ij, s], flat, grid)
             raise_for_counts(function, counts, grid, dtype, kernels.first_failing_adm,
                              (grid_views[0], gidx, *grid_views[1:], *constants),
                              ("gamma", "E", "B"), grid_views[:3], grid_views[3:], gidx)
@@ -334,12 +333,11 @@ def stress_energy_4d(alpha, beta, gamma, E, B, *, units="gaussian", index="lower
         return result
     (a, be, g, ev, bv, t), flat = arg.kernel_views([lapse, shift, metric, e, b, t_view], grid)
     driver = kernels.stress_energy_flat if flat else kernels.stress_energy_grid
-    constants = (form, dtype.type(prefactor), dtype.type(0.5), arg.smallest_normal(dtype),
-                 arg.pivot_floor(dtype), index == "upper")
+    constants = arg.kernel_constants(form, dtype, prefactor) + (index == "upper",)
     with kernel_call():
         counts = driver(a, be, g, gidx, ev, bv, t, *constants, bool(check))
         if counts[0] or counts[1]:
-            views = arg.as_grid_views([a, be, g, ev, bv, t], flat)
+            views = arg.as_grid_views([a, be, g, ev, bv, t], flat, grid)
             raise_for_counts(function, counts, grid, dtype, kernels.first_failing_stress_energy,
                              (views[0], views[1], views[2], gidx, views[3], views[4], views[5],
                               *constants), names, views[:5], views[5:], gidx)

@@ -1,0 +1,86 @@
+"""Compile the kernels for this machine ahead of their first use (Numba's on-disk cache).
+
+Each kernel is compiled once per argument signature (dtype, memory layout) and cached; a later
+run, of any command or of the Python API, loads it. This command calls every public function
+on tiny grids in the common signatures: float64 and float32, contiguous (and padded grid
+functions, which share the contiguous signature) and strided (ghost zones sliced off,
+component-last data). With ``--diagnostics`` also the conservation and constraint kernels
+(float64, the difference orders share one signature), which take minutes.
+"""
+
+from __future__ import annotations
+
+import time
+
+import numpy as np
+
+from . import EXIT_OK
+
+__all__ = ["register", "run", "common_signatures"]
+
+
+def register(subparsers):
+    parser = subparsers.add_parser(
+        "compile",
+        help="compile the kernels for this machine ahead of first use (cached on disk)",
+        description=__doc__,
+    )
+    parser.add_argument("--diagnostics", action="store_true",
+                        help="also the conservation and constraint kernels (minutes)")
+    parser.set_defaults(run=run)
+
+
+def _flat_space(grid, dtype):
+    """alpha = 1, beta = 0, gamma = delta, E and B of order one: valid data on ``grid``."""
+    rng = np.random.default_rng(0)
+    gamma = np.zeros((6,) + grid, dtype)
+    gamma[[0, 3, 5]] = 1
+    return (np.ones(grid, dtype), np.zeros((3,) + grid, dtype), gamma,
+            rng.standard_normal((3,) + grid).astype(dtype),
+            rng.standard_normal((3,) + grid).astype(dtype))
+
+
+def common_signatures():
+    """(name, call) pairs that together compile the sources, T_ab and flux kernels in their
+    common signatures."""
+    import emsource
+    from emsource.energy_flux import energy_fluxes
+
+    calls = []
+    for dtype in (np.float64, np.float32):
+        alpha, beta, gamma, E, B = _flat_space((6, 6, 6), dtype)
+        inner = (slice(None),) + (slice(1, -1),) * 3
+        strided = [a[inner[1:]] if a.ndim == 3 else a[inner] for a in (alpha, beta, gamma, E, B)]
+        name = np.dtype(dtype).name
+        for layout, (al, be, ga, e, b) in (("contiguous", (alpha, beta, gamma, E, B)),
+                                           ("strided", strided)):
+            calls.append((f"sources, {name}, {layout}",
+                          lambda ga=ga, e=e, b=b: emsource.adm_sources(ga, e, b)))
+            calls.append((f"T_ab, {name}, {layout}",
+                          lambda al=al, be=be, ga=ga, e=e, b=b:
+                          emsource.stress_energy_4d(al, be, ga, e, b)))
+        calls.append((f"energy fluxes, {name}",
+                      lambda al=alpha, be=beta, ga=gamma, e=E, b=B: energy_fluxes(al, be, ga, e, b)))
+    return calls
+
+
+def _diagnostic_signatures():
+    from emsource.constraints import adm_constraints
+    from emsource.convergence import run_case
+
+    grid = (12, 12, 12)
+    _, _, gamma, E, B = _flat_space(grid, np.float64)
+    K = np.zeros((6,) + grid)
+    return [("constraints, float64", lambda: adm_constraints(gamma, K, E, B, spacing=0.1)),
+            ("conservation, float64", lambda: run_case("plane_wave", resolutions=(12, 16)))]
+
+
+def run(args) -> int:
+    calls = common_signatures() + (_diagnostic_signatures() if args.diagnostics else [])
+    start = time.perf_counter()
+    for name, call in calls:
+        began = time.perf_counter()
+        call()
+        print(f"{name:32s} {time.perf_counter() - began:7.1f} s", flush=True)
+    print(f"{'total':32s} {time.perf_counter() - start:7.1f} s (compiled or loaded from the cache)")
+    return EXIT_OK
