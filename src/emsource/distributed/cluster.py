@@ -65,7 +65,7 @@ def dask_session(workers=None, scheduler=None, *, announce=True, silence_logs=lo
 
     if scheduler is not None:
         try:
-            client = Client(scheduler, timeout="10s")
+            client = Client(scheduler, timeout="5s")
         except (OSError, TimeoutError) as error:
             raise ValueError(f"cannot connect to the Dask scheduler at {scheduler!r}: "
                              f"{error}") from None
