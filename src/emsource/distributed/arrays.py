@@ -1,12 +1,14 @@
 """Snapshot quantities as Dask arrays over the HDF5 datasets, in blocks of whole stored chunks.
 
-A quantity of a :class:`~.series.SeriesLevel` becomes a ``dask.array`` in storage order
-(component axis first, then the grid axes as stored): :class:`StoredQuantity` is the array-like
-that ``dask.array.from_array`` slices, and each slice is one call of
-:meth:`emsource.snapshot.TimeLevel.read` in the task that needs it (the task opens the file
-read-only, reads the rows and closes it), so native files and layout mappings read through the
-same code, with the same checks (a ``valid_mask`` holding anything but 0 and 1 is an error) as
-the single-process commands.
+The quantities a computation reads from a :class:`~.series.SeriesLevel` become one
+``dask.array`` in storage order, stacked along a first channel axis (each quantity's components
+in table order, a scalar as one channel; :func:`channel_layout`): :class:`StoredQuantities` is
+the array-like that ``dask.array.from_array`` slices, and each slice is one task that opens the
+file read-only, reads the rows of every quantity through :meth:`emsource.snapshot.TimeLevel.read`
+and closes it. Native files and layout mappings thus read through the same code, with the same
+checks (a ``valid_mask`` holding anything but 0 and 1 is an error), as the single-process
+commands; one open per block, not per quantity (opening scans the file's levels: measured as
+most of the time of small blocks).
 
 Blocks. A block is a run of whole planes of the slowest storage axis (every other axis whole),
 like a slab of :mod:`emsource.snapshot.slabs`. :func:`block_rows` makes it a whole number of
@@ -26,45 +28,66 @@ import numpy as np
 from ..quantities import COMPONENTS
 from ..snapshot import open_snapshot
 
-__all__ = ["StoredQuantity", "level_array", "block_rows", "block_starts", "DEFAULT_BLOCK_BYTES"]
+__all__ = ["StoredQuantities", "level_stack", "channel_layout", "block_rows", "block_starts", "DEFAULT_BLOCK_BYTES"]
 
 #: Bytes of the values one task holds (inputs, outputs and temporaries of its block).
 DEFAULT_BLOCK_BYTES = 64 * 2**20
 
 
-class StoredQuantity:
-    """A read-only array-like over one quantity of one level, read on demand (picklable).
+def channel_layout(quantities) -> dict:
+    """Quantity -> slice of its components in a stack of ``quantities`` (a scalar takes one)."""
+    layout, first = {}, 0
+    for q in quantities:
+        count = max(COMPONENTS[q], 1)
+        layout[q] = slice(first, first + count)
+        first += count
+    return layout
 
-    ``self[key]`` with ``key`` a tuple of slices (what ``dask.array.from_array`` passes) reads
-    the rows of the slowest storage axis that ``key`` selects, in ``dtype``, and returns the
-    selection. The file is opened for each read and closed after it.
+
+class StoredQuantities:
+    """A read-only array-like over several quantities of one level, stacked along a first
+    channel axis (:func:`channel_layout`), read on demand (picklable).
+
+    ``self[key]`` with ``key`` a tuple of slices (what ``dask.array.from_array`` passes) opens
+    the file once, reads the rows of the slowest storage axis that ``key`` selects for every
+    quantity (in ``dtype``; a valid_mask is checked in its stored type, then converted: 0 and 1
+    are exact in any float type) and returns the selection.
     """
 
-    def __init__(self, level, quantity, dtype=None):
+    def __init__(self, level, quantities, dtype):
         self.level = level
-        self.quantity = quantity
-        info = level.stored[quantity]
-        self.shape = tuple(info.shape)
-        self.dtype = np.dtype(info.dtype if dtype is None else dtype)
-        self.ndim = len(self.shape)
-        self.lead = 1 if COMPONENTS[quantity] else 0
+        self.quantities = tuple(quantities)
+        self.layout = channel_layout(self.quantities)
+        self.dtype = np.dtype(dtype)
+        channels = sum(s.stop - s.start for s in self.layout.values())
+        self.shape = (channels,) + tuple(level.storage_shape)
+        self.ndim = 4
 
     def __getitem__(self, key):
         key = key if isinstance(key, tuple) else (key,)
         key = key + (slice(None),) * (self.ndim - len(key))
-        start, stop, step = key[self.lead].indices(self.shape[self.lead])
-        rest = key[:self.lead] + (slice(None),) + key[self.lead + 1:]
-        if stop <= start:
-            return np.empty((0,) * self.ndim, self.dtype)[rest]
-        shape = list(self.shape)
-        shape[self.lead] = stop - start
-        out = np.empty(shape, self.dtype)
-        with open_snapshot(self.level.path, self.level.mapping) as snap:
-            snap.levels[self.level.index].read(self.quantity, start, stop, dtype=self.dtype,
-                                               out=out)
-        if step != 1:
-            out = out[(slice(None),) * self.lead + (slice(None, None, step),)]
-        return out[rest]
+        start, stop, step = key[1].indices(self.shape[1])
+        out = np.empty((self.shape[0], max(stop - start, 0)) + self.shape[2:], self.dtype)
+        if stop > start:
+            with open_snapshot(self.level.path, self.level.mapping) as snap:
+                level = snap.levels[self.level.index]
+                for q, channels in self.layout.items():
+                    target = out[channels] if COMPONENTS[q] else out[channels.start]
+                    if q == "valid_mask":
+                        target[...] = _stored(level, q, start, stop)
+                    else:
+                        level.read(q, start, stop, dtype=self.dtype, out=target)
+        return out[(key[0], slice(None, None, step)) + key[2:]]
+
+
+def _stored(level, quantity, start, stop):
+    """``quantity`` over rows start:stop in storage order, in its stored type."""
+    source = level.source(quantity)
+    shape = ((COMPONENTS[quantity],) if COMPONENTS[quantity] else ()) + (stop - start,) + \
+        tuple(level.storage_shape[1:])
+    out = np.empty(shape, source.dtype)
+    level.read(quantity, start, stop, out=out)
+    return out
 
 
 def block_rows(level, quantities, values_per_point, itemsize=8, block_bytes=DEFAULT_BLOCK_BYTES,
@@ -101,21 +124,27 @@ def block_starts(heights) -> list:
     return [int(s) for s in np.cumsum((0,) + tuple(heights))[:-1]]
 
 
-def level_array(level, quantity, heights, dtype=None):
-    """``quantity`` of ``level`` as a Dask array in storage order, blocks of ``heights`` rows.
+def level_stack(level, quantities, heights, dtype=np.float64):
+    """``quantities`` of ``level`` stacked into one Dask array in storage order.
 
-    The array's name is derived from the file, its modification time, the level, the quantity,
-    the type and the blocks, so that two arrays over the same data share their tasks.
+    Returns
+    -------
+    (dask.array.Array, dict)
+        The array, (channels, *storage grid) in ``dtype`` with blocks of ``heights`` rows and
+        every channel in each block (one task reads one block of every quantity, opening the
+        file once), and :func:`channel_layout` of ``quantities``.
+
+    The array's name is derived from the file, its modification time, the level, the
+    quantities, the type and the blocks, so that two arrays over the same data share tasks.
     """
-    source = StoredQuantity(level, quantity, dtype)
-    lead = source.lead
-    chunks = tuple((n,) for n in source.shape[:lead]) + (tuple(heights),) + tuple(
-        (n,) for n in source.shape[lead + 1:])
+    source = StoredQuantities(level, quantities, dtype)
+    chunks = ((source.shape[0],), tuple(heights)) + tuple((n,) for n in source.shape[2:])
     try:
         stamp = os.stat(level.path).st_mtime_ns
     except OSError:
         stamp = 0
     name = "emsource-read-" + da.core.tokenize(level.path, stamp, level.mapping, level.index,
-                                               quantity, source.dtype.str, chunks)
-    return da.from_array(source, chunks=chunks, name=name, asarray=False, lock=False,
-                         meta=np.empty((0,) * source.ndim, source.dtype))
+                                               source.quantities, source.dtype.str, chunks)
+    array = da.from_array(source, chunks=chunks, name=name, asarray=False, lock=False,
+                          meta=np.empty((0,) * 4, source.dtype))
+    return array, source.layout

@@ -19,7 +19,6 @@ from __future__ import annotations
 
 from types import SimpleNamespace
 
-import dask.array as da
 import numpy as np
 from dask import delayed
 from dask.array.overlap import overlap
@@ -28,7 +27,7 @@ from ..conservation import balance_partial
 from ..kernels.stencils import stencil_radius
 from ..reductions import BalancePartial, Sum
 from ..snapshot import SnapshotError
-from .arrays import DEFAULT_BLOCK_BYTES, block_rows, block_starts, level_array
+from .arrays import DEFAULT_BLOCK_BYTES, block_rows, block_starts, level_stack
 from .cluster import compute_reductions
 from .series import open_series
 
@@ -113,10 +112,7 @@ def global_balance_series(inputs, *, mapping=None, levels=None, order=4, include
                                  minimum=r + 2)
         else:
             heights = (level.storage_shape[0],)
-        stacked = da.concatenate([level_array(level, q, heights, np.float64)
-                                  if q not in ("lapse", "charge_density")
-                                  else level_array(level, q, heights, np.float64)[None]
-                                  for q in names], axis=0).rechunk({0: -1})
+        stacked, _ = level_stack(level, names, heights)  # the channels of _LAYOUT
         if len(heights) > 1:
             stacked = overlap(stacked, depth={1: r + 1}, boundary="none")
         blocks = stacked.to_delayed().ravel()

@@ -24,7 +24,7 @@ from ..constraints import adm_constraints, norm_partial
 from ..kernels.stencils import stencil_radius
 from ..reductions import NormPartial, ResidualNorms
 from ..snapshot import SnapshotError
-from .arrays import DEFAULT_BLOCK_BYTES, block_rows, block_starts, level_array
+from .arrays import DEFAULT_BLOCK_BYTES, block_rows, block_starts, level_stack
 from .cluster import compute_reductions
 from .series import open_series
 
@@ -122,10 +122,7 @@ def constraint_residuals(level, *, order=4, units="file", block_bytes=DEFAULT_BL
     has_mask = level.has("valid_mask")
     heights = block_rows(level, names + (("valid_mask",) if has_mask else ()), _VALUES_PER_POINT,
                          8, block_bytes, minimum=2 * r + 1)
-    parts = [level_array(level, q, heights, np.float64) for q in names]
-    if has_mask:
-        parts.append(level_array(level, "valid_mask", heights, np.float64)[None])
-    stacked = da.concatenate(parts, axis=0).rechunk({0: -1})
+    stacked, _ = level_stack(level, names + (("valid_mask",) if has_mask else ()), heights)
     n1, n2 = level.storage_shape[1:]
     return da.map_overlap(
         _residual_block, stacked, depth={0: 0, 1: r, 2: 0, 3: 0}, boundary="none",

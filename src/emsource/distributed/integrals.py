@@ -18,7 +18,8 @@ from dask import delayed
 from dask.array.overlap import overlap
 
 from ..integrals import INTEGRATION_VALUES_PER_POINT, LevelIntegrals, level_spheres, slab_partial
-from .arrays import DEFAULT_BLOCK_BYTES, block_rows, block_starts, level_array
+from ..quantities import COMPONENTS
+from .arrays import DEFAULT_BLOCK_BYTES, block_rows, block_starts, level_stack
 from .cluster import compute_reductions
 from .series import open_series
 
@@ -28,18 +29,13 @@ _NEEDED = ("spatial_metric", "electric_field", "magnetic_field")
 _OPTIONAL = ("lapse", "shift")
 
 
-def _integrate_block(level, spheres, start, stop, lower, names, *blocks):
-    """The LevelPartial of rows start:stop; ``blocks`` begin ``lower`` rows before ``start``."""
-    arrays = {}
-    valid = None
-    for name, block in zip(names, blocks):
-        lead = block.ndim - 3
-        block = block[(slice(None),) * lead + (slice(lower, None),)]
-        if name == "valid_mask":
-            valid = level.to_xyz(block)
-        else:
-            arrays[name] = level.to_xyz(block)
-    return slab_partial(level, arrays, valid, spheres, start, stop)
+def _integrate_block(stacked, level, layout, spheres, start, stop, lower):
+    """The LevelPartial of rows start:stop; ``stacked`` begins ``lower`` rows before ``start``."""
+    stacked = stacked[:, lower:]
+    arrays = {q: level.to_xyz(stacked[c] if COMPONENTS[q] else stacked[c.start])
+              for q, c in layout.items()}
+    valid = arrays.pop("valid_mask", None)
+    return slab_partial(level, arrays, None if valid is None else valid != 0, spheres, start, stop)
 
 
 def _leaves(level, radii, theta_points, interpolation_points, block_bytes):
@@ -50,17 +46,15 @@ def _leaves(level, radii, theta_points, interpolation_points, block_bytes):
     names = [q for q in _NEEDED + _OPTIONAL + ("valid_mask",) if level.has(q)]
     heights = block_rows(level, names, INTEGRATION_VALUES_PER_POINT, 8, block_bytes,
                          minimum=max(halo, 1))
-    starts = block_starts(heights)
-    arrays = []
-    for q in names:
-        a = level_array(level, q, heights, np.uint8 if q == "valid_mask" else np.float64)
-        if halo and len(heights) > 1:
-            a = overlap(a, depth={a.ndim - 3: halo}, boundary="none")
-        arrays.append(a.to_delayed().ravel())
+    stacked, layout = level_stack(level, names, heights, np.float64)
+    several = len(heights) > 1
+    if halo and several:
+        stacked = overlap(stacked, depth={1: halo}, boundary="none")
     task = delayed(_integrate_block, pure=True)
-    leaves = [task(level, spheres, start, start + height, min(halo, start) if len(heights) > 1 else 0,
-                   names, *(blocks[i] for blocks in arrays))
-              for i, (start, height) in enumerate(zip(starts, heights))]
+    leaves = [task(block, level, layout, spheres, start, start + height,
+                   min(halo, start) if several else 0)
+              for block, start, height in zip(stacked.to_delayed().ravel(), block_starts(heights),
+                                              heights)]
     return leaves, [s.radius for s in spheres]
 
 

@@ -2,7 +2,7 @@
 
 The sources are pointwise, so each block (whole stored chunks along the slowest storage axis,
 :mod:`.arrays`) goes through :func:`emsource.adm_sources` on its own: a ``map_blocks`` over
-the spatial metric, E, B and the valid_mask, exactly what the single-process
+the spatial metric, E, B and the valid_mask (one stacked array, :mod:`.arrays`), exactly what the single-process
 :func:`emsource.snapshot.sources_pipeline.compute_sources` does per slab (the same
 neutralising of excised points, the same kernel, NaN at excised points). The blocks come back
 to this process in order, a few at a time (:func:`.cluster.in_order`), and are written to one
@@ -32,7 +32,7 @@ from ..snapshot.sources_pipeline import (EXCISED_FILL, SOURCE_INPUTS, SOURCE_OUT
 from ..snapshot.writing import (provenance_attributes, write_level_attributes,
                                 write_root_attributes)
 from ..sources import GridPointError
-from .arrays import DEFAULT_BLOCK_BYTES, block_rows, block_starts, level_array
+from .arrays import DEFAULT_BLOCK_BYTES, block_rows, block_starts, level_stack
 from .cluster import current_client, in_order
 from .series import open_series
 
@@ -44,15 +44,16 @@ _CHANNELS = {"energy_density": slice(0, 1), "momentum_density": slice(1, 4),
 _MASK_CHANNEL = 11
 
 
-def _sources_block(gamma, E, B, *mask, level, check, starts, block_info=None):
+def _sources_block(stacked, *, level, layout, check, starts, block_info=None):
     """rho, S_i, S_ij, S and the mask of one block, (12, rows, n1, n2) in storage order."""
     start = starts[block_info[None]["chunk-location"][1]]
-    rows = gamma.shape[1]
+    rows = stacked.shape[1]
     xyz = level.to_xyz
-    valid = xyz(mask[0]).astype(bool) if mask else None
-    arrays = neutralise_excised({"spatial_metric": xyz(gamma), "electric_field": xyz(E),
-                                 "magnetic_field": xyz(B)}, valid, in_place=False)
-    out = np.empty((12, rows) + gamma.shape[2:], gamma.dtype)
+    mask = stacked[layout["valid_mask"].start] if "valid_mask" in layout else None
+    valid = xyz(mask) != 0 if mask is not None else None
+    arrays = neutralise_excised({q: xyz(stacked[layout[q]]) for q in SOURCE_INPUTS}, valid,
+                                in_place=False)
+    out = np.empty((12, rows) + stacked.shape[2:], stacked.dtype)
     views = (xyz(out[0]), xyz(out[1:4]), xyz(out[4:10]), xyz(out[10]))
     try:
         adm_sources(arrays["spatial_metric"], arrays["electric_field"], arrays["magnetic_field"],
@@ -62,7 +63,7 @@ def _sources_block(gamma, E, B, *mask, level, check, starts, block_info=None):
     if valid is not None and not valid.all():
         for view in views:
             view[..., ~valid] = EXCISED_FILL
-    out[_MASK_CHANNEL] = mask[0] if mask else 1
+    out[_MASK_CHANNEL] = mask if mask is not None else 1
     return out
 
 
@@ -78,16 +79,13 @@ def sources_array(level, *, check=True, block_bytes=DEFAULT_BLOCK_BYTES):
     level.require(SOURCE_INPUTS, "the sources")
     dtype = common_field_dtype(level)
     read = SOURCE_INPUTS + (("valid_mask",) if level.has("valid_mask") else ())
-    heights = block_rows(level, read, values_per_point(SOURCE_INPUTS + SOURCE_OUTPUTS) + 1,
+    heights = block_rows(level, read, values_per_point(SOURCE_INPUTS + SOURCE_OUTPUTS) + 2,
                          dtype.itemsize, block_bytes)
-    inputs = [level_array(level, q, heights, dtype) for q in SOURCE_INPUTS]
-    if level.has("valid_mask"):
-        inputs.append(level_array(level, "valid_mask", heights, np.uint8))
+    stacked, layout = level_stack(level, read, heights, dtype)
     n1, n2 = level.storage_shape[1:]
-    return inputs[0].map_blocks(
-        _sources_block, *inputs[1:], level=level, check=check, starts=block_starts(heights),
-        chunks=((12,), heights, (n1,), (n2,)), dtype=dtype,
-        meta=np.empty((0, 0, 0, 0), dtype))
+    return stacked.map_blocks(
+        _sources_block, level=level, layout=layout, check=check, starts=block_starts(heights),
+        chunks=((12,), heights, (n1,), (n2,)), dtype=dtype, meta=np.empty((0, 0, 0, 0), dtype))
 
 
 def compute_sources_dask(inputs, output_file, *, mapping=None, block_bytes=DEFAULT_BLOCK_BYTES,
