@@ -34,7 +34,7 @@ LAYERS = (
                         "emsource.streaming")),
     ("post-processing", ("emsource.integrals", "emsource.time_series",
                          "emsource.sample_grids", "emsource.radiation",
-                         "emsource.radiation_output")),
+                         "emsource.radiation_output", "emsource.distributed")),
     ("command line", ("emsource.commands", "emsource.cli", "emsource.__main__")),
 )
 
