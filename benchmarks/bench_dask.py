@@ -16,7 +16,7 @@ medians of ``repeat`` repetitions, in grid points per second over all levels:
       by one run (the workers load the kernels) before the timed runs;
 
 and prints the ratios (c)/(a) and (c)/(b) side by side, and the peak resident set size of each
-worker process (``ru_maxrss``, which includes the interpreter, NumPy, h5py, Numba and Dask:
+worker process (VmHWM, which includes the interpreter, NumPy, h5py, Numba and Dask:
 about 150-250 MiB before any data). The file stays in the page cache when it fits, so these are
 cached-I/O figures. On a machine shared with other jobs, read the ratios, not the absolute rates.
 """
@@ -88,6 +88,15 @@ def plain_read(path, rows=16):
 
 
 def peak_rss_mib():
+    """Peak resident memory of this process (VmHWM; ``ru_maxrss`` would carry over the parent's
+    peak into a worker process started by fork and exec)."""
+    try:
+        with open("/proc/self/status") as status:
+            for line in status:
+                if line.startswith("VmHWM:"):
+                    return int(line.split()[1]) / 1024  # kB
+    except OSError:
+        pass
     return resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024  # Linux: KiB
 
 

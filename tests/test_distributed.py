@@ -18,27 +18,29 @@ sums, energies and squares, it is the value itself).
 import math
 import os
 
-import dask
 import h5py
 import numpy as np
 import pytest
 
-from emsource.conservation import global_balance
-from emsource.constraints import adm_constraints
-from emsource.distributed.arrays import block_rows, level_stack
-from emsource.distributed.balance import global_balance_series
-from emsource.distributed.constraints import constraint_norms, constraint_residuals
-from emsource.distributed.integrals import integrate_series, level_partials
-from emsource.distributed.series import open_series
-from emsource.distributed.sources import compute_sources_dask
-from emsource.exact import TimeLevelFields
-from emsource.grid import UniformGrid
-from emsource.integrals import integrate_snapshot
-from emsource.snapshot import SnapshotError, read_level, write_snapshot
-from emsource.snapshot.sources_pipeline import compute_sources
+dask = pytest.importorskip("dask", reason="the Dask path needs the dask extra (part of the test "
+                                          "extra: pip install '.[test]')")
 
-from conftest import assert_same_arithmetic
-from snapshot_data import curved_levels
+from emsource.conservation import global_balance  # noqa: E402
+from emsource.constraints import adm_constraints  # noqa: E402
+from emsource.distributed.arrays import block_rows, level_stack  # noqa: E402
+from emsource.distributed.balance import global_balance_series  # noqa: E402
+from emsource.distributed.constraints import constraint_norms, constraint_residuals  # noqa: E402
+from emsource.distributed.integrals import integrate_series, level_partials  # noqa: E402
+from emsource.distributed.series import open_series  # noqa: E402
+from emsource.distributed.sources import compute_sources_dask  # noqa: E402
+from emsource.exact import TimeLevelFields  # noqa: E402
+from emsource.grid import UniformGrid  # noqa: E402
+from emsource.integrals import integrate_snapshot  # noqa: E402
+from emsource.snapshot import SnapshotError, read_level, write_snapshot  # noqa: E402
+from emsource.snapshot.sources_pipeline import compute_sources  # noqa: E402
+
+from conftest import assert_same_arithmetic  # noqa: E402
+from snapshot_data import curved_levels  # noqa: E402
 
 RTOL = 1e-13
 SHAPE = (14, 9, 8)
