@@ -130,3 +130,22 @@ def test_without_dask_the_options_say_how_to_install_it(tmp_path, monkeypatch, c
     assert code == 2
     assert "pip install 'emsource[dask]'" in capsys.readouterr().err
     assert checksums(tmp_path) == before
+
+
+def test_progress_bars_on_a_cluster(cluster, series, tmp_path, capsys):
+    """With progress on (a terminal), the leaves are computed first and counted, then the tree
+    runs over them; sources count their blocks: the results do not change."""
+    from emsource.distributed.constraints import constraint_norms
+    from emsource.distributed.sources import compute_sources_dask
+
+    path = str(series / "two.h5")
+    with distributed.Client(cluster):
+        quiet = constraint_norms(path, order=4, block_bytes=20_000)
+        shown = constraint_norms(path, order=4, block_bytes=20_000, progress=True)
+        compute_sources_dask(path, tmp_path / "s.h5", block_bytes=20_000, progress=True)
+    err = capsys.readouterr().err
+    assert "constraints: 100%" in err and "sources: 100%" in err
+    for a, b in zip(quiet, shown):
+        assert a.norm_partial == b.norm_partial or (
+            a.norm_partial.count == b.norm_partial.count
+            and np.allclose(a.norm_partial.square_sum, b.norm_partial.square_sum, rtol=RTOL, atol=0))

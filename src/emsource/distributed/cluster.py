@@ -154,7 +154,11 @@ def compute_reductions(groups, *, split_every=8, progress=False, description="bl
     if client is not None and progress:
         from distributed import as_completed, futures_of
 
-        groups = client.persist(groups)
+        flat = client.persist([leaf for g in groups for leaf in g])
+        sizes, groups = [len(g) for g in groups], []
+        for size in sizes:
+            groups.append(flat[:size])
+            flat = flat[size:]
         futures = futures_of(groups)
         bar = progress_bar(len(futures), description, progress)
         try:
