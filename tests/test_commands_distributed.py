@@ -144,7 +144,8 @@ def test_progress_bars_on_a_cluster(cluster, series, tmp_path, capsys):
         shown = constraint_norms(path, order=4, block_bytes=20_000, progress=True)
         compute_sources_dask(path, tmp_path / "s.h5", block_bytes=20_000, progress=True)
     err = capsys.readouterr().err
-    assert "constraints: 100%" in err and "sources: 100%" in err
+    # tqdm redraws at most every 0.1 s and leaves no bar behind: the bars' starts are certain.
+    assert "constraints:   0%" in err and "sources:   0%" in err
     for a, b in zip(quiet, shown):
         assert a.interior_points == b.interior_points > 0
         np.testing.assert_allclose(b.norm_partial.square_sum, a.norm_partial.square_sum, rtol=RTOL)
