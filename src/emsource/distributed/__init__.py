@@ -3,15 +3,15 @@
 Needs the ``dask`` extra (``pip install 'emsource[dask]'``: dask.array and distributed); the
 rest of emsource never imports this package. Modules, each importing only those above it:
 
-=============  ================================================================================
-``series``     many files as one time series: :func:`open_series` (ordering, duplicates, grids)
-``arrays``     quantities as Dask arrays over the HDF5 datasets, blocks of whole stored chunks
-``cluster``    local cluster / existing scheduler, in-order blocks, tree reductions
-``sources``    :func:`compute_sources_dask` (``map_blocks``, native output)
-``integrals``  :func:`integrate_series` (tree reduction of ``LevelPartial``)
+===============  ==============================================================================
+``series``       many files as one time series: :func:`open_series` (order, duplicates, grids)
+``arrays``       quantities as stacked Dask arrays over the HDF5 datasets, whole stored chunks
+``cluster``      local cluster / existing scheduler, in-order blocks, tree reductions
+``sources``      :func:`compute_sources_dask` (``map_blocks``, native output)
+``integrals``    :func:`integrate_series` (tree reduction of ``LevelPartial``)
 ``constraints``  :func:`constraint_norms` (``map_overlap``, depth = stencil radius)
-``balance``    :func:`global_balance_series` (overlapping blocks, ``BalancePartial``)
-=============  ================================================================================
+``balance``      :func:`global_balance_series` (overlapping blocks, ``BalancePartial``)
+===============  ==============================================================================
 
 Every number equals the single-process path's to the rounding of the reductions' combine
 (:mod:`emsource.reductions`); the pointwise values are computed by the same kernels.
