@@ -106,8 +106,8 @@ def main(argv=None):
     parser.add_argument("--levels", type=int, default=4, help="time levels (default 4)")
     parser.add_argument("--repeat", type=int, default=3)
     parser.add_argument("--workers", type=int, nargs="+", default=[1, 2])
-    parser.add_argument("--block-mib", type=float, default=64,
-                        help="values per task in MiB (default 64)")
+    parser.add_argument("--block-mib", type=float, default=256,
+                        help="values per task in MiB (default 256, the package default)")
     parser.add_argument("--directory", default=None, help="where to write the files")
     args = parser.parse_args(argv)
 

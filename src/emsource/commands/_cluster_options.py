@@ -59,12 +59,12 @@ def _on_cluster(function, args) -> int:
         return run_guarded(function, args)
 
 
-#: Bytes of values per task where a command has no ``--memory-limit`` (64 MiB).
-DEFAULT_BLOCK_BYTES = 64 * 2**20
+#: Bytes of values per task where a command has no ``--memory-limit`` (256 MiB).
+DEFAULT_BLOCK_BYTES = 256 * 2**20
 
 
 def block_bytes(args) -> int:
-    """Bytes of values per task from ``--memory-limit``: a worker holds about four blocks
-    (its inputs, a block in flight, the outputs waiting to be sent)."""
+    """Bytes of values per task from ``--memory-limit``: half of it (a block's count already
+    bounds its inputs, outputs and temporaries; a worker holds about one more, read ahead)."""
     limit = getattr(args, "memory_limit", None)
-    return DEFAULT_BLOCK_BYTES if limit is None else max(1, int(limit) // 4)
+    return DEFAULT_BLOCK_BYTES if limit is None else max(1, int(limit) // 2)

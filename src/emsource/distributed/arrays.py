@@ -30,8 +30,10 @@ from ..snapshot import open_snapshot
 
 __all__ = ["StoredQuantities", "level_stack", "channel_layout", "block_rows", "block_starts", "DEFAULT_BLOCK_BYTES"]
 
-#: Bytes of the values one task holds (inputs, outputs and temporaries of its block).
-DEFAULT_BLOCK_BYTES = 64 * 2**20
+#: Bytes of the values one task holds (inputs, outputs and temporaries of its block). Tasks cost
+#: a fixed overhead on a cluster (scheduling, a file open): 64 MiB blocks (2 planes of 256^2)
+#: ran the integrals 2x slower than 256 MiB ones on 2 workers (benchmarks/bench_dask.py).
+DEFAULT_BLOCK_BYTES = 256 * 2**20
 
 
 def channel_layout(quantities) -> dict:
