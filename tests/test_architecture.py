@@ -36,7 +36,8 @@ LAYERS = (
                         "emsource.streaming")),
     ("post-processing", ("emsource.integrals", "emsource.time_series",
                          "emsource.sample_grids", "emsource.radiation",
-                         "emsource.radiation_output", "emsource.snapshot_balance")),
+                         "emsource.radiation_output", "emsource.snapshot_balance",
+                         "emsource.distributed")),
     ("command line", ("emsource.commands", "emsource.cli", "emsource.__main__")),
 )
 

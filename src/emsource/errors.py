@@ -38,6 +38,12 @@ class GridPointError(ValueError):
             f"the first is grid index {first_index}: {reason}"
         )
 
+    def __reduce__(self):
+        # Rebuilt from the constructor's arguments: the default (the message alone) cannot be
+        # unpickled, and a process pool (a Dask worker) sends the error back pickled.
+        return (type(self), (self.function, self.bad_count, self.npoints, self.first_index,
+                             self.reason, self.where))
+
     def relocated(self, axis: int = 0, offset: int = 0, where: str = "") -> "GridPointError":
         """The same error for a piece of a larger grid, in the larger grid's terms.
 

@@ -53,7 +53,7 @@ from .snapshot.slabs import (CONVERSION_BUFFER_BYTES, DEFAULT_MEMORY_LIMIT, Slab
 from .sources import GridPointError
 
 __all__ = ["LevelIntegrals", "integrate_snapshot", "integrate_open_snapshot",
-           "integrate_level_arrays", "level_partial",
+           "integrate_level_arrays", "level_partial", "slab_partial", "level_spheres",
            "sphere_quadrature", "lagrange_weights", "FACES"]
 
 FACES = ("x_lower", "x_upper", "y_lower", "y_upper", "z_lower", "z_upper")
@@ -546,10 +546,7 @@ def integrate_open_snapshot(snap: SnapshotFile, *, radii=(), theta_points=32,
                  + (sphere_working_bytes(interpolation_points) if radii else 0))
         n = rows or slab_rows(level, INTEGRATION_VALUES_PER_POINT, dtype.itemsize,
                               memory_limit, fixed=fixed, halo=halo)
-        try:
-            spheres = [_Sphere(r, level.grid, theta_points, interpolation_points) for r in radii]
-        except SnapshotError as error:
-            raise SnapshotError(f"{level.where}, time level {level.label!r}: {error}") from None
+        spheres = level_spheres(level, radii, theta_points, interpolation_points)
         plans.append((level, dtype, int(min(n, level.storage_shape[0])), spheres))
     bar = progress_bar(sum(len(slabs(lv.storage_shape[0], n)) for lv, _, n, _ in plans),
                        "integrate", progress)
@@ -559,6 +556,36 @@ def integrate_open_snapshot(snap: SnapshotFile, *, radii=(), theta_points=32,
     finally:
         bar.close()
     return results
+
+
+def slab_partial(level, arrays, valid_mask, spheres, start, stop, in_place=False) -> LevelPartial:
+    """:func:`level_partial` of the storage rows ``start:stop`` of a snapshot time level.
+
+    ``arrays`` maps quantity names to (x, y, z)-order float64 arrays over rows ``start`` to
+    ``stop`` plus the spheres' halo (lapse and shift optional); ``level`` is a
+    :class:`emsource.snapshot.TimeLevel` or anything with its ``grid``, ``units``,
+    ``slab_axis``, ``where`` and ``label``. Errors name the file, the level and the rows.
+    """
+    try:
+        return level_partial(level.grid, arrays["spatial_metric"], arrays["electric_field"],
+                             arrays["magnetic_field"], units=level.units,
+                             lapse=arrays.get("lapse"), shift=arrays.get("shift"),
+                             valid_mask=valid_mask, spheres=spheres, axis=level.slab_axis,
+                             start=start, stop=stop, in_place=in_place)
+    except GridPointError as error:  # its index is already in the whole grid
+        raise error.relocated(where=f"{level.where}, time level {level.label!r} "
+                                    f"({'xyz'[level.slab_axis]} rows {start}:{stop})") from None
+    except SnapshotError as error:  # a sphere's stencil reaches excised points
+        raise SnapshotError(f"{level.where}, time level {level.label!r}: {error}") from None
+
+
+def level_spheres(level, radii, theta_points, interpolation_points) -> list:
+    """The luminosity spheres of ``radii`` on the level's grid (a message naming the level if
+    one does not fit)."""
+    try:
+        return [_Sphere(r, level.grid, theta_points, interpolation_points) for r in radii]
+    except SnapshotError as error:
+        raise SnapshotError(f"{level.where}, time level {level.label!r}: {error}") from None
 
 
 def _integrate_level(level, dtype, rows, halo, spheres, bar):
@@ -573,19 +600,8 @@ def _integrate_level(level, dtype, rows, halo, spheres, bar):
         end = min(stop + halo, n0)
         arrays = {q: buffers.read(q, start, end) for q in wanted + optional if q != "valid_mask"}
         valid_mask = masks.read("valid_mask", start, end) if masks else None
-        try:
-            piece = level_partial(level.grid, arrays["spatial_metric"], arrays["electric_field"],
-                                  arrays["magnetic_field"], units=level.units,
-                                  lapse=arrays.get("lapse"), shift=arrays.get("shift"),
-                                  valid_mask=valid_mask,
-                                  spheres=spheres, axis=level.slab_axis, start=start, stop=stop,
-                                  in_place=True)
-        except GridPointError as error:  # its index is already in the whole grid
-            raise error.relocated(where=f"{level.where}, time level {level.label!r} "
-                                        f"({'xyz'[level.slab_axis]} rows {start}:{stop})") from None
-        except SnapshotError as error:  # a sphere's stencil reaches excised points
-            raise SnapshotError(f"{level.where}, time level {level.label!r}: {error}") from None
-        partial = combine(partial, piece)
+        partial = combine(partial, slab_partial(level, arrays, valid_mask, spheres, start, stop,
+                                                in_place=True))
         bar.update(1)
     return LevelIntegrals.from_partial(partial, level.label, level.time,
                                        [s.radius for s in spheres])

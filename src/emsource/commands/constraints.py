@@ -7,6 +7,7 @@ import sys
 from .._arguments import DIFFERENCE_ORDERS
 from . import EXIT_CHECK_FAILED, EXIT_OK
 from ._snapshot_level import add_snapshot_arguments, input_errors, read_slice
+from ._cluster_options import add_cluster_options
 from ._snapshot_options import run_guarded, tolerance
 
 
@@ -34,6 +35,7 @@ def register(subparsers):
     p.add_argument("--tolerance", type=tolerance, default=None,
                    help="exit with code 1 if a normalised l2 residual exceeds this")
     p.set_defaults(run=lambda args: run_guarded(_run, args))
+    add_cluster_options(p, on_cluster=_run_on_cluster)
 
 
 def _run(args) -> int:
@@ -52,10 +54,26 @@ def _run(args) -> int:
         else:
             res = adm_constraints(d["gamma"], d["K"], d["E"], d["B"], spacing=d["spacing"],
                                   order=args.order, units=units, valid_mask=d["mask"])
+    return _report(args, units, int(res.interior.sum()), res.hamiltonian_norms,
+                   res.momentum_norms)
+
+
+def _run_on_cluster(args) -> int:
+    from ..distributed.constraints import constraint_norms
+
+    if args.sources == "none":
+        args.sources = "vacuum"
+    norms, = constraint_norms(args.snapshot, mapping=args.mapping, levels=[args.level],
+                              order=args.order, units=args.sources)
+    return _report(args, norms.units or "vacuum", norms.interior_points,
+                   norms.hamiltonian_norms, norms.momentum_norms)
+
+
+def _report(args, units, interior, h, m) -> int:
+    """The table of norms, and the exit code of the --tolerance check."""
     print(f"{args.snapshot}: order {args.order}, sources {units}, "
-          f"{int(res.interior.sum())} interior points evaluated")
+          f"{interior} interior points evaluated")
     print(f"{'constraint':<12} {'l2':>11} {'max':>11} {'norm. l2':>11} {'norm. max':>11}")
-    h, m = res.hamiltonian_norms, res.momentum_norms
     rows = [("hamiltonian", h.l2, h.max, h.normalised_l2, h.normalised_max)]
     rows += [(f"momentum_{'xyz'[i]}", m.l2[i], m.max[i], m.normalised_l2[i], m.normalised_max[i])
              for i in range(3)]

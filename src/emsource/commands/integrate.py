@@ -6,6 +6,7 @@ import argparse
 import math
 
 from . import EXIT_OK, EXIT_OUTPUT_ERROR, EXIT_USAGE
+from ._cluster_options import add_cluster_options, block_bytes
 from ._snapshot_options import (add_input_options, check_new_output, fail, positive_number,
                                run_guarded, show_progress, whole_number_at_least)
 
@@ -74,9 +75,48 @@ def register(subparsers):
                         "(needs matplotlib: pip install 'emsource[plot]')")
     parser.add_argument("--force", action="store_true", help="replace existing output files")
     parser.set_defaults(run=lambda args: run_guarded(_run, args))
+    add_cluster_options(parser, on_cluster=lambda args: _run(args, on_cluster=True))
 
 
-def _run(args) -> int:
+#: What the integrals read (for the provenance).
+READ = ("spatial_metric", "electric_field", "magnetic_field", "lapse", "shift", "valid_mask")
+
+
+def _options(args, results) -> dict:
+    options = {"radii": args.radius, "theta_points": args.theta_points,
+               "interpolation_points": args.interpolation_points, "mass_solar": args.mass,
+               "memory_limit_bytes": args.memory_limit, "levels": [r.label for r in results]}
+    if args.code_scale is not None:
+        options["code_scale"] = list(map(str, args.code_scale))
+    return options
+
+
+def _integrate_on_cluster(args):
+    """(description, units, grid, level count, results, attributes, the mapping's physical
+    scale) of a Dask run."""
+    import json
+
+    from ..distributed.integrals import integrate_series
+    from ..distributed.series import open_series
+    from ..snapshot import open_snapshot, provenance_attributes
+    from ..snapshot.levels import choose_levels
+
+    series = open_series(args.snapshot, args.mapping)
+    chosen = choose_levels(series, args.levels, args.snapshot)
+    results = integrate_series(
+        args.snapshot, mapping=args.mapping, radii=args.radius, theta_points=args.theta_points,
+        interpolation_points=args.interpolation_points, levels=args.levels,
+        block_bytes=block_bytes(args), progress=show_progress(args))
+    files = sorted({level.path for level in chosen})
+    used = [p for level in chosen for q in READ if level.has(q) for p in level.dataset_paths(q)]
+    attributes = provenance_attributes(files[0], used, _options(args, results), series[0].mapping)
+    attributes["input_files"] = json.dumps(files)
+    with open_snapshot(series[0].path, series[0].mapping) as snap:  # one mapping for all
+        mapping_scale = snap.physical_scale
+    return "", series[0].units, series[0].grid, len(series), results, attributes, mapping_scale
+
+
+def _run(args, on_cluster=False) -> int:
     from ..integrals import integrate_open_snapshot
     from ..snapshot import open_snapshot
     from ..physical_units import physical_scale, scale_of
@@ -94,24 +134,21 @@ def _run(args) -> int:
             import matplotlib  # noqa: F401
         except ImportError:
             return fail(EXIT_OUTPUT_ERROR, "--plot needs matplotlib: pip install 'emsource[plot]'")
-    # One open file serves the description, the grid, the integration and the provenance.
-    with open_snapshot(args.snapshot, args.mapping) as snap:
-        description, units, grid = snap.description, snap.units, snap.grid
-        count = len(snap.levels)
-        chosen = snap.select(args.levels)
-        results = integrate_open_snapshot(
-            snap, radii=args.radius, theta_points=args.theta_points,
-            interpolation_points=args.interpolation_points, memory_limit=args.memory_limit,
-            levels=args.levels, progress=show_progress(args))
-        options = {"radii": args.radius, "theta_points": args.theta_points,
-                   "interpolation_points": args.interpolation_points, "mass_solar": args.mass,
-                   "memory_limit_bytes": args.memory_limit, "levels": [r.label for r in results]}
-        if args.code_scale is not None:
-            options["code_scale"] = list(map(str, args.code_scale))
-        attributes = snap.provenance(chosen, ("spatial_metric", "electric_field",
-                                              "magnetic_field", "lapse", "shift", "valid_mask"),
-                                     options)
-        mapping_scale = snap.physical_scale
+    if on_cluster:
+        (description, units, grid, count, results, attributes,
+         mapping_scale) = _integrate_on_cluster(args)
+    else:
+        # One open file serves the description, the grid, the integration and the provenance.
+        with open_snapshot(args.snapshot, args.mapping) as snap:
+            description, units, grid = snap.description, snap.units, snap.grid
+            count = len(snap.levels)
+            chosen = snap.select(args.levels)
+            results = integrate_open_snapshot(
+                snap, radii=args.radius, theta_points=args.theta_points,
+                interpolation_points=args.interpolation_points, memory_limit=args.memory_limit,
+                levels=args.levels, progress=show_progress(args))
+            attributes = snap.provenance(chosen, READ, _options(args, results))
+            mapping_scale = snap.physical_scale
     if args.mass is not None:
         scale, origin = physical_scale(args.mass, units), "--mass"
     elif args.code_scale is not None:

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 from ..quantities import FORM_OUTPUTS, OUTPUTS
 from . import EXIT_OK
+from ._cluster_options import add_cluster_options, block_bytes
 from ._snapshot_options import add_input_options, run_guarded, show_progress, size_text
 
 HELP = "compute rho, S_i, S_ij and S for every time level of a snapshot file"
@@ -30,6 +31,7 @@ def register(subparsers):
     parser.add_argument("--no-check", action="store_true",
                         help="skip the point checks (finite values, positive-definite metric)")
     parser.set_defaults(run=lambda args: run_guarded(_run, args))
+    add_cluster_options(parser, on_cluster=_run_on_cluster)
 
 
 def _run(args) -> int:
@@ -37,6 +39,18 @@ def _run(args) -> int:
 
     report = compute_sources(
         args.snapshot, args.output, mapping=args.mapping, memory_limit=args.memory_limit,
+        force=args.force, compression="gzip" if args.compress else None, levels=args.levels,
+        check=not args.no_check, outputs=args.outputs, progress=show_progress(args))
+    if not args.quiet:
+        print(summary(report, args))
+    return EXIT_OK
+
+
+def _run_on_cluster(args) -> int:
+    from ..distributed.sources import compute_sources_dask
+
+    report = compute_sources_dask(
+        args.snapshot, args.output, mapping=args.mapping, block_bytes=block_bytes(args),
         force=args.force, compression="gzip" if args.compress else None, levels=args.levels,
         check=not args.no_check, outputs=args.outputs, progress=show_progress(args))
     if not args.quiet:
