@@ -45,6 +45,7 @@ PHYSICAL_COLUMNS = {
     "luminosity_r": (("erg_s", "power_erg_s"), ("W", "power_W")),
     # kinds used by other commands' tables (``add_physical_columns(kind_of=...)``)
     "power": (("erg_s", "power_erg_s"), ("W", "power_W")),
+    "length": (("cm", "length_cm"), ("m", "length_m")),
     "power_density": (("erg_s_cm3", "power_density_erg_s_cm3"), ("W_m3", "power_density_W_m3")),
 }
 
