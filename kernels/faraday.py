@@ -31,12 +31,12 @@ from .point_checks import is_finite
 
 
 @point_function
-def faraday_components(alpha, b1, b2, b3, sg, fields, upper):
+def faraday_components(alpha, b1, b2, b3, sg, fields, upper, one):
     """F_ab (``upper`` False) or F^ab, packed (tx, ty, tz, xy, xz, yz), at one point."""
     ex, ey, ez, exl, eyl, ezl, bx, by, bz, bxl, byl, bzl = fields
     if upper:
-        ia = 1.0 / alpha
-        isg = 1.0 / sg
+        ia = one / alpha
+        isg = one / sg
         return (ex * ia, ey * ia, ez * ia,
                 (ex * b2 - b1 * ey) * ia + bzl * isg,
                 (ex * b3 - b1 * ez) * ia - byl * isg,
@@ -49,9 +49,9 @@ def faraday_components(alpha, b1, b2, b3, sg, fields, upper):
 
 @point_function
 def fields_from_components(alpha, b1, b2, b3, gxx, gxy, gxz, gyy, gyz, gzz, sg,
-                           ixx, ixy, ixz, iyy, iyz, izz, f0, f1, f2, f3, f4, f5, upper):
+                           ixx, ixy, ixz, iyy, iyz, izz, f0, f1, f2, f3, f4, f5, upper, one):
     """Contravariant (E^x, E^y, E^z, B^x, B^y, B^z) from packed F_ab or F^ab at one point."""
-    ia = 1.0 / alpha
+    ia = one / alpha
     if upper:
         ex, ey, ez = alpha * f0, alpha * f1, alpha * f2
         # G^ij = F^ij - (E^i beta^j - beta^i E^j) / alpha = [ijk] B_k / sg
@@ -61,7 +61,7 @@ def fields_from_components(alpha, b1, b2, b3, gxx, gxy, gxz, gyy, gyz, gzz, sg,
         bx, by, bz = contract_index(ixx, ixy, ixz, iyy, iyz, izz,
                                     sg * gyz_, -sg * gxz_, sg * gxy_)
     else:
-        isg = 1.0 / sg
+        isg = one / sg
         bx, by, bz = f5 * isg, -f4 * isg, f3 * isg
         exl = (sg * (by * b3 - bz * b2) - f0) * ia
         eyl = (sg * (bz * b1 - bx * b3) - f1) * ia
@@ -71,7 +71,7 @@ def fields_from_components(alpha, b1, b2, b3, gxx, gxy, gxz, gyy, gyz, gzz, sg,
 
 
 @grid_kernel
-def faraday_grid(alpha, beta, gamma, gidx, E, B, F, form, upper, pivot_floor):
+def faraday_grid(alpha, beta, gamma, gidx, E, B, F, form, upper, pivot_floor, one):
     """Packed F_ab or F^ab over strided (ncomp, nx, ny, nz) arrays; returns the bad-point count
     (metric not positive definite, lapse not positive, non-finite input or output)."""
     nx, ny, nz = alpha.shape
@@ -87,16 +87,16 @@ def faraday_grid(alpha, beta, gamma, gidx, E, B, F, form, upper, pivot_floor):
             gyy = gamma[gidx[3], i, j, k]
             gyz = gamma[gidx[4], i, j, k]
             gzz = gamma[gidx[5], i, j, k]
-            d1, d2, d3, l21, l31, l32 = metric_factors(gxx, gxy, gxz, gyy, gyz, gzz, 1.0)
+            d1, d2, d3, l21, l31, l32 = metric_factors(gxx, gxy, gxz, gyy, gyz, gzz, one)
             sg = sqrt_determinant(d1, d2, d3)
             fields = fields_both_indices(form, gxx, gxy, gxz, gyy, gyz, gzz, d1, d2, d3,
                                          l21, l31, l32, E[0, i, j, k], E[1, i, j, k],
                                          E[2, i, j, k], B[0, i, j, k], B[1, i, j, k],
-                                         B[2, i, j, k], 1.0)
+                                         B[2, i, j, k], one)
             a = alpha[i, j, k]
             f = faraday_components(a, beta[0, i, j, k], beta[1, i, j, k], beta[2, i, j, k], sg,
-                                   fields, upper)
-            total = 0.0
+                                   fields, upper, one)
+            total = one - one
             for c in range(6):
                 F[c, i, j, k] = f[c]
                 total += f[c]
@@ -109,7 +109,7 @@ def faraday_grid(alpha, beta, gamma, gidx, E, B, F, form, upper, pivot_floor):
 
 
 @grid_kernel
-def fields_from_faraday_grid(alpha, beta, gamma, gidx, F, E, B, upper, pivot_floor):
+def fields_from_faraday_grid(alpha, beta, gamma, gidx, F, E, B, upper, pivot_floor, one):
     """Contravariant E^i, B^i from packed F_ab or F^ab over strided arrays; returns the
     bad-point count (as :func:`faraday_grid`)."""
     nx, ny, nz = alpha.shape
@@ -125,15 +125,15 @@ def fields_from_faraday_grid(alpha, beta, gamma, gidx, F, E, B, upper, pivot_flo
             gyy = gamma[gidx[3], i, j, k]
             gyz = gamma[gidx[4], i, j, k]
             gzz = gamma[gidx[5], i, j, k]
-            d1, d2, d3, l21, l31, l32 = metric_factors(gxx, gxy, gxz, gyy, gyz, gzz, 1.0)
+            d1, d2, d3, l21, l31, l32 = metric_factors(gxx, gxy, gxz, gyy, gyz, gzz, one)
             sg = sqrt_determinant(d1, d2, d3)
-            ixx, ixy, ixz, iyy, iyz, izz = inverse_metric(d1, d2, d3, l21, l31, l32, 1.0)
+            ixx, ixy, ixz, iyy, iyz, izz = inverse_metric(d1, d2, d3, l21, l31, l32, one)
             a = alpha[i, j, k]
             ex, ey, ez, bx, by, bz = fields_from_components(
                 a, beta[0, i, j, k], beta[1, i, j, k], beta[2, i, j, k],
                 gxx, gxy, gxz, gyy, gyz, gzz, sg, ixx, ixy, ixz, iyy, iyz, izz,
                 F[0, i, j, k], F[1, i, j, k], F[2, i, j, k], F[3, i, j, k], F[4, i, j, k],
-                F[5, i, j, k], upper)
+                F[5, i, j, k], upper, one)
             E[0, i, j, k] = ex
             E[1, i, j, k] = ey
             E[2, i, j, k] = ez
@@ -149,7 +149,7 @@ def fields_from_faraday_grid(alpha, beta, gamma, gidx, F, E, B, upper, pivot_flo
 
 
 @grid_kernel
-def invariants_grid(gamma, gidx, E, B, out, form, pivot_floor):
+def invariants_grid(gamma, gidx, E, B, out, form, pivot_floor, one):
     """out[0] = F_ab F^ab = 2 (B^2 - E^2), out[1] = F_ab *F^ab = 4 E_i B^i over strided
     arrays; returns the bad-point count (metric, non-finite input or output)."""
     nx, ny, nz = out.shape[1:]
@@ -165,15 +165,15 @@ def invariants_grid(gamma, gidx, E, B, out, form, pivot_floor):
             gyy = gamma[gidx[3], i, j, k]
             gyz = gamma[gidx[4], i, j, k]
             gzz = gamma[gidx[5], i, j, k]
-            d1, d2, d3, l21, l31, l32 = metric_factors(gxx, gxy, gxz, gyy, gyz, gzz, 1.0)
+            d1, d2, d3, l21, l31, l32 = metric_factors(gxx, gxy, gxz, gyy, gyz, gzz, one)
             ex, ey, ez, exl, eyl, ezl, bx, by, bz, bxl, byl, bzl = fields_both_indices(
                 form, gxx, gxy, gxz, gyy, gyz, gzz, d1, d2, d3, l21, l31, l32,
                 E[0, i, j, k], E[1, i, j, k], E[2, i, j, k], B[0, i, j, k], B[1, i, j, k],
-                B[2, i, j, k], 1.0)
+                B[2, i, j, k], one)
             e2 = ex * exl + ey * eyl + ez * ezl
             b2 = bx * bxl + by * byl + bz * bzl
-            first = 2.0 * (b2 - e2)
-            second = 4.0 * (exl * bx + eyl * by + ezl * bz)
+            first = (one + one) * (b2 - e2)
+            second = (one + one + one + one) * (exl * bx + eyl * by + ezl * bz)
             out[0, i, j, k] = first
             out[1, i, j, k] = second
             floor = pivot_floor * (gxx + gyy + gzz)

@@ -138,7 +138,12 @@ def test_box_energy_equals_the_si_formula(yee_runs, balance_rows):
     to round-off: a few operations per point, 1e-12 relative."""
     path, _, _ = yee_runs[1]
     rows = balance_rows(1, 2)
-    level = 3
+    total = _si_box_energy(path, 3)
+    assert abs(float(rows[3]["energy"]) - total) <= 1e-12 * total
+
+
+def _si_box_energy(path, level):
+    """The test's own SI box energy in J of a level (docstring of the test above)."""
     with h5py.File(path) as f:
         def stored(name, k):
             return [f[f"run/frame_{k}/{name}_{a}"][()] for a in "xyz"]
@@ -172,8 +177,7 @@ def test_box_energy_equals_the_si_formula(yee_runs, balance_rows):
     weights = [np.full(m - 2, h) for m in n]
     for w in weights:
         w[0] = w[-1] = 0.5 * h
-    total = np.einsum("ijk,i,j,k->", u, *weights)
-    assert abs(float(rows[level]["energy"]) - total) <= 1e-12 * total
+    return np.einsum("ijk,i,j,k->", u, *weights)
 
 
 def test_exit_status_follows_the_tolerance_and_bad_input_is_exit_3(yee_runs, tmp_path):
@@ -232,3 +236,48 @@ def test_physical_unit_keys_give_the_balance_of_the_scale_keys(yee_runs, balance
     for row, ref in zip(rows, reference):
         assert float(row["t"]) == pytest.approx(float(ref["t"]), rel=1e-13)
         assert float(row["energy"]) * joules == pytest.approx(float(ref["energy"]), rel=1e-11)
+
+
+def test_code_scale_gives_joules_in_the_csv_and_the_summary(yee_runs, balance_rows, tmp_path,
+                                                             capsys):
+    """Issue 11 item 7: with the mapping's ``code_scale = {value = 1.0, unit = "m"}`` (and E in
+    V/m, H in A/m, metres, seconds) ``balance`` reports physical values: ``energy_J`` equals the
+    test's own SI integral of (eps0 E^2 + mu0 H^2) / 2 (Jackson sec. 6.7; eps0, mu0 from
+    scipy.constants) and ``t_s`` the stored seconds. Tolerance 1e-11 as in the test above (CODATA
+    eps0 mu0 c^2 = 1 to ~1e-12, a few roundings per conversion). The outflow rate in W equals the
+    scale-key route's rate (J per metre of light travel) times c; the giving of a second,
+    different scale on the command line is a usage error (exit 2)."""
+    from scipy.constants import c
+
+    path, mappings, dt = yee_runs[1]
+    mapping = tmp_path / "units.toml"
+    mapping.write_text(_units_mapping(mappings[2].read_text()))
+    code, rows = _balance(path, mapping, tmp_path / "si.csv", "--tolerance", "1")
+    assert code == EXIT_OK
+    total = _si_box_energy(path, 3)
+    assert float(rows[3]["energy_J"]) == pytest.approx(total, rel=1e-11)
+    assert float(rows[3]["energy_erg"]) == pytest.approx(1e7 * total, rel=1e-11)
+    assert float(rows[3]["t_s"]) == pytest.approx(3 * dt, rel=1e-13)
+    reference = balance_rows(1, 2)
+    for row, ref in zip(rows, reference):
+        assert float(row["energy_outflow_rate_W"]) == pytest.approx(
+            c * float(ref["energy_outflow_rate"]), rel=1e-11, abs=1e-11 * c * total)
+        assert float(row["momentum_x_kg_m_s"]) == pytest.approx(
+            float(ref["momentum_x"]) / c, rel=1e-11, abs=1e-11 * total / c)
+    assert "energy_norm_l2_J" not in rows[0] and "level_s" not in rows[0]
+    assert main(["balance", str(path), "--mapping", str(mapping), "--tolerance", "1"]) == EXIT_OK
+    text = capsys.readouterr().out
+    assert "physical units (the mapping's code_scale)" in text and "energy [J] change" in text
+    code, out, err = run_cli("balance", path, "--mapping", mapping, "--code-scale", "2", "m")
+    assert code == 2 and "mapping's code_scale" in err and out == ""
+
+
+def _units_mapping(text):
+    """The scale-key mapping rewritten to the ``[physical_units]`` keys (test above)."""
+    text = re.sub(r"time = \{ attribute = \"clock_s\", scale = [^}]*\}",
+                  'time = { attribute = "clock_s" }', text)
+    text = re.sub(r"\nscale = [^\n]*", "", text)
+    text = text.replace('centring = "edge"', 'centring = "edge"\nunit = "V/m"')
+    text = text.replace('centring = "face"', 'centring = "face"\nunit = "A/m"')
+    return text.replace("[time_levels]", '[physical_units]\ncode_scale = { value = 1.0, unit = "m" }\n'
+                        'length_unit = "m"\ntime_unit = "s"\n\n[time_levels]')

@@ -102,3 +102,30 @@ def test_missing_field_in_a_subprocess(tmp_path):
     assert "magnetic_field" in err and "Traceback" not in err and out == ""
     assert checksums(tmp_path) == before
     assert np.all(np.isfinite(d.E))
+
+
+def test_code_scale_gives_watts(dipole, tmp_path, capsys):
+    """Issue 11 item 7: ``--code-scale 1 m`` adds the SI and cgs columns: a code power is
+    c^5 / G (G = c = 1 units, common practice; c, G from scipy.constants, CODATA) and a code
+    time 1 m / c. Tolerance 1e-12: a product of a few roundings."""
+    from scipy.constants import G, c
+
+    csv_path = tmp_path / "si.csv"
+    assert main(["radiation", str(dipole), "--radius", "1.5", "--radius", "2.5", "--l-max", "1",
+                 "--theta-points", "4", "--code-scale", "1", "m", "--csv", str(csv_path)]) == EXIT_OK
+    text = capsys.readouterr().out
+    assert "physical (--code-scale)" in text and "power [W]" in text
+    with open(csv_path) as handle:
+        rows = list(csv.DictReader(handle))
+    for row in rows:
+        for column in ("power", "mode_power", "net_flux", "power_extrapolated"):
+            assert float(row[f"{column}_W"]) == pytest.approx(float(row[column]) * c**5 / G,
+                                                              rel=1e-12)
+            assert float(row[f"{column}_erg_s"]) == pytest.approx(1e7 * float(row[f"{column}_W"]),
+                                                                  rel=1e-12)
+        assert float(row["radius_m"]) == float(row["radius"])
+        assert float(row["radius_cm"]) == pytest.approx(100 * float(row["radius"]), rel=1e-15)
+        assert float(row["time_s"]) == pytest.approx(float(row["time"]) / c, rel=1e-12)
+    assert not any(k.startswith("phi") and k.endswith("_W") for k in rows[0])
+    assert main(["radiation", str(dipole), "--radius", "1.5", "--mass", "1",
+                 "--code-scale", "1", "m"]) == EXIT_USAGE

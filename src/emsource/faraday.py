@@ -136,8 +136,8 @@ def faraday_tensor(alpha, beta, gamma, E, B, *, index="lower", field_index="uppe
     Returns
     -------
     (6, *grid) ndarray
-        Packed (tx, ty, tz, xy, xz, yz), component axis first. float64 arithmetic; float32
-        inputs give a float32 result.
+        Packed (tx, ty, tz, xy, xz, yz), component axis first. Arithmetic in the inputs' dtype
+        (float32 inputs: float32 arithmetic and result).
 
     References
     ----------
@@ -174,7 +174,8 @@ def faraday_tensor(alpha, beta, gamma, E, B, *, index="lower", field_index="uppe
     views = padded([lapse, shift, metric, e, b, out], grid)
     with kernel_call():
         count = kernels.faraday_grid(*views[:3], gidx, *views[3:], form.code, index == "upper",
-                                     float(arg.pivot_floor(dtype)))
+                                     dtype.type(arg.pivot_floor(dtype)),
+                                     dtype.type(1))
     if check:
         raise_for_bad_points(function, count, grid,
                              {"alpha": lapse, "beta": shift, "E": e, "B": b, "out": out},
@@ -218,7 +219,8 @@ def fields_from_faraday(alpha, beta, gamma, F, *, index="lower", check=True):
     views = padded([lapse, shift, metric, f, E, B], grid)
     with kernel_call():
         count = kernels.fields_from_faraday_grid(*views[:3], gidx, *views[3:], index == "upper",
-                                                 float(arg.pivot_floor(dtype)))
+                                                 dtype.type(arg.pivot_floor(dtype)),
+                                                 dtype.type(1))
     if check:
         raise_for_bad_points(function, count, grid,
                              {"alpha": lapse, "beta": shift, "F": f,
@@ -264,7 +266,8 @@ def field_invariants(gamma, E, B, *, field_index="upper", check=True) -> FieldIn
         views = padded([metric, e, b, out], grid)
         with kernel_call():
             count = kernels.invariants_grid(views[0], gidx, *views[1:], form.code,
-                                            float(arg.pivot_floor(dtype)))
+                                            dtype.type(arg.pivot_floor(dtype)),
+                                            dtype.type(1))
         if check:
             raise_for_bad_points(function, count, grid, {"E": e, "B": b, "out": out},
                                  metric=("gamma", metric, gidx))

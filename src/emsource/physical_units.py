@@ -160,6 +160,16 @@ class PhysicalScale:
     def energy_density_erg_cm3(self) -> float:
         return self.energy_erg / self.length_cm**3
 
+    @property
+    def power_density_W_m3(self) -> float:
+        """Energy per volume per time (a rate of energy density, e.g. the conservation
+        residual): (c^5 / G) / L^3 in W m^-3."""
+        return self.power_W / self.length_m**3
+
+    @property
+    def power_density_erg_s_cm3(self) -> float:
+        return self.power_erg_s / self.length_cm**3
+
     # --- fields ---------------------------------------------------------------------------
     @property
     def _field_factor(self) -> float:

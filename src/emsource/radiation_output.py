@@ -24,7 +24,7 @@ import numpy as np
 
 from .radiation import SCALARS, table_columns
 from .snapshot import atomic_output, hdf5_output
-from .time_series import write_csv
+from .time_series import add_physical_columns, write_csv
 
 __all__ = ["TETRAD_TEXT", "POWER_TEXT", "write_radiation_csv", "write_radiation_hdf5",
            "write_radiation_plot"]
@@ -36,8 +36,19 @@ POWER_TEXT = ("power = kappa r^2 oint |Phi2|^2 dOmega, kappa = 1/(4 pi) gaussian
               "1 heaviside_lorentz")
 
 
-def write_radiation_csv(path, levels, extrapolation_order=None, *, force=False, inputs=()):
-    write_csv(path, table_columns(levels, extrapolation_order), force=force, inputs=inputs)
+#: CSV column -> its kind in :data:`emsource.time_series.PHYSICAL_COLUMNS`; the mode columns
+#: stay in code units.
+_KINDS = {"time": "time", "radius": "length", "power": "power", "mode_power": "power",
+          "net_flux": "power", "power_extrapolated": "power"}
+
+
+def write_radiation_csv(path, levels, extrapolation_order=None, *, force=False, inputs=(),
+                        scale=None):
+    """With a :class:`emsource.physical_units.PhysicalScale`, also the ``<column>_<unit>``
+    columns (cgs, SI) of time, radius and the powers (``time_s``, ``radius_cm``, ``radius_m``,
+    ``power_erg_s``, ``power_W``, ...)."""
+    table = add_physical_columns(table_columns(levels, extrapolation_order), scale, _KINDS.get)
+    write_csv(path, table, force=force, inputs=inputs)
 
 
 def write_radiation_hdf5(path, levels, attributes, extrapolation_order=None, *, force=False,

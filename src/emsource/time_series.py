@@ -28,7 +28,8 @@ import numpy as np
 from .integrals import FACES
 from .snapshot import atomic_output, hdf5_output
 
-__all__ = ["PHYSICAL_COLUMNS", "time_series_table", "write_csv", "write_hdf5", "write_plot"]
+__all__ = ["PHYSICAL_COLUMNS", "add_physical_columns", "time_series_table", "write_csv",
+           "write_hdf5", "write_plot"]
 
 #: Code column (or its prefix, for momentum, fluxes and luminosities) -> the (unit suffix,
 #: PhysicalScale attribute) pairs of its physical columns, cgs first.
@@ -42,7 +43,32 @@ PHYSICAL_COLUMNS = {
                            ("V_m", "electric_field_V_m")),
     "max_magnetic_field": (("G", "magnetic_field_G"), ("T", "magnetic_field_T")),
     "luminosity_r": (("erg_s", "power_erg_s"), ("W", "power_W")),
+    # kinds used by other commands' tables (``add_physical_columns(kind_of=...)``)
+    "power": (("erg_s", "power_erg_s"), ("W", "power_W")),
+    "length": (("cm", "length_cm"), ("m", "length_m")),
+    "power_density": (("erg_s_cm3", "power_density_erg_s_cm3"), ("W_m3", "power_density_W_m3")),
 }
+
+
+def add_physical_columns(table, scale, kind_of=None) -> dict:
+    """Append the ``<column>_<unit>`` columns (cgs first, then SI) of every code column of
+    ``table`` that has a physical kind, multiplied by the :class:`PhysicalScale` factor.
+
+    ``kind_of(column)`` gives the column's key of :data:`PHYSICAL_COLUMNS` (or None for a
+    column without a unit: labels, counts, ratios); the default reads it from the column name
+    as the integrate table names its columns. The one conversion every command's CSV shares.
+    """
+    if scale is None:
+        return table
+    for column in list(table):
+        pairs = (_physical_units_of(column) if kind_of is None
+                 else PHYSICAL_COLUMNS.get(kind_of(column), ()))
+        for suffix, attribute in pairs:
+            factor = getattr(scale, attribute)
+            # "" stands for "no value" (a level without neighbours) and stays so
+            table[f"{column}_{suffix}"] = [v if isinstance(v, str) else v * factor
+                                           for v in table[column]]
+    return table
 
 
 def _physical_units_of(column):
@@ -73,12 +99,7 @@ def time_series_table(results, scale=None) -> dict:
     radii = list(results[0].luminosity) if results else []
     for radius in radii:
         table[_radius_name(radius)] = [r.luminosity[radius] for r in results]
-    if scale is not None:
-        for column in list(table):
-            for suffix, attribute in _physical_units_of(column):
-                factor = getattr(scale, attribute)
-                table[f"{column}_{suffix}"] = [v * factor for v in table[column]]
-    return table
+    return add_physical_columns(table, scale)
 
 
 def write_csv(path, table, *, force=False, inputs=()):

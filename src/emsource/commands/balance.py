@@ -2,10 +2,10 @@
 
 from __future__ import annotations
 
-import csv
 
 from .._arguments import DIFFERENCE_ORDERS
-from . import EXIT_BAD_INPUT, EXIT_CHECK_FAILED, EXIT_OK
+from . import EXIT_BAD_INPUT, EXIT_CHECK_FAILED, EXIT_OK, EXIT_USAGE
+from ._physical_scale import add_scale_options, chosen_scale
 from ._snapshot_options import check_new_output, fail, run_guarded, tolerance
 
 HELP = "energy and momentum conservation of a snapshot's time levels (local residual, global balance)"
@@ -42,8 +42,10 @@ def register(subparsers):
                         f"(default {DEFAULT_TOLERANCE:g})")
     p.add_argument("--residual-tolerance", type=tolerance, default=None,
                    help="also fail if a normalised l2 residual of a level exceeds this")
+    add_scale_options(p, "the times, energies, momenta and rates in cgs and SI")
     p.add_argument("--csv", metavar="FILE",
-                   help="write one row per level (time, box totals, outflow, residual norms)")
+                   help="write one row per level (time, box totals, outflow, residual norms; "
+                        "with a scale also <column>_<unit> columns in cgs and SI)")
     p.add_argument("--force", action="store_true", help="replace an existing CSV")
     p.add_argument("--quiet", action="store_true", help="no table, only the exit status")
     p.set_defaults(run=lambda args: run_guarded(_run, args))
@@ -53,16 +55,21 @@ def _run(args) -> int:
     from ..snapshot import open_snapshot
     from ..snapshot_balance import balance_open_snapshot
 
+    if args.mass is not None and args.code_scale is not None:
+        return fail(EXIT_USAGE, "give --mass or --code-scale, not both")  # before any work
     if args.csv:
         check_new_output(args.csv, args.force)
     with open_snapshot(args.snapshot, args.mapping) as snap:
         if args.csv:
             check_new_output(args.csv, args.force, snap.inputs)
+        scale, origin, error = chosen_scale(args, snap.units, snap.physical_scale)
+        if error:
+            return fail(EXIT_USAGE, error)
         result = balance_open_snapshot(snap, levels=args.levels, order=args.order)
         inputs = snap.inputs
     rows = _rows(result)
     if args.csv:
-        _write_csv(args.csv, rows, args.force, inputs)
+        _write_csv(args.csv, rows, scale, args.force, inputs)
     energy, momentum = result.balance.energy, result.balance.momentum
     worst = max([energy.relative_mismatch] + [float(m) for m in momentum.relative_mismatch])
     residual = [r["energy_norm_l2"] for r in rows if r["energy_norm_l2"] != ""]
@@ -76,7 +83,7 @@ def _run(args) -> int:
                            "time levels; none has a neighbour on both sides")
         closes = closes and worst_residual <= args.residual_tolerance
     if not args.quiet:
-        print(_summary(args, result, rows, worst, worst_residual, closes))
+        print(_summary(args, result, rows, worst, worst_residual, closes, scale, origin))
     return EXIT_OK if closes else EXIT_CHECK_FAILED
 
 
@@ -97,19 +104,21 @@ def _rows(result) -> list:
     return rows
 
 
-def _write_csv(path, rows, force, inputs):
-    from ..snapshot import atomic_output
-
-    with atomic_output(path, force=force, inputs=inputs) as temporary:
-        with open(temporary, "w", newline="") as handle:
-            writer = csv.writer(handle)
-            writer.writerow(list(rows[0]))
-            for row in rows:
-                writer.writerow([v if isinstance(v, str) else repr(float(v))
-                                 for v in row.values()])
+#: Balance CSV column -> its kind in :data:`emsource.time_series.PHYSICAL_COLUMNS` (the
+#: normalised residuals are ratios: no unit; energy_residual_l2 is an rms rate of energy density).
+_KINDS = {"t": "time", "energy": "energy", "momentum_x": "momentum_", "momentum_y": "momentum_",
+          "momentum_z": "momentum_", "energy_outflow_rate": "power",
+          "energy_source_rate": "power", "energy_residual_l2": "power_density"}
 
 
-def _summary(args, result, rows, worst, worst_residual, closes) -> str:
+def _write_csv(path, rows, scale, force, inputs):
+    from ..time_series import add_physical_columns, write_csv
+
+    table = {column: [row[column] for row in rows] for column in rows[0]}
+    write_csv(path, add_physical_columns(table, scale, _KINDS.get), force=force, inputs=inputs)
+
+
+def _summary(args, result, rows, worst, worst_residual, closes, scale=None, origin="") -> str:
     b = result.balance
     lines = [f"emsource balance: {args.snapshot}"
              + (f"  (mapping {args.mapping})" if args.mapping else "  (native layout)"),
@@ -137,6 +146,8 @@ def _summary(args, result, rows, worst, worst_residual, closes) -> str:
     for i, a in enumerate("xyz"):
         lines.append(f"    {'momentum ' + a:<10} {m.change[i]:13.6g} {m.outflow[i]:13.6g} "
                      f"{m.source[i]:13.6g} {m.mismatch[i]:13.4e} {m.relative_mismatch[i]:10.3e}")
+    if scale is not None:
+        lines.extend(_physical_lines(result, rows, scale, origin))
     verdict = "closes" if closes else "does NOT close"
     detail = f"largest relative mismatch {worst:.3e}, tolerance {args.tolerance:g}"
     if args.residual_tolerance is not None:
@@ -146,3 +157,33 @@ def _summary(args, result, rows, worst, worst_residual, closes) -> str:
     if args.csv:
         lines.append(f"  wrote        {args.csv}")
     return "\n".join(lines)
+
+
+def _physical_lines(result, rows, scale, origin) -> list:
+    """The summary's SI and cgs values: per level time, energy and outflow rate; the balance's
+    change, outflow, source and mismatch (factors of :class:`emsource.physical_units.PhysicalScale`,
+    the same as ``integrate`` reports with)."""
+    b = result.balance
+    lines = [f"  physical units ({origin}): M = {scale.mass_solar:.6g} M_sun, code length "
+             f"{scale.length_m:.6g} m, code time {scale.time_s:.6g} s"]
+    for system, energy, momentum, power in (
+            ("SI", ("J", scale.energy_J), ("kg m/s", scale.momentum_kg_m_s), ("W", scale.power_W)),
+            ("cgs", ("erg", scale.energy_erg), ("g cm/s", scale.momentum_g_cm_s),
+             ("erg/s", scale.power_erg_s))):
+        lines.append(f"  {system}: {'level':>6} {'t [s]':>13} {'energy [' + energy[0] + ']':>15} "
+                     f"{'outflow rate [' + power[0] + ']':>22}")
+        for row in rows:
+            lines.append(f"      {row['level']:>6} {row['t'] * scale.time_s:13.6g} "
+                         f"{row['energy'] * energy[1]:15.6g} "
+                         f"{row['energy_outflow_rate'] * power[1]:22.6g}")
+        e, m = b.energy, b.momentum
+        parts = [f"energy [{energy[0]}] change {e.change * energy[1]:.6g}, outflow "
+                 f"{e.outflow * energy[1]:.6g}, source {e.source * energy[1]:.6g}, mismatch "
+                 f"{e.mismatch * energy[1]:.4e}"]
+        for i, a in enumerate("xyz"):
+            parts.append(f"momentum {a} [{momentum[0]}] change {m.change[i] * momentum[1]:.6g}, "
+                         f"outflow {m.outflow[i] * momentum[1]:.6g}, source "
+                         f"{m.source[i] * momentum[1]:.6g}, mismatch "
+                         f"{m.mismatch[i] * momentum[1]:.4e}")
+        lines.extend(f"      {part}" for part in parts)
+    return lines

@@ -7,6 +7,7 @@ import math
 
 from . import EXIT_OK, EXIT_OUTPUT_ERROR, EXIT_USAGE
 from ._cluster_options import add_cluster_options, block_bytes
+from ._physical_scale import add_scale_options, chosen_scale
 from ._snapshot_options import (add_input_options, check_new_output, fail, positive_number,
                                run_guarded, show_progress, whole_number_at_least)
 
@@ -16,24 +17,6 @@ HELP = "integrate energy, momentum, face fluxes and sphere luminosities over a s
 def radius(text: str) -> float:
     """``--radius``: a positive finite number (anything else is a usage error, exit 2)."""
     return positive_number(text, "a sphere radius")
-
-
-class _CodeScale(argparse.Action):
-    """``--code-scale VALUE UNIT``: a positive number and a unit of :data:`SCALE_UNITS`
-    (anything else is a usage error, exit 2)."""
-
-    def __call__(self, parser, namespace, values, option_string=None):
-        from ..physical_units import SCALE_UNITS
-
-        text, unit = values
-        try:
-            value = positive_number(text, "the code scale")
-        except argparse.ArgumentTypeError as error:
-            parser.error(f"argument {option_string}: {error}")
-        if unit not in SCALE_UNITS:
-            parser.error(f"argument {option_string}: unit must be one of "
-                         f"{', '.join(SCALE_UNITS)}, found {unit!r}")
-        setattr(namespace, self.dest, (value, unit))
 
 
 def register(subparsers):
@@ -62,13 +45,7 @@ def register(subparsers):
     parser.add_argument("--interpolation-points", metavar="P", default=4,
                         type=whole_number_at_least(2, "interpolation points", even=True),
                         help="Lagrange points per axis (even; default 4, cubic)")
-    parser.add_argument("--mass", metavar="MSUN",
-                        type=lambda text: positive_number(text, "mass", " of solar masses"),
-                        help="mass scale in solar masses: also report cgs and SI values")
-    parser.add_argument("--code-scale", nargs=2, metavar=("VALUE", "UNIT"), action=_CodeScale,
-                        help="one code unit of length (m, cm), time (s) or mass (g, kg, "
-                             "solar_mass), e.g. '--code-scale 1 m': also report cgs and SI "
-                             "values (default: the mapping's [physical_units] code_scale)")
+    add_scale_options(parser)
     parser.add_argument("--csv", metavar="FILE", help="write the time series as CSV")
     parser.add_argument("--hdf5", metavar="FILE", help="write the time series as HDF5")
     parser.add_argument("--plot", metavar="PNG", help="plot energy and fluxes against time "
@@ -119,11 +96,10 @@ def _integrate_on_cluster(args):
 def _run(args, on_cluster=False) -> int:
     from ..integrals import integrate_open_snapshot
     from ..snapshot import open_snapshot
-    from ..physical_units import physical_scale, scale_of
     from ..time_series import time_series_table, write_csv, write_hdf5, write_plot
 
     if args.mass is not None and args.code_scale is not None:
-        return fail(EXIT_USAGE, "give --mass or --code-scale, not both")
+        return fail(EXIT_USAGE, "give --mass or --code-scale, not both")  # before any work
     outputs = [p for p in (args.csv, args.hdf5, args.plot) if p]
     if len(set(outputs)) != len(outputs):
         return fail(EXIT_OUTPUT_ERROR, "--csv, --hdf5 and --plot must name different files")
@@ -149,19 +125,9 @@ def _run(args, on_cluster=False) -> int:
                 levels=args.levels, progress=show_progress(args))
             attributes = snap.provenance(chosen, READ, _options(args, results))
             mapping_scale = snap.physical_scale
-    if args.mass is not None:
-        scale, origin = physical_scale(args.mass, units), "--mass"
-    elif args.code_scale is not None:
-        scale, origin = scale_of(*args.code_scale, units), "--code-scale"
-    else:
-        scale, origin = mapping_scale, "the mapping's code_scale"
-    if scale is not None and mapping_scale is not None and not math.isclose(
-            scale.mass_solar, mapping_scale.mass_solar, rel_tol=1e-12):
-        # the stored physical values were converted with the mapping's scale: reporting them
-        # with another would give wrong physical numbers
-        return fail(EXIT_USAGE, f"{origin} gives M = {scale.mass_solar:.6g} M_sun, but the "
-                    f"mapping's code_scale is M = {mapping_scale.mass_solar:.6g} M_sun; leave "
-                    "the option out or make them agree")
+    scale, origin, error = chosen_scale(args, units, mapping_scale)
+    if error:
+        return fail(EXIT_USAGE, error)
     table = time_series_table(results, scale)
     attributes["mass_scale_solar"] = float(scale.mass_solar if scale is not None else 0.0)
     attributes["units"] = units

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 from . import EXIT_OK, EXIT_OUTPUT_ERROR, EXIT_USAGE
+from ._physical_scale import add_scale_options, chosen_scale
 from ._snapshot_options import (add_input_options, check_new_output, fail, positive_number,
                                run_guarded, show_progress, whole_number_at_least)
 
@@ -42,6 +43,7 @@ def register(subparsers):
                         help="fit the power at the radii by a polynomial of degree K in 1/r and "
                              "report its value at r -> infinity (default: min(2, radii - 1); "
                              "needs K + 1 radii)")
+    add_scale_options(parser, "times, radii, power and net flux in cgs and SI")
     parser.add_argument("--csv", metavar="FILE", help="write modes and power as CSV")
     parser.add_argument("--hdf5", metavar="FILE", help="write modes and power as HDF5")
     parser.add_argument("--plot", metavar="PNG", help="plot power and Phi2 modes against time "
@@ -73,10 +75,15 @@ def _run(args) -> int:
     elif order + 1 > distinct:
         return fail(EXIT_USAGE, f"--extrapolation-order {order} needs at least {order + 1} "
                                 f"distinct radii, found {distinct}")
+    if args.mass is not None and args.code_scale is not None:
+        return fail(EXIT_USAGE, "give --mass or --code-scale, not both")  # before any work
     outputs = [p for p in (args.csv, args.hdf5, args.plot) if p]
     if len(set(outputs)) != len(outputs):
         return fail(EXIT_OUTPUT_ERROR, "--csv, --hdf5 and --plot must name different files")
     with open_snapshot(args.snapshot, args.mapping) as snap:
+        scale, origin, error = chosen_scale(args, snap.units, snap.physical_scale)
+        if error:
+            return fail(EXIT_USAGE, error)
         for path in outputs:
             check_new_output(path, args.force, snap.inputs)
         if args.plot:
@@ -101,14 +108,15 @@ def _run(args) -> int:
     attributes.update(units=units, l_max=args.l_max, theta_points=args.theta_points,
                       interpolation_points=args.interpolation_points)
     if args.csv:
-        write_radiation_csv(args.csv, levels, order, force=args.force, inputs=inputs)
+        write_radiation_csv(args.csv, levels, order, force=args.force, inputs=inputs,
+                            scale=scale)
     if args.hdf5:
         write_radiation_hdf5(args.hdf5, levels, attributes, order, force=args.force,
                              inputs=inputs)
     if args.plot:
         write_radiation_plot(args.plot, levels, force=args.force, inputs=inputs)
     if not args.quiet:
-        print(summary(args, levels, order, units, outputs))
+        print(summary(args, levels, order, units, outputs, scale, origin))
     return EXIT_OK
 
 
@@ -116,7 +124,7 @@ def _complex(value) -> str:
     return f"{value.real:+.5e}{value.imag:+.5e}i"
 
 
-def summary(args, levels, order, units, outputs) -> str:
+def summary(args, levels, order, units, outputs, scale=None, origin="") -> str:
     lines = ["emsource radiation: done",
              f"  input        {args.snapshot}"
              + (f"  (mapping {args.mapping})" if args.mapping else "  (native layout)"),
@@ -133,6 +141,17 @@ def summary(args, levels, order, units, outputs) -> str:
         if order is not None:
             lines.append(f"    power extrapolated to r -> infinity (degree {order} in 1/r): "
                          f"{level.extrapolated_power(order):.6e}")
+        if scale is not None:
+            lines.append(f"    physical ({origin}): t = {level.time * scale.time_s:.6g} s")
+            lines.append(f"    {'r [m]':>11} {'power [W]':>13} {'net flux [W]':>13} "
+                         f"{'power [erg/s]':>13} {'net flux [erg/s]':>16}")
+            for s in level.spheres:
+                lines.append(f"    {s.radius * scale.length_m:11.5g} {s.power * scale.power_W:13.6e} "
+                             f"{s.net_flux * scale.power_W:13.6e} "
+                             f"{s.power * scale.power_erg_s:13.6e} "
+                             f"{s.net_flux * scale.power_erg_s:16.6e}")
+            if order is not None:
+                lines.append(f"    extrapolated power: {level.extrapolated_power(order) * scale.power_W:.6e} W")
         for s in level.spheres:
             lines.append(f"    Phi2 modes at r = {s.radius:g} (spin weight -1):")
             indices = s.mode_indices("phi2")
