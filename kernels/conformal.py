@@ -25,48 +25,53 @@ DECOMPOSITION_PHI = 2
 
 
 @point_function
-def conformal_rescale(decomposition, factor):
-    """The factor c with gamma_ij = tilde-gamma_ij / c: chi, W^2 or e^{-4 phi}.
+def conformal_rescale(decomposition, factor, one):
+    """The factor c with gamma_ij = tilde-gamma_ij / c: chi, W^2 or e^{-4 phi}, in the dtype of
+    ``one`` (the data's 1).
 
     NaN for chi or W not positive (phi may take any finite value)."""
+    zero = one - one
+    nan = zero / zero  # NaN in the data's dtype (error_model "numpy": no exception)
+    two = one + one
     if decomposition == DECOMPOSITION_PHI:
-        c = math.exp(-4.0 * factor)
+        c = math.exp(-(two + two) * factor)
     elif decomposition == DECOMPOSITION_W:
-        c = factor * factor if factor > 0 else math.nan
+        c = factor * factor if factor > zero else nan
     else:
-        c = factor if factor > 0 else math.nan
+        c = factor if factor > zero else nan
     return c
 
 
 @grid_kernel
-def physical_metric_grid(factor, tgamma, gidx, gamma, decomposition):
+def physical_metric_grid(factor, tgamma, gidx, gamma, decomposition, one):
     """Packed physical gamma_ij = tilde-gamma_ij / c over strided arrays (no checks)."""
     nx, ny, nz = factor.shape
     for column in prange(nx * ny):
         i = column // ny
         j = column - i * ny
         for k in range(nz):
-            ic = 1.0 / conformal_rescale(decomposition, factor[i, j, k])
+            ic = one / conformal_rescale(decomposition, factor[i, j, k], one)
             for c in range(6):
                 gamma[c, i, j, k] = tgamma[gidx[c], i, j, k] * ic
 
 
 @grid_kernel
 def conformal_sources_grid(factor, tgamma, gidx, E, B, rho, S_i, S, A, decomposition, form,
-                           coef, pivot_floor):
+                           coef, pivot_floor, one):
     """rho, S_i, S and A_ij = c (S_ij - gamma_ij S / 3) = c S_ij - tilde-gamma_ij S / 3 over
     strided (ncomp, nx, ny, nz) arrays; returns the count of bad points (conformal factor,
     metric not positive definite, non-finite input or output)."""
     nx, ny, nz = rho.shape
     bad = 0
-    third = 1.0 / 3.0
+    third = one / (one + one + one)
+    half = one / (one + one)
     for column in prange(nx * ny):
         i = column // ny
         j = column - i * ny
         count = 0
         for k in range(nz):
-            c = conformal_rescale(decomposition, factor[i, j, k])
-            ic = 1.0 / c
+            c = conformal_rescale(decomposition, factor[i, j, k], one)
+            ic = one / c
             txx = tgamma[gidx[0], i, j, k]
             txy = tgamma[gidx[1], i, j, k]
             txz = tgamma[gidx[2], i, j, k]
@@ -75,14 +80,14 @@ def conformal_sources_grid(factor, tgamma, gidx, E, B, rho, S_i, S, A, decomposi
             tzz = tgamma[gidx[5], i, j, k]
             gxx, gxy, gxz = txx * ic, txy * ic, txz * ic
             gyy, gyz, gzz = tyy * ic, tyz * ic, tzz * ic
-            d1, d2, d3, l21, l31, l32 = metric_factors(gxx, gxy, gxz, gyy, gyz, gzz, 1.0)
+            d1, d2, d3, l21, l31, l32 = metric_factors(gxx, gxy, gxz, gyy, gyz, gzz, one)
             sg = sqrt_determinant(d1, d2, d3)
             fields = fields_both_indices(form, gxx, gxy, gxz, gyy, gyz, gzz, d1, d2, d3,
                                          l21, l31, l32, E[0, i, j, k], E[1, i, j, k],
                                          E[2, i, j, k], B[0, i, j, k], B[1, i, j, k],
-                                         B[2, i, j, k], 1.0)
+                                         B[2, i, j, k], one)
             r, sx, sy, sz, sxx, sxy, sxz, syy, syz, szz, _e2 = projections(
-                gxx, gxy, gxz, gyy, gyz, gzz, sg, fields, coef, 0.5)
+                gxx, gxy, gxz, gyy, gyz, gzz, sg, fields, coef, half)
             rho[i, j, k] = r
             S[i, j, k] = r  # the electromagnetic stress-energy is traceless: S = rho
             S_i[0, i, j, k] = sx
@@ -97,7 +102,7 @@ def conformal_sources_grid(factor, tgamma, gidx, E, B, rho, S_i, S, A, decomposi
             A[5, i, j, k] = c * szz - trace * tzz
             floor = pivot_floor * (gxx + gyy + gzz)
             ok = ((d1 > floor) & (d2 > floor) & (d3 > floor)
-                  & is_finite(r * (1.0 + gxx + gyy + gzz) + c + sx))
+                  & is_finite(r * (one + gxx + gyy + gzz) + c + sx))
             count += 0 if ok else 1
         bad += count
     return bad

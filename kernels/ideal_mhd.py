@@ -26,19 +26,22 @@ VELOCITY_FOUR = 1
 
 
 @point_function
-def eulerian_velocity(kind, alpha, b1, b2, b3, gxx, gxy, gxz, gyy, gyz, gzz, w1, w2, w3):
+def eulerian_velocity(kind, alpha, b1, b2, b3, gxx, gxy, gxz, gyy, gyz, gzz, w1, w2, w3, one):
     """(v^i, v_i, W) from the stored velocity ``w`` of kind ``kind`` (NaN W where undefined:
-    v_i v^i >= 1, or |beta|_gamma >= alpha for VELOCITY_FOUR)."""
+    v_i v^i >= 1, or |beta|_gamma >= alpha for VELOCITY_FOUR), in the dtype of ``one``."""
+    zero = one - one
+    nan = zero / zero  # NaN in the data's dtype (error_model "numpy": no exception)
+    two = one + one
     if kind == VELOCITY_FOUR:
-        ia = 1.0 / alpha
+        ia = one / alpha
         c1, c2, c3 = b1 * ia, b2 * ia, b3 * ia
         cl1, cl2, cl3 = contract_index(gxx, gxy, gxz, gyy, gyz, gzz, c1, c2, c3)
         ul1, ul2, ul3 = contract_index(gxx, gxy, gxz, gyy, gyz, gzz, w1, w2, w3)
-        a = 1.0 - (c1 * cl1 + c2 * cl2 + c3 * cl3)
-        c = 1.0 + (w1 * ul1 + w2 * ul2 + w3 * ul3)
-        q = -2.0 * (ul1 * c1 + ul2 * c2 + ul3 * c3)
-        root = math.sqrt(q * q + 4.0 * a * c)
-        lorentz = 2.0 * c / (q + root) if a > 0 else math.nan
+        a = one - (c1 * cl1 + c2 * cl2 + c3 * cl3)
+        c = one + (w1 * ul1 + w2 * ul2 + w3 * ul3)
+        q = -two * (ul1 * c1 + ul2 * c2 + ul3 * c3)
+        root = math.sqrt(q * q + two * two * a * c)
+        lorentz = two * c / (q + root) if a > zero else nan
         v1 = w1 / lorentz + c1
         v2 = w2 / lorentz + c2
         v3 = w3 / lorentz + c3
@@ -47,16 +50,17 @@ def eulerian_velocity(kind, alpha, b1, b2, b3, gxx, gxy, gxz, gyy, gyz, gzz, w1,
         v1, v2, v3 = w1, w2, w3
         vl1, vl2, vl3 = contract_index(gxx, gxy, gxz, gyy, gyz, gzz, w1, w2, w3)
         speed2 = v1 * vl1 + v2 * vl2 + v3 * vl3
-        lorentz = 1.0 / math.sqrt(1.0 - speed2) if speed2 < 1.0 else math.nan
+        lorentz = one / math.sqrt(one - speed2) if speed2 < one else nan
     return v1, v2, v3, vl1, vl2, vl3, lorentz
 
 
 @grid_kernel
-def ideal_mhd_grid(alpha, beta, gamma, gidx, B, V, E, U, b, form, kind, pivot_floor):
+def ideal_mhd_grid(alpha, beta, gamma, gidx, B, V, E, U, b, form, kind, pivot_floor, one):
     """E^i (3), u^a (4) and b^a (4) over strided (ncomp, nx, ny, nz) arrays; returns the count
     of bad points (metric, lapse, non-finite input or output, velocity not below light)."""
     nx, ny, nz = alpha.shape
     bad = 0
+    zero = one - one
     for column in prange(nx * ny):
         i = column // ny
         j = column - i * ny
@@ -68,24 +72,24 @@ def ideal_mhd_grid(alpha, beta, gamma, gidx, B, V, E, U, b, form, kind, pivot_fl
             gyy = gamma[gidx[3], i, j, k]
             gyz = gamma[gidx[4], i, j, k]
             gzz = gamma[gidx[5], i, j, k]
-            d1, d2, d3, l21, l31, l32 = metric_factors(gxx, gxy, gxz, gyy, gyz, gzz, 1.0)
+            d1, d2, d3, l21, l31, l32 = metric_factors(gxx, gxy, gxz, gyy, gyz, gzz, one)
             sg = sqrt_determinant(d1, d2, d3)
             (_ex, _ey, _ez, _exl, _eyl, _ezl, bx, by, bz, bxl, byl, bzl) = fields_both_indices(
-                form, gxx, gxy, gxz, gyy, gyz, gzz, d1, d2, d3, l21, l31, l32, 0.0, 0.0, 0.0,
-                B[0, i, j, k], B[1, i, j, k], B[2, i, j, k], 1.0)
+                form, gxx, gxy, gxz, gyy, gyz, gzz, d1, d2, d3, l21, l31, l32, zero, zero, zero,
+                B[0, i, j, k], B[1, i, j, k], B[2, i, j, k], one)
             a = alpha[i, j, k]
             s1 = beta[0, i, j, k]
             s2 = beta[1, i, j, k]
             s3 = beta[2, i, j, k]
             v1, v2, v3, vl1, vl2, vl3, lorentz = eulerian_velocity(
                 kind, a, s1, s2, s3, gxx, gxy, gxz, gyy, gyz, gzz,
-                V[0, i, j, k], V[1, i, j, k], V[2, i, j, k])
+                V[0, i, j, k], V[1, i, j, k], V[2, i, j, k], one)
             # E^i = -epsilon^ijk v_j B_k = -[ijk] v_j B_k / sg
-            isg = 1.0 / sg
+            isg = one / sg
             E[0, i, j, k] = -(vl2 * bzl - vl3 * byl) * isg
             E[1, i, j, k] = -(vl3 * bxl - vl1 * bzl) * isg
             E[2, i, j, k] = -(vl1 * byl - vl2 * bxl) * isg
-            ia = 1.0 / a
+            ia = one / a
             ut = lorentz * ia
             u1 = lorentz * (v1 - s1 * ia)
             u2 = lorentz * (v2 - s2 * ia)
@@ -96,13 +100,13 @@ def ideal_mhd_grid(alpha, beta, gamma, gidx, B, V, E, U, b, form, kind, pivot_fl
             U[3, i, j, k] = u3
             # b^a = B^a / W + (B_i v^i) u^a
             bv = bxl * v1 + byl * v2 + bzl * v3
-            il = 1.0 / lorentz
+            il = one / lorentz
             b[0, i, j, k] = bv * ut
             b[1, i, j, k] = bx * il + bv * u1
             b[2, i, j, k] = by * il + bv * u2
             b[3, i, j, k] = bz * il + bv * u3
             floor = pivot_floor * (gxx + gyy + gzz)
-            ok = ((d1 > floor) & (d2 > floor) & (d3 > floor) & (a > 0)
+            ok = ((d1 > floor) & (d2 > floor) & (d3 > floor) & (a > zero)
                   & is_finite(bv * ut + u1 + u2 + u3 + E[0, i, j, k] + E[1, i, j, k]
                               + E[2, i, j, k] + bx + by + bz))
             count += 0 if ok else 1

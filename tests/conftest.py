@@ -56,3 +56,21 @@ def assert_same_arithmetic(a, b):
     """
     scale = np.max(np.abs(b)) if np.size(b) else 0.0
     np.testing.assert_allclose(a, b, rtol=0, atol=16 * np.finfo(b.dtype).eps * scale)
+
+
+def assert_computed_in_float32(pairs, roundings=200):
+    """``pairs`` of (float32 result, float64 result of the same float32-rounded input): every
+    float32 result within ``roundings`` eps32 of its float64 result's largest value, and float32
+    arithmetic visible somewhere, a difference beyond the half unit in the last place that
+    float64 arithmetic rounded once to float32 cannot exceed (DEVELOPERS.md "Adding a kernel"
+    item 2: constants in the data's dtype, or a float64 literal promotes the whole kernel)."""
+    eps = np.finfo(np.float32).eps
+    beyond_half_ulp = False
+    for single, double in pairs:
+        assert single.dtype == np.float32
+        np.testing.assert_allclose(single, double, rtol=0,
+                                   atol=roundings * eps * np.abs(double).max())
+        finite = np.isfinite(single) & (single != 0)
+        ulps = np.abs(single - double)[finite] / np.spacing(np.abs(single[finite]))
+        beyond_half_ulp |= bool(ulps.size and ulps.max() > 0.5)
+    assert beyond_half_ulp, "float32 input was computed in float64"

@@ -121,7 +121,8 @@ def physical_metric(conformal_factor, gamma_tilde, *, decomposition):
     if arg.has_points(f.shape):
         views = padded([f, metric, out], f.shape)
         with kernel_call():
-            kernels.physical_metric_grid(views[0], views[1], gidx, views[2], code)
+            kernels.physical_metric_grid(views[0], views[1], gidx, views[2], code,
+                                         dtype.type(1))
     return out
 
 
@@ -181,8 +182,9 @@ def conformal_sources(conformal_factor, gamma_tilde, E, B, *, decomposition, uni
     views = padded([f, metric, e, b, *result], grid)
     with kernel_call():
         count = kernels.conformal_sources_grid(views[0], views[1], gidx, *views[2:], code,
-                                               form.code, float(prefactor),
-                                               float(arg.pivot_floor(dtype)))
+                                               form.code, dtype.type(prefactor),
+                                               dtype.type(arg.pivot_floor(dtype)),
+                                               dtype.type(1))
     if check and count:
         physical = physical_metric(conformal_factor, gamma_tilde, decomposition=decomposition)
         positive = f if decomposition != "phi" else np.exp(-4.0 * f.astype(float))

@@ -150,7 +150,7 @@ def ideal_mhd_fields(alpha, beta, gamma, B, velocity, *, velocity_kind="eulerian
     with kernel_call():
         count = kernels.ideal_mhd_grid(*views[:3], gidx, *views[3:], form.code,
                                        VELOCITY_KINDS[velocity_kind],
-                                       float(arg.pivot_floor(dtype)))
+                                       dtype.type(arg.pivot_floor(dtype)), dtype.type(1))
     if check and count:
         named = {"alpha": lapse, "beta": shift, "B": b_in, "velocity": v_in}
         arg.check_points(function, grid, named, lapse="alpha", metric=("gamma", metric, gidx))
