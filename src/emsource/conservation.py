@@ -66,7 +66,7 @@ from .kernels.stencils import first_derivative_weights, stencil_radius
 from .reductions import (BalancePartial, BalanceTerms, GlobalBalance, NormPartial, ResidualNorms,
                          Sum, combine_all)
 from .patches import (PatchGrid, embedded, global_partial, local_arrays, patch_of, relocated,
-                      require_patch, without_interior)
+                      require_patch, stencil_partial, without_interior)
 from .sources import GridPointError
 from .unit_systems import check_unit_system, stress_energy_prefactor
 
@@ -535,33 +535,19 @@ def _patch_residual(patch, comm, valid_ghosts, order, arrays, levels, options):
     that, the inputs are first copied without the extra layers.
     """
     function = "conservation_residual"
-    local = {}
 
-    def compute():
-        grid = require_patch(function, patch)
-        arg.choice(function, "order", order, arg.DIFFERENCE_ORDERS)
-        radius = stencil_radius(order)
-        grid.require_ghosts(function, valid_ghosts, radius,
-                            f"order {order} (stencil radius {radius})")
-        extent = grid.valid_extent(radius)
+    def prepare(grid, extent):
         inputs = local_arrays(function, grid, extent, arrays)
         for which, level in levels.items():
             if level is not None:
                 named = local_arrays(function, grid, extent,
                                      {f"{which}.{q}": _field(level, q) for q in ("gamma", "E", "B")})
                 inputs[which] = {q: named[f"{which}.{q}"] for q in ("gamma", "E", "B")}
-        if without_interior(grid, extent, radius):  # owns boundary-layer points only
-            local.update(r=None, extent=extent, grid=grid)
-            return NormPartial.empty(4)
-        try:
-            r = conservation_residual(**inputs, **options, order=order)
-        except GridPointError as error:
-            raise relocated(error, grid, extent) from None
-        local.update(r=r, extent=extent, grid=grid)
-        return r.norm_partial
+        return inputs
 
-    partial = global_partial(function, comm, patch, compute)
-    r, extent, grid = local["r"], local["extent"], local["grid"]
+    partial, r, extent, grid = stencil_partial(
+        function, comm, patch, valid_ghosts, order, prepare,
+        lambda inputs: conservation_residual(**inputs, **options, order=order))
     energy_norms, momentum_norms = _split_norms(partial)
     if r is None:
         dtype = arrays["E"].dtype

@@ -26,9 +26,7 @@ from ._deprecated_names import renamed_attribute, renamed_function, renamed_keyw
 from ._threading import kernel_call
 from .kernels.constraints import adm_constraints_grid
 from .kernels.stencils import first_derivative_weights, second_derivative_weights, stencil_radius
-from .errors import GridPointError
-from .patches import (embedded, global_partial, local_arrays, patch_of, relocated,
-                      require_patch, without_interior)
+from .patches import embedded, local_arrays, patch_of, stencil_partial
 from .reductions import NormPartial, ResidualNorms
 from .sources import adm_sources
 from .unit_systems import check_unit_system
@@ -279,28 +277,10 @@ def _patch_constraints(patch, comm, valid_ghosts, order, arrays, options):
     are exactly the owned part of the whole grid's interior points.
     """
     function = "adm_constraints"
-    local = {}
-
-    def compute():
-        grid = require_patch(function, patch)
-        args.choice(function, "order", order, args.DIFFERENCE_ORDERS)
-        radius = stencil_radius(order)
-        grid.require_ghosts(function, valid_ghosts, radius,
-                            f"order {order} (stencil radius {radius})")
-        extent = grid.valid_extent(radius)
-        inputs = local_arrays(function, grid, extent, arrays)
-        if without_interior(grid, extent, radius):  # owns boundary-layer points only
-            local.update(r=None, extent=extent, grid=grid)
-            return NormPartial.empty(4)
-        try:
-            r = adm_constraints(**inputs, **options, order=order)
-        except GridPointError as error:
-            raise relocated(error, grid, extent) from None
-        local.update(r=r, extent=extent, grid=grid)
-        return r.norm_partial
-
-    partial = global_partial(function, comm, patch, compute)
-    r, extent, grid = local["r"], local["extent"], local["grid"]
+    partial, r, extent, grid = stencil_partial(
+        function, comm, patch, valid_ghosts, order,
+        lambda grid, extent: local_arrays(function, grid, extent, arrays),
+        lambda inputs: adm_constraints(**inputs, **options, order=order))
     if r is None:
         nan = np.full((4,) + grid.shape, np.nan)
         return ConstraintResiduals(

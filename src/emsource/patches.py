@@ -43,7 +43,11 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from ._arguments import DIFFERENCE_ORDERS, choice
+from .errors import GridPointError
 from .grid import UniformGrid
+from .kernels.stencils import stencil_radius
+from .reductions import NormPartial
 
 __all__ = ["PatchGrid", "PatchError", "decompose", "process_grid", "global_partial",
            "check_patches", "patch_of", "require_patch", "local_arrays", "relocated", "embedded",
@@ -426,6 +430,44 @@ def global_partial(function: str, comm, patch, compute):
     if total.failures:
         raise PatchError(function, total.failures, rank, size) from local_error
     return total.partial
+
+
+def stencil_partial(function: str, comm, patch, valid_ghosts, order, prepare, evaluate):
+    """A stencil quantity (residual, constraint) on a rank's patch, with the norms' partial of
+    the whole grid on every rank.
+
+    The stencil runs on the owned box plus ``order / 2`` ghost layers (no more): the interior
+    of that extent is then exactly the owned part of the whole grid's interior, so the local
+    result's own ``norm_partial`` is this rank's partial. ``prepare(grid, extent)`` returns the
+    inputs restricted to the extent (:func:`local_arrays`); ``evaluate(inputs)`` computes the
+    local result (with a ``norm_partial``). A patch that owns only boundary-layer points
+    evaluates nothing and contributes an empty partial.
+
+    Returns
+    -------
+    (partial, local result or None, extent, grid)
+    """
+    local = {}
+
+    def compute():
+        grid = require_patch(function, patch)
+        choice(function, "order", order, DIFFERENCE_ORDERS)
+        radius = stencil_radius(order)
+        grid.require_ghosts(function, valid_ghosts, radius,
+                            f"order {order} (stencil radius {radius})")
+        extent = grid.valid_extent(radius)
+        local.update(result=None, extent=extent, grid=grid)
+        inputs = prepare(grid, extent)
+        if without_interior(grid, extent, radius):  # owns boundary-layer points only
+            return NormPartial.empty(4)
+        try:
+            local["result"] = evaluate(inputs)
+        except GridPointError as error:
+            raise relocated(error, grid, extent) from None
+        return local["result"].norm_partial
+
+    partial = global_partial(function, comm, patch, compute)
+    return partial, local["result"], local["extent"], local["grid"]
 
 
 def check_patches(function: str, comm, patch) -> None:
