@@ -24,15 +24,69 @@ import time
 
 import numba
 import numpy as np
+from numba import prange
 
 from emsource.conservation import conservation_residual, new_work_array
 from emsource.kernels import conservation as kernels
 from emsource.kernels._compile import grid_kernel
-from emsource.kernels.stencils import first_derivative_weights
+from emsource.kernels.stencils import d1_column, first_derivative_weights
 
 # Pass 1 reads alpha, beta 3, gamma 6, E 3, B 3, dt_gamma 6, dt_E 3, dt_B 3 and writes 16;
 # pass 2 reads alpha, beta 3, gamma 6, K 6, E 3, B 3, rho_e, j 3, work 16 and writes 8.
-ARRAYS_MOVED = (28 + 16) + (42 + 8)
+PASS1_ARRAYS = 28 + 16
+PASS2_ARRAYS = 42 + 8
+ARRAYS_MOVED = PASS1_ARRAYS + PASS2_ARRAYS
+
+
+@grid_kernel
+def _pass1_traffic(inputs, work):
+    """Pass 1's traffic without its physics: 28 rows read, 16 written, per grid point.
+
+    ``inputs`` (28, npoints), ``work`` (16, npoints): work[c] = sum of inputs[c] and
+    inputs[c + 12 if c < 16] (every input read once), the same flat (ncomp, npoints) shape.
+    """
+    for n in prange(work.shape[1]):
+        total = inputs[16, n] + inputs[17, n] + inputs[18, n] + inputs[19, n] + inputs[20, n] \
+            + inputs[21, n] + inputs[22, n] + inputs[23, n] + inputs[24, n] + inputs[25, n] \
+            + inputs[26, n] + inputs[27, n]
+        for c in range(16):
+            work[c, n] = inputs[c, n] + total
+
+
+@grid_kernel
+def _pass2_traffic(fields, points, weights, inv_h, out):
+    """Pass 2's traffic without its physics: the same 42 first derivatives of ``fields``
+    (26, nx, ny, nz; 14 differentiated along each axis) by :func:`d1_column` into the same
+    (81, 128) strip buffer, 16 more point values read from ``points`` (16, nx, ny, nz), and 8
+    outputs (8, nx, ny, nz) written as sums of buffer rows, on the interior points (radius 2).
+    """
+    u = np.uint64
+    nx = fields.shape[1]
+    ny = fields.shape[2]
+    nz = fields.shape[3]
+    for column in prange(nx * ny):
+        i = column // ny
+        j = column - i * ny
+        if (i < 2) | (i >= nx - 2) | (j < 2) | (j >= ny - 2):
+            continue
+        buf = np.empty((81, 128), dtype=fields.dtype)
+        for start in range(2, nz - 2, 128):
+            count = min(128, nz - 2 - start)
+            for q in range(3):
+                for c in range(14):
+                    d1_column(fields, c + 4 * q, i, j, start, count, q, 2, weights, inv_h, buf,
+                              14 * q + c)
+            for c in range(16):
+                for n in range(count):
+                    buf[42 + c, n] = points[c, i, j, u(start) + u(n)]
+            for n in range(count):
+                s = buf[0, n]
+                for r in range(1, 58):
+                    s += buf[r, n]
+                buf[69, n] = s
+            for c in range(8):
+                for n in range(count):
+                    out[c, i, j, u(start) + u(n)] = buf[69, n] + c
 
 
 @grid_kernel
@@ -179,6 +233,40 @@ def main(argv=None):
                           v["charge_density"], v["current_density"], work, weights,
                           1 / h, 1 / h, 1 / h, 2, 2, 2, coef, 0.5, residual, scale, residual, False,
                           partials)
+
+    def pass1():
+        kernels.fluxes_and_rates(v["alpha"], v["beta"], v["gamma"], gidx, v["E"], v["B"], 2,
+                                 v["dt_gamma"], gidx, v["dt_E"], v["dt_B"],
+                                 v["gamma"], gidx, v["E"], v["B"], 0.0, coef, 0.5, work)
+
+    def pass2():
+        kernels.residuals(v["alpha"], v["beta"], v["gamma"], gidx, v["K"], gidx, v["E"], v["B"],
+                          v["charge_density"], v["current_density"], work, weights,
+                          1 / h, 1 / h, 1 / h, 2, 2, 2, coef, 0.5, residual, scale, residual, False,
+                          partials)
+
+    # Same-traffic probes (no physics), each timed next to the pass it mirrors.
+    flat_in = np.random.default_rng(1).random((PASS1_ARRAYS - 16, points))
+    flat_in = np.concatenate([flat_in, flat_in[:16]])  # (28, npoints)
+    flat_work = np.empty((16, points))
+    fields = np.random.default_rng(2).random((26, n, n, n))
+    point_rows = np.random.default_rng(3).random((16, n, n, n))
+    probe_out = np.empty((8, n, n, n))
+    probes = {
+        "pass 1 (fluxes and rates)": (pass1, lambda: _pass1_traffic(flat_in, flat_work),
+                                      PASS1_ARRAYS),
+        "pass 2 (residuals)": (pass2, lambda: _pass2_traffic(fields, point_rows, weights, 1 / h,
+                                                             probe_out), PASS2_ARRAYS),
+    }
+    print("\n(b0) each pass, and a kernel with the same traffic and no physics (arrays counted once)")
+    for name, (real, probe, arrays) in probes.items():
+        t_real = median_seconds(real, args.repeat)
+        t_probe = median_seconds(probe, args.repeat)
+        t_triad = 3 * 8 * 2**25 / triad_bandwidth(3)
+        share = lambda t: 100 * arrays * 8 * points / t / (3 * 8 * 2**25 / t_triad)  # noqa: E731
+        print(f"    {name:28s} {t_real * 1e3:7.1f} ms  {share(t_real):4.0f}% of triad;  "
+              f"same traffic, no physics {t_probe * 1e3:7.1f} ms  {share(t_probe):4.0f}%;  "
+              f"pass / probe time {t_real / t_probe:4.2f}")
 
     kernel_seconds = median_seconds(two_passes, args.repeat)
     kernel_rate = points / kernel_seconds
