@@ -232,22 +232,6 @@ def adm_sources_flat(gamma, gidx, E, B, rho, S_i, S_ij, S, form, coef, half, tin
     return bad_count, underflow_count
 
 
-@search_kernel
-def adm_sources_flat_serial(gamma, gidx, E, B, rho, S_i, S_ij, S, form, coef, half, tiny,
-                            pivot_floor, check):
-    """:func:`adm_sources_flat` on the calling thread alone, for grids so small that waking
-    the worker threads costs more than the points (``emsource.sources.SERIAL_POINTS``)."""
-    bad_count = 0
-    underflow_count = 0
-    for n in range(rho.shape[0]):
-        status = _adm_point(n, gamma, gidx, E, B, rho, S_i, S_ij, S, form, coef, half, tiny,
-                            pivot_floor)
-        if check:
-            bad_count += status & 1
-            underflow_count += status >> 1
-    return bad_count, underflow_count
-
-
 @grid_kernel
 def adm_sources_grid(gamma, gidx, E, B, rho, S_i, S_ij, S, form, coef, half, tiny, pivot_floor,
                      check):

@@ -74,13 +74,3 @@ def assert_computed_in_float32(pairs, roundings=200):
         ulps = np.abs(single - double)[finite] / np.spacing(np.abs(single[finite]))
         beyond_half_ulp |= bool(ulps.size and ulps.max() > 0.5)
     assert beyond_half_ulp, "float32 input was computed in float64"
-
-
-@pytest.fixture(autouse=True)
-def parallel_drivers_everywhere(monkeypatch):
-    """Small grids would take the serial driver of adm_sources (emsource.sources.SERIAL_POINTS);
-    the tests' grids are small, so they are sent through the parallel drivers that production
-    grids use. tests/test_serial_driver.py checks the serial driver against them."""
-    import emsource.sources
-
-    monkeypatch.setattr(emsource.sources, "SERIAL_POINTS", 0)

@@ -162,14 +162,6 @@ def spacetime_inputs(function, alpha, beta, gamma, E, B, units, field_index, lay
     return grid, lapse, shift, metric, gidx, e, b, prefactor, form, dtype
 
 
-#: Contiguous grids of fewer points than this go through the serial flat driver: below it,
-#: waking Numba's worker threads costs more than the points (8^3 float64 with out=: parallel
-#: driver alone ~4 us on the quiet machine, serial ~2 us; see benchmarks/bench_sources.py).
-#: The tests set it to 0 (tests/conftest.py) so that they exercise the parallel drivers, and
-#: check the serial one against them (tests/test_serial_driver.py).
-SERIAL_POINTS = 4096
-
-
 def adm_sources(gamma, E, B, *, units="gaussian", field_index="upper",
                 layout="component_first", check=True, out=None) -> AdmSources:
     r"""Energy density, momentum density, stress and its trace of the electromagnetic field.
@@ -267,12 +259,7 @@ def adm_sources(gamma, E, B, *, units="gaussian", field_index="upper",
     if not arg.has_points(grid):
         return result
     (g, ev, bv, rho, s_i, s_ij, s), flat = arg.kernel_views([metric, e, b] + views, grid)
-    if not flat:
-        driver = kernels.adm_sources_grid
-    elif rho.shape[0] < SERIAL_POINTS:
-        driver = kernels.adm_sources_flat_serial
-    else:
-        driver = kernels.adm_sources_flat
+    driver = kernels.adm_sources_flat if flat else kernels.adm_sources_grid
     constants = arg.kernel_constants(form, dtype, prefactor)
     with kernel_call():
         counts = driver(g, gidx, ev, bv, rho, s_i, s_ij, s, *constants, bool(check))

@@ -59,12 +59,6 @@ def common_signatures():
             calls.append((f"T_ab, {name}, {layout}",
                           lambda al=al, be=be, ga=ga, e=e, b=b:
                           emsource.stress_energy_4d(al, be, ga, e, b)))
-        # 6^3 is below emsource.sources.SERIAL_POINTS: the contiguous call in the loop above
-        # compiled the serial flat driver; a grid above it compiles the parallel one.
-        side = round(emsource.sources.SERIAL_POINTS ** (1 / 3)) + 1
-        _, _, ga, e, b = _flat_space((side,) * 3, dtype)
-        calls.append((f"sources, {name}, contiguous, {side}^3 (parallel)",
-                      lambda ga=ga, e=e, b=b: emsource.adm_sources(ga, e, b)))
         calls.append((f"energy fluxes, {name}",
                       lambda al=alpha, be=beta, ga=gamma, e=E, b=B: energy_fluxes(al, be, ga, e, b)))
     return calls
