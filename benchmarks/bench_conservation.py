@@ -8,6 +8,11 @@ In one run and on the same Numba threads it measures
       (default 128^3, float64), with supplied time derivatives and every metric term switched
       on: the two kernel passes alone (preallocated work and outputs), and the public call
       ``conservation_residual`` (which allocates its outputs and computes the norms);
+  (b0) each of the two passes alone, each next to a kernel with the same memory traffic and no
+      physics (pass 1: 28 rows read, 16 written, flat; pass 2: the same 42 first derivatives
+      through ``d1_column`` into the same strip buffer, 16 more rows read, 8 written), so that
+      the share of the triad each pass loses to its access pattern and to its arithmetic can
+      be read apart;
   (c) a plain-NumPy implementation of the same residual (slicing for the differences, whole-
       grid temporaries), written here, and the speed-up of (b) over it.
 It prints medians: points per second, the effective bandwidth counting each array the two
