@@ -1,0 +1,108 @@
+"""Floating-point operations per interior point of the constraint kernel, counted as written.
+
+Run:  python benchmarks/constraint_flops.py
+
+Runs the Python source of ``kernels.constraints.adm_constraints_grid`` (and of every point
+function it calls) on one interior point of a small grid whose values are a float subclass
+that counts +, -, *, / and sqrt. Loop bookkeeping, comparisons, abs and max are not counted; a
+multiply-add counts 2, as in a peak figure of 2 flops per FMA lane. The compiled kernel may
+do fewer (LLVM removes common subexpressions and additions of 0.0), so the rate derived from
+this count is an upper estimate of the work done. Divide by the measured seconds per point of
+``bench_constraints.py`` for the GFLOP/s.
+"""
+
+import math
+import types
+from collections import Counter
+
+import numpy as np
+
+from emsource.constraints import _SYM
+from emsource.kernels import constraints as kernel_module
+from emsource.kernels.stencils import first_derivative_weights, second_derivative_weights
+
+COUNTS = Counter()
+
+
+class CountingFloat(float):
+    """A float whose arithmetic is tallied in COUNTS."""
+
+
+def _counted(op):
+    def method(self, other):
+        COUNTS[op] += 1
+        return CountingFloat(getattr(float, f"__{op}__")(self, other))
+    return method
+
+
+for _op in ("add", "sub", "mul", "truediv", "radd", "rsub", "rmul", "rtruediv"):
+    setattr(CountingFloat, f"__{_op}__", _counted(_op))
+CountingFloat.__neg__ = lambda self: CountingFloat(-float(self))
+CountingFloat.__abs__ = lambda self: CountingFloat(abs(float(self)))
+
+
+def _sqrt(x):
+    COUNTS["sqrt"] += 1
+    return CountingFloat(math.sqrt(x))
+
+
+def interpreted(dispatcher, seen):
+    """The Python function behind a Numba dispatcher, with every dispatcher it calls replaced
+    likewise, np.empty giving object arrays (so that counting floats survive) and prange
+    as range."""
+    function = getattr(dispatcher, "py_func", dispatcher)
+    if not isinstance(function, types.FunctionType):
+        return dispatcher
+    if function in seen:
+        return seen[function]
+    namespace = dict(function.__globals__)
+    copy = types.FunctionType(function.__code__, namespace, function.__name__,
+                              function.__defaults__, function.__closure__)
+    seen[function] = copy
+    for name, value in list(namespace.items()):
+        if hasattr(value, "py_func"):
+            namespace[name] = interpreted(value, seen)
+    fake_np = types.SimpleNamespace(**{k: getattr(np, k) for k in dir(np) if not k.startswith("__")})
+    fake_np.empty = lambda shape, dtype=None: np.empty(shape, dtype=object)
+    fake_math = types.SimpleNamespace(**{k: getattr(math, k) for k in dir(math)
+                                         if not k.startswith("__")})
+    fake_math.sqrt = _sqrt
+    namespace.update(np=fake_np, prange=range, math=fake_math)
+    if "sqrt" in namespace:
+        namespace["sqrt"] = _sqrt
+    return copy
+
+
+def counting_array(shape, rng, scale, offset=None):
+    values = rng.uniform(-scale, scale, shape) + (0.0 if offset is None else offset)
+    array = np.empty(shape, dtype=object)
+    for index in np.ndindex(shape):
+        array[index] = CountingFloat(values[index])
+    return array
+
+
+def flops_per_point(order):
+    radius = order // 2
+    n = 2 * radius + 1  # one interior point in the middle
+    rng = np.random.default_rng(1)
+    identity = np.array([1, 0, 0, 1, 0, 1.0])[:, None, None, None]
+    gamma = counting_array((6, n, n, n), rng, 0.05, identity)
+    K = counting_array((6, n, n, n), rng, 0.1)
+    rho = counting_array((n, n, n), rng, 0.1)
+    S = counting_array((3, n, n, n), rng, 0.1)
+    interior = np.zeros((n, n, n), np.uint8)
+    interior[radius, radius, radius] = 1
+    as_counting = lambda w: np.array([CountingFloat(x) for x in w], dtype=object)  # noqa: E731
+    outputs = [np.empty(s, dtype=object) for s in ((n, n, n), (3, n, n, n), (n, n, n), (3, n, n, n))]
+    kernel = interpreted(kernel_module.adm_constraints_grid, {})
+    COUNTS.clear()
+    kernel(gamma, K, rho, S, interior, as_counting(first_derivative_weights(order)),
+           as_counting(second_derivative_weights(order)), as_counting([1.0] * 3), _SYM,
+           CountingFloat(16 * math.pi), CountingFloat(8 * math.pi), *outputs)
+    return sum(COUNTS.values()), dict(COUNTS)
+
+
+if __name__ == "__main__":
+    for order in (2, 4, 6):
+        total, detail = flops_per_point(order)
+        print(f"order {order}: {total} floating-point operations per interior point ({detail})")
