@@ -4,6 +4,7 @@ import errno
 import os
 import signal
 import subprocess
+import sys
 import time
 
 import numpy as np
@@ -275,3 +276,14 @@ def test_a_stop_request_right_after_the_partial_file_is_created_removes_it(tmp_p
             pass
     monkeypatch.undo()
     assert os.listdir(tmp_path) == []
+
+
+def test_the_command_line_module_loads_nothing_heavy_before_the_handlers():
+    """``emsource.cli`` installs the stop-request handlers before NumPy, numba and h5py are
+    loaded (about a second, during which a Ctrl-C must already end the command cleanly): importing
+    the module itself must not load them (a module-level import of the compile notice once did)."""
+    code = ("import sys, emsource.cli; "
+            "print(sorted(m for m in ('numpy', 'numba', 'h5py') if m in sys.modules))")
+    found = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
+                           check=True).stdout.strip()
+    assert found == "[]"

@@ -17,7 +17,6 @@ import signal
 import sys
 
 from . import __version__, commands, interruption
-from .commands._compile_notice import compile_notice
 
 __all__ = ["main", "build_parser"]
 
@@ -65,6 +64,10 @@ def main(argv=None) -> int:
             # before the last one raises here, and must still end as "interrupted" (exit 130),
             # not as a process killed by the signal (seen under load as return code -2).
             _install_handlers(previous)
+            # Imported after the handlers: it loads numba and NumPy (about a second), during
+            # which a Ctrl-C must already end the command cleanly.
+            from .commands._compile_notice import compile_notice
+
             parser = build_parser()
             args = parser.parse_args(argv)
             try:
