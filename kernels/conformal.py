@@ -16,7 +16,7 @@ from numba import prange
 
 from ._compile import grid_kernel, point_function
 from .electromagnetic import fields_both_indices, projections, sqrt_determinant
-from .metric import metric_factors
+from .metric import metric_at, metric_factors
 from .point_checks import is_finite
 
 DECOMPOSITION_CHI = 0
@@ -72,12 +72,7 @@ def conformal_sources_grid(factor, tgamma, gidx, E, B, rho, S_i, S, A, decomposi
         for k in range(nz):
             c = conformal_rescale(decomposition, factor[i, j, k], one)
             ic = one / c
-            txx = tgamma[gidx[0], i, j, k]
-            txy = tgamma[gidx[1], i, j, k]
-            txz = tgamma[gidx[2], i, j, k]
-            tyy = tgamma[gidx[3], i, j, k]
-            tyz = tgamma[gidx[4], i, j, k]
-            tzz = tgamma[gidx[5], i, j, k]
+            txx, txy, txz, tyy, tyz, tzz = metric_at(tgamma, gidx, i, j, k)
             gxx, gxy, gxz = txx * ic, txy * ic, txz * ic
             gyy, gyz, gzz = tyy * ic, tyz * ic, tzz * ic
             d1, d2, d3, l21, l31, l32 = metric_factors(gxx, gxy, gxz, gyy, gyz, gzz, one)

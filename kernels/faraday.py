@@ -26,7 +26,7 @@ from numba import prange
 
 from ._compile import grid_kernel, point_function
 from .electromagnetic import fields_both_indices, sqrt_determinant
-from .metric import contract_index, inverse_metric, metric_factors
+from .metric import contract_index, inverse_metric, metric_at, metric_factors
 from .point_checks import is_finite
 
 
@@ -81,12 +81,7 @@ def faraday_grid(alpha, beta, gamma, gidx, E, B, F, form, upper, pivot_floor, on
         j = column - i * ny
         count = 0
         for k in range(nz):
-            gxx = gamma[gidx[0], i, j, k]
-            gxy = gamma[gidx[1], i, j, k]
-            gxz = gamma[gidx[2], i, j, k]
-            gyy = gamma[gidx[3], i, j, k]
-            gyz = gamma[gidx[4], i, j, k]
-            gzz = gamma[gidx[5], i, j, k]
+            gxx, gxy, gxz, gyy, gyz, gzz = metric_at(gamma, gidx, i, j, k)
             d1, d2, d3, l21, l31, l32 = metric_factors(gxx, gxy, gxz, gyy, gyz, gzz, one)
             sg = sqrt_determinant(d1, d2, d3)
             fields = fields_both_indices(form, gxx, gxy, gxz, gyy, gyz, gzz, d1, d2, d3,
@@ -119,12 +114,7 @@ def fields_from_faraday_grid(alpha, beta, gamma, gidx, F, E, B, upper, pivot_flo
         j = column - i * ny
         count = 0
         for k in range(nz):
-            gxx = gamma[gidx[0], i, j, k]
-            gxy = gamma[gidx[1], i, j, k]
-            gxz = gamma[gidx[2], i, j, k]
-            gyy = gamma[gidx[3], i, j, k]
-            gyz = gamma[gidx[4], i, j, k]
-            gzz = gamma[gidx[5], i, j, k]
+            gxx, gxy, gxz, gyy, gyz, gzz = metric_at(gamma, gidx, i, j, k)
             d1, d2, d3, l21, l31, l32 = metric_factors(gxx, gxy, gxz, gyy, gyz, gzz, one)
             sg = sqrt_determinant(d1, d2, d3)
             ixx, ixy, ixz, iyy, iyz, izz = inverse_metric(d1, d2, d3, l21, l31, l32, one)
@@ -159,12 +149,7 @@ def invariants_grid(gamma, gidx, E, B, out, form, pivot_floor, one):
         j = column - i * ny
         count = 0
         for k in range(nz):
-            gxx = gamma[gidx[0], i, j, k]
-            gxy = gamma[gidx[1], i, j, k]
-            gxz = gamma[gidx[2], i, j, k]
-            gyy = gamma[gidx[3], i, j, k]
-            gyz = gamma[gidx[4], i, j, k]
-            gzz = gamma[gidx[5], i, j, k]
+            gxx, gxy, gxz, gyy, gyz, gzz = metric_at(gamma, gidx, i, j, k)
             d1, d2, d3, l21, l31, l32 = metric_factors(gxx, gxy, gxz, gyy, gyz, gzz, one)
             ex, ey, ez, exl, eyl, ezl, bx, by, bz, bxl, byl, bzl = fields_both_indices(
                 form, gxx, gxy, gxz, gyy, gyz, gzz, d1, d2, d3, l21, l31, l32,

@@ -18,7 +18,7 @@ from numba import prange
 
 from ._compile import grid_kernel, point_function
 from .electromagnetic import fields_both_indices, sqrt_determinant
-from .metric import contract_index, metric_factors
+from .metric import contract_index, metric_at, metric_factors
 from .point_checks import is_finite
 
 VELOCITY_EULERIAN = 0
@@ -66,12 +66,7 @@ def ideal_mhd_grid(alpha, beta, gamma, gidx, B, V, E, U, b, form, kind, pivot_fl
         j = column - i * ny
         count = 0
         for k in range(nz):
-            gxx = gamma[gidx[0], i, j, k]
-            gxy = gamma[gidx[1], i, j, k]
-            gxz = gamma[gidx[2], i, j, k]
-            gyy = gamma[gidx[3], i, j, k]
-            gyz = gamma[gidx[4], i, j, k]
-            gzz = gamma[gidx[5], i, j, k]
+            gxx, gxy, gxz, gyy, gyz, gzz = metric_at(gamma, gidx, i, j, k)
             d1, d2, d3, l21, l31, l32 = metric_factors(gxx, gxy, gxz, gyy, gyz, gzz, one)
             sg = sqrt_determinant(d1, d2, d3)
             (_ex, _ey, _ez, _exl, _eyl, _ezl, bx, by, bz, bxl, byl, bzl) = fields_both_indices(

@@ -68,3 +68,11 @@ def contract_index(mxx, mxy, mxz, myy, myz, mzz, vx, vy, vz):
     return (mxx * vx + mxy * vy + mxz * vz,
             mxy * vx + myy * vy + myz * vz,
             mxz * vx + myz * vy + mzz * vz)
+
+
+@point_function
+def metric_at(gamma, gidx, i, j, k):
+    """(gxx, gxy, gxz, gyy, gyz, gzz) of a (ncomp, nx, ny, nz) metric at point (i, j, k);
+    ``gidx`` gives the rows of the six packed components (packed or full storage)."""
+    return (gamma[gidx[0], i, j, k], gamma[gidx[1], i, j, k], gamma[gidx[2], i, j, k],
+            gamma[gidx[3], i, j, k], gamma[gidx[4], i, j, k], gamma[gidx[5], i, j, k])
