@@ -110,7 +110,7 @@ def test_integrals_of_pieces_combine_to_the_whole(dipole_level, n, rng):
     # luminosities (each node counted by the piece holding its stencil start), excised points.
     grid, data = dipole_level
     p = 4
-    spheres = [integrals._Sphere(R, grid, 16, p) for R in (1.2, 1.7)]
+    spheres = [integrals.CoordinateSphere(R, grid, 16, p) for R in (1.2, 1.7)]
     mask = data.valid_mask.astype(np.uint8)
     whole = integrals.level_partial(grid, data.gamma, data.E, data.B, valid_mask=mask, spheres=spheres)
     pieces = []

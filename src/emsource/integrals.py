@@ -54,7 +54,7 @@ from .sources import GridPointError
 
 __all__ = ["LevelIntegrals", "integrate_snapshot", "integrate_open_snapshot",
            "integrate_level_arrays", "level_partial", "slab_partial", "level_spheres",
-           "sphere_quadrature", "lagrange_weights", "FACES"]
+           "sphere_quadrature", "lagrange_weights", "CoordinateSphere", "FACES"]
 
 FACES = ("x_lower", "x_upper", "y_lower", "y_upper", "z_lower", "z_upper")
 #: Values per grid point the integration holds at once, an upper bound: 16 inputs + valid_mask,
@@ -202,13 +202,14 @@ def sphere_working_bytes(interpolation_points: int) -> int:
     return 8 * (10 * SPHERE_SCAN_NODES + SPHERE_GATHER_NODES * (2 * 3 * p**3 + 6 * p + 16))
 
 
-class _Sphere:
+class CoordinateSphere:
     """A coordinate sphere's quadrature on the level's grid, node by node in bounded batches.
 
     Holds only the rule (:class:`_SphereRule`, O(theta_points) numbers): the nodes, their
     normals, weights and interpolation stencils are computed per batch when a slab is summed,
     so memory stays bounded for any ``theta_points``. Immutable after construction:
-    :meth:`box_sum` returns a partial sum and changes nothing.
+    :meth:`box_sum` returns a partial sum and changes nothing. Public for the other sphere
+    diagnostics (:mod:`emsource.radiation`), which use its rule and interpolation.
     """
 
     def __init__(self, radius, grid, theta_points, npoints):
@@ -449,7 +450,7 @@ def integrate_level_arrays(grid, gamma, E, B, *, units="gaussian", lapse=None, s
     function = "integrate_level_arrays"
     patch = patch_of(function, grid, comm)
     if patch is None:
-        spheres = [_Sphere(r, grid, theta_points, interpolation_points) for r in radii]
+        spheres = [CoordinateSphere(r, grid, theta_points, interpolation_points) for r in radii]
         partial = level_partial(grid, gamma, E, B, units=units, lapse=lapse, shift=shift,
                                 valid_mask=valid_mask, spheres=spheres)
         return LevelIntegrals.from_partial(partial, label, time, [s.radius for s in spheres])
@@ -457,7 +458,7 @@ def integrate_level_arrays(grid, gamma, E, B, *, units="gaussian", lapse=None, s
     def compute():
         patch = require_patch(function, grid)
         whole = patch.global_grid
-        spheres = [_Sphere(r, whole, theta_points, interpolation_points) for r in radii]
+        spheres = [CoordinateSphere(r, whole, theta_points, interpolation_points) for r in radii]
         needed = interpolation_points // 2 if spheres else 0
         v = patch.require_ghosts(function, valid_ghosts, needed,
                                  f"the {interpolation_points}-point interpolation of the spheres")
@@ -583,7 +584,7 @@ def level_spheres(level, radii, theta_points, interpolation_points) -> list:
     """The luminosity spheres of ``radii`` on the level's grid (a message naming the level if
     one does not fit)."""
     try:
-        return [_Sphere(r, level.grid, theta_points, interpolation_points) for r in radii]
+        return [CoordinateSphere(r, level.grid, theta_points, interpolation_points) for r in radii]
     except SnapshotError as error:
         raise SnapshotError(f"{level.where}, time level {level.label!r}: {error}") from None
 

@@ -54,7 +54,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from . import _arguments as args
-from .integrals import SPHERE_GATHER_NODES, _Sphere, sphere_working_bytes
+from .integrals import SPHERE_GATHER_NODES, CoordinateSphere, sphere_working_bytes
 from .newman_penrose import newman_penrose_scalars
 from .snapshot import CHUNK_CACHE_BYTES, SnapshotError, SnapshotFile, open_snapshot
 from .snapshot.slabs import (CONVERSION_BUFFER_BYTES, DEFAULT_MEMORY_LIMIT, SlabBuffers,
@@ -217,7 +217,7 @@ class ExtractionSpheres:
         self.l_max = int(l_max)
         self.theta_points = int(theta_points)
         self.interpolation_points = int(interpolation_points)
-        self.spheres = [_Sphere(r, grid, self.theta_points, self.interpolation_points)
+        self.spheres = [CoordinateSphere(r, grid, self.theta_points, self.interpolation_points)
                         for r in radii]
         rule = self.spheres[0].rule
         theta, phi = rule.angles()

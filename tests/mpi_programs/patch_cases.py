@@ -145,11 +145,11 @@ def reference_magnitudes():
     """Sums of |terms| of the single-process sums (the scale of their round-off), by the keys
     of :func:`run_all`: from the mergeable partials of the whole grid."""
     from emsource.conservation import balance_partial
-    from emsource.integrals import _Sphere, level_partial
+    from emsource.integrals import CoordinateSphere, level_partial
     from emsource.reductions import combine_all
 
     d = exact.rotating_dipole(DIPOLE_GRID, 0.3, excision_radius=0.25)
-    spheres = [_Sphere(r, DIPOLE_GRID, 8, 4) for r in RADII]
+    spheres = [CoordinateSphere(r, DIPOLE_GRID, 8, 4) for r in RADII]
     p = level_partial(DIPOLE_GRID, d.gamma, d.E, d.B, lapse=d.alpha, shift=d.beta,
                       valid_mask=d.valid_mask, spheres=spheres)
     levels = [exact.boosted_gaussian_charge(CHARGE_GRID, t, **CHARGE) for t in (0.0, 0.05, 0.1)]
