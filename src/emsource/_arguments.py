@@ -334,8 +334,7 @@ def kernel_views(arrays, grid):
         if a.ndim > len(grid) and a.strides[len(a.shape) - len(grid):] == _c_strides(a, grid):
             block = _row_block(a, a.ndim - len(grid), a.size // npoints, npoints)
         if block is None:
-            pad = (Ellipsis,) + (None,) * (3 - len(grid))
-            return [a[pad] for a in arrays], False
+            return three_axis_views(arrays, grid), False
         views.append(block)
     return views, True
 
@@ -348,6 +347,13 @@ def _c_strides(a: np.ndarray, grid) -> tuple:
         strides.append(step)
         step *= n
     return tuple(reversed(strides))
+
+
+def three_axis_views(arrays, grid):
+    """Views of component-first arrays on a 1-, 2- or 3-D ``grid`` with length-1 axes appended
+    up to three grid axes, the form the column kernels take (no copy)."""
+    pad = (Ellipsis,) + (None,) * (3 - len(grid))
+    return [a[pad] for a in arrays]
 
 
 def as_grid_views(arrays, flat: bool, grid):

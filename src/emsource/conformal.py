@@ -45,7 +45,7 @@ import numpy as np
 
 from . import _arguments as arg
 from ._threading import kernel_call
-from .faraday import padded, raise_for_bad_points
+from .faraday import raise_for_bad_points
 from .input_forms import input_form
 from .kernels import conformal as kernels
 from .metric_forms import decomposition as find_decomposition
@@ -119,7 +119,7 @@ def physical_metric(conformal_factor, gamma_tilde, *, decomposition):
                              (conformal_factor, gamma_tilde))
     out = np.empty((6,) + f.shape, dtype)
     if arg.has_points(f.shape):
-        views = padded([f, metric, out], f.shape)
+        views = arg.three_axis_views([f, metric, out], f.shape)
         with kernel_call():
             kernels.physical_metric_grid(views[0], views[1], gidx, views[2], code,
                                          dtype.type(1))
@@ -179,7 +179,7 @@ def conformal_sources(conformal_factor, gamma_tilde, E, B, *, decomposition, uni
                               np.empty(grid, dtype), np.empty((6,) + grid, dtype))
     if not arg.has_points(grid):
         return result
-    views = padded([f, metric, e, b, *result], grid)
+    views = arg.three_axis_views([f, metric, e, b, *result], grid)
     with kernel_call():
         count = kernels.conformal_sources_grid(views[0], views[1], gidx, *views[2:], code,
                                                form.code, dtype.type(prefactor),

@@ -101,8 +101,7 @@ def energy_fluxes(alpha, beta, gamma, E, B, *, units="gaussian", field_index="up
     fluxes = EnergyFluxes(result[0], result[1:4], result[4:7])
     if not arg.has_points(grid):
         return fluxes
-    pad = (Ellipsis,) + (None,) * (3 - len(grid))
-    views = [lapse[pad], shift[pad], metric[pad], e[pad], b[pad], result[pad]]
+    views = arg.three_axis_views([lapse, shift, metric, e, b, result], grid)
     constants = arg.kernel_constants(form, dtype, prefactor)
     with kernel_call():
         counts = kernels.energy_fluxes_grid(views[0], views[1], views[2], gidx, views[3],

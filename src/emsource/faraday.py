@@ -63,19 +63,14 @@ class FieldInvariants(NamedTuple):
     dual: np.ndarray
 
 
-def padded(arrays, grid):
-    """(ncomp, nx, ny, nz) views of component-first arrays on a 1-3D ``grid`` (no copy)."""
-    pad = (Ellipsis,) + (None,) * (3 - len(grid))
-    return [a[pad] for a in arrays]
-
-
 def raise_for_bad_points(function, count, grid, named, *, lapse=None, metric=None, reason=None):
     """Raise :class:`GridPointError` for ``count`` bad points found by a conversion kernel.
 
     The first bad input point (non-finite, lapse not positive, metric not positive definite)
     comes from :func:`emsource._arguments.check_points`; where every input passes, the outputs
-    overflowed (or ``reason`` says what else the kernel rejects), and the first point is
-    taken from the non-finite outputs ``named["out"]`` if given.
+    overflowed (or ``reason`` says what else the kernel rejects: a text, or a function of the
+    first bad output point's index), and the first point is taken from the non-finite outputs
+    ``named["out"]`` if given.
     """
     if not count:
         return
@@ -86,6 +81,8 @@ def raise_for_bad_points(function, count, grid, named, *, lapse=None, metric=Non
         bad = ~np.isfinite(np.asarray(out).reshape((-1,) + tuple(grid))).all(axis=0)
         if bad.any():
             index = tuple(int(i) for i in np.unravel_index(int(np.argmax(bad)), grid))
+    if callable(reason):
+        reason = reason(index) if index is not None else None
     raise GridPointError(function, int(count), int(np.prod(grid)), index,
                          reason or "the outputs overflow: rescale the inputs (a larger unit)")
 
@@ -171,7 +168,7 @@ def faraday_tensor(alpha, beta, gamma, E, B, *, index="lower", field_index="uppe
                     inputs)
     if not arg.has_points(grid):
         return out
-    views = padded([lapse, shift, metric, e, b, out], grid)
+    views = arg.three_axis_views([lapse, shift, metric, e, b, out], grid)
     with kernel_call():
         count = kernels.faraday_grid(*views[:3], gidx, *views[3:], form.code, index == "upper",
                                      dtype.type(arg.pivot_floor(dtype)),
@@ -216,7 +213,7 @@ def fields_from_faraday(alpha, beta, gamma, F, *, index="lower", check=True):
     B = np.empty((3,) + grid, dtype)
     if not arg.has_points(grid):
         return E, B
-    views = padded([lapse, shift, metric, f, E, B], grid)
+    views = arg.three_axis_views([lapse, shift, metric, f, E, B], grid)
     with kernel_call():
         count = kernels.fields_from_faraday_grid(*views[:3], gidx, *views[3:], index == "upper",
                                                  dtype.type(arg.pivot_floor(dtype)),
@@ -263,7 +260,7 @@ def field_invariants(gamma, E, B, *, field_index="upper", check=True) -> FieldIn
     dtype = arg.common_dtype(function, ("gamma", "E", "B"), (gamma, E, B))
     out = np.empty((2,) + grid, dtype)
     if arg.has_points(grid):
-        views = padded([metric, e, b, out], grid)
+        views = arg.three_axis_views([metric, e, b, out], grid)
         with kernel_call():
             count = kernels.invariants_grid(views[0], gidx, *views[1:], form.code,
                                             dtype.type(arg.pivot_floor(dtype)),

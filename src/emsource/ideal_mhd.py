@@ -60,8 +60,7 @@ import numpy as np
 
 from . import _arguments as arg
 from ._threading import kernel_call
-from .errors import GridPointError
-from .faraday import padded, raise_for_bad_points
+from .faraday import raise_for_bad_points
 from .input_forms import input_form
 from .kernels import ideal_mhd as kernels
 
@@ -146,19 +145,18 @@ def ideal_mhd_fields(alpha, beta, gamma, B, velocity, *, velocity_kind="eulerian
     result = IdealMhdFields(E, u, b)
     if not arg.has_points(grid):
         return result
-    views = padded([lapse, shift, metric, b_in, v_in, E, u, b], grid)
+    views = arg.three_axis_views([lapse, shift, metric, b_in, v_in, E, u, b], grid)
     with kernel_call():
         count = kernels.ideal_mhd_grid(*views[:3], gidx, *views[3:], form.code,
                                        VELOCITY_KINDS[velocity_kind],
                                        dtype.type(arg.pivot_floor(dtype)), dtype.type(1))
-    if check and count:
-        named = {"alpha": lapse, "beta": shift, "B": b_in, "velocity": v_in}
-        arg.check_points(function, grid, named, lapse="alpha", metric=("gamma", metric, gidx))
-        bad = ~np.isfinite(np.concatenate([E, u, b]).reshape((11,) + grid)).all(axis=0)
-        index = tuple(int(i) for i in np.unravel_index(int(np.argmax(bad)), grid))
-        raise GridPointError(function, int(count), int(np.prod(grid)), index,
-                             _velocity_reason(velocity_kind, lapse, shift, metric, gidx, v_in,
-                                              index))
+    if check and count:  # the stacked outputs are built on the error path only
+        raise_for_bad_points(
+            function, count, grid, {"alpha": lapse, "beta": shift, "B": b_in, "velocity": v_in,
+                                    "out": np.concatenate([E, u, b])},
+            lapse="alpha", metric=("gamma", metric, gidx),
+            reason=lambda index: _velocity_reason(velocity_kind, lapse, shift, metric, gidx,
+                                                  v_in, index))
     return result
 
 

@@ -145,13 +145,12 @@ def magnetic_field_from_potential(gamma, A, spacing, *, order=2, out=None) -> np
     result[...] = np.nan
     if not arg.has_points(grid):
         return out if out is not None else result
-    pad = (Ellipsis,) + (None,) * (3 - len(grid))
     inv_h = np.array([1.0 / x for x in h] + [0.0] * (3 - len(grid)), dtype)
     constants = (first_derivative_weights(order, dtype), inv_h, np.array(radii, np.int64),
                  dtype.type(1), dtype.type(arg.pivot_floor(dtype)))
     with kernel_call():
-        bad = kernels.curl_collocated(a[pad], g[pad], np.array(gidx, np.int64), result[pad],
-                                      *constants)
+        a3, g3, result3 = arg.three_axis_views([a, g, result], grid)
+        bad = kernels.curl_collocated(a3, g3, np.array(gidx, np.int64), result3, *constants)
     if bad:
         _raise_first_bad(function, grid, order, g, gidx, a, result, bad)
     return out if out is not None else result
