@@ -56,6 +56,7 @@ import numpy as np
 from . import _arguments as args
 from .integrals import SPHERE_GATHER_NODES, CoordinateSphere, sphere_working_bytes
 from .newman_penrose import newman_penrose_scalars
+from .reductions import Sum, SpherePartial, combine_all
 from .snapshot import CHUNK_CACHE_BYTES, SnapshotError, SnapshotFile, open_snapshot
 from .snapshot.slabs import (CONVERSION_BUFFER_BYTES, DEFAULT_MEMORY_LIMIT, SlabBuffers,
                              progress_bar, slab_rows, slabs)
@@ -241,14 +242,17 @@ class ExtractionSpheres:
         """Per sphere, a (12, nodes) array for gamma (6), E (3), B (3) at the nodes."""
         return [np.full((12, s.count), np.nan) for s in self.spheres]
 
-    def interpolate_slab(self, node_values, arrays, valid, axis, start, stop) -> None:
+    def interpolate_slab(self, node_values, arrays, valid, axis, start, stop) -> list:
         """Fill ``node_values`` (from :meth:`empty_node_values`) at the nodes whose stencil
         starts in rows start:stop of ``axis``; ``arrays`` = (gamma, E, B), ``valid`` cover
-        rows ``start:`` with the halo (whole-grid arrays: start 0, stop = the axis length)."""
+        rows ``start:`` with the halo (whole-grid arrays: start 0, stop = the axis length).
+        Returns the node numbers filled, per sphere."""
         array_start = [0, 0, 0]
         array_start[axis] = start
+        filled = []
         for sphere, values in zip(self.spheres, node_values):
             nodes, points = sphere.slab_nodes(axis, start, stop)
+            filled.append(nodes)
             for first in range(0, nodes.size, SPHERE_GATHER_NODES):
                 batch = slice(first, first + SPHERE_GATHER_NODES)
                 row = 0
@@ -259,6 +263,16 @@ class ExtractionSpheres:
                                                axis, start)
                     values[row:row + ncomp, nodes[batch]] = found
                     row += ncomp
+        return filled
+
+    def slab_partial(self, arrays, valid, axis, start, stop) -> SpherePartial:
+        """The :class:`emsource.reductions.SpherePartial` of the nodes whose stencil starts in
+        rows start:stop of ``axis`` (arguments as for :meth:`interpolate_slab`): each node is
+        interpolated and summed by exactly one slab, so the slabs' partials combine to the
+        sums over the whole spheres (:meth:`finalise`)."""
+        values = self.empty_node_values()
+        nodes = self.interpolate_slab(values, arrays, valid, axis, start, stop)
+        return self.node_partial([v[:, n] for v, n in zip(values, nodes)], nodes)
 
     def _raise_non_finite(self, sphere, quantity, array, found, points, axis, start):
         """Name the first non-finite grid value in the stencil of the first bad node."""
@@ -277,9 +291,22 @@ class ExtractionSpheres:
 
     def evaluate(self, node_values, *, units="gaussian", label="0", time=0.0) -> LevelRadiation:
         """Scalars, modes and powers from the filled node values of every sphere."""
-        kappa = power_prefactor(units)
-        result = LevelRadiation(str(label), float(time), units)
-        for sphere, values, points in zip(self.spheres, node_values, self._points):
+        every = [np.arange(s.count) for s in self.spheres]
+        return self.finalise(self.node_partial(node_values, every), units=units, label=label,
+                             time=time)
+
+    def node_partial(self, node_values, nodes) -> SpherePartial:
+        """The quadrature sums over the nodes ``nodes[i]`` of sphere i, whose interpolated
+        gamma (6), E (3), B (3) are ``node_values[i]`` (12, len(nodes[i])).
+
+        Each sum is accumulated by :meth:`emsource.reductions.Sum.of` (the exact sum to half
+        an eps of its magnitude), so a sphere summed in several pieces agrees with one piece to
+        the rounding of the combine.
+        """
+        fluxes, modes = [], {name: [] for name in SCALARS}  # per sphere: Sum over its nodes
+        for sphere, values, where, points in zip(self.spheres, node_values, nodes,
+                                                 self._points):
+            points = points[:, where]
             bad = ~np.all(np.isfinite(values), axis=0)
             if bad.any():
                 k = int(np.argmax(bad))
@@ -292,20 +319,46 @@ class ExtractionSpheres:
                     f"node at x = {tuple(round(float(c), 6) for c in points[:, k])} is not finite "
                     f"(a non-finite value in the grid data near that point; {int(bad.sum())} "
                     "such node(s))")
-            try:
-                scalars = dict(zip(SCALARS, newman_penrose_scalars(points, values[0:6],
-                                                                   values[6:9], values[9:12])))
-            except ValueError as error:
-                raise SnapshotError(f"sphere of radius {sphere.radius}: {error}") from None
-            modes = {name: self._projection[name] @ scalars[name] for name in SCALARS}
-            area = kappa * sphere.radius**2
+            if len(where):
+                try:
+                    scalars = dict(zip(SCALARS, newman_penrose_scalars(
+                        points, values[0:6], values[6:9], values[9:12])))
+                except ValueError as error:
+                    raise SnapshotError(f"sphere of radius {sphere.radius}: {error}") from None
+            else:
+                scalars = {name: np.zeros(0, complex) for name in SCALARS}
+            weights = self.solid_angle_weights[where]
             phi2_sq = np.abs(scalars["phi2"]) ** 2
+            fluxes.append(Sum.of(np.stack([weights * phi2_sq, weights * (
+                phi2_sq - np.abs(scalars["phi0"]) ** 2)]), axis=-1))
+            for name in SCALARS:
+                terms = self._projection[name][:, where] * scalars[name]
+                modes[name].append(Sum.of(np.stack([terms.real, terms.imag]), axis=-1))
+        return SpherePartial(tuple(len(w) for w in nodes), _stacked(fluxes),
+                             tuple(_stacked(modes[name]) for name in SCALARS))
+
+    def finalise(self, partial, *, units="gaussian", label="0", time=0.0) -> LevelRadiation:
+        """Scalars' modes and powers of every sphere from the partial of all its nodes (one
+        piece, or the pieces' partials combined by :func:`emsource.reductions.combine_all`)."""
+        if isinstance(partial, (list, tuple)):
+            partial = combine_all(partial)
+        counts = tuple(s.count for s in self.spheres)
+        if tuple(partial.nodes) != counts:
+            raise ValueError(f"ExtractionSpheres.finalise: the partial sums {partial.nodes} nodes "
+                             f"per sphere, the spheres have {counts} (a node summed twice or "
+                             "never)")
+        kappa = power_prefactor(units)
+        result = LevelRadiation(str(label), float(time), units)
+        fluxes = partial.fluxes.finalise()
+        mode_sums = [m.finalise() for m in partial.modes]
+        for i, sphere in enumerate(self.spheres):
+            modes = {name: m[i, 0] + 1j * m[i, 1] for name, m in zip(SCALARS, mode_sums)}
+            area = kappa * sphere.radius**2
             result.spheres.append(SphereRadiation(
                 sphere.radius, self.l_max, modes,
-                power=float(area * np.dot(self.solid_angle_weights, phi2_sq)),
+                power=float(area * fluxes[i, 0]),
                 mode_power=float(area * np.sum(np.abs(modes["phi2"]) ** 2)),
-                net_flux=float(area * np.dot(self.solid_angle_weights,
-                                             phi2_sq - np.abs(scalars["phi0"]) ** 2))))
+                net_flux=float(area * fluxes[i, 1])))
         return result
 
     def measure(self, gamma, E, B, *, valid_mask=None, units="gaussian", label="0",
@@ -344,6 +397,11 @@ class ExtractionSpheres:
         values = self.empty_node_values()
         self.interpolate_slab(values, (gamma, E, B), valid, 0, 0, shape[0])
         return self.evaluate(values, units=units, label=label, time=time)
+
+
+def _stacked(sums) -> Sum:
+    """One Sum of the per-sphere Sums, sphere first."""
+    return Sum(np.stack([x.value for x in sums]), np.stack([x.magnitude for x in sums]))
 
 
 def radiation_level_arrays(grid, gamma, E, B, *, radii, l_max=4, theta_points=32,

@@ -16,6 +16,8 @@ What the partials hold:
 - :class:`NormPartial`: point count, sums of squares and maxima of a residual and of its scale
   (L2 and max norms, :class:`ResidualNorms`);
 - :class:`LevelPartial`: the integrals of one snapshot time level (:mod:`emsource.integrals`);
+- :class:`SpherePartial`: the quadrature sums of the radiation on extraction spheres over the
+  nodes seen so far (:mod:`emsource.radiation`);
 - :class:`BalancePartial`: the box totals, face outflows and volume sources of every time level
   of a global energy-momentum balance (:mod:`emsource.conservation`); the time integrals are
   taken in ``finalise``.
@@ -52,6 +54,7 @@ __all__ = [
     "BalanceTerms",
     "GlobalBalance",
     "BalancePartial",
+    "SpherePartial",
 ]
 
 #: Accumulator of :func:`accurate_sum`: extended precision where the platform has it (x86:
@@ -408,3 +411,35 @@ class BalancePartial:
         momentum = BalanceTerms(change[1:], outflow[1:], source[1:], mismatch[1:], relative[1:],
                                 absolute[1:], scale)
         return GlobalBalance(times, totals, outflows, sources, energy, momentum, box)
+
+
+@dataclass(frozen=True)
+class SpherePartial:
+    """Quadrature sums over some of the nodes of extraction spheres (:mod:`emsource.radiation`).
+
+    Each node belongs to one piece (the slab or block its interpolation stencil starts in), so
+    the pieces' partials add up to the sums over every node; ``nodes`` counts them, so that
+    ``finalise`` can check that every node was seen exactly once.
+
+    Attributes
+    ----------
+    nodes : tuple of int
+        Nodes summed, per sphere.
+    fluxes : Sum
+        (spheres, 2): the sums of w |Phi_2|^2 and of w (|Phi_2|^2 - |Phi_0|^2) over the nodes
+        (w the solid-angle weights).
+    modes : tuple of Sum
+        Per scalar (Phi_0, Phi_1, Phi_2), (spheres, 2, modes): the real and imaginary parts of
+        the sums of w conj(sY_lm) Phi.
+    """
+
+    nodes: tuple
+    fluxes: Sum
+    modes: tuple
+
+    def combine(self, other: "SpherePartial") -> "SpherePartial":
+        if len(self.nodes) != len(other.nodes) or len(self.modes) != len(other.modes):
+            raise ValueError("SpherePartial.combine: partials of different spheres")
+        return SpherePartial(tuple(a + b for a, b in zip(self.nodes, other.nodes)),
+                             self.fluxes.combine(other.fluxes),
+                             tuple(a.combine(b) for a, b in zip(self.modes, other.modes)))

@@ -34,13 +34,15 @@ from .reductions import combine_all
 from .snapshot import SnapshotError, SnapshotFile
 
 __all__ = ["LevelResidual", "SnapshotBalance", "level_fields", "balance_open_snapshot",
-           "ABSENT_DEFAULTS"]
+           "ABSENT_DEFAULTS", "REQUIRED", "API_NAMES", "equally_spaced", "excised_points_message"]
 
 #: Quantities a level may leave out, and the value they then take.
 ABSENT_DEFAULTS = {"lapse": "1", "shift": "0", "extrinsic_curvature": "0",
                    "charge_density": "0", "current_density": "0"}
-_REQUIRED = ("spatial_metric", "electric_field", "magnetic_field")
-_API = {"lapse": "alpha", "shift": "beta", "spatial_metric": "gamma",
+#: Quantities every level must hold.
+REQUIRED = ("spatial_metric", "electric_field", "magnetic_field")
+#: Quantity name -> the name of the time-level field (:class:`emsource.exact.TimeLevelFields`).
+API_NAMES = {"lapse": "alpha", "shift": "beta", "spatial_metric": "gamma",
         "extrinsic_curvature": "K", "electric_field": "E", "magnetic_field": "B",
         "charge_density": "charge_density", "current_density": "current_density"}
 
@@ -90,14 +92,13 @@ def level_fields(level) -> TimeLevelFields:
     :data:`ABSENT_DEFAULTS`. Raises :class:`SnapshotError` for a missing metric or field, or
     a valid_mask with excised points.
     """
-    for q in _REQUIRED:
+    for q in REQUIRED:
         level.source(q)  # raises, listing the file, if missing
     if level.has("valid_mask") and not level.read("valid_mask").all():
-        raise SnapshotError(f"{level.where}, time level {level.label!r}: the conservation "
-                            "balance does not support excised points (valid_mask holds 0)")
+        raise SnapshotError(excised_points_message(level))
     shape = level.grid.shape
     values = {}
-    for q, api in _API.items():
+    for q, api in API_NAMES.items():
         if level.has(q):
             values[api] = level.read(q, dtype=np.float64)
     if "charge_density" in values or "current_density" in values:
@@ -110,7 +111,14 @@ def level_fields(level) -> TimeLevelFields:
         values.get("charge_density"), values.get("current_density"), units=level.units)
 
 
-def _equally_spaced(before, now, after) -> bool:
+def excised_points_message(level) -> str:
+    """The error for a level whose valid_mask holds a 0 (the balance has no excision)."""
+    return (f"{level.where}, time level {level.label!r}: the conservation balance does not "
+            "support excised points (valid_mask holds 0)")
+
+
+def equally_spaced(before, now, after) -> bool:
+    """True when the three levels are equally spaced in time (relative 1e-9) and increasing."""
     step = now.time - before.time
     return step > 0 and bool(np.isclose(after.time - now.time, step, rtol=1e-9, atol=0.0))
 
@@ -166,7 +174,7 @@ def balance_open_snapshot(snap: SnapshotFile, *, levels=None, order: int = 2,
         if now < 0:
             continue
         entry = LevelResidual(chosen[now].label, chosen[now].time)
-        if None not in window and _equally_spaced(*(chosen[i] for i in (now - 1, now, now + 1))):
+        if None not in window and equally_spaced(*(chosen[i] for i in (now - 1, now, now + 1))):
             res = level_residual(window[1], before=window[0], after=window[2], order=order,
                                  include_charges=include_charges)
             entry.energy, entry.momentum = res.energy_norms, res.momentum_norms

@@ -5,8 +5,9 @@ from __future__ import annotations
 
 from .._arguments import DIFFERENCE_ORDERS
 from . import EXIT_BAD_INPUT, EXIT_CHECK_FAILED, EXIT_OK, EXIT_USAGE
+from ._cluster_options import add_cluster_options, block_bytes
 from ._physical_scale import add_scale_options, chosen_scale
-from ._snapshot_options import check_new_output, fail, run_guarded, tolerance
+from ._snapshot_options import check_new_output, fail, run_guarded, show_progress, tolerance
 
 HELP = "energy and momentum conservation of a snapshot's time levels (local residual, global balance)"
 
@@ -49,9 +50,10 @@ def register(subparsers):
     p.add_argument("--force", action="store_true", help="replace an existing CSV")
     p.add_argument("--quiet", action="store_true", help="no table, only the exit status")
     p.set_defaults(run=lambda args: run_guarded(_run, args))
+    add_cluster_options(p, on_cluster=lambda args: _run(args, on_cluster=True))
 
 
-def _run(args) -> int:
+def _run(args, on_cluster=False) -> int:
     from ..snapshot import open_snapshot
     from ..snapshot_balance import balance_open_snapshot
 
@@ -59,14 +61,32 @@ def _run(args) -> int:
         return fail(EXIT_USAGE, "give --mass or --code-scale, not both")  # before any work
     if args.csv:
         check_new_output(args.csv, args.force)
-    with open_snapshot(args.snapshot, args.mapping) as snap:
+    if on_cluster:
+        from ..distributed.balance import balance_series
+        from ..distributed.series import open_series
+
+        # Checks and the scale from the series' first file, before any work on the cluster.
+        series = open_series(args.snapshot, args.mapping)
+        inputs = tuple(sorted({level.path for level in series})) + (
+            (series[0].mapping,) if series[0].mapping else ())
         if args.csv:
-            check_new_output(args.csv, args.force, snap.inputs)
-        scale, origin, error = chosen_scale(args, snap.units, snap.physical_scale)
+            check_new_output(args.csv, args.force, inputs)
+        with open_snapshot(series[0].path, series[0].mapping) as snap:
+            scale, origin, error = chosen_scale(args, snap.units, snap.physical_scale)
         if error:
             return fail(EXIT_USAGE, error)
-        result = balance_open_snapshot(snap, levels=args.levels, order=args.order)
-        inputs = snap.inputs
+        result = balance_series(args.snapshot, mapping=args.mapping, levels=args.levels,
+                                order=args.order, block_bytes=block_bytes(args),
+                                progress=show_progress(args))
+    else:
+        with open_snapshot(args.snapshot, args.mapping) as snap:
+            if args.csv:
+                check_new_output(args.csv, args.force, snap.inputs)
+            scale, origin, error = chosen_scale(args, snap.units, snap.physical_scale)
+            if error:
+                return fail(EXIT_USAGE, error)
+            result = balance_open_snapshot(snap, levels=args.levels, order=args.order)
+            inputs = snap.inputs
     rows = _rows(result)
     if args.csv:
         _write_csv(args.csv, rows, scale, args.force, inputs)
