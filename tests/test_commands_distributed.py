@@ -90,11 +90,97 @@ def test_bad_point_on_a_worker_exit_3_nothing_written(cluster, tmp_path, capsys)
 
 
 @pytest.mark.parametrize("options", [["--workers", "0"], ["--workers", "2", "--scheduler", "x"]])
-def test_usage_errors_exit_2(tmp_path, options, capsys):
+@pytest.mark.parametrize("command", [["sources", "missing.h5", "-o", "o.h5"],
+                                     ["balance", "missing.h5", "--csv", "o.csv"],
+                                     ["radiation", "missing.h5", "--radius", "1", "--csv", "o.csv"]])
+def test_usage_errors_exit_2(tmp_path, command, options, capsys, monkeypatch):
+    monkeypatch.chdir(tmp_path)
     with pytest.raises(SystemExit) as stop:
-        cli.main(["sources", "missing.h5", "-o", str(tmp_path / "o.h5"), *options])
+        cli.main(command + options)
     assert stop.value.code == 2
+    err = capsys.readouterr().err
+    assert "--workers" in err and "Traceback" not in err
     assert os.listdir(tmp_path) == []
+
+
+@pytest.mark.parametrize("command", ["balance", "radiation"])
+def test_unreachable_scheduler_is_a_usage_error_one_line(series, tmp_path, command, capsys):
+    """No scheduler listens on port 9 (discard): exit 2, one line naming --scheduler and the
+    address, nothing written."""
+    extra = {"balance": [], "radiation": ["--radius", "0.35"]}[command]
+    before = checksums(tmp_path)
+    code = cli.main([command, str(series / "two.h5"), *extra, "--scheduler", "tcp://127.0.0.1:9"])
+    err = capsys.readouterr().err
+    assert code == 2
+    assert err.count("\n") == 1 and err.startswith("emsource: error: --scheduler:"), err
+    assert "tcp://127.0.0.1:9" in err
+    assert checksums(tmp_path) == before
+
+
+def read_csv_columns(path):
+    with open(path) as handle:
+        rows = list(csv.DictReader(handle))
+    return {key: [row[key] for row in rows] for key in rows[0]}
+
+
+def assert_same_table(found, expected):
+    """Same columns and rows; numbers equal to 1e-13 of their column's largest magnitude
+    (sums combined in another order: tests/test_distributed.py derives the bound)."""
+    assert list(found) == list(expected)
+    for key in expected:
+        a, b = expected[key], found[key]
+        try:
+            x, y = np.array(a, float), np.array(b, float)
+        except ValueError:
+            assert a == b, key
+            continue
+        np.testing.assert_array_equal(np.isnan(x), np.isnan(y))
+        size = np.nanmax(np.abs(x)) if np.isfinite(x).any() else 0.0
+        assert np.all(np.abs(np.nan_to_num(x) - np.nan_to_num(y)) <= RTOL * size), key
+
+
+@pytest.fixture(scope="module")
+def three_levels(tmp_path_factory):
+    """One file of three equally spaced levels: the middle one has a local residual."""
+    path = tmp_path_factory.mktemp("cluster_balance") / "three.h5"
+    write_snapshot(path, full_levels(np.random.default_rng(15), (0.0, 0.1, 0.2)))
+    return str(path)
+
+
+def test_balance_on_a_cluster_writes_the_same_table(cluster, three_levels, tmp_path, capsys):
+    single, dask_csv = tmp_path / "single.csv", tmp_path / "dask.csv"
+    code_single = cli.main(["balance", three_levels, "--order", "4", "--csv", str(single)])
+    out_single = capsys.readouterr().out
+    code = cli.main(["balance", three_levels, "--order", "4", "--csv", str(dask_csv),
+                     "--memory-limit", "0.1", "--scheduler", cluster])
+    captured = capsys.readouterr()
+    assert code == code_single, captured.err
+    assert "dashboard http" in captured.err
+    table = read_csv_columns(dask_csv)
+    assert table["energy_norm_l2"][1] != ""  # the residual of the middle level is there
+    assert_same_table(table, read_csv_columns(single))
+    verdict = [line for line in out_single.splitlines() if "the balance" in line]
+    assert verdict and verdict[0].split("(")[0] in captured.out  # the same verdict
+
+
+def test_radiation_on_a_cluster_writes_the_same_outputs(cluster, series, tmp_path, capsys):
+    path = str(series / "two.h5")
+    options = ["--radius", "0.3", "--radius", "0.45", "--l-max", "2", "--theta-points", "6",
+               "--interpolation-points", "2"]
+    assert cli.main(["radiation", path, *options, "--csv", str(tmp_path / "single.csv"),
+                     "--hdf5", str(tmp_path / "single.h5")]) == 0
+    capsys.readouterr()
+    code = cli.main(["radiation", path, *options, "--csv", str(tmp_path / "dask.csv"),
+                     "--hdf5", str(tmp_path / "dask.h5"), "--memory-limit", "0.02",
+                     "--scheduler", cluster])
+    captured = capsys.readouterr()
+    assert code == 0, captured.err
+    assert "dashboard http" in captured.err and "emsource radiation: done" in captured.out
+    assert_same_table(read_csv_columns(tmp_path / "dask.csv"),
+                      read_csv_columns(tmp_path / "single.csv"))
+    with h5py.File(tmp_path / "dask.h5") as b, h5py.File(tmp_path / "single.h5") as a:
+        assert sorted(b) == sorted(a) and b.attrs["units"] == a.attrs["units"]
+        assert b.attrs["producer"] == a.attrs["producer"]
 
 
 def test_sources_with_two_workers_in_a_subprocess(tmp_path):

@@ -31,6 +31,7 @@ from emsource.distributed.arrays import block_rows, level_stack  # noqa: E402
 from emsource.distributed.balance import balance_series, global_balance_series  # noqa: E402
 from emsource.distributed.constraints import constraint_norms, constraint_residuals  # noqa: E402
 from emsource.distributed.integrals import integrate_series, level_partials  # noqa: E402
+from emsource.distributed.radiation import radiation_series  # noqa: E402
 from emsource.distributed.series import open_series  # noqa: E402
 from emsource.distributed.sources import compute_sources_dask  # noqa: E402
 from emsource.exact import TimeLevelFields  # noqa: E402
@@ -39,6 +40,7 @@ from emsource.integrals import integrate_snapshot  # noqa: E402
 from emsource.snapshot import SnapshotError, read_level, write_snapshot  # noqa: E402
 from emsource.snapshot import open_snapshot  # noqa: E402
 from emsource.snapshot.sources_pipeline import compute_sources  # noqa: E402
+from emsource.radiation import radiation_snapshot  # noqa: E402
 from emsource.snapshot_balance import balance_open_snapshot  # noqa: E402
 
 from conftest import assert_same_arithmetic  # noqa: E402
@@ -296,6 +298,46 @@ def test_balance_refuses_excised_points_like_single_process(files):
     with open_snapshot(files["masked"]) as snap, pytest.raises(
             SnapshotError, match=r"does not support excised points"):
         balance_open_snapshot(snap)
+
+
+@pytest.mark.parametrize("name", ["chunked", "zyx", "masked"])
+def test_radiation_equals_single_process(files, name):
+    """Sphere sums as chunk-local partials: each node interpolated in one block, the blocks'
+    SpherePartials merged in a tree. Powers are sums of like-signed terms ((n + 1) eps
+    relative); modes and the net flux cancel, so they are compared relative to their sums'
+    magnitudes (emsource.reductions)."""
+    radii = [0.3, 0.45] if name != "masked" else [0.25]  # the masked box excises x > 0.5
+    options = dict(radii=radii, l_max=3, theta_points=6, interpolation_points=2)
+    reference = radiation_snapshot(files[name], rows=2, **options)
+    found = radiation_series(files[name], block_bytes=SMALL_BLOCKS // 4, **options)
+    level = open_series(files[name])[0]
+    assert len(block_rows(level, ("spatial_metric", "electric_field", "magnetic_field"), 26, 8,
+                          SMALL_BLOCKS // 4)) > 2  # several blocks share the nodes
+    assert [(r.label, r.time) for r in found] == [(r.label, r.time) for r in reference]
+    for a, b in zip(reference, found):
+        for sa, sb in zip(a.spheres, b.spheres):
+            assert sb.radius == sa.radius
+            assert math.isclose(sb.power, sa.power, rel_tol=RTOL)
+            assert math.isclose(sb.mode_power, sa.mode_power, rel_tol=RTOL)
+            scale = sa.power + abs(sa.net_flux)
+            assert abs(sb.net_flux - sa.net_flux) <= RTOL * scale
+            for scalar in sa.modes:
+                size = np.abs(sa.modes[scalar]).max()
+                assert np.all(np.abs(sb.modes[scalar] - sa.modes[scalar]) <= RTOL * size), scalar
+
+
+def test_radiation_bad_point_is_named_in_whole_grid_terms(tmp_path):
+    path = tmp_path / "bad.h5"
+    levels = full_levels(np.random.default_rng(8), (0.0,))
+    levels[0]["magnetic_field"][2, 8, 4, 4] = np.inf  # next to the node nearest x = (0.3, 0, 0)
+    write_snapshot(path, levels)
+    options = dict(radii=[0.3], l_max=2, theta_points=4, interpolation_points=4)
+    with pytest.raises(SnapshotError) as single:
+        radiation_snapshot(path, rows=2, **options)
+    with pytest.raises(SnapshotError) as found:
+        radiation_series(path, block_bytes=SMALL_BLOCKS // 4, **options)
+    assert "grid index (8, 4, 4)" in str(single.value)
+    assert str(found.value) == str(single.value)
 
 
 # --------------------------------------------------------------------------- time series

@@ -24,7 +24,7 @@ Tolerances (eps = 2^-52):
   ``convergence.significant_normalised_l2``); elsewhere they are round-off over round-off;
 - counts, maxima of the fields: exactly (order does not change them);
 - the balance's mismatch: 1e-13 of its scale, the largest box energy (``BalanceTerms.scale``);
-- a convergence table: the errors are residual L2 norms, compared to 1e-13 of the equation's
+- a convergence table (also ``convergence.run_case`` of a named case): the errors are residual L2 norms, compared to 1e-13 of the equation's
   scale, which is at most 1 / (normalised residual) ~ 10^3 times the error here, so 1e-10 of the
   error; the orders, log ratios of errors at spacings 1.33 apart, then to 1e-9 absolute.
 
@@ -91,9 +91,9 @@ def check_against_reference(results, reference, magnitudes, ranks):
             bound = np.full_like(want, 1e-13 * 4)  # ratio of two values, each to 1e-13 of scale
         elif key.endswith("mismatch"):
             bound = np.full_like(want, 1e-13 * abs(reference["balance: totals"][0]))
-        elif key.startswith("convergence: errors"):
+        elif key.startswith(("convergence: errors", "named convergence: errors")):
             bound = 1e-10 * np.abs(want)
-        elif key.startswith("convergence: orders"):
+        elif key.startswith(("convergence: orders", "named convergence: orders")):
             bound = np.full_like(want, 1e-9)
         else:
             raise AssertionError(f"no tolerance rule for {key!r}")

@@ -22,14 +22,15 @@ Plots need matplotlib (the optional ``plot`` extra), imported only when a plot i
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, fields, replace
 from typing import Callable
 
 import numpy as np
 
 from ._deprecated_names import renamed_fields, renamed_keywords
 from .conservation import level_residual
-from .patches import global_partial
+from .kernels.stencils import stencil_radius
+from .patches import decompose, global_partial
 
 __all__ = [
     "ConvergenceTable",
@@ -317,14 +318,48 @@ def register_case(case: Case) -> Case:
     return case
 
 
-def run_case(name: str, *, order=4, resolutions=None, time_derivatives="supplied") -> ConvergenceTable:
-    """:func:`residual_convergence` of the named case of :data:`CASES`."""
+def run_case(name: str, *, order=4, resolutions=None, time_derivatives="supplied",
+             comm=None, dims=None) -> ConvergenceTable:
+    """:func:`residual_convergence` of the named case of :data:`CASES`.
+
+    Under MPI (``comm``, an mpi4py communicator) every rank takes its patch of each
+    resolution's grid (:func:`emsource.patches.decompose` with order / 2 ghost layers, ranks
+    over ``dims``, default :func:`emsource.patches.process_grid`) and every rank gets the table
+    of the whole grid. A named case builds its exact data on whole grids: each rank builds them
+    and keeps its patch (the named cases are small, at most 64^2 or 32^3 points; a study of
+    larger grids passes a ``make_level`` that builds the patch alone to
+    :func:`residual_convergence`). A failure on any rank is raised on all
+    (:class:`emsource.patches.PatchError`).
+    """
     register_builtin_cases()
     if name not in CASES:
         raise ValueError(f"run_case: unknown case {name!r}; known cases: {sorted(CASES)}")
     case = CASES[name]
-    return residual_convergence(case.make_level, case.resolutions if resolutions is None else resolutions,
-                                order=order, time_derivatives=time_derivatives, case=name)
+    make_level = case.make_level
+    if comm is not None:
+        rank, size, ghost = comm.Get_rank(), comm.Get_size(), stencil_radius(order)
+
+        def make_level(n, t):
+            whole = case.make_level(n, t)
+            return on_patch(whole, decompose(whole.grid, rank, size, ghost=ghost, dims=dims))
+
+    return residual_convergence(make_level, case.resolutions if resolutions is None else resolutions,
+                                order=order, time_derivatives=time_derivatives, case=name,
+                                comm=comm)
+
+
+def on_patch(level, patch):
+    """The part of a whole-grid time level (:class:`emsource.exact.TimeLevelFields`) that
+    ``patch`` holds (its local array, ghosts included): views of every grid array, with
+    ``grid = patch``. The values are the whole grid's, so the patch's results match it."""
+    grid = tuple(level.grid.shape)
+    local = tuple(slice(o, o + n) for o, n in zip(patch.offset, patch.shape))
+    cut = {}
+    for f in fields(level):
+        value = getattr(level, f.name)
+        if isinstance(value, np.ndarray) and value.shape[value.ndim - len(grid):] == grid:
+            cut[f.name] = value[(Ellipsis,) + local]
+    return replace(level, grid=patch, **cut)
 
 
 #: Parameters of the built-in cases (all oblique to the grid: trap 1 of the testing notes).

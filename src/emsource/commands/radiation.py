@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 from . import EXIT_OK, EXIT_OUTPUT_ERROR, EXIT_USAGE
+from ._cluster_options import add_cluster_options, block_bytes
 from ._physical_scale import add_scale_options, chosen_scale
 from ._snapshot_options import (add_input_options, check_new_output, fail, positive_number,
                                run_guarded, show_progress, whole_number_at_least)
@@ -50,9 +51,50 @@ def register(subparsers):
                         "(needs matplotlib: pip install 'emsource[plot]')")
     parser.add_argument("--force", action="store_true", help="replace existing output files")
     parser.set_defaults(run=lambda args: run_guarded(_run, args))
+    add_cluster_options(parser, on_cluster=lambda args: _run(args, on_cluster=True))
 
 
-def _run(args) -> int:
+#: What the radiation reads (for the provenance).
+READ = ("spatial_metric", "electric_field", "magnetic_field", "valid_mask")
+
+
+def _options(args, order, levels) -> dict:
+    return {"radii": args.radius, "l_max": args.l_max, "theta_points": args.theta_points,
+            "interpolation_points": args.interpolation_points, "extrapolation_order": order,
+            "memory_limit_bytes": args.memory_limit, "levels": [lv.label for lv in levels]}
+
+
+def _on_cluster(args, order, outputs):
+    """(levels, provenance attributes, inputs, units, scale, origin, error) of a Dask run."""
+    import json
+
+    from ..distributed.radiation import radiation_series
+    from ..distributed.series import open_series
+    from ..snapshot import open_snapshot, provenance_attributes
+    from ..snapshot.levels import choose_levels
+
+    series = open_series(args.snapshot, args.mapping)
+    chosen = choose_levels(series, args.levels, args.snapshot)
+    files = sorted({level.path for level in chosen})
+    inputs = tuple(files) + ((series[0].mapping,) if series[0].mapping else ())
+    with open_snapshot(series[0].path, series[0].mapping) as snap:  # one mapping for all
+        scale, origin, error = chosen_scale(args, snap.units, snap.physical_scale)
+    if error:
+        return None, None, inputs, None, scale, origin, error
+    for path in outputs:
+        check_new_output(path, args.force, inputs)
+    levels = radiation_series(
+        args.snapshot, mapping=args.mapping, radii=args.radius, l_max=args.l_max,
+        theta_points=args.theta_points, interpolation_points=args.interpolation_points,
+        levels=args.levels, block_bytes=block_bytes(args), progress=show_progress(args))
+    used = [p for level in chosen for q in READ if level.has(q) for p in level.dataset_paths(q)]
+    attributes = provenance_attributes(files[0], used, _options(args, order, levels),
+                                       series[0].mapping)
+    attributes["input_files"] = json.dumps(files)
+    return levels, attributes, inputs, series[0].units, scale, origin, None
+
+
+def _run(args, on_cluster=False) -> int:
     from ..radiation import radiation_open_snapshot
     from ..radiation_output import (write_radiation_csv, write_radiation_hdf5,
                                     write_radiation_plot)
@@ -80,31 +122,30 @@ def _run(args) -> int:
     outputs = [p for p in (args.csv, args.hdf5, args.plot) if p]
     if len(set(outputs)) != len(outputs):
         return fail(EXIT_OUTPUT_ERROR, "--csv, --hdf5 and --plot must name different files")
-    with open_snapshot(args.snapshot, args.mapping) as snap:
-        scale, origin, error = chosen_scale(args, snap.units, snap.physical_scale)
+    if args.plot:
+        try:
+            import matplotlib  # noqa: F401
+        except ImportError:
+            return fail(EXIT_OUTPUT_ERROR, "--plot needs matplotlib: pip install 'emsource[plot]'")
+    if on_cluster:
+        levels, attributes, inputs, units, scale, origin, error = _on_cluster(args, order, outputs)
         if error:
             return fail(EXIT_USAGE, error)
-        for path in outputs:
-            check_new_output(path, args.force, snap.inputs)
-        if args.plot:
-            try:
-                import matplotlib  # noqa: F401
-            except ImportError:
-                return fail(EXIT_OUTPUT_ERROR,
-                            "--plot needs matplotlib: pip install 'emsource[plot]'")
-        levels = radiation_open_snapshot(
-            snap, radii=args.radius, l_max=args.l_max, theta_points=args.theta_points,
-            interpolation_points=args.interpolation_points, memory_limit=args.memory_limit,
-            levels=args.levels, progress=show_progress(args))
-        options = {"radii": args.radius, "l_max": args.l_max, "theta_points": args.theta_points,
-                   "interpolation_points": args.interpolation_points,
-                   "extrapolation_order": order, "memory_limit_bytes": args.memory_limit,
-                   "levels": [lv.label for lv in levels]}
-        attributes = snap.provenance(snap.select(args.levels),
-                                     ("spatial_metric", "electric_field", "magnetic_field",
-                                      "valid_mask"), options)
-        inputs = snap.inputs
-        units = snap.units
+    else:
+        with open_snapshot(args.snapshot, args.mapping) as snap:
+            scale, origin, error = chosen_scale(args, snap.units, snap.physical_scale)
+            if error:
+                return fail(EXIT_USAGE, error)
+            for path in outputs:
+                check_new_output(path, args.force, snap.inputs)
+            levels = radiation_open_snapshot(
+                snap, radii=args.radius, l_max=args.l_max, theta_points=args.theta_points,
+                interpolation_points=args.interpolation_points, memory_limit=args.memory_limit,
+                levels=args.levels, progress=show_progress(args))
+            attributes = snap.provenance(snap.select(args.levels), READ,
+                                         _options(args, order, levels))
+            inputs = snap.inputs
+            units = snap.units
     attributes.update(units=units, l_max=args.l_max, theta_points=args.theta_points,
                       interpolation_points=args.interpolation_points)
     if args.csv:
