@@ -10,7 +10,8 @@ rest of emsource never imports this package. Modules, each importing only those 
 ``sources``      :func:`compute_sources_dask` (``map_blocks``, native output)
 ``integrals``    :func:`integrate_series` (tree reduction of ``LevelPartial``)
 ``constraints``  :func:`constraint_norms` (``map_overlap``, depth = stencil radius)
-``balance``      :func:`global_balance_series` (overlapping blocks, ``BalancePartial``)
+``balance``      :func:`balance_series`, :func:`global_balance_series` (overlapping blocks)
+``radiation``    :func:`radiation_series` (``SpherePartial`` per block, tree reduction)
 ===============  ==============================================================================
 
 Every number equals the single-process path's to the rounding of the reductions' combine
