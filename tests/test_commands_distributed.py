@@ -151,8 +151,10 @@ def test_balance_on_a_cluster_writes_the_same_table(cluster, three_levels, tmp_p
     single, dask_csv = tmp_path / "single.csv", tmp_path / "dask.csv"
     code_single = cli.main(["balance", three_levels, "--order", "4", "--csv", str(single)])
     out_single = capsys.readouterr().out
+    # balance has no --memory-limit: one block per level here; tests/test_distributed.py runs
+    # the same functions on many blocks.
     code = cli.main(["balance", three_levels, "--order", "4", "--csv", str(dask_csv),
-                     "--memory-limit", "0.1", "--scheduler", cluster])
+                     "--scheduler", cluster])
     captured = capsys.readouterr()
     assert code == code_single, captured.err
     assert "dashboard http" in captured.err
