@@ -72,6 +72,7 @@ from typing import Callable, NamedTuple
 import numpy as np
 
 from . import _arguments as arg
+from .reductions import accurate_sum
 from .sources import adm_sources
 from .unit_systems import UNIT_SYSTEMS, stress_energy_prefactor
 
@@ -394,8 +395,10 @@ def _stack(sources: SourceSet, given: tuple) -> Stacked:
 
 
 def _dot(a, b) -> float:
-    # einsum, not np.dot: BLAS threads on a loaded machine made np.dot 20x slower (measured).
-    return float(np.einsum("i,i->", a, b))
+    # An accurate sum (emsource.reductions: the exact sum to about 0.5 eps of the sum of |terms|)
+    # rather than einsum or BLAS: the Dask path sums the same products block by block, and both
+    # must give the same number to (n + 1) eps for n blocks.
+    return float(accurate_sum(a * b))
 
 
 def _norm(v) -> float:
@@ -465,17 +468,52 @@ def _closest(singles, pairs):
     return single
 
 
+#: Uniform draws per grid point of the probe (18 normals by Box-Muller, the lapse, one spare).
+PROBE_DRAWS = 40
+_MASK64 = (1 << 64) - 1
+
+
+def _splitmix64(counter):
+    """The SplitMix64 output function of a uint64 counter array (G. L. Steele, D. Lea,
+    C. H. Flood, "Fast splittable pseudorandom number generators", OOPSLA 2014; constants
+    from memory). A counter-based draw: the value at a counter depends on nothing else."""
+    with np.errstate(over="ignore"):
+        z = counter + np.uint64(0x9E3779B97F4A7C15)
+        z = (z ^ (z >> np.uint64(30))) * np.uint64(0xBF58476D1CE4E5B9)
+        z = (z ^ (z >> np.uint64(27))) * np.uint64(0x94D049BB133111EB)
+    return z ^ (z >> np.uint64(31))
+
+
+def probe_inputs(points):
+    """alpha, beta, gamma (packed), E, B of the probe at the flat (x, y, z) C-order point
+    indices ``points`` (an int array of any shape ``s``): (s), (3, *s), (6, *s), (3, *s), (3, *s).
+
+    Each point's values come from its own counters, ``PROBE_SEED`` mixed with
+    ``point * PROBE_DRAWS + j``: the probe at a point does not depend on how the grid is cut
+    into blocks, so the Dask path draws the same state block by block. gamma = A A^T with
+    A = I + 0.3 noise (condition number of a few), lapse in [0.5, 2], shift and fields of order
+    one; normals by the Box-Muller transform (G. E. P. Box and M. E. Muller, Ann. Math. Stat. 29,
+    610 (1958)).
+    """
+    points = np.asarray(points, dtype=np.uint64)
+    base = points[None] * np.uint64(PROBE_DRAWS) + np.arange(
+        PROBE_DRAWS, dtype=np.uint64).reshape((-1,) + (1,) * points.ndim)
+    bits = _splitmix64(base + np.uint64((PROBE_SEED * 0x5851F42D4C957F2D) & _MASK64))
+    uniform = ((bits >> np.uint64(11)).astype(np.float64) + 1.0) * 2.0**-53   # in (0, 1]
+    normal = (np.sqrt(-2.0 * np.log(uniform[0:36:2])) * np.cos(2 * np.pi * uniform[1:36:2]))
+    a = np.eye(3).reshape((3, 3) + (1,) * points.ndim) + 0.3 * normal[:9].reshape(
+        (3, 3) + points.shape)
+    full = np.einsum("ik...,jk...->ij...", a, a)
+    alpha = 0.5 + 1.5 * uniform[36]
+    return (alpha, 0.5 * normal[9:12], np.ascontiguousarray(_pack(full)), normal[12:15],
+            normal[15:18])
+
+
 def _probe_state(state: InputState) -> InputState:
-    """An independent random curved state on the same grid: gamma = A A^T with A = I + 0.3
-    noise (condition number of a few), lapse in [0.5, 2], shift and fields of order one."""
-    rng = np.random.default_rng(PROBE_SEED)
-    grid = state.grid
-    n = int(np.prod(grid))
-    a = np.eye(3)[:, :, None] + 0.3 * rng.standard_normal((3, 3, n))
-    full = np.einsum("ikn,jkn->ijn", a, a).reshape((3, 3) + grid)
-    return InputState.of(rng.uniform(0.5, 2.0, grid), 0.5 * rng.standard_normal((3,) + grid),
-                         np.ascontiguousarray(_pack(full)), rng.standard_normal((3,) + grid),
-                         rng.standard_normal((3,) + grid), state.units)
+    """The probe (:func:`probe_inputs`) on the grid of ``state``: an independent random
+    curved state."""
+    points = np.arange(int(np.prod(state.grid)), dtype=np.int64).reshape(state.grid)
+    return InputState.of(*probe_inputs(points), state.units)
 
 
 def _same_transformation(x: Explanation, y: Explanation, probe, given, tolerance) -> bool:
@@ -677,6 +715,41 @@ def diagnose_sources(alpha, beta, gamma, E, B, *, rho=None, S_i=None, S_ij=None,
     >>> d.verdict, d.explanations[0].names, d.explanations[0].factor_name(d.tolerance)
     ('explained', ('unit_factor',), '4 pi')
     """
+    state, user, eps, lapse_given, shift_given = checked_inputs(
+        alpha, beta, gamma, E, B, rho=rho, S_i=S_i, S_ij=S_ij, units=units,
+        valid_mask=valid_mask)
+    given = tuple(user)
+    tau = round_off_tolerance(state, given, eps)
+    data = _stack(SourceSet(**{n: user.get(n) for n in OUTPUTS}), given)
+    identity = Explanation((), 1.0, _fit(_stack(state.correct, given), data, False)[1])
+    singles = _search(data, given, state, [(c.name,) for c in CATALOGUE])
+    # Candidates invisible on these data: they reproduce the package's own sources here.
+    own = _search(_stack(state.correct, given), given, state, [(c.name,) for c in CATALOGUE])
+    probe = []
+
+    def same(x, y):
+        if not probe:
+            p = _probe_state(state)
+            probe.append((p, round_off_tolerance(p, given, float(np.finfo(np.float64).eps))))
+        return _same_transformation(x, y, probe[0][0], given, probe[0][1])
+
+    def search_pairs():
+        cache = {c.name: apply_candidates((c.name,), state) for c in CATALOGUE}
+        return _search(data, given, state, PAIRS, cache)
+
+    return conclude(given=given, tolerance=tau, identity=identity, singles=singles, own=own,
+                    facts=_state_facts(state, lapse_given, shift_given),
+                    search_pairs=search_pairs if pairs else None, same=same)
+
+
+def checked_inputs(alpha, beta, gamma, E, B, *, rho=None, S_i=None, S_ij=None,
+                   units="gaussian", valid_mask=None):
+    """The checks of :func:`diagnose_sources` and its float64 state.
+
+    Returns (state, user, eps, lapse_given, shift_given): the :class:`InputState` (excised
+    points neutralised), the user's outputs by name (float64, zero at excised points), the
+    epsilon of the coarsest dtype given. The Dask path calls it per block.
+    """
     arg.choice(FUNCTION, "units", units, UNIT_SYSTEMS)
     grid = arg.grid_of(FUNCTION, "E", E, "component_first")
     metric, gidx = arg.spatial_metric(FUNCTION, gamma, grid, "component_first")
@@ -703,39 +776,37 @@ def diagnose_sources(alpha, beta, gamma, E, B, *, rho=None, S_i=None, S_ij=None,
         g[:, excised] = np.array([1.0, 0, 0, 1, 0, 1])[:, None]
     if not user:
         raise ValueError(f"{FUNCTION}: give at least one of rho, S_i, S_ij (found none)")
-    given = tuple(user)
     dtypes = [np.asarray(x).dtype for x in (gamma, E, B, rho, S_i, S_ij, alpha, beta)
               if x is not None]
     eps = max(float(np.finfo(d).eps) for d in dtypes)
+    return InputState.of(a, b, g, e, bf, units), user, eps, lapse_given, shift_given
 
-    state = InputState.of(a, b, g, e, bf, units)
-    tau = round_off_tolerance(state, given, eps)
-    data = _stack(SourceSet(**{n: user.get(n) for n in OUTPUTS}), given)
-    identity = Explanation((), 1.0, _fit(_stack(state.correct, given), data, False)[1])
-    singles = _search(data, given, state, [(c.name,) for c in CATALOGUE])
-    facts = _state_facts(state, lapse_given, shift_given)
-    probe = _probe_state(state)
-    tau_probe = round_off_tolerance(probe, given, float(np.finfo(np.float64).eps))
 
-    # Candidates invisible on these data: they reproduce the package's own sources here.
-    own = _search(_stack(state.correct, given), given, state, [(c.name,) for c in CATALOGUE])
+def conclude(*, given, tolerance, identity, singles, own, facts, search_pairs, same) -> Diagnosis:
+    """The verdict from the fitted explanations (shared by the single-process and Dask paths).
+
+    ``identity``: the data against the package's sources; ``singles``: every catalogue entry
+    against the data; ``own``: every entry against the package's own sources (which are then
+    untestable when they fit there); ``search_pairs()``: the fitted pairs (None: no pair search);
+    ``same(x, y)``: whether two explanations are one transformation (on the probe).
+    """
+    tau = tolerance
+    pairs = search_pairs is not None
     untestable = tuple(x.names[0] for x in own if x.residual <= tau
-                       and not _same_transformation(x, Explanation((), 1.0, 0.0), probe, given,
-                                                    tau_probe))
+                       and not same(x, Explanation((), 1.0, 0.0)))
     searched_pairs = []
     if identity.residual <= tau:
         fitting = [identity]
     else:
         fitting = [x for x in singles if x.residual <= tau]
         if not fitting and pairs:
-            cache = {c.name: apply_candidates((c.name,), state) for c in CATALOGUE}
-            searched_pairs = _search(data, given, state, PAIRS, cache)
+            searched_pairs = search_pairs()
             fitting = [x for x in searched_pairs if x.residual <= tau]
     # One representative per distinct transformation (decided on the probe).
     groups = []
     for x in sorted(fitting, key=lambda x: (len(x.names), x.residual)):
         for group in groups:
-            if _same_transformation(group[0], x, probe, given, tau_probe):
+            if same(group[0], x):
                 group.append(x)
                 break
         else:
