@@ -525,21 +525,32 @@ def _same_transformation(x: Explanation, y: Explanation, probe, given, tolerance
 
 
 def _state_facts(state: InputState, lapse_given: bool, shift_given: bool) -> list:
-    facts = []
     identity = np.array([1.0, 0, 0, 1, 0, 1]).reshape((6,) + (1,) * len(state.grid))
-    if np.array_equal(state.gamma, np.broadcast_to(identity, state.gamma.shape)):
+    alpha = state.alpha
+    constant = alpha.size and np.all(alpha == alpha.flat[0])
+    return facts_of(flat=np.array_equal(state.gamma, np.broadcast_to(identity, state.gamma.shape)),
+                    lapse_given=lapse_given, unit_lapse=bool(np.all(alpha == 1.0)),
+                    constant_lapse=float(alpha.flat[0]) if constant else None,
+                    shift_given=shift_given, zero_shift=not np.any(state.beta))
+
+
+def facts_of(*, flat, lapse_given, unit_lapse, constant_lapse, shift_given, zero_shift) -> list:
+    """The plain properties of the inputs that hide candidates, in words (``constant_lapse``:
+    the lapse's value where it is the same at every point, else None)."""
+    facts = []
+    if flat:
         facts.append("the metric is the identity (flat, Cartesian) at every point, so index "
                      "placement and sqrt(gamma) are invisible")
     if not lapse_given:
         facts.append("no lapse was given (alpha = 1 assumed), so lapse factors are invisible")
-    elif np.all(state.alpha == 1.0):
+    elif unit_lapse:
         facts.append("the lapse is 1 at every point, so lapse factors are invisible")
-    elif state.alpha.size and np.all(state.alpha == state.alpha.flat[0]):
-        facts.append(f"the lapse is constant (alpha = {state.alpha.flat[0]:.6g}), so a lapse "
+    elif constant_lapse is not None:
+        facts.append(f"the lapse is constant (alpha = {constant_lapse:.6g}), so a lapse "
                      "factor looks like a unit factor")
     if not shift_given:
         facts.append("no shift was given (beta = 0 assumed)")
-    elif not np.any(state.beta):
+    elif zero_shift:
         facts.append("the shift is zero")
     return facts
 
