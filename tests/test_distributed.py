@@ -426,3 +426,128 @@ def test_bad_point_in_a_block_names_the_whole_grid_index(files, tmp_path):
     with pytest.raises(ValueError, match=r"grid index \(11, 4, 5\)"):
         integrate_series(path, block_bytes=SMALL_BLOCKS)
     assert sorted(os.listdir(tmp_path)) == ["bad.h5"]
+
+
+# ----------------------------------------------------------------------------- source diagnosis
+def diagnosis_file(path, names, *, grid=(4, 4, 4), axis_order="xyz", noise=0.0, mask=False):
+    """A level whose stored sources are the reference user code's with the convention
+    differences ``names`` (tests/diagnosis_reference.py, independent of emsource.diagnosis)."""
+    from conftest import random_curved_data
+    from diagnosis_reference import user_sources
+
+    alpha, beta, gamma, E, B = random_curved_data(np.random.default_rng(17), grid)
+    rho, S_i, S_ij = user_sources(alpha, beta, gamma, E, B, names)
+    S_i = S_i + noise * np.random.default_rng(3).standard_normal(S_i.shape)
+    level = {"lapse": alpha, "shift": beta, "spatial_metric": gamma, "electric_field": E,
+             "magnetic_field": B, "time": 0.0, "grid": UniformGrid(grid, (0, 0, 0), (0.1,) * 3),
+             "units": "gaussian", "energy_density": rho, "momentum_density": S_i,
+             "spatial_stress": S_ij}
+    if mask:
+        valid = np.ones(grid, np.uint8)
+        valid[1:3, 2:, :2] = 0
+        level["valid_mask"] = valid
+    write_snapshot(path, [level], axis_order=axis_order)
+    return str(path)
+
+
+def single_process_diagnosis(path, pairs=True):
+    from emsource.commands.diagnose_sources import read_inputs
+    from emsource.diagnosis import diagnose_sources
+
+    kwargs = read_inputs(path, 0, None)
+    fields = [kwargs.pop(k) for k in ("alpha", "beta", "gamma", "E", "B")]
+    return diagnose_sources(*fields, pairs=pairs, **kwargs)
+
+
+def assert_same_diagnosis(found, expected, blocks):
+    """Same JSON: every string equal, every number within the bound of a sum over ``blocks``
+    pieces. Each sum (p.p, p.d, ||d - a p||^2, ||s||^2) is an accurate sum per block, so the
+    two paths differ by (n + 1) eps of its magnitude (emsource.reductions); a ratio of two such
+    sums, or a square root, at most doubles that: 4 (n + 1) eps relative, with a factor 2 of
+    margin. A residual at round-off (d = a p + e, |e| ~ eps |p|) moves absolutely by the
+    amplitude's relative change (the misfit is stationary in a, but d - a p changes by
+    delta_a p): also within 8 (n + 1) eps, so numbers below 1e-12 are compared absolutely."""
+    import re
+
+    bound = 8 * (blocks + 1) * np.finfo(np.float64).eps
+    number = re.compile(r"-?\d+\.\d+(?:e[-+]\d+)?|-?\d+e[-+]\d+")
+
+    def close(x, y):
+        return abs(x - y) <= bound * max(abs(x), abs(y)) or (
+            max(abs(x), abs(y)) < 1e-12 and abs(x - y) <= bound)
+
+    def compare(a, b, where):
+        if isinstance(a, dict):
+            assert list(a) == list(b), where
+            for key in a:
+                compare(a[key], b[key], f"{where}.{key}")
+        elif isinstance(a, list):
+            assert len(a) == len(b), where
+            for k, (x, y) in enumerate(zip(a, b)):
+                compare(x, y, f"{where}[{k}]")
+        elif isinstance(a, float) and not isinstance(a, bool):
+            assert close(a, b), (where, a, b)
+        elif isinstance(a, str):
+            assert number.sub("#", a) == number.sub("#", b), where
+            for x, y in zip(number.findall(a), number.findall(b)):
+                assert close(float(x), float(y)), (where, x, y)
+        else:
+            assert a == b, where
+
+    def by_names(d):   # rows that tie to round-off may sort either way: key them by candidates
+        d = dict(d)
+        for key in ("singles", "pairs"):
+            d[key] = sorted(d[key], key=lambda e: e["candidates"])
+        return d
+
+    compare(by_names(found.to_dict()), by_names(expected.to_dict()), "diagnosis")
+
+
+@pytest.mark.parametrize("names, axis_order, mask", [
+    (("grid_axes_reversed",), "xyz", False),   # values move between blocks (a cube)
+    (("unit_factor",), "zyx", True),           # fitted amplitude, other storage order, excision
+])
+def test_diagnosis_on_blocks_is_the_single_process_one(tmp_path, names, axis_order, mask):
+    from emsource.distributed.diagnosis import VALUES_PER_POINT, diagnose_level
+
+    path = diagnosis_file(tmp_path / "user.h5", names, axis_order=axis_order, mask=mask)
+    if names == ("unit_factor",):   # the reference's unit factor: 4 pi
+        with h5py.File(path, "r+") as f:
+            g = f["time_levels"][list(f["time_levels"])[0]]
+            for q in ("energy_density", "momentum_density", "spatial_stress"):
+                g[q][...] = 4 * np.pi * g[q][...]
+    one_row = 16 * VALUES_PER_POINT * 8          # a 4 x 4 plane: four blocks of one row
+    with dask.config.set(scheduler="synchronous"):
+        found = diagnose_level(path, block_bytes=one_row, pairs=False)
+    expected = single_process_diagnosis(path, pairs=False)
+    assert found.verdict == expected.verdict == "explained"
+    assert found.explanations[0].names == names
+    assert_same_diagnosis(found, expected, blocks=4)
+
+
+def test_diagnosis_pairs_across_blocks(tmp_path):
+    """A pair whose storage step moves values between blocks: the pair search on blocks finds
+    the single-process pair with the same numbers."""
+    from emsource.distributed.diagnosis import VALUES_PER_POINT, diagnose_level
+
+    names = ("stress_packing_voigt", "components_last_reshaped")
+    path = diagnosis_file(tmp_path / "user.h5", names)
+    with dask.config.set(scheduler="synchronous"):
+        found = diagnose_level(path, block_bytes=2 * 16 * VALUES_PER_POINT * 8)  # 2 blocks
+    expected = single_process_diagnosis(path)
+    assert found.verdict == expected.verdict == "explained"
+    assert found.explanations[0].names == names
+    assert_same_diagnosis(found, expected, blocks=2)
+
+
+def test_diagnosis_bad_point_is_located_on_the_whole_grid(tmp_path):
+    from emsource.distributed.diagnosis import VALUES_PER_POINT, diagnose_level
+    from emsource.errors import GridPointError
+
+    path = diagnosis_file(tmp_path / "user.h5", ())
+    with h5py.File(path, "r+") as f:
+        g = f["time_levels"][list(f["time_levels"])[0]]
+        g["momentum_density"][0, 2, 1, 3] = np.nan
+    with dask.config.set(scheduler="synchronous"), pytest.raises(GridPointError) as error:
+        diagnose_level(path, block_bytes=16 * VALUES_PER_POINT * 8, pairs=False)
+    assert "(2, 1, 3)" in str(error.value) and "S_i" in str(error.value)

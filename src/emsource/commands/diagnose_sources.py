@@ -3,8 +3,10 @@
 from __future__ import annotations
 
 import json
+import sys
 
 from . import EXIT_CHECK_FAILED, EXIT_OK
+from ._cluster_options import add_cluster_options, block_bytes
 from ._snapshot_level import add_snapshot_arguments, input_errors
 from ._snapshot_options import check_new_output, run_guarded
 
@@ -34,6 +36,7 @@ def register(subparsers):
     p.add_argument("--json", metavar="PATH", help="also write the diagnosis as JSON")
     p.add_argument("--force", action="store_true", help="replace an existing --json file")
     p.set_defaults(run=lambda args: run_guarded(_run, args))
+    add_cluster_options(p, on_cluster=_run_on_cluster)
 
 
 def read_inputs(path, level, mapping):
@@ -60,7 +63,6 @@ def read_inputs(path, level, mapping):
 
 def _run(args) -> int:
     from ..diagnosis import diagnose_sources
-    from ..snapshot import atomic_output
 
     if args.json:
         check_new_output(args.json, args.force, inputs=(args.snapshot,))
@@ -73,10 +75,36 @@ def _run(args) -> int:
         except ValueError as error:   # the API's names, with the datasets they were read from
             names = ", ".join(f"{k} = {q}" for q, k in {**INPUTS, **USER_OUTPUTS}.items())
             raise ValueError(f"{error} (datasets: {names})") from None
+    return _report(args, diagnosis, kwargs["units"])
+
+
+def _run_on_cluster(args) -> int:
+    """The same diagnosis on Dask (emsource.distributed.diagnosis): the level stays in the file."""
+    from ..distributed.diagnosis import diagnose_level
+    from ..distributed.series import open_series
+
+    if args.json:
+        check_new_output(args.json, args.force, inputs=(args.snapshot,))
+    units = open_series(args.snapshot, args.mapping, [args.level])[0].units
+    with input_errors(args.snapshot, args.level):
+        try:
+            diagnosis = diagnose_level(args.snapshot, mapping=args.mapping, level=args.level,
+                                       pairs=not args.no_pairs, block_bytes=block_bytes(args),
+                                       progress=sys.stderr.isatty())
+        except ValueError as error:
+            names = ", ".join(f"{k} = {q}" for q, k in {**INPUTS, **USER_OUTPUTS}.items())
+            raise ValueError(f"{error} (datasets: {names})") from None
+    return _report(args, diagnosis, units)
+
+
+def _report(args, diagnosis, units) -> int:
+    """The JSON (complete or absent), the table, and the exit code."""
+    from ..snapshot import atomic_output
+
     if args.json:
         with atomic_output(args.json, force=args.force, inputs=(args.snapshot,)) as temporary:
             with open(temporary, "w") as f:
                 json.dump(diagnosis.to_dict(), f, indent=2)
-    print(f"{args.snapshot}, time level {args.level} (units: {kwargs['units']})")
+    print(f"{args.snapshot}, time level {args.level} (units: {units})")
     print(diagnosis.table(rows=max(args.rows, 1)))
     return EXIT_OK if diagnosis.explained else EXIT_CHECK_FAILED
