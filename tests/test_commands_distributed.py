@@ -92,7 +92,8 @@ def test_bad_point_on_a_worker_exit_3_nothing_written(cluster, tmp_path, capsys)
 @pytest.mark.parametrize("options", [["--workers", "0"], ["--workers", "2", "--scheduler", "x"]])
 @pytest.mark.parametrize("command", [["sources", "missing.h5", "-o", "o.h5"],
                                      ["balance", "missing.h5", "--csv", "o.csv"],
-                                     ["radiation", "missing.h5", "--radius", "1", "--csv", "o.csv"]])
+                                     ["radiation", "missing.h5", "--radius", "1", "--csv", "o.csv"],
+                                     ["diagnose-sources", "missing.h5", "--json", "o.json"]])
 def test_usage_errors_exit_2(tmp_path, command, options, capsys, monkeypatch):
     monkeypatch.chdir(tmp_path)
     with pytest.raises(SystemExit) as stop:
@@ -237,3 +238,44 @@ def test_progress_bars_on_a_cluster(cluster, series, tmp_path, capsys):
     for a, b in zip(quiet, shown):
         assert a.interior_points == b.interior_points > 0
         np.testing.assert_allclose(b.norm_partial.square_sum, a.norm_partial.square_sum, rtol=RTOL)
+
+
+def test_diagnose_sources_on_a_cluster_prints_the_same_table(cluster, tmp_path, capsys,
+                                                              monkeypatch):
+    """A file the diagnosis does not explain (noise of 1e-6 on S_i, far above round-off): the
+    same verdict, exit code, table and JSON from two blocks on the workers as from one process
+    (numbers within the bound derived in tests/test_distributed.py: assert_same_diagnosis)."""
+    import json
+    import re
+
+    from emsource.commands import _cluster_options
+    from emsource.distributed.diagnosis import VALUES_PER_POINT
+    from emsource.diagnosis import Diagnosis
+    from test_distributed import assert_same_diagnosis, diagnosis_file
+
+    path = diagnosis_file(tmp_path / "user.h5", ("momentum_sign",), noise=1e-6)
+    monkeypatch.setattr(_cluster_options, "DEFAULT_BLOCK_BYTES", 2 * 16 * VALUES_PER_POINT * 8)
+    single, spread = tmp_path / "single.json", tmp_path / "cluster.json"
+    assert cli.main(["diagnose-sources", path, "--no-pairs", "--json", str(single)]) == 1
+    expected = capsys.readouterr().out
+    assert cli.main(["diagnose-sources", path, "--no-pairs", "--json", str(spread),
+                     "--scheduler", cluster]) == 1
+    captured = capsys.readouterr()
+    assert "dashboard http" in captured.err and "not explained" in captured.out
+    number = re.compile(r"-?\d+\.\d+(?:e[-+]\d+)?")
+    assert number.sub("#", captured.out) == number.sub("#", expected)
+    bound = 8 * 3 * np.finfo(np.float64).eps
+    for x, y in zip(number.findall(captured.out), number.findall(expected)):
+        # printed to 4 digits: equal unless a rounding of the last digit flips (one unit)
+        assert abs(float(x) - float(y)) <= 1e-3 * abs(float(y)) + bound, (x, y)
+    found, reference = (json.loads(p.read_text()) for p in (spread, single))
+    assert found["verdict"] == reference["verdict"] == "not explained"
+    assert found["best"]["candidates"] == reference["best"]["candidates"] == ["momentum_sign"]
+
+    class Loaded(Diagnosis):   # to_dict of the stored JSON, for the shared comparison
+        def __init__(self, d):
+            object.__setattr__(self, "d", d)
+
+        def to_dict(self):
+            return self.d
+    assert_same_diagnosis(Loaded(found), Loaded(reference), blocks=2)

@@ -12,6 +12,7 @@ rest of emsource never imports this package. Modules, each importing only those 
 ``constraints``  :func:`constraint_norms` (``map_overlap``, depth = stencil radius)
 ``balance``      :func:`balance_series`, :func:`global_balance_series` (overlapping blocks)
 ``radiation``    :func:`radiation_series` (``SpherePartial`` per block, tree reduction)
+``diagnosis``    :func:`diagnose_level` (the source diagnosis from per-block sums, two passes)
 ===============  ==============================================================================
 
 Every number equals the single-process path's to the rounding of the reductions' combine
