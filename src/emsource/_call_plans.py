@@ -1,0 +1,143 @@
+"""Validated call layouts, kept per argument signature so that a repeated call skips deriving
+them again (not API).
+
+On a small grid most of a public call's time is Python: checking shapes, strides and dtypes,
+choosing the loop and building the kernel's views (about 9 of 15 us on an 8^3 grid, see the
+README's "Speed"). Those decisions depend only on the *signature* of the arguments: each array's
+exact type, shape, strides and dtype, and the options. An evolution loop calls with the same
+signature every step, so the first call validates in full and stores what it derived (a
+:class:`FlatPlan`), and later calls with an equal signature reuse it.
+
+What a plan never holds: anything that depends on which memory an array holds or on its
+values. Writeability, overlap of outputs with inputs or with one another
+(:func:`emsource._arguments.output_memory`) and the point checks run on every call, plan or
+not. Arrays are never keyed by ``id()`` (an id is reused by a later array). A signature whose
+derivation also looked at memory (padded rows, whose view over the gaps needs the owner's
+extent) is not stored: such calls take the full path every time.
+
+Where a plan applies: every array exactly an ``ndarray`` (subclasses take the full path),
+C-contiguous (so each kernel view is a reshape, which for the same shape and strides is always a
+view, never a copy) and the options plain ``str``. Everything else validates in full.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+__all__ = ["FlatPlan", "PlanCache", "signature"]
+
+_NDARRAY = np.ndarray
+
+
+def signature(arrays: tuple, options: tuple):
+    """The key under which a call's plan is stored: each array's shape, then the options; or
+    None where the call cannot have a plan: an argument that is not exactly an ndarray (None
+    among ``arrays``, an output the call allocates, is kept as None) or not C-contiguous, or an
+    option that is not exactly a ``str``.
+
+    The strides are not in the key: a C-contiguous array's are fixed by its shape and dtype
+    (up to axes of length 1, which no view or loop depends on), and the dtype is compared with
+    the plan's (:meth:`FlatPlan.matches`) instead of hashed (a dtype hashes in about 40 ns).
+    Built with a plain loop: a generator costs about a microsecond more per call.
+    """
+    key = []
+    for a in arrays:
+        if a is None:
+            key.append(None)
+        elif type(a) is _NDARRAY and a.flags.c_contiguous:
+            key.append(a.shape)
+        else:
+            return None
+    for option in options:
+        if type(option) is not str:
+            return None
+        key.append(option)
+    return tuple(key)
+
+
+class FlatPlan:
+    """What a full validation derived for C-contiguous arrays on the flat loop.
+
+    Attributes
+    ----------
+    grid : tuple of int
+        Points per grid axis.
+    dtype : numpy.dtype
+        The one float dtype of every array.
+    view_shapes : tuple
+        Shape of each array's kernel view, in argument order: (ncomp, npoints), or None for a
+        scalar's (npoints,), taken with ``ravel`` (a third of the time of a ``reshape``).
+    extra : tuple
+        Whatever else the caller derived from the signature (metric component indices, the
+        kernel's scalar constants), returned as it was stored.
+    """
+
+    __slots__ = ("grid", "dtype", "view_shapes", "extra")
+
+    def __init__(self, grid, dtype, view_shapes, extra):
+        self.grid = grid
+        self.dtype = dtype
+        self.view_shapes = view_shapes
+        self.extra = extra
+
+    @classmethod
+    def of(cls, arrays, views, grid, dtype, extra):
+        """The plan of a fully validated call, or None where its views are not plain reshapes
+        of C-contiguous ``arrays`` (then every call validates in full).
+
+        ``arrays`` are the call's arrays, ``views`` the kernel views the full path built from
+        them (same order). Each view must start where its array starts and hold all of it, both
+        C-contiguous: then it is the array's reshape.
+        """
+        shapes = []
+        for a, v in zip(arrays, views):
+            if not (type(a) is _NDARRAY and a.dtype is dtype and a.flags.c_contiguous
+                    and v.flags.c_contiguous and v.size == a.size
+                    and v.ctypes.data == a.ctypes.data):
+                return None
+            shapes.append(None if v.ndim == 1 else v.shape)
+        return cls(tuple(grid), dtype, tuple(shapes), extra)
+
+    def matches(self, arrays) -> bool:
+        """Whether every one of ``arrays`` (None: allocated by the call) has the plan's dtype.
+        Identity: NumPy's built-in dtypes are singletons; an equal dtype that is another object
+        takes the full path, which accepts it."""
+        dtype = self.dtype
+        for a in arrays:
+            if a is not None and a.dtype is not dtype:
+                return False
+        return True
+
+    def views(self, arrays):
+        """The kernel views of ``arrays`` (which match the plan's signature): reshapes of
+        C-contiguous arrays, so views that share their memory."""
+        return [a.ravel() if shape is None else a.reshape(shape)
+                for a, shape in zip(arrays, self.view_shapes)]
+
+
+class PlanCache:
+    """Plans by signature, at most ``capacity`` of them (all dropped when full: a loop uses a
+    handful of signatures, and a program that keeps making new ones gains nothing from them)."""
+
+    def __init__(self, capacity: int = 64):
+        self.capacity = capacity
+        self._plans = {}
+
+    def get(self, key):
+        """The plan stored under ``key`` (None: no key, or not stored)."""
+        if key is None:
+            return None
+        return self._plans.get(key)
+
+    def put(self, key, plan) -> None:
+        if key is None or plan is None:
+            return
+        if len(self._plans) >= self.capacity:
+            self._plans.clear()
+        self._plans[key] = plan
+
+    def clear(self) -> None:
+        self._plans.clear()
+
+    def __len__(self) -> int:
+        return len(self._plans)
