@@ -30,17 +30,21 @@ _NDARRAY = np.ndarray
 
 
 def signature(arrays: tuple, options: tuple):
-    """The key under which a call's plan is stored: each array's shape, then the options; or
-    None where the call cannot have a plan: an argument that is not exactly an ndarray (None
-    among ``arrays``, an output the call allocates, is kept as None) or not C-contiguous, or an
-    option that is not exactly a ``str``.
+    """The key under which a call's plan is stored: the first array's dtype, each array's
+    shape, then the options; or None where the call cannot have a plan: an argument that is
+    not exactly an ndarray (None among ``arrays`` after the first, an output the call
+    allocates, is kept as None) or not C-contiguous, or an option that is not exactly a ``str``.
 
     The strides are not in the key: a C-contiguous array's are fixed by its shape and dtype
-    (up to axes of length 1, which no view or loop depends on), and the dtype is compared with
-    the plan's (:meth:`FlatPlan.matches`) instead of hashed (a dtype hashes in about 40 ns).
+    (up to axes of length 1, which no view or loop depends on). Only the first dtype is: the
+    others are compared with the plan's (:meth:`FlatPlan.matches`) instead of hashed (a dtype
+    hashes in about 40 ns).
     Built with a plain loop: a generator costs about a microsecond more per call.
     """
-    key = []
+    first = arrays[0]
+    if type(first) is not _NDARRAY:
+        return None
+    key = [first.dtype]  # float32 and float64 calls of one shape do not displace each other
     for a in arrays:
         if a is None:
             key.append(None)
