@@ -332,7 +332,7 @@ def _row_block(a: np.ndarray, ncomp_axes: int, ncomp: int, npoints: int):
     return np.ndarray((ncomp, step // itemsize), a.dtype, buffer=owner, offset=offset)
 
 
-def kernel_views(arrays, grid):
+def kernel_views(arrays, grid, whole_grids=False):
     """Views of component-first ``arrays`` for the kernels, and whether the flat path applies.
 
     The flat path takes each array as (ncomp, stride) (or (npoints,) for a scalar) and runs
@@ -342,6 +342,11 @@ def kernel_views(arrays, grid):
     touches the gaps). Otherwise each array becomes (ncomp, nx, ny, nz) with trailing
     length-1 axes added for 1D and 2D grids, for the strided loop. Either way no data are
     copied.
+
+    ``whole_grids=True`` (for a flat driver that reshapes C-contiguous arrays itself, as
+    ``kernels.sources.adm_sources_flat``): C-contiguous arrays on a 3-D grid are returned as
+    they are, which spares seven reshapes (about 1 us) on a small grid's call; 1-D grids are
+    passed as they are in any case, 2-D grids are reshaped (one compiled signature less).
     """
     contiguous = True
     for a in arrays:
@@ -349,7 +354,7 @@ def kernel_views(arrays, grid):
             contiguous = False
             break
     ndim = len(grid)
-    if contiguous and ndim == 1:
+    if contiguous and (ndim == 1 or (whole_grids and ndim == 3)):
         return arrays, True
     npoints = 1
     for n in grid:
@@ -390,13 +395,16 @@ def three_axis_views(arrays, grid):
 
 def as_grid_views(arrays, flat: bool, grid):
     """The (ncomp, nx, ny, nz) form of kernel views on ``grid`` (a flat line becomes
-    (ncomp, 1, 1, npoints); the gaps of padded rows are cut off)."""
+    (ncomp, 1, 1, npoints); the gaps of padded rows are cut off; arrays on a 3-D grid passed
+    whole, ``kernel_views(..., whole_grids=True)``, are that form already)."""
     if not flat:
         return arrays
     npoints = 1
     for n in grid:
         npoints *= n
-    return [a[..., :npoints].reshape(a.shape[:-1] + (1, 1, npoints)) for a in arrays]
+    grid = tuple(grid)
+    return [a if len(grid) == 3 and a.shape[a.ndim - 3:] == grid
+            else a[..., :npoints].reshape(a.shape[:-1] + (1, 1, npoints)) for a in arrays]
 
 
 #: Orders of the centred finite differences the diagnostics offer (kernels/stencils.py).

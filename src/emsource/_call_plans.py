@@ -68,9 +68,10 @@ class FlatPlan:
         Points per grid axis.
     dtype : numpy.dtype
         The one float dtype of every array.
-    view_shapes : tuple
+    view_shapes : tuple or None
         Shape of each array's kernel view, in argument order: (ncomp, npoints), or None for a
-        scalar's (npoints,), taken with ``ravel`` (a third of the time of a ``reshape``).
+        scalar's (npoints,), taken with ``ravel`` (a third of the time of a ``reshape``). None
+        where the kernel takes every array as it is.
     extra : tuple
         Whatever else the caller derived from the signature (metric component indices, the
         kernel's scalar constants), returned as it was stored.
@@ -100,7 +101,8 @@ class FlatPlan:
                     and v.ctypes.data == a.ctypes.data):
                 return None
             shapes.append(None if v.ndim == 1 else v.shape)
-        return cls(tuple(grid), dtype, tuple(shapes), extra)
+        whole = all(v is a for a, v in zip(arrays, views))
+        return cls(tuple(grid), dtype, None if whole else tuple(shapes), extra)
 
     def matches(self, arrays) -> bool:
         """Whether every one of ``arrays`` (None: allocated by the call) has the plan's dtype.
@@ -114,7 +116,9 @@ class FlatPlan:
 
     def views(self, arrays):
         """The kernel views of ``arrays`` (which match the plan's signature): reshapes of
-        C-contiguous arrays, so views that share their memory."""
+        C-contiguous arrays, so views that share their memory; or the arrays themselves."""
+        if self.view_shapes is None:
+            return arrays
         return [a.ravel() if shape is None else a.reshape(shape)
                 for a, shape in zip(arrays, self.view_shapes)]
 

@@ -271,7 +271,7 @@ def adm_sources(gamma, E, B, *, units="gaussian", field_index="upper",
             (0, 1, 1, 0), dtype, layout, ("gamma", "E", "B"), (gamma, E, B))
     if not arg.has_points(grid):
         return result
-    kernel_views, flat = arg.kernel_views([metric, e, b] + views, grid)
+    kernel_views, flat = arg.kernel_views([metric, e, b] + views, grid, whole_grids=True)
     constants = arg.kernel_constants(form, dtype, prefactor)
     if outputs is not None and layout == "component_first":
         # Only now, after every check passed: a plan is what a full validation derived.
