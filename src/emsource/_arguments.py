@@ -175,19 +175,19 @@ def output_memory(function: str, names: tuple, values: tuple, input_names: tuple
     # The usual case of an evolution loop, decided first: every array a plain ndarray that is
     # its own owner (base None), the outputs writeable and none of them the same object as an
     # input or another output; then no two can share memory. Anything else: the loop below.
-    seen = set()
     for a in inputs:
         if a.base is not None or type(a) is not np.ndarray:
             break
-        seen.add(id(a))
     else:
         for value in values:
-            if (value.base is not None or type(value) is not np.ndarray
-                    or not value.flags.writeable or id(value) in seen):
+            if value.base is not None or type(value) is not np.ndarray or not value.flags.writeable:
                 break
-            seen.add(id(value))
         else:
-            return
+            objects = set(map(id, inputs))  # ids of arrays alive now, within this call only
+            distinct_inputs = len(objects)
+            objects.update(map(id, values))
+            if len(objects) == distinct_inputs + len(values):
+                return
     input_owners = [_owner(a) for a in inputs]
     inputs_owned = True  # every input over memory of a plain owning ndarray
     for o in input_owners:

@@ -30,25 +30,27 @@ _NDARRAY = np.ndarray
 
 
 def signature(arrays: tuple, options: tuple):
-    """The key under which a call's plan is stored: the first array's dtype, each array's
-    shape, then the options; or None where the call cannot have a plan: an argument that is
-    not exactly an ndarray (None among ``arrays`` after the first, an output the call
-    allocates, is kept as None) or not C-contiguous, or an option that is not exactly a ``str``.
+    """The key under which a call's plan is stored: the dtype, each array's shape, then the
+    options; or None where the call cannot have a plan: an argument that is not exactly an
+    ndarray (None among ``arrays`` after the first, an output the call allocates, is kept as
+    None), not C-contiguous or not of the first array's dtype object, or an option that is not
+    exactly a ``str``.
 
     The strides are not in the key: a C-contiguous array's are fixed by its shape and dtype
-    (up to axes of length 1, which no view or loop depends on). Only the first dtype is: the
-    others are compared with the plan's (:meth:`FlatPlan.matches`) instead of hashed (a dtype
-    hashes in about 40 ns).
+    (up to axes of length 1, which no view or loop depends on). The dtypes are compared by
+    identity (NumPy's built-in dtypes are singletons; an equal dtype that is another object
+    takes the full path, which accepts it), not hashed (about 40 ns each).
     Built with a plain loop: a generator costs about a microsecond more per call.
     """
     first = arrays[0]
     if type(first) is not _NDARRAY:
         return None
-    key = [first.dtype]  # float32 and float64 calls of one shape do not displace each other
+    dtype = first.dtype
+    key = [dtype]  # float32 and float64 calls of one shape do not displace each other
     for a in arrays:
         if a is None:
             key.append(None)
-        elif type(a) is _NDARRAY and a.flags.c_contiguous:
+        elif type(a) is _NDARRAY and a.dtype is dtype and a.flags.c_contiguous:
             key.append(a.shape)
         else:
             return None
@@ -91,28 +93,20 @@ class FlatPlan:
         of C-contiguous ``arrays`` (then every call validates in full).
 
         ``arrays`` are the call's arrays, ``views`` the kernel views the full path built from
-        them (same order). Each view must start where its array starts and hold all of it, both
-        C-contiguous: then it is the array's reshape.
+        them (same order): each the array itself or a view of all of it in another shape, both
+        C-contiguous, i.e. its reshape (``_arguments.kernel_views`` reshapes C-contiguous arrays
+        whole or passes them as they are). Comparing data addresses would cost about 1 us per
+        array (``ctypes``, ``__array_interface__``), more than this whole call saves.
         """
         shapes = []
         for a, v in zip(arrays, views):
             if not (type(a) is _NDARRAY and a.dtype is dtype and a.flags.c_contiguous
                     and v.flags.c_contiguous and v.size == a.size
-                    and v.ctypes.data == a.ctypes.data):
+                    and (v is a or v.base is a or (a.base is not None and v.base is a.base))):
                 return None
             shapes.append(None if v.ndim == 1 else v.shape)
         whole = all(v is a for a, v in zip(arrays, views))
         return cls(tuple(grid), dtype, None if whole else tuple(shapes), extra)
-
-    def matches(self, arrays) -> bool:
-        """Whether every one of ``arrays`` (None: allocated by the call) has the plan's dtype.
-        Identity: NumPy's built-in dtypes are singletons; an equal dtype that is another object
-        takes the full path, which accepts it."""
-        dtype = self.dtype
-        for a in arrays:
-            if a is not None and a.dtype is not dtype:
-                return False
-        return True
 
     def views(self, arrays):
         """The kernel views of ``arrays`` (which match the plan's signature): reshapes of

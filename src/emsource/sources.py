@@ -247,8 +247,8 @@ def adm_sources(gamma, E, B, *, units="gaussian", field_index="upper",
         arrays = (gamma, E, B) + tuple(outputs)
         key = signature(arrays, (units, field_index, layout))
         plan = _ADM_PLANS.get(key)
-        if plan is not None and plan.matches(arrays):
-            return _planned_adm_sources(plan, gamma, E, B, outputs, check)
+        if plan is not None:
+            return _planned_adm_sources(plan, arrays, outputs, check)
     grid, metric, gidx, e, b, prefactor, form = _common_inputs(
         function, gamma, E, B, units, field_index, layout)
     dtype = arg.common_dtype(function, ("gamma", "E", "B"), (gamma, E, B))
@@ -287,21 +287,24 @@ _NO_OUTPUTS = (None, None, None, None)
 _ADM_PLANS = PlanCache()
 
 
-def _planned_adm_sources(plan, gamma, E, B, outputs, check):
-    """:func:`adm_sources` for a signature validated before: the layout comes from ``plan``;
-    the checks that depend on memory (writeable and apart outputs) and the point checks run."""
+def _planned_adm_sources(plan, arrays, outputs, check):
+    """:func:`adm_sources` for a signature validated before (``arrays``: gamma, E, B and the
+    four outputs, None where allocated here): the layout comes from ``plan``; the checks that
+    depend on memory (writeable and apart outputs) and the point checks run."""
     if outputs[0] is None:
         grid, dtype = plan.grid, plan.dtype
         result = AdmSources(np.empty(grid, dtype), np.empty((3,) + grid, dtype),
                             np.empty((6,) + grid, dtype), np.empty(grid, dtype))
+        arrays = arrays[:3] + result
     else:
         result = outputs if type(outputs) is AdmSources else AdmSources(*outputs)
-        arg.output_memory("adm_sources", AdmSources._fields, result, ("gamma", "E", "B"),
-                          (gamma, E, B))
+        arg.output_memory("adm_sources", AdmSources._fields, result, _INPUT_NAMES, arrays[:3])
     gidx, constants = plan.extra
-    views = plan.views((gamma, E, B) + result)
-    _run_adm_kernel(plan.grid, plan.dtype, gidx, constants, views, True, check)
+    _run_adm_kernel(plan.grid, plan.dtype, gidx, constants, plan.views(arrays), True, check)
     return result
+
+
+_INPUT_NAMES = ("gamma", "E", "B")
 
 
 def _run_adm_kernel(grid, dtype, gidx, constants, views, flat, check):
