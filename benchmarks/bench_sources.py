@@ -333,9 +333,14 @@ def small_call_breakdown(calls):
         sources._ADM_PLANS.clear()  # every call validates in full (as before the plans)
         emsource.adm_sources(*small, out=out)
 
+    padded = [padded_copy(a) for a in small]
+    padded_out = emsource.AdmSources(*(padded_copy(a) for a in out))
+
     stages = {
         "public call, out given (plan stored)": lambda: emsource.adm_sources(*small, out=out),
         "public call, full validation (no plan)": full_path,
+        "public call, padded grid functions (no plan)": lambda: emsource.adm_sources(
+            *padded, out=padded_out),
         "  signature (shapes, dtypes, layout), look-up": lambda: sources._ADM_PLANS.get(
             _call_plans.signature(arrays, options)),
         "  out checks (writeable, overlap)": lambda: arg.output_memory(

@@ -300,3 +300,22 @@ def test_the_cache_is_bounded():
     cache.put(None, object())  # no key: nothing stored
     cache.put((9,), None)  # no plan: nothing stored
     assert cache.get((9,)) is None and cache.get(None) is None
+
+
+@pytest.mark.parametrize("out_case", ["four Nones", "three arrays", "a list"])
+def test_plan_of_allocating_calls_never_meets_a_bad_out(data, out_case):
+    """After ``out=None`` calls stored their plan, an ``out`` of Nones, of three arrays or a
+    list is refused as without it (the two kinds of call have keys of different lengths)."""
+    gamma, E, B = data
+
+    def make_call():
+        good = fresh_out()
+        out = {"four Nones": (None,) * 4, "three arrays": tuple(good[:3]),
+               "a list": list(good)}[out_case]
+        return (lambda: emsource.adm_sources(gamma, E, B, out=out)), list(good)
+
+    def warm_up():
+        emsource.adm_sources(gamma, E, B)
+
+    result = uncached_and_cached(make_call, warm_up)
+    assert result[0] == "error" and result[1] is TypeError and "out" in result[2]

@@ -32,9 +32,9 @@ _NDARRAY = np.ndarray
 def signature(arrays: tuple, options: tuple):
     """The key under which a call's plan is stored: the dtype, each array's shape, then the
     options; or None where the call cannot have a plan: an argument that is not exactly an
-    ndarray (None among ``arrays`` after the first, an output the call allocates, is kept as
-    None), not C-contiguous or not of the first array's dtype object, or an option that is not
-    exactly a ``str``.
+    ndarray, not C-contiguous or not of the first array's dtype object, or an option that is
+    not exactly a ``str``. (A call that allocates its outputs passes only its inputs: its key
+    is shorter than that of a call with ``out``, so the two never meet.)
 
     The strides are not in the key: a C-contiguous array's are fixed by its shape and dtype
     (up to axes of length 1, which no view or loop depends on). The dtypes are compared by
@@ -48,9 +48,7 @@ def signature(arrays: tuple, options: tuple):
     dtype = first.dtype
     key = [dtype]  # float32 and float64 calls of one shape do not displace each other
     for a in arrays:
-        if a is None:
-            key.append(None)
-        elif type(a) is _NDARRAY and a.dtype is dtype and a.flags.c_contiguous:
+        if type(a) is _NDARRAY and a.dtype is dtype and a.flags.c_contiguous:
             key.append(a.shape)
         else:
             return None

@@ -237,18 +237,16 @@ def adm_sources(gamma, E, B, *, units="gaussian", field_index="upper",
     (True, True)
     """
     function = "adm_sources"
+    # The key of a call that allocates its outputs holds three shapes, one with out seven.
     if out is None:
-        outputs = _NO_OUTPUTS
+        key = signature((gamma, E, B), (units, field_index, layout))
     elif (type(out) is AdmSources or type(out) is tuple) and len(out) == 4:
-        outputs = out
+        key = signature((gamma, E, B) + tuple(out), (units, field_index, layout))
     else:
-        outputs = None
-    if outputs is not None:
-        arrays = (gamma, E, B) + tuple(outputs)
-        key = signature(arrays, (units, field_index, layout))
-        plan = _ADM_PLANS.get(key)
-        if plan is not None:
-            return _planned_adm_sources(plan, arrays, outputs, check)
+        key = None
+    plan = _ADM_PLANS.get(key)
+    if plan is not None:
+        return _planned_adm_sources(plan, gamma, E, B, out, check)
     grid, metric, gidx, e, b, prefactor, form = _common_inputs(
         function, gamma, E, B, units, field_index, layout)
     dtype = arg.common_dtype(function, ("gamma", "E", "B"), (gamma, E, B))
@@ -273,7 +271,7 @@ def adm_sources(gamma, E, B, *, units="gaussian", field_index="upper",
         return result
     kernel_views, flat = arg.kernel_views([metric, e, b] + views, grid, whole_grids=True)
     constants = arg.kernel_constants(form, dtype, prefactor)
-    if outputs is not None and layout == "component_first":
+    if layout == "component_first":
         # Only now, after every check passed: a plan is what a full validation derived.
         _ADM_PLANS.put(key, FlatPlan.of((gamma, E, B) + result, kernel_views, grid, dtype,
                                         (gidx, constants)))
@@ -281,26 +279,24 @@ def adm_sources(gamma, E, B, *, units="gaussian", field_index="upper",
     return result
 
 
-#: Stands for the four outputs where the call allocates them (``out=None``) in a signature.
-_NO_OUTPUTS = (None, None, None, None)
 #: Validated layouts of :func:`adm_sources` calls by signature (:mod:`emsource._call_plans`).
 _ADM_PLANS = PlanCache()
 
 
-def _planned_adm_sources(plan, arrays, outputs, check):
-    """:func:`adm_sources` for a signature validated before (``arrays``: gamma, E, B and the
-    four outputs, None where allocated here): the layout comes from ``plan``; the checks that
-    depend on memory (writeable and apart outputs) and the point checks run."""
-    if outputs[0] is None:
+def _planned_adm_sources(plan, gamma, E, B, out, check):
+    """:func:`adm_sources` for a signature validated before: the layout comes from ``plan``;
+    the checks that depend on memory (writeable and apart outputs) and the point checks run."""
+    inputs = (gamma, E, B)
+    if out is None:
         grid, dtype = plan.grid, plan.dtype
         result = AdmSources(np.empty(grid, dtype), np.empty((3,) + grid, dtype),
                             np.empty((6,) + grid, dtype), np.empty(grid, dtype))
-        arrays = arrays[:3] + result
     else:
-        result = outputs if type(outputs) is AdmSources else AdmSources(*outputs)
-        arg.output_memory("adm_sources", AdmSources._fields, result, _INPUT_NAMES, arrays[:3])
+        result = out if type(out) is AdmSources else AdmSources(*out)
+        arg.output_memory("adm_sources", AdmSources._fields, result, _INPUT_NAMES, inputs)
     gidx, constants = plan.extra
-    _run_adm_kernel(plan.grid, plan.dtype, gidx, constants, plan.views(arrays), True, check)
+    _run_adm_kernel(plan.grid, plan.dtype, gidx, constants, plan.views(inputs + result), True,
+                    check)
     return result
 
 
