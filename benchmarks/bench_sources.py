@@ -13,7 +13,9 @@ In one run and on the same threads it measures, per grid size (default 128^3, 13
       (``c_reference.py``, built now where a C compiler is found), with the time ratio
       emsource / C of each pair;
   (c) a plain-NumPy implementation of the same formulas (einsum, linalg.det), 128^3 float64,
-  (d) the per-call time on an 8^3 grid, through the public API with ``out``.
+  (d) the per-call time on an 8^3 grid, through the public API with ``out``, with and without
+      the stored plan of the call's signature (``emsource._call_plans``), and its stages timed
+      one by one (``--small-call`` runs only this part).
 Every timing is taken right after a triad timing, and the cases of one size run interleaved
 (triad, case 1, triad, case 2, ..., then again): load that comes and goes on this shared machine
 affects the members of a pair alike. It prints medians: points per second, the effective
@@ -25,6 +27,7 @@ from __future__ import annotations
 
 import argparse
 import math
+import os
 import statistics
 import time
 
@@ -197,7 +200,14 @@ def main(argv=None):
     parser.add_argument("--repeat", type=int, default=9, help="repetitions per median (default 9)")
     parser.add_argument("--quick", action="store_true", help="only 128^3 and 134^3")
     parser.add_argument("--sizes", type=int, nargs="+", help="grid sizes n (n^3 points)")
+    parser.add_argument("--calls", type=int, default=20000,
+                        help="timed calls per stage of the 8^3 per-call figure (default 20000)")
+    parser.add_argument("--small-call", action="store_true",
+                        help="only the 8^3 per-call figure and its stages (d)")
     args = parser.parse_args(argv)
+    if args.small_call:
+        small_call_breakdown(args.calls)
+        return
     sizes = args.sizes or ((128, 134) if args.quick else (128, 134, 256, 262))
     print(f"emsource {emsource.__version__}, numba {numba.__version__}, numpy {np.__version__}, "
           f"{numba.get_num_threads()} threads, medians of {args.repeat}")
@@ -278,10 +288,83 @@ def main(argv=None):
         worst = max(float(np.max(np.abs(a - b)) / np.max(np.abs(b))) for a, b in zip(out, ours))
         print(f"    largest relative difference kernel vs C: {worst:.1e}")
 
-    small = flat_space_fields((8, 8, 8), np.float64)
+    small_call_breakdown(args.calls)
+
+
+@numba.njit(cache=True)
+def _fourteen_arguments(a, b, c, d, e, f, g, h, i, j, k, m, n, o):
+    """Does nothing: its call time is Numba's dispatch of the source driver's arguments."""
+    return 0, 0
+
+
+def _median_ns(function, calls, blocks=10):
+    """Median in ns of ``calls`` timed calls of ``function`` (after a warm-up), taken in
+    ``blocks`` blocks so that stages timed in turn share the machine's load alike."""
+    for _ in range(min(calls, 2000)):
+        function()
+    times = []
+    clock = time.perf_counter_ns
+    for _ in range(calls):
+        start = clock()
+        function()
+        times.append(clock() - start)
+    return statistics.median(times)
+
+
+def small_call_breakdown(calls):
+    """(d) The public call on an 8^3 grid with ``out`` and its stages, each the median of
+    ``calls`` timed calls; the stages are run in turn in 10 rounds and each figure is the
+    median over the rounds."""
+    from emsource import _call_plans, sources
+    from emsource._threading import kernel_call
+    from emsource.kernels import sources as kernels
+
+    gamma, E, B = small = flat_space_fields((8, 8, 8), np.float64)
     out = emsource.adm_sources(*small)
-    call = median_seconds(lambda: emsource.adm_sources(*small, out=out), 20 * args.repeat * 50)
-    print(f"\n(d) per-call time on an 8^3 grid (public API, out given): {call * 1e6:.1f} us")
+    emsource.adm_sources(*small, out=out)  # stores the plan
+    arrays = small + tuple(out)
+    options = ("gaussian", "upper", "component_first")
+    plan = sources._ADM_PLANS.get(_call_plans.signature(arrays, options))
+    gidx, constants = plan.extra
+    views = plan.views(arrays)
+    names, inputs = emsource.AdmSources._fields, ("gamma", "E", "B")
+
+    def full_path():
+        sources._ADM_PLANS.clear()  # every call validates in full (as before the plans)
+        emsource.adm_sources(*small, out=out)
+
+    padded = [padded_copy(a) for a in small]
+    padded_out = emsource.AdmSources(*(padded_copy(a) for a in out))
+
+    stages = {
+        "public call, out given (plan stored)": lambda: emsource.adm_sources(*small, out=out),
+        "public call, full validation (no plan)": full_path,
+        "public call, padded grid functions (no plan)": lambda: emsource.adm_sources(
+            *padded, out=padded_out),
+        "  signature (shapes, dtypes, layout), look-up": lambda: sources._ADM_PLANS.get(
+            _call_plans.signature(arrays, options)),
+        "  out checks (writeable, overlap)": lambda: arg.output_memory(
+            "adm_sources", names, out, inputs, small),
+        "  kernel views": lambda: plan.views(arrays),
+        "  kernel call (threads, 512 points, counts)": lambda: kernels.adm_sources_flat(
+            views[0], gidx, *views[1:], *constants, True),
+        "    of which Numba dispatch (empty function)": lambda: _fourteen_arguments(
+            views[0], gidx, *views[1:], *constants, True),
+        "  kernel_call() guard": lambda: kernel_call(),
+    }
+    rounds = 10
+    medians = {name: [] for name in stages}
+    for _ in range(rounds):
+        for name, function in stages.items():
+            medians[name].append(_median_ns(function, max(1, calls // rounds)))
+    print(f"\n(d) per-call time on an 8^3 grid, float64, checks on (medians of {calls} calls "
+          f"per line, in {rounds} interleaved rounds); load average {os.getloadavg()[0]:.1f}")
+    figures = {name: statistics.median(values) / 1e3 for name, values in medians.items()}
+    for name, us in figures.items():
+        print(f"    {name:<48} {us:6.2f} us")
+    parts = [name for name in figures if name.startswith("  ") and not name.startswith("    ")]
+    rest = figures["public call, out given (plan stored)"] - sum(figures[n] for n in parts)
+    print(f"    {'  rest (argument passing, entry, result)':<48} {rest:6.2f} us")
 
 
 if __name__ == "__main__":

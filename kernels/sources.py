@@ -220,10 +220,21 @@ def _flux_point(n, alpha, beta, gamma, gidx, E, B, out, form, coef, half, tiny, 
 @grid_kernel
 def adm_sources_flat(gamma, gidx, E, B, rho, S_i, S_ij, S, form, coef, half, tiny, pivot_floor,
                      check):
-    """rho, S_i, S_ij, S over arrays of shape (ncomp, npoints); returns the two counts."""
+    """rho, S_i, S_ij, S over arrays of shape (ncomp, row length) and (npoints,), or over
+    C-contiguous (ncomp, *grid) and grid-shaped arrays, which it sees as those (a reshape
+    here costs nothing; each in Python costs a small grid's call about 0.15 us); returns the
+    two counts. The loop count is the scalar output's size: rows may be longer (padded)."""
+    npoints = rho.size
+    gamma = gamma.reshape((gamma.shape[0], gamma.size // gamma.shape[0]))
+    E = E.reshape((E.shape[0], E.size // E.shape[0]))
+    B = B.reshape((B.shape[0], B.size // B.shape[0]))
+    rho = rho.reshape(npoints)
+    S_i = S_i.reshape((S_i.shape[0], S_i.size // S_i.shape[0]))
+    S_ij = S_ij.reshape((S_ij.shape[0], S_ij.size // S_ij.shape[0]))
+    S = S.reshape(npoints)
     bad_count = 0
     underflow_count = 0
-    for n in prange(rho.shape[0]):
+    for n in prange(npoints):
         status = _adm_point(n, gamma, gidx, E, B, rho, S_i, S_ij, S, form, coef, half, tiny,
                             pivot_floor)
         if check:

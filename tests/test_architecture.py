@@ -23,7 +23,7 @@ LAYERS = (
                     "emsource.quantities", "emsource.input_forms", "emsource._threading",
                     "emsource.interruption", "emsource._deprecated_names",
                     "emsource.spin_harmonics", "emsource.staggering", "emsource.metric_forms",
-                    "emsource.grid_arrays")),
+                    "emsource.grid_arrays", "emsource._call_plans")),
     ("point physics", ("emsource.sources", "emsource.energy_flux", "emsource.reductions",
                        "emsource.physical_units", "emsource.newman_penrose",
                        "emsource.potential", "emsource.patches",

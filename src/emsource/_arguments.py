@@ -139,18 +139,9 @@ def outputs(function: str, names: tuple, values: tuple, shapes: tuple, component
             dtype, layout: str, input_names: tuple, inputs: tuple) -> list:
     """Check caller-supplied output arrays and return their component-first views.
 
-    Each must be a writeable ndarray of the expected shape and dtype that shares no memory with
-    any input (inputs are never overwritten). This runs on every call of an evolution loop, so
-    the overlap test is cheap in the common case: arrays that own their memory, or views of
-    them, cannot overlap arrays with another owner. Anything else (views of one array, arrays
-    over foreign buffers) goes to ``np.may_share_memory``.
+    Each must be an ndarray of the expected shape and dtype (checked here, in order), and
+    writeable and apart from every input and from the other outputs (:func:`output_memory`).
     """
-    input_owners = [_owner(a) for a in inputs]
-    inputs_owned = True  # every input over memory of a plain owning ndarray
-    for o in input_owners:
-        if o is None:
-            inputs_owned = False
-    output_owners = []
     views = []
     # Written as plain loops with the messages built only on error: this runs on every call of
     # an evolution loop, and generator expressions and f-strings here cost microseconds.
@@ -164,6 +155,46 @@ def outputs(function: str, names: tuple, values: tuple, shapes: tuple, component
                 f"{function}: {label} must have shape {shape} and dtype {dtype}, "
                 f"found shape {value.shape} and dtype {value.dtype}"
             )
+        views.append(value if ncomp == 0 or layout == "component_first"
+                     else component_first(value, ncomp, layout))
+    output_memory(function, names, values, input_names, inputs)
+    return views
+
+
+def output_memory(function: str, names: tuple, values: tuple, input_names: tuple,
+                  inputs: tuple) -> None:
+    """Raise unless every output array is writeable and shares no memory with any input
+    (inputs are never overwritten) or with another output.
+
+    These are the checks that depend on which memory the arrays hold, not on their shapes,
+    strides and dtypes: they run on every call, also where a call reuses a validated layout
+    (:mod:`emsource._call_plans`). They are cheap in the common case: arrays that own their
+    memory, or views of them, cannot overlap arrays with another owner. Anything else (views
+    of one array, arrays over foreign buffers) goes to ``np.may_share_memory``.
+    """
+    # The usual case of an evolution loop, decided first: every array a plain ndarray that is
+    # its own owner (base None), the outputs writeable and none of them the same object as an
+    # input or another output; then no two can share memory. Anything else: the loop below.
+    for a in inputs:
+        if a.base is not None or type(a) is not np.ndarray:
+            break
+    else:
+        for value in values:
+            if value.base is not None or type(value) is not np.ndarray or not value.flags.writeable:
+                break
+        else:
+            objects = set(map(id, inputs))  # ids of arrays alive now, within this call only
+            distinct_inputs = len(objects)
+            objects.update(map(id, values))
+            if len(objects) == distinct_inputs + len(values):
+                return
+    input_owners = [_owner(a) for a in inputs]
+    inputs_owned = True  # every input over memory of a plain owning ndarray
+    for o in input_owners:
+        if o is None:
+            inputs_owned = False
+    output_owners = []
+    for name, value in zip(names, values):
         if not value.flags.writeable:
             label = f"out {name}" if name else "out"
             raise ValueError(f"{function}: {label} is read-only")
@@ -182,11 +213,8 @@ def outputs(function: str, names: tuple, values: tuple, shapes: tuple, component
                         f"{function}: {label} overlaps input {input_name}; "
                         "inputs are never overwritten"
                     )
-        views.append(value if ncomp == 0 or layout == "component_first"
-                     else component_first(value, ncomp, layout))
     if len(values) > 1:
         _outputs_apart(function, names, values, output_owners)
-    return views
 
 
 def _outputs_apart(function: str, names: tuple, values: tuple, owners: list) -> None:
@@ -236,6 +264,10 @@ def kernel_constants(form: int, dtype, prefactor: float) -> tuple:
         dtype = np.dtype(dtype)
         constants = (form, dtype.type(prefactor), dtype.type(0.5), smallest_normal(dtype),
                      pivot_floor(dtype))
+        if dtype == np.float64:
+            # Python floats: Numba types them float64 as it does NumPy's float64 scalars (the
+            # same compiled kernel), and unboxes them about 50 ns faster each per call.
+            constants = (form,) + tuple(float(c) for c in constants[1:])
         _KERNEL_CONSTANTS[key] = constants
     return constants
 
@@ -300,7 +332,7 @@ def _row_block(a: np.ndarray, ncomp_axes: int, ncomp: int, npoints: int):
     return np.ndarray((ncomp, step // itemsize), a.dtype, buffer=owner, offset=offset)
 
 
-def kernel_views(arrays, grid):
+def kernel_views(arrays, grid, whole_grids=False):
     """Views of component-first ``arrays`` for the kernels, and whether the flat path applies.
 
     The flat path takes each array as (ncomp, stride) (or (npoints,) for a scalar) and runs
@@ -310,6 +342,11 @@ def kernel_views(arrays, grid):
     touches the gaps). Otherwise each array becomes (ncomp, nx, ny, nz) with trailing
     length-1 axes added for 1D and 2D grids, for the strided loop. Either way no data are
     copied.
+
+    ``whole_grids=True`` (for a flat driver that reshapes C-contiguous arrays itself, as
+    ``kernels.sources.adm_sources_flat``): C-contiguous arrays on a 3-D grid are returned as
+    they are, which spares seven reshapes (about 1 us) on a small grid's call; 1-D grids are
+    passed as they are in any case, 2-D grids are reshaped (one compiled signature less).
     """
     contiguous = True
     for a in arrays:
@@ -317,7 +354,7 @@ def kernel_views(arrays, grid):
             contiguous = False
             break
     ndim = len(grid)
-    if contiguous and ndim == 1:
+    if contiguous and (ndim == 1 or (whole_grids and ndim == 3)):
         return arrays, True
     npoints = 1
     for n in grid:
@@ -358,13 +395,16 @@ def three_axis_views(arrays, grid):
 
 def as_grid_views(arrays, flat: bool, grid):
     """The (ncomp, nx, ny, nz) form of kernel views on ``grid`` (a flat line becomes
-    (ncomp, 1, 1, npoints); the gaps of padded rows are cut off)."""
+    (ncomp, 1, 1, npoints); the gaps of padded rows are cut off; arrays on a 3-D grid passed
+    whole, ``kernel_views(..., whole_grids=True)``, are that form already)."""
     if not flat:
         return arrays
     npoints = 1
     for n in grid:
         npoints *= n
-    return [a[..., :npoints].reshape(a.shape[:-1] + (1, 1, npoints)) for a in arrays]
+    grid = tuple(grid)
+    return [a if len(grid) == 3 and a.shape[a.ndim - 3:] == grid
+            else a[..., :npoints].reshape(a.shape[:-1] + (1, 1, npoints)) for a in arrays]
 
 
 #: Orders of the centred finite differences the diagnostics offer (kernels/stencils.py).

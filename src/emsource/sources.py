@@ -15,6 +15,7 @@ from . import _arguments as arg
 from .errors import GridPointError
 from .input_forms import input_form
 from ._threading import kernel_call
+from ._call_plans import FlatPlan, PlanCache, signature
 from .kernels import sources as kernels
 from .unit_systems import stress_energy_prefactor
 
@@ -236,6 +237,16 @@ def adm_sources(gamma, E, B, *, units="gaussian", field_index="upper",
     (True, True)
     """
     function = "adm_sources"
+    # The key of a call that allocates its outputs holds three shapes, one with out seven.
+    if out is None:
+        key = signature((gamma, E, B), (units, field_index, layout))
+    elif (type(out) is AdmSources or type(out) is tuple) and len(out) == 4:
+        key = signature((gamma, E, B) + tuple(out), (units, field_index, layout))
+    else:
+        key = None
+    plan = _ADM_PLANS.get(key)
+    if plan is not None:
+        return _planned_adm_sources(plan, gamma, E, B, out, check)
     grid, metric, gidx, e, b, prefactor, form = _common_inputs(
         function, gamma, E, B, units, field_index, layout)
     dtype = arg.common_dtype(function, ("gamma", "E", "B"), (gamma, E, B))
@@ -258,17 +269,52 @@ def adm_sources(gamma, E, B, *, units="gaussian", field_index="upper",
             (0, 1, 1, 0), dtype, layout, ("gamma", "E", "B"), (gamma, E, B))
     if not arg.has_points(grid):
         return result
-    (g, ev, bv, rho, s_i, s_ij, s), flat = arg.kernel_views([metric, e, b] + views, grid)
-    driver = kernels.adm_sources_flat if flat else kernels.adm_sources_grid
+    kernel_views, flat = arg.kernel_views([metric, e, b] + views, grid, whole_grids=True)
     constants = arg.kernel_constants(form, dtype, prefactor)
+    if layout == "component_first":
+        # Only now, after every check passed: a plan is what a full validation derived.
+        _ADM_PLANS.put(key, FlatPlan.of((gamma, E, B) + result, kernel_views, grid, dtype,
+                                        (gidx, constants)))
+    _run_adm_kernel(grid, dtype, gidx, constants, kernel_views, flat, check)
+    return result
+
+
+#: Validated layouts of :func:`adm_sources` calls by signature (:mod:`emsource._call_plans`).
+_ADM_PLANS = PlanCache()
+
+
+def _planned_adm_sources(plan, gamma, E, B, out, check):
+    """:func:`adm_sources` for a signature validated before: the layout comes from ``plan``;
+    the checks that depend on memory (writeable and apart outputs) and the point checks run."""
+    inputs = (gamma, E, B)
+    if out is None:
+        grid, dtype = plan.grid, plan.dtype
+        result = AdmSources(np.empty(grid, dtype), np.empty((3,) + grid, dtype),
+                            np.empty((6,) + grid, dtype), np.empty(grid, dtype))
+    else:
+        result = out if type(out) is AdmSources else AdmSources(*out)
+        arg.output_memory("adm_sources", AdmSources._fields, result, _INPUT_NAMES, inputs)
+    gidx, constants = plan.extra
+    _run_adm_kernel(plan.grid, plan.dtype, gidx, constants, plan.views(inputs + result), True,
+                    check)
+    return result
+
+
+_INPUT_NAMES = ("gamma", "E", "B")
+
+
+def _run_adm_kernel(grid, dtype, gidx, constants, views, flat, check):
+    """One call of the source driver on kernel views (flat or column loop); on counted bad
+    points, the search for the first one and :class:`GridPointError`."""
+    g, ev, bv, rho, s_i, s_ij, s = views
+    driver = kernels.adm_sources_flat if flat else kernels.adm_sources_grid
     with kernel_call():
         counts = driver(g, gidx, ev, bv, rho, s_i, s_ij, s, *constants, bool(check))
         if counts[0] or counts[1]:
             grid_views = arg.as_grid_views([g, ev, bv, rho, s_i, s_ij, s], flat, grid)
-            raise_for_counts(function, counts, grid, dtype, kernels.first_failing_adm,
+            raise_for_counts("adm_sources", counts, grid, dtype, kernels.first_failing_adm,
                              (grid_views[0], gidx, *grid_views[1:], *constants),
                              ("gamma", "E", "B"), grid_views[:3], grid_views[3:], gidx)
-    return result
 
 
 def stress_energy_4d(alpha, beta, gamma, E, B, *, units="gaussian", index="lower",

@@ -2,9 +2,9 @@
 
 Each kernel is compiled once per argument signature (dtype, memory layout) and cached; a later
 run, of any command or of the Python API, loads it. This command calls every public function
-on tiny grids in the common signatures: float64 and float32, contiguous (and padded grid
-functions, which share the contiguous signature) and strided (ghost zones sliced off,
-component-last data). With ``--diagnostics`` also the conservation and constraint kernels
+on tiny grids in the common signatures: float64 and float32, contiguous, padded grid
+functions (the sources' flat driver takes contiguous 3-D arrays whole and padded ones as rows:
+two signatures) and strided (ghost zones sliced off, component-last data). With ``--diagnostics`` also the conservation and constraint kernels
 (float64, the difference orders share one signature), which take minutes.
 """
 
@@ -45,6 +45,7 @@ def common_signatures():
     common signatures."""
     import emsource
     from emsource.energy_flux import energy_fluxes
+    from emsource.grid_arrays import grid_function_like
 
     calls = []
     for dtype in (np.float64, np.float32):
@@ -59,6 +60,13 @@ def common_signatures():
             calls.append((f"T_ab, {name}, {layout}",
                           lambda al=al, be=be, ga=ga, e=e, b=b:
                           emsource.stress_energy_4d(al, be, ga, e, b)))
+        padded = [grid_function_like(a) for a in (gamma, E, B)]
+        for p, a in zip(padded, (gamma, E, B)):
+            p[...] = a
+        calls.append((f"sources, {name}, padded",
+                      lambda ga=padded[0], e=padded[1], b=padded[2]: emsource.adm_sources(
+                          ga, e, b, out=emsource.AdmSources(*(
+                              grid_function_like(a) for a in emsource.adm_sources(ga, e, b))))))
         calls.append((f"energy fluxes, {name}",
                       lambda al=alpha, be=beta, ga=gamma, e=E, b=B: energy_fluxes(al, be, ga, e, b)))
     return calls

@@ -1,0 +1,321 @@
+"""A validated layout kept per argument signature (emsource._call_plans) never changes what a
+call accepts, rejects or computes.
+
+The reference is the full path itself: every case runs once with the plan cache empty (the call
+validates everything) and once right after a good call with the same shapes has stored a plan,
+and the two outcomes (the results bit for bit, or the exception type and message, and what the
+outputs hold afterwards) must be equal. Each hostile case first asserts that it really reaches
+the stored plan's look-up (same key), so that it tests the cached path and not a key miss.
+"""
+
+import numpy as np
+import pytest
+
+import emsource
+from emsource import _call_plans, sources
+from conftest import random_curved_data
+
+GRID = (4, 3, 5)
+OPTIONS = ("gaussian", "upper", "component_first")
+
+
+@pytest.fixture
+def data(rng):
+    _, _, gamma, E, B = random_curved_data(rng, GRID)
+    return gamma, E, B
+
+
+def fresh_out(dtype=np.float64, grid=GRID):
+    """Outputs filled with a sentinel, so that any write shows."""
+    return emsource.AdmSources(np.full(grid, 7.0, dtype), np.full((3,) + grid, 7.0, dtype),
+                               np.full((6,) + grid, 7.0, dtype), np.full(grid, 7.0, dtype))
+
+
+def outcome(call):
+    """("ok", results) or ("error", type, message) of ``call()``."""
+    try:
+        result = call()
+    except Exception as error:  # noqa: BLE001 - the outcome is what is compared
+        return ("error", type(error), str(error))
+    return ("ok", tuple(np.array(a, copy=True) for a in result))
+
+
+def assert_same(a, b):
+    assert a[0] == b[0], (a, b)
+    if a[0] == "error":
+        assert a[1:] == b[1:]
+    else:
+        for x, y in zip(a[1], b[1]):
+            assert x.dtype == y.dtype and x.shape == y.shape
+            np.testing.assert_array_equal(x, y)  # the same kernel on the same views: same bits
+
+
+def uncached_and_cached(make_call, warm_up):
+    """Outcomes of a call with no plan stored, and with the plan of ``warm_up()`` stored.
+
+    ``make_call()`` builds the arguments afresh each time and returns (call, arrays); the
+    arrays (inputs and outputs) are returned as they are after the call, to compare writes.
+    """
+    sources._ADM_PLANS.clear()
+    call, arrays = make_call()
+    first = outcome(call)
+    after_first = [a.copy() for a in arrays]
+    sources._ADM_PLANS.clear()  # a plan the first call stored is not the one under test
+    warm_up()
+    assert len(sources._ADM_PLANS) == 1
+    call, arrays = make_call()
+    second = outcome(call)
+    after_second = [a.copy() for a in arrays]
+    assert_same(first, second)
+    for x, y in zip(after_first, after_second):
+        np.testing.assert_array_equal(x, y)
+    return first
+
+
+def plan_for(arrays, options=OPTIONS):
+    """The stored plan a call with ``arrays`` (inputs and outputs) looks up, or None."""
+    return sources._ADM_PLANS.get(_call_plans.signature(tuple(arrays), options))
+
+
+def test_a_repeated_call_uses_the_plan_and_gives_the_same_bits(data):
+    gamma, E, B = data
+    sources._ADM_PLANS.clear()
+    expected = emsource.adm_sources(gamma, E, B)
+    out = fresh_out()
+    emsource.adm_sources(gamma, E, B, out=out)  # full path, stores the plan
+    assert plan_for((gamma, E, B) + out) is not None
+    again = fresh_out()
+    returned = emsource.adm_sources(gamma, E, B, out=again)  # planned path
+    assert returned is again
+    for a, b in zip(again, expected):
+        np.testing.assert_array_equal(a, b)
+    allocated = emsource.adm_sources(gamma, E, B)  # out=None has its own plan
+    for a, b in zip(allocated, expected):
+        np.testing.assert_array_equal(a, b)
+    assert len(sources._ADM_PLANS) == 2
+
+
+def test_plan_never_accepts_a_read_only_out(data):
+    gamma, E, B = data
+
+    def make_call():
+        out = fresh_out()
+        out.S.flags.writeable = False
+        return (lambda: emsource.adm_sources(gamma, E, B, out=out)), list(out)
+
+    def warm_up():
+        emsource.adm_sources(gamma, E, B, out=fresh_out())
+        call, arrays = make_call()
+        assert plan_for((gamma, E, B) + tuple(arrays)) is not None  # the same key as the good call
+
+    result = uncached_and_cached(make_call, warm_up)
+    assert result[0] == "error" and "out S is read-only" in result[2]
+
+
+@pytest.mark.parametrize("alias", ["rho is E[1]", "S_i is E", "S_ij is gamma", "S is rho",
+                                   "S_i is B"])
+def test_plan_never_accepts_an_aliased_out(data, alias):
+    """Outputs of the right shape and dtype that are an input, a view of one, or another output."""
+    gamma, E, B = data
+
+    def make_call():
+        out = list(fresh_out())
+        if alias == "rho is E[1]":
+            out[0] = E[1]  # C-contiguous, the shape of rho: the same key as a good call
+        elif alias == "S_i is E":
+            out[1] = E
+        elif alias == "S_ij is gamma":
+            out[2] = gamma
+        elif alias == "S is rho":
+            out[3] = out[0]
+        else:
+            out[1] = B
+        return (lambda: emsource.adm_sources(gamma, E, B, out=tuple(out))), [gamma, E, B]
+
+    def warm_up():
+        emsource.adm_sources(gamma, E, B, out=fresh_out())
+
+    inputs_before = [a.copy() for a in (gamma, E, B)]
+    result = uncached_and_cached(make_call, warm_up)
+    assert result[0] == "error" and result[1] is ValueError and "overlaps" in result[2]
+    for a, b in zip((gamma, E, B), inputs_before):  # inputs are never written
+        np.testing.assert_array_equal(a, b)
+
+
+def test_aliased_outputs_reach_the_stored_plan(data):
+    """The aliasing cases above share the good call's key: they are refused by the per-call
+    memory check, not by a key miss."""
+    gamma, E, B = data
+    sources._ADM_PLANS.clear()
+    good = fresh_out()
+    emsource.adm_sources(gamma, E, B, out=good)
+    plan = plan_for((gamma, E, B) + good)
+    assert plan is not None
+    for out in [(E[1], good.S_i, good.S_ij, good.S), (good.rho, E, good.S_ij, good.S),
+                (good.rho, good.S_i, gamma, good.S), (good.rho, good.S_i, good.S_ij, good.rho)]:
+        arrays = (gamma, E, B) + out
+        assert plan_for(arrays) is plan
+
+
+@pytest.mark.parametrize("dtype_case", ["float32 out", "float32 E", "float32 everything",
+                                        "int64 out", "big-endian E"])
+def test_plan_never_accepts_another_dtype(data, dtype_case):
+    gamma, E, B = data
+
+    def make_call():
+        g, e, b = gamma, E, B
+        out = fresh_out()
+        if dtype_case == "float32 out":
+            out = out._replace(S_ij=out.S_ij.astype(np.float32))
+        elif dtype_case == "float32 E":
+            e = E.astype(np.float32)
+        elif dtype_case == "float32 everything":
+            g, e, b = (a.astype(np.float32) for a in (gamma, E, B))
+            out = fresh_out(np.float32)
+        elif dtype_case == "int64 out":
+            out = out._replace(rho=np.zeros(GRID, np.int64))
+        else:
+            e = E.astype(E.dtype.newbyteorder())
+        arrays = (g, e, b) + tuple(out)
+        return (lambda: emsource.adm_sources(g, e, b, out=out)), list(arrays)
+
+    def warm_up():
+        emsource.adm_sources(gamma, E, B, out=fresh_out())
+        call, arrays = make_call()
+        # Same shapes, other dtype(s): no key, the full path (which refuses or, all float32,
+        # accepts them).
+        assert _call_plans.signature(tuple(arrays), OPTIONS) != _call_plans.signature(
+            (gamma, E, B) + fresh_out(), OPTIONS)
+
+    result = uncached_and_cached(make_call, warm_up)
+    if dtype_case == "float32 everything":
+        assert result[0] == "ok" and result[1][0].dtype == np.float32
+    else:
+        assert result[0] == "error" and "dtype" in result[2]
+
+
+@pytest.mark.parametrize("view_case", ["strided E", "ghost-zone views", "Fortran-ordered B",
+                                       "reversed out S_i", "subclass E"])
+def test_plan_never_takes_other_memory_layouts(data, view_case):
+    """Same shapes and dtype, but not C-contiguous (or not exactly an ndarray): no key, the
+    full path, which takes the column loop (or the subclass) and gives the same result."""
+    gamma, E, B = data
+
+    def make_call():
+        g, e, b = gamma, E, B
+        out = fresh_out()
+        if view_case == "strided E":
+            e = np.repeat(E, 2, axis=-1)[..., ::2]
+        elif view_case == "ghost-zone views":
+            pad = ((0, 0), (1, 1), (1, 1), (1, 1))
+            g, e, b = (np.pad(a, pad, mode="edge")[:, 1:-1, 1:-1, 1:-1] for a in (gamma, E, B))
+        elif view_case == "Fortran-ordered B":
+            b = np.asfortranarray(B)
+        elif view_case == "reversed out S_i":
+            out = out._replace(S_i=np.full((3,) + GRID, 7.0)[::-1])
+        else:
+            e = E.view(type("Subclass", (np.ndarray,), {}))
+        arrays = (g, e, b) + tuple(out)
+        assert _call_plans.signature(arrays, OPTIONS) is None
+        return (lambda: emsource.adm_sources(g, e, b, out=out)), list(out)
+
+    def warm_up():
+        emsource.adm_sources(gamma, E, B, out=fresh_out())
+
+    result = uncached_and_cached(make_call, warm_up)
+    assert result[0] == "ok"
+    expected = emsource.adm_sources(gamma, E, B)
+    for a, b in zip(result[1], expected):
+        # The column loop may round differently (FMA contraction): see conftest.
+        np.testing.assert_allclose(a, b, rtol=0, atol=16 * np.finfo(b.dtype).eps * np.max(np.abs(b)))
+
+
+@pytest.mark.parametrize("option_case", ["units", "field_index", "bad units", "list layout"])
+def test_plan_is_per_options(data, option_case):
+    gamma, E, B = data
+    kwargs = {"units": {"units": "heaviside_lorentz"}, "field_index": {"field_index": "lower"},
+              "bad units": {"units": "si"}, "list layout": {"layout": ["component_first"]}}[option_case]
+
+    def make_call():
+        out = fresh_out()
+        return (lambda: emsource.adm_sources(gamma, E, B, out=out, **kwargs)), list(out)
+
+    def warm_up():
+        emsource.adm_sources(gamma, E, B, out=fresh_out())
+
+    result = uncached_and_cached(make_call, warm_up)
+    if option_case == "units":
+        # Heaviside-Lorentz drops the 1/(4 pi) of Gaussian units (conventions: T^ab). Each
+        # side has at most 3 roundings from the prefactor (it rounded, its product, 4 pi
+        # and that product on the Gaussian side), so 8 eps bounds the relative difference.
+        gaussian = emsource.adm_sources(gamma, E, B)
+        np.testing.assert_allclose(result[1][0], 4 * np.pi * gaussian.rho, rtol=8 * np.finfo(float).eps)
+    elif option_case == "field_index":
+        assert result[0] == "ok"
+    else:
+        assert result[0] == "error"
+
+
+def test_bad_points_through_the_plan_name_the_same_point(data):
+    gamma, E, B = data
+
+    def make_call():
+        bad = E.copy()
+        bad[2, 1, 2, 3] = np.nan
+        out = fresh_out()
+        return (lambda: emsource.adm_sources(gamma, bad, B, out=out)), [bad]
+
+    def warm_up():
+        emsource.adm_sources(gamma, E, B, out=fresh_out())
+
+    result = uncached_and_cached(make_call, warm_up)
+    assert result[0] == "error" and result[1] is emsource.GridPointError
+    assert "(1, 2, 3)" in result[2] and "E[2] = nan" in result[2]
+
+
+def test_other_grids_and_metric_forms_keep_their_own_plans(rng):
+    """1-, 2- and 3-D grids and the full (3, 3) metric: each its own key, the planned call
+    equal to the full one."""
+    cases = []
+    for grid in [(7,), (3, 4), (2, 3, 4)]:
+        _, _, gamma, E, B = random_curved_data(rng, grid)
+        cases.append((gamma, E, B))
+    _, _, gamma, E, B = random_curved_data(rng, (3, 2, 2))
+    full = np.ascontiguousarray(gamma[np.array([[0, 1, 2], [1, 3, 4], [2, 4, 5]])])
+    cases.append((full, E, B))
+    sources._ADM_PLANS.clear()
+    expected = [emsource.adm_sources(*case) for case in cases]  # full path; stores the plans
+    assert len(sources._ADM_PLANS) == len(cases)
+    for case, reference in zip(cases, expected):
+        planned = emsource.adm_sources(*case)
+        for a, b in zip(planned, reference):
+            np.testing.assert_array_equal(a, b)
+
+
+def test_the_cache_is_bounded():
+    cache = _call_plans.PlanCache(capacity=3)
+    for n in range(7):
+        cache.put((n,), object())
+        assert 1 <= len(cache) <= 3
+    cache.put(None, object())  # no key: nothing stored
+    cache.put((9,), None)  # no plan: nothing stored
+    assert cache.get((9,)) is None and cache.get(None) is None
+
+
+@pytest.mark.parametrize("out_case", ["four Nones", "three arrays", "a list"])
+def test_plan_of_allocating_calls_never_meets_a_bad_out(data, out_case):
+    """After ``out=None`` calls stored their plan, an ``out`` of Nones, of three arrays or a
+    list is refused as without it (the two kinds of call have keys of different lengths)."""
+    gamma, E, B = data
+
+    def make_call():
+        good = fresh_out()
+        out = {"four Nones": (None,) * 4, "three arrays": tuple(good[:3]),
+               "a list": list(good)}[out_case]
+        return (lambda: emsource.adm_sources(gamma, E, B, out=out)), list(good)
+
+    def warm_up():
+        emsource.adm_sources(gamma, E, B)
+
+    result = uncached_and_cached(make_call, warm_up)
+    assert result[0] == "error" and result[1] is TypeError and "out" in result[2]
