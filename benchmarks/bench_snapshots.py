@@ -210,15 +210,18 @@ def interleaved_runs(functions, repeat, cleanup):
     for _ in range(repeat):
         for function, record in zip(functions, runs):
             cleanup()
+            cpu = sum(os.times()[:2])
             began = time.perf_counter()
             stages = function()
-            record.append((time.perf_counter() - began, stages))
+            wall = time.perf_counter() - began
+            record.append((wall, stages, (sum(os.times()[:2]) - cpu) / wall))
     cleanup()
     results = []
     for record in runs:
         totals = [r[0] for r in record]
         stages = tuple(statistics.median(r[1][i] for r in record) for i in range(len(record[0][1])))
-        results.append((statistics.median(totals), stages, totals))
+        results.append((statistics.median(totals), stages, totals,
+                        statistics.median(r[2] for r in record)))
     return results
 
 
@@ -294,7 +297,8 @@ def run_case(name, directory, n, limit, repeat):
         return tuple(stages.get(k, float("nan")) for k in ("read", "kernel", "write", "finish"))
 
     load_before = _load()
-    (t_pipe, s_pipe, all_pipe), (t_fast, s_fast, all_fast), (t_safe, s_safe, all_safe) = \
+    (t_pipe, s_pipe, all_pipe, cpu_pipe), (t_fast, s_fast, all_fast, cpu_fast), \
+        (t_safe, s_safe, all_safe, cpu_safe) = \
         interleaved_runs([pipeline,
                           lambda: plain_read_write(case, reference, out_path, rows, compression, False),
                           lambda: plain_read_write(case, reference, out_path, rows, compression, True)],
@@ -315,6 +319,9 @@ def run_case(name, directory, n, limit, repeat):
     print(f"  {input_mb / t_pipe:.0f} MB/s of input; ratio (b)/(p) with the same durability "
           f"{ratio_safe:.2f} (goal >= 0.80), without {ratio_fast:.2f} (medians of the ratios "
           f"within each repetition; totals of (p): {', '.join(f'{t:.2f}' for t in all_pipe)} s)")
+    print(f"  CPU seconds per wall second (user + system, this process; 2 = both cores, far below 1 "
+          f"= the machine is busy with others): (p) {cpu_pipe:.2f}, (b) {cpu_fast:.2f}, "
+          f"(b) durable {cpu_safe:.2f}")
     if compression:
         c_rate, d_rate = zlib_rates(reference)
         output_mb = 11 * 8 * n**3 / 1e6

@@ -44,7 +44,7 @@ from .writing import (BackgroundFlush, atomic_output, check_output, chunk_shape,
                       write_level_attributes, write_root_attributes)
 
 __all__ = ["DEFAULT_MEMORY_LIMIT", "SOURCE_INPUTS", "SOURCE_OUTPUTS", "SourcesReport",
-           "compute_sources", "plan_rows"]
+           "compute_sources", "output_chunk_rows", "plan_rows"]
 
 SOURCE_OUTPUTS = OUTPUTS
 
@@ -111,6 +111,29 @@ def plan_rows(level, dtype, memory_limit, extra=(), compression=None) -> int:
     if chunk < rows < level.storage_shape[0]:
         rows = rows // chunk * chunk
     return int(rows)
+
+
+def output_chunk_rows(level, dtype, rows) -> tuple:
+    """(planes per slab, planes per output chunk) for slabs of ``rows`` planes.
+
+    Output chunks hold whole planes, about 1 MiB (:func:`.writing.chunk_shape`), and divide the
+    slab, so that every write fills whole chunks (a partial write of a compressed chunk would
+    read and re-compress it, and the direct chunk writes of :class:`.ChunkWriter` need whole
+    chunks). The slab keeps its size where a divisor of it at least half the target size exists,
+    or where the inputs are chunked: :func:`plan_rows` made it a whole number of their chunks,
+    and cutting it would make every slab read a chunk that the next slab reads again (a
+    compressed chunk is then decompressed twice). Otherwise (contiguous inputs) the slab is cut
+    to a whole number of target-size chunks.
+    """
+    n0 = level.storage_shape[0]
+    target = min(chunk_shape(level.storage_shape, np.dtype(dtype).itemsize)[0], rows)
+    if rows >= n0:  # one slab: the last chunk may run past the grid's end
+        return rows, target
+    divisor = max(d for d in range(1, target + 1) if rows % d == 0)
+    inputs_chunked = min(level.source(q).chunk_rows for q in SOURCE_INPUTS) < n0
+    if 2 * divisor >= target or inputs_chunked:
+        return rows, divisor
+    return rows // target * target, target
 
 
 def compute_sources(input_file, output_file, *, mapping=None, memory_limit=DEFAULT_MEMORY_LIMIT,
@@ -223,10 +246,7 @@ def _level_sources(level, dtype, rows, group, compression, check, written, repor
     write_level_attributes(g, time=level.time, grid=level.grid, units=level.units,
                            axis_order=level.axis_order)
     stored = level.storage_shape
-    # Chunks of whole planes, a divisor of the slab so that every write fills whole chunks
-    # (a partial write of a compressed chunk would read and re-compress it).
-    chunk_rows = min(chunk_shape(stored, dtype.itemsize)[0], rows)
-    rows = max(chunk_rows, rows // chunk_rows * chunk_rows)
+    rows, chunk_rows = output_chunk_rows(level, dtype, rows)
     datasets = {}
     for q in written:
         ncomp = COMPONENTS[q]
