@@ -14,7 +14,15 @@ buffers (:func:`~.slabs.read_overhead_bytes`), and ``fixed`` counts HDF5's chunk
 (:data:`~.reading.CHUNK_CACHE_BYTES` per open input dataset; the output has none) and its
 1 MiB type-conversion buffer. The Python interpreter and the libraries (about 150-200 MiB of
 resident memory) come on top. Outputs are chunked (one component, whole planes, about 1 MiB a
-chunk, a divisor of the slab so that writes cover whole chunks), optionally gzip-compressed.
+chunk, a divisor of the slab so that writes cover whole chunks, :func:`output_chunk_rows`),
+optionally gzip-compressed, and written chunk by chunk by :class:`.chunk_writing.ChunkWriter`
+(gzip in worker threads; its few chunks in flight are counted in the bound).
+
+Speed (``benchmarks/bench_snapshots.py``; :attr:`SourcesReport.stage_seconds` gives read, kernel,
+write and finish): the kernel runs on the slab buffers in storage order, whatever the axis order
+(each point depends on its own values only); the output is flushed to disk slab after slab in a
+background thread (:class:`.writing.BackgroundFlush`), so that the final ``fsync`` of the
+all-or-nothing output finds little left to write.
 
 Output safety (:mod:`.writing`): the output may not be an input; it is written to a temporary
 file in the target directory and renamed only when every level is complete; inputs are opened
