@@ -8,10 +8,10 @@ here with :mod:`zlib` at the dataset's deflate level by a pool of worker threads
 the GIL while it compresses), while the calling thread writes the chunks already done, in order;
 HDF5's deflate filter writes and reads one zlib stream per chunk (RFC 1950, "ZLIB Compressed
 Data Format Specification"; from memory of HDF5's filter, checked in
-``tests/test_chunk_writing.py``: HDF5 itself reads these chunks back, and h5py writes the same
-stream as ``zlib.compress`` at its level). HDF5 compresses serially in the calling thread; on
-this machine's 2 cores zlib runs at 10-15 MB/s a thread on float64 data, the slowest stage of a
-compressed output by far (``benchmarks/bench_snapshots.py``).
+``tests/test_chunk_writing.py``: HDF5 itself reads these chunks back, and a chunk written by
+HDF5's filter decompresses with ``zlib``). HDF5 compresses serially in the calling thread; on
+the 2-core machine of the benchmarks zlib ran at 7-15 MB/s a thread on float64 data, the slowest
+stage of a compressed output by far (``benchmarks/bench_snapshots.py``).
 
 Any other case (a dataset chunked or filtered otherwise, a slab that does not start on a chunk
 boundary, a buffer of another type or not C-contiguous) goes through h5py's ordinary write:
