@@ -86,8 +86,13 @@ def _attribute(obj, name, where):
     try:
         return obj.attrs[name]
     except KeyError:
+        try:  # damaged metadata can give names as bytes beside str (seen in the hostile tests)
+            names = sorted(k.decode(errors="replace") if isinstance(k, bytes) else str(k)
+                           for k in obj.attrs.keys())
+        except (OSError, RuntimeError, KeyError, TypeError, ValueError):
+            names = "attribute names that cannot be read"
         raise SnapshotError(f"{where}: attribute {name!r} missing; found "
-                            f"{sorted(obj.attrs.keys()) or 'no attributes'}") from None
+                            f"{names or 'no attributes'}") from None
     except (OSError, TypeError) as error:
         raise SnapshotError(f"{where}: attribute {name!r} cannot be read: {error}") from None
 

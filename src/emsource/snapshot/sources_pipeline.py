@@ -14,7 +14,15 @@ buffers (:func:`~.slabs.read_overhead_bytes`), and ``fixed`` counts HDF5's chunk
 (:data:`~.reading.CHUNK_CACHE_BYTES` per open input dataset; the output has none) and its
 1 MiB type-conversion buffer. The Python interpreter and the libraries (about 150-200 MiB of
 resident memory) come on top. Outputs are chunked (one component, whole planes, about 1 MiB a
-chunk, a divisor of the slab so that writes cover whole chunks), optionally gzip-compressed.
+chunk, a divisor of the slab so that writes cover whole chunks, :func:`output_chunk_rows`),
+optionally gzip-compressed, and written chunk by chunk by :class:`.chunk_writing.ChunkWriter`
+(gzip in worker threads; its few chunks in flight are counted in the bound).
+
+Speed (``benchmarks/bench_snapshots.py``; :attr:`SourcesReport.stage_seconds` gives read, kernel,
+write and finish): the kernel runs on the slab buffers in storage order, whatever the axis order
+(each point depends on its own values only); the output is flushed to disk slab after slab in a
+background thread (:class:`.writing.BackgroundFlush`), so that the final ``fsync`` of the
+all-or-nothing output finds little left to write.
 
 Output safety (:mod:`.writing`): the output may not be an input; it is written to a temporary
 file in the target directory and renamed only when every level is complete; inputs are opened
@@ -34,16 +42,17 @@ from .. import adm_sources, interruption
 from ..quantities import COMPONENTS, FORM_OUTPUTS, OUTPUTS, SOURCE_INPUTS
 from ..sources import GridPointError
 from . import form_outputs
+from .chunk_writing import ChunkWriter
 from .native import LEVELS_GROUP
 from .reading import CHUNK_CACHE_BYTES, open_snapshot
 from .slabs import (CONVERSION_BUFFER_BYTES, DEFAULT_MEMORY_LIMIT, SlabBuffers, chunk_overhead,
                     common_field_dtype, neutralise_excised, progress_bar, read_overhead_bytes,
                     read_scratch_per_row, slab_error, slab_rows, slabs, values_per_point)
-from .writing import (atomic_output, check_output, chunk_shape, hdf5_output,
+from .writing import (BackgroundFlush, atomic_output, check_output, chunk_shape, hdf5_output,
                       write_level_attributes, write_root_attributes)
 
 __all__ = ["DEFAULT_MEMORY_LIMIT", "SOURCE_INPUTS", "SOURCE_OUTPUTS", "SourcesReport",
-           "compute_sources", "plan_rows"]
+           "compute_sources", "output_chunk_rows", "plan_rows"]
 
 SOURCE_OUTPUTS = OUTPUTS
 
@@ -68,6 +77,11 @@ class SourcesReport:
     seconds: float = 0.0
     energy_density_range: tuple = (np.inf, -np.inf)
     times: list = field(default_factory=list)
+    #: Wall seconds by stage: "read" (inputs into the slab buffers), "kernel" (sources, energy
+    #: range, excised points, form outputs), "write" (into the HDF5 file, compression included),
+    #: "finish" (closing the file, flushing it to disk, the rename).
+    stage_seconds: dict = field(default_factory=lambda: dict.fromkeys(
+        ("read", "kernel", "write", "finish"), 0.0))
 
 
 def _checked(level) -> tuple:
@@ -81,15 +95,22 @@ def _checked(level) -> tuple:
 EXCISED_FILL = np.nan
 
 
-def plan_rows(level, dtype, memory_limit, extra=()) -> int:
+def plan_rows(level, dtype, memory_limit, extra=(), compression=None) -> int:
     """Planes per slab of :func:`compute_sources` under ``memory_limit`` (bytes).
 
     Counts the 23 slab buffers, the read scratch of each input, HDF5's caches and chunk
-    buffers, and per point 3 bytes for the valid_mask (its buffer and two boolean masks); the slab is a whole number of the inputs' chunks where it holds more than one.
+    buffers, the compressed chunks waiting to be written (with ``compression``,
+    :meth:`.ChunkWriter.overhead_bytes`), and per point 3 bytes for the valid_mask (its buffer
+    and two boolean masks); the slab is a whole number of the inputs' chunks where it holds
+    more than one.
     """
     read = SOURCE_INPUTS + _checked(level)
     fixed = (CHUNK_CACHE_BYTES * (12 + len(read) - len(SOURCE_INPUTS)) + CONVERSION_BUFFER_BYTES
              + chunk_overhead(level, read))
+    if compression:
+        itemsize = np.dtype(dtype).itemsize
+        fixed += ChunkWriter.overhead_bytes(int(np.prod(chunk_shape(level.storage_shape, itemsize)))
+                                            * itemsize)
     rows = slab_rows(level, values_per_point(SOURCE_INPUTS + SOURCE_OUTPUTS + tuple(extra)),
                      np.dtype(dtype).itemsize, memory_limit, fixed=fixed,
                      extra_per_row=read_scratch_per_row(level, read)
@@ -98,6 +119,29 @@ def plan_rows(level, dtype, memory_limit, extra=()) -> int:
     if chunk < rows < level.storage_shape[0]:
         rows = rows // chunk * chunk
     return int(rows)
+
+
+def output_chunk_rows(level, dtype, rows) -> tuple:
+    """(planes per slab, planes per output chunk) for slabs of ``rows`` planes.
+
+    Output chunks hold whole planes, about 1 MiB (:func:`.writing.chunk_shape`), and divide the
+    slab, so that every write fills whole chunks (a partial write of a compressed chunk would
+    read and re-compress it, and the direct chunk writes of :class:`.ChunkWriter` need whole
+    chunks). The slab keeps its size where a divisor of it at least half the target size exists,
+    or where the inputs are chunked: :func:`plan_rows` made it a whole number of their chunks,
+    and cutting it would make every slab read a chunk that the next slab reads again (a
+    compressed chunk is then decompressed twice). Otherwise (contiguous inputs) the slab is cut
+    to a whole number of target-size chunks.
+    """
+    n0 = level.storage_shape[0]
+    target = min(chunk_shape(level.storage_shape, np.dtype(dtype).itemsize)[0], rows)
+    if rows >= n0:  # one slab: the last chunk may run past the grid's end
+        return rows, target
+    divisor = max(d for d in range(1, target + 1) if rows % d == 0)
+    inputs_chunked = min(level.source(q).chunk_rows for q in SOURCE_INPUTS) < n0
+    if 2 * divisor >= target or inputs_chunked:
+        return rows, divisor
+    return rows // target * target, target
 
 
 def compute_sources(input_file, output_file, *, mapping=None, memory_limit=DEFAULT_MEMORY_LIMIT,
@@ -163,7 +207,7 @@ def compute_sources(input_file, output_file, *, mapping=None, memory_limit=DEFAU
                 level.source(q)  # raises with the file's contents if missing
             form_outputs.check_level(level, outputs)
             dtype = common_field_dtype(level)
-            n = rows or plan_rows(level, dtype, memory_limit, extra)
+            n = rows or plan_rows(level, dtype, memory_limit, extra, compression)
             plans.append((level, dtype, int(min(n, level.storage_shape[0]))))
         first = plans[0][0]
         report.levels = len(plans)
@@ -182,33 +226,35 @@ def compute_sources(input_file, output_file, *, mapping=None, memory_limit=DEFAU
                 # No chunk cache on the output: every write covers whole chunks, which HDF5 then
                 # writes straight from the slab buffer (with a cache it copies each chunk through
                 # it, measured 1.5-3x slower on 256^3).
-                with hdf5_output(temporary, output_file, rdcc_nbytes=0) as out:
+                with hdf5_output(temporary, output_file, rdcc_nbytes=0) as out, \
+                        ChunkWriter() as writer, BackgroundFlush(temporary) as flush:
                     write_root_attributes(out, attributes)
                     group = out.create_group(LEVELS_GROUP)
                     for level, dtype, n in plans:
                         _level_sources(level, dtype, n, group, compression, check, outputs,
-                                       report, bar)
+                                       report, bar, writer, flush)
                         report.times.append(level.time)
+                    last_slab_done = _time.perf_counter()
+                    flush.finish()
                 report.planned_bytes = max(
                     (values_per_point(SOURCE_INPUTS + SOURCE_OUTPUTS + extra) * dt.itemsize * n
                      * lv.plane_points + read_overhead_bytes(lv, SOURCE_INPUTS, n))
                     for lv, dt, n in plans)
         finally:
             bar.close()
+        report.stage_seconds["finish"] = _time.perf_counter() - last_slab_done
     report.bytes_written = os.path.getsize(report.output_file)
     report.seconds = _time.perf_counter() - began
     return report
 
 
-def _level_sources(level, dtype, rows, group, compression, check, written, report, bar):
+def _level_sources(level, dtype, rows, group, compression, check, written, report, bar, writer,
+                   flush):
     g = group.create_group(level.label)
     write_level_attributes(g, time=level.time, grid=level.grid, units=level.units,
                            axis_order=level.axis_order)
     stored = level.storage_shape
-    # Chunks of whole planes, a divisor of the slab so that every write fills whole chunks
-    # (a partial write of a compressed chunk would read and re-compress it).
-    chunk_rows = min(chunk_shape(stored, dtype.itemsize)[0], rows)
-    rows = max(chunk_rows, rows // chunk_rows * chunk_rows)
+    rows, chunk_rows = output_chunk_rows(level, dtype, rows)
     datasets = {}
     for q in written:
         ncomp = COMPONENTS[q]
@@ -226,7 +272,9 @@ def _level_sources(level, dtype, rows, group, compression, check, written, repor
     if report.slabs == 0:
         report.rows_per_slab = rows  # as adjusted to whole chunks
     report.slabs += len(slabs(stored[0], rows))
+    clock, stages = _time.perf_counter, report.stage_seconds
     for start, stop in slabs(stored[0], rows):
+        began = clock()
         gamma = inputs.read("spatial_metric", start, stop)
         E = inputs.read("electric_field", start, stop)
         B = inputs.read("magnetic_field", start, stop)
@@ -236,12 +284,24 @@ def _level_sources(level, dtype, rows, group, compression, check, written, repor
             valid = checked.read(q, start, stop).astype(bool)
             neutralise_excised({"spatial_metric": gamma, "electric_field": E,
                                 "magnetic_field": B}, valid, in_place=True)
+        read = clock()
+        stages["read"] += read - began
         out_stored = [outputs.storage(q, stop - start) for q in SOURCE_OUTPUTS]
         out_xyz = tuple(level.to_xyz(a) for a in out_stored)
         try:
-            adm_sources(gamma, E, B, units=level.units, check=check, out=out_xyz)
-        except GridPointError as error:
-            raise slab_error(error, level, start, stop) from None
+            # Every point is computed from its own values, so the kernel runs on the buffers in
+            # storage order (contiguous: its flat loop); on (z, y, x) views of a "zyx" slab it
+            # would walk memory with a stride of a plane (measured: 4.5 s against 0.22 s for a
+            # slab of 78 planes of 192^2, load 9 on 2 cores).
+            # to_xyz is an involution: it turns the (x, y, z) views back into the buffers.
+            adm_sources(*(level.to_xyz(a) for a in (gamma, E, B)), units=level.units,
+                        check=check, out=tuple(out_stored))
+        except GridPointError:
+            try:  # the error path only: again on the (x, y, z) views, for the (x, y, z) index
+                adm_sources(gamma, E, B, units=level.units, check=check, out=out_xyz)
+            except GridPointError as error:
+                raise slab_error(error, level, start, stop) from None
+            raise AssertionError("the kernel failed on storage-order buffers only")  # never
         rho = out_xyz[0]
         low = min(low, float(rho.min(where=valid, initial=np.inf)))
         high = max(high, float(rho.max(where=valid, initial=-np.inf)))
@@ -250,15 +310,15 @@ def _level_sources(level, dtype, rows, group, compression, check, written, repor
             for a in out_xyz:
                 a[..., excised] = EXCISED_FILL
         extra = form_outputs.slab_outputs(level, written, start, stop, gamma, E, B, valid, check)
+        computed = clock()
+        stages["kernel"] += computed - read
         for q, a in list(zip(SOURCE_OUTPUTS, out_stored)) + list(extra.items()):
-            if q not in datasets:
-                continue
-            if a.ndim == 4:
-                datasets[q][:, start:stop] = a
-            else:
-                datasets[q][start:stop] = a
+            if q in datasets:
+                writer.write(datasets[q], a, start)
         for q in _checked(level):
-            datasets[q][start:stop] = checked.storage(q, stop - start)
+            writer.write(datasets[q], checked.storage(q, stop - start), start)
+        flush.kick()
+        stages["write"] += clock() - computed
         interruption.check()
         bar.update(1)
     report.energy_density_range = (low, high)

@@ -39,7 +39,7 @@ from .errors import OutputError
 from .levels import AXIS_ORDERS, UNIT_SYSTEMS
 from .native import FORMAT_NAME, FORMAT_VERSION, LEVELS_GROUP
 
-__all__ = ["atomic_output", "check_output", "hdf5_output", "GuardedFile",
+__all__ = ["atomic_output", "check_output", "hdf5_output", "GuardedFile", "BackgroundFlush",
            "provenance_attributes", "write_root_attributes", "write_level_attributes",
            "write_snapshot", "chunk_shape"]
 
@@ -146,6 +146,54 @@ def atomic_output(path, *, force: bool = False, inputs=()):
         raise
 
 
+class BackgroundFlush:
+    """Flush a file being written to disk in a background thread, slab after slab.
+
+    The final ``fsync`` of :func:`atomic_output` must otherwise write every byte of the output
+    to disk at once, after the computation (measured: 0.27 s for 600 MB here, a quarter of
+    ``emsource sources`` on it). :meth:`kick` starts an ``fdatasync`` of what has been written so
+    far unless one is still running, so the disk works while the next slab is computed and the
+    final ``fsync`` finds little left. An error of a background flush (a delayed write error:
+    quota, EIO) is raised by the next :meth:`kick` or by :meth:`finish`, never lost: once one
+    ``fsync`` has reported it, Linux does not report it again to a later one.
+
+    Use as a context manager around the writing; call :meth:`finish` before the output is
+    closed for good (:func:`atomic_output` still ``fsync``-s it).
+    """
+
+    def __init__(self, path):
+        from concurrent.futures import ThreadPoolExecutor
+
+        self._fd = os.open(path, os.O_RDONLY | os.O_CLOEXEC)
+        self._pool = ThreadPoolExecutor(1, thread_name_prefix="emsource-flush")
+        self._pending = None
+
+    def _collect(self, wait):
+        if self._pending is not None and (wait or self._pending.done()):
+            pending, self._pending = self._pending, None
+            pending.result()  # raises the flush's OSError
+
+    def kick(self):
+        """Start flushing what has been written, unless a flush is running."""
+        self._collect(wait=False)
+        if self._pending is None:
+            self._pending = self._pool.submit(os.fdatasync, self._fd)
+
+    def finish(self):
+        """Wait for the running flush and raise its error, if any."""
+        self._collect(wait=True)
+
+    def close(self):
+        self._pool.shutdown(wait=True)
+        os.close(self._fd)
+
+    def __enter__(self):
+        return self
+
+    def __exit__(self, *exc):
+        self.close()
+
+
 def _reason(error) -> str:
     if isinstance(error, OSError) and error.strerror:
         return error.strerror + (f" (errno {error.errno})" if error.errno else "")
@@ -164,7 +212,17 @@ class GuardedFile(io.RawIOBase):
     def __init__(self, path):
         super().__init__()
         self.name = os.fspath(path)
-        self._fd = os.open(path, os.O_RDWR | os.O_TRUNC)
+        self._fd = os.open(path, os.O_RDWR)
+        # Truncate only a file that has contents: truncating even an empty file makes ext4 flush
+        # it to disk on close (its "replace via truncate" rule), measured 0.22 s for 600 MB,
+        # which the fsync that follows would then pay again in part. The outputs of
+        # :func:`atomic_output` are new, empty files.
+        try:
+            if os.fstat(self._fd).st_size:
+                os.ftruncate(self._fd, 0)
+        except OSError:
+            os.close(self._fd)
+            raise
         self._position = 0
         self._size = 0
         self.error = None
