@@ -263,7 +263,7 @@ def adm_constraints(gamma, K, E=None, B=None, *, spacing, order=4, units="gaussi
     with kernel_call():
         adm_constraints_grid(gamma64, K64, rho, S_i, interior.view(np.uint8),
                              first_derivative_weights(order), second_derivative_weights(order),
-                             1.0 / spacing, _SYM, 16.0 * math.pi, 8.0 * math.pi,
+                             1.0 / spacing, 16.0 * math.pi, 8.0 * math.pi,
                              H, M, H_scale, M_scale)
     return ConstraintResiduals(hamiltonian=H, momentum=M, hamiltonian_scale=H_scale,
                                momentum_scale=M_scale, interior=interior, order=order,
