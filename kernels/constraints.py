@@ -46,7 +46,7 @@ from .stencils import d1_column, d2_column, d11_column, value_column
 
 #: Points along z per strip (the row length of the per-column buffer). A literal, so that LLVM
 #: sees the buffer's row stride as a constant and can prove that rows do not overlap.
-_STRIP = 32
+_STRIP = 64
 
 # Rows of the per-column buffer (module docstring). Inputs of the algebra:
 _G = 0      # gamma_p                                   6 rows
@@ -105,52 +105,58 @@ def _inverse_metric_rows(buf, count, one):
 
 
 @point_function
-def _christoffel_rows(buf, count, c, half):
-    """Gamma_cab = 1/2 (d_a g_cb + d_b g_ca - d_c g_ab) for the six pairs (a, b), rows _G1."""
+def _christoffel_rows(buf, count, half):
+    """Gamma_cab = 1/2 (d_a g_cb + d_b g_ca - d_c g_ab) for the 18 (c, pair(a, b)), rows _G1."""
     for n in range(count):
-        for a in range(3):
-            for b in range(a, 3):
-                buf[_G1 + 6 * c + _pair(a, b), n] = half * (
-                    buf[_DG + 6 * a + _pair(c, b), n] + buf[_DG + 6 * b + _pair(c, a), n]
-                    - buf[_DG + 6 * c + _pair(a, b), n])
+        for c in range(3):
+            for a in range(3):
+                for b in range(a, 3):
+                    buf[_G1 + 6 * c + _pair(a, b), n] = half * (
+                        buf[_DG + 6 * a + _pair(c, b), n] + buf[_DG + 6 * b + _pair(c, a), n]
+                        - buf[_DG + 6 * c + _pair(a, b), n])
 
 
 @point_function
-def _raised_christoffel_rows(buf, count, m):
-    """Gamma^m_ab = gamma^mc Gamma_cab for the six pairs (a, b), rows _G2."""
+def _raised_christoffel_rows(buf, count):
+    """Gamma^m_ab = gamma^mc Gamma_cab for the 18 (m, pair(a, b)), rows _G2."""
     for n in range(count):
-        for a in range(3):
-            for b in range(a, 3):
-                buf[_G2 + 6 * m + _pair(a, b), n] = (
-                    buf[_GI + _pair(m, 0), n] * buf[_G1 + _pair(a, b), n]
-                    + buf[_GI + _pair(m, 1), n] * buf[_G1 + 6 + _pair(a, b), n]
-                    + buf[_GI + _pair(m, 2), n] * buf[_G1 + 12 + _pair(a, b), n])
+        for m in range(3):
+            for a in range(3):
+                for b in range(a, 3):
+                    buf[_G2 + 6 * m + _pair(a, b), n] = (
+                        buf[_GI + _pair(m, 0), n] * buf[_G1 + _pair(a, b), n]
+                        + buf[_GI + _pair(m, 1), n] * buf[_G1 + 6 + _pair(a, b), n]
+                        + buf[_GI + _pair(m, 2), n] * buf[_G1 + 12 + _pair(a, b), n])
 
 
 @point_function
-def _christoffel_contractions(buf, count, m, two):
+def _christoffel_contractions(buf, count, two):
     """T^d_mb = gamma^dc Gamma_mcb (rows _T), V_m = gamma^cd Gamma_mcd, W^m = gamma^cd
     Gamma^m_cd (rows _V, _W)."""
     for n in range(count):
-        for d in range(3):
-            for b in range(3):
-                buf[_T + 9 * m + 3 * d + b, n] = (
-                    buf[_GI + _pair(d, 0), n] * buf[_G1 + 6 * m + _pair(0, b), n]
-                    + buf[_GI + _pair(d, 1), n] * buf[_G1 + 6 * m + _pair(1, b), n]
-                    + buf[_GI + _pair(d, 2), n] * buf[_G1 + 6 * m + _pair(2, b), n])
+        for m in range(3):
+            for d in range(3):
+                for b in range(3):
+                    buf[_T + 9 * m + 3 * d + b, n] = (
+                        buf[_GI + _pair(d, 0), n] * buf[_G1 + 6 * m + _pair(0, b), n]
+                        + buf[_GI + _pair(d, 1), n] * buf[_G1 + 6 * m + _pair(1, b), n]
+                        + buf[_GI + _pair(d, 2), n] * buf[_G1 + 6 * m + _pair(2, b), n])
     for n in range(count):
-        buf[_V + m, n] = _sym_contraction(buf, n, _GI, _G1 + 6 * m, two)
-        buf[_W + m, n] = _sym_contraction(buf, n, _GI, _G2 + 6 * m, two)
+        for m in range(3):
+            buf[_V + m, n] = _sym_contraction(buf, n, _GI, _G1 + 6 * m, two)
+            buf[_W + m, n] = _sym_contraction(buf, n, _GI, _G2 + 6 * m, two)
 
 
 @point_function
-def _mixed_curvature_rows(buf, count, m):
-    """K_m^b = K_mc gamma^cb for b = x, y, z, rows _KM + 3 m + b."""
+def _mixed_curvature_rows(buf, count):
+    """K_m^b = K_mc gamma^cb, rows _KM + 3 m + b."""
     for n in range(count):
-        for b in range(3):
-            buf[_KM + 3 * m + b, n] = (buf[_KL + _pair(m, 0), n] * buf[_GI + _pair(0, b), n]
-                                       + buf[_KL + _pair(m, 1), n] * buf[_GI + _pair(1, b), n]
-                                       + buf[_KL + _pair(m, 2), n] * buf[_GI + _pair(2, b), n])
+        for m in range(3):
+            for b in range(3):
+                buf[_KM + 3 * m + b, n] = (
+                    buf[_KL + _pair(m, 0), n] * buf[_GI + _pair(0, b), n]
+                    + buf[_KL + _pair(m, 1), n] * buf[_GI + _pair(1, b), n]
+                    + buf[_KL + _pair(m, 2), n] * buf[_GI + _pair(2, b), n])
 
 
 @point_function
@@ -159,7 +165,7 @@ def _ricci_row(buf, count, a, b, half):
     + Gamma^m_ad Gamma_mcb - Gamma^m_ab Gamma_mcd]  (module docstring)
     = 1/2 gamma^cd (...) + Gamma^m_ad T^d_mb - Gamma^m_ab V_m, row _RIC + pair(a, b)."""
     for n in range(count):
-        second = buf[_GI, n] * 0
+        second = 0.0
         for c in range(3):
             for d in range(3):
                 second += buf[_GI + _pair(c, d), n] * (
@@ -167,7 +173,7 @@ def _ricci_row(buf, count, a, b, half):
                     + buf[_DDG + 6 * _pair(a, d) + _pair(c, b), n]
                     - buf[_DDG + 6 * _pair(c, d) + _pair(a, b), n]
                     - buf[_DDG + 6 * _pair(a, b) + _pair(c, d), n])
-        quad = buf[_GI, n] * 0
+        quad = 0.0
         for m in range(3):
             quad += (buf[_G2 + 6 * m + _pair(a, 0), n] * buf[_T + 9 * m + b, n]
                      + buf[_G2 + 6 * m + _pair(a, 1), n] * buf[_T + 9 * m + 3 + b, n]
@@ -199,8 +205,8 @@ def _momentum_rows(buf, count, a, eight_pi, two):
     X_a = Gamma^m_ab K_m^b:  gamma^bc D_b K_ca = gamma^bc d_b K_ca - W^m K_ma - X_a and
     gamma^bc D_a K_bc = gamma^bc d_a K_bc - 2 X_a."""
     for n in range(count):
-        x_a = buf[_GI, n] * 0
-        div_k = buf[_GI, n] * 0
+        x_a = 0.0
+        div_k = 0.0
         for m in range(3):
             x_a += (buf[_G2 + 6 * m + _pair(a, 0), n] * buf[_KM + 3 * m, n]
                     + buf[_G2 + 6 * m + _pair(a, 1), n] * buf[_KM + 3 * m + 1, n]
@@ -276,18 +282,10 @@ def adm_constraints_grid(gamma, K, rho, S, interior, w1, w2, inv_h, sixteen_pi, 
                 value_column(S, a, i, j, start, count, buf, _SRC + a)
             # The algebra, one loop along the strip per call; literal indices (docstring).
             _inverse_metric_rows(buf, count, half + half)
-            _christoffel_rows(buf, count, 0, half)
-            _christoffel_rows(buf, count, 1, half)
-            _christoffel_rows(buf, count, 2, half)
-            _raised_christoffel_rows(buf, count, 0)
-            _raised_christoffel_rows(buf, count, 1)
-            _raised_christoffel_rows(buf, count, 2)
-            _christoffel_contractions(buf, count, 0, two)
-            _christoffel_contractions(buf, count, 1, two)
-            _christoffel_contractions(buf, count, 2, two)
-            _mixed_curvature_rows(buf, count, 0)
-            _mixed_curvature_rows(buf, count, 1)
-            _mixed_curvature_rows(buf, count, 2)
+            _christoffel_rows(buf, count, half)
+            _raised_christoffel_rows(buf, count)
+            _christoffel_contractions(buf, count, two)
+            _mixed_curvature_rows(buf, count)
             _ricci_row(buf, count, 0, 0, half)
             _ricci_row(buf, count, 0, 1, half)
             _ricci_row(buf, count, 0, 2, half)

@@ -34,7 +34,6 @@ from .unit_systems import check_unit_system
 __all__ = ["ConstraintResiduals", "ResidualNorms", "adm_constraints", "interior_points",
            "norm_partial", "residual_norms"]
 
-_SYM = np.array([[0, 1, 2], [1, 3, 4], [2, 4, 5]], dtype=np.int64)
 
 
 @renamed_keywords(mask="valid_mask")
