@@ -70,11 +70,15 @@ def _multiply_adds(rows, a, b, repeats):
                 rows[t, n] = x
 
 
-def measured_peak(threads, repeats):
-    """GFLOP/s of :func:`_multiply_adds` on ``threads`` rows of 512 (median of ``repeats``)."""
+def measured_peak(threads, repeats, seconds=0.1):
+    """GFLOP/s of :func:`_multiply_adds` on ``threads`` rows of 512 (median of ``repeats``),
+    each run about ``seconds`` long (as long as a kernel call here, so that a shared machine's
+    load falls on both alike)."""
     rows = np.ones((threads, 512))
-    count = 20_000
     _multiply_adds(rows, 0.999999, 1e-6, 1)
+    t0 = time.perf_counter()
+    _multiply_adds(rows, 0.999999, 1e-6, 1000)
+    count = max(1000, int(1000 * seconds / (time.perf_counter() - t0)))
     t = median_time(lambda: _multiply_adds(rows, 0.999999, 1e-6, count), repeats)
     return 2 * 16 * rows.size * count / t / 1e9
 
@@ -217,8 +221,11 @@ def main():
     grid = UniformGrid.from_bounds((2.5, 0.5, -0.5), (3.5, 1.5, 0.5), (n, n, n))
     d = kerr_newman(grid, mass=1.0, spin=0.6, charge=0.5)
     h = grid.spacing[0]
+    features = numba.config.CPU_FEATURES or ""
+    width = "512-bit allowed" if "-prefer-256-bit" in features else "LLVM's default width"
     print(f"Kerr-Newman box, {n}^3 points, float64, {numba.get_num_threads()} threads, "
-          f"median of {repeats}")
+          f"median of {repeats}; vector instructions: {width} (512-bit: run with "
+          f"NUMBA_CPU_FEATURES set to the host's features plus ',-prefer-256-bit')")
 
     # Triad over as many points as the kernel touches arrays: 24 arrays of n^3.
     m = 24 * n**3
@@ -226,9 +233,9 @@ def main():
     _triad(a, b, c, 3.0)
     t_triad = median_time(lambda: _triad(a, b, c, 3.0), repeats)
     triad_bw = 3 * 8 * m / t_triad
-    peak = measured_peak(numba.get_num_threads(), repeats)
+    peaks = [measured_peak(numba.get_num_threads(), repeats)]
     print(f"triad: {triad_bw / 1e9:.2f} GB/s (3 arrays counted); multiply-add peak: "
-          f"{peak:.1f} GFLOP/s")
+          f"{peaks[0]:.1f} GFLOP/s (measured again beside each order; the median so far is used)")
 
     src_rho = np.zeros(grid.shape)
     src_S = np.zeros((3,) + grid.shape)
@@ -261,8 +268,11 @@ def main():
         bare()
         point_at_a_time()
         probe()
+        peaks.append(measured_peak(numba.get_num_threads(), repeats))
         t_bare = median_time(bare, repeats)
         t_probe = median_time(probe, repeats)
+        peaks.append(measured_peak(numba.get_num_threads(), repeats))
+        peak = statistics.median(peaks)
         t_before = median_time(point_at_a_time, repeats)
         t_public = median_time(lambda: adm_constraints(d.gamma, d.K, d.E, d.B, spacing=h,
                                                        order=order), repeats)
@@ -280,6 +290,8 @@ def main():
               f"Mpoint/s")
         print(f"         point-at-a-time kernel {npts / t_before / 1e6:7.2f} Mpoint/s: the strips "
               f"are {t_before / t_bare:4.2f}x faster (max |difference| {agree:.1e})")
+        print(f"         multiply-add peak beside this order: {peaks[-2]:.1f} and {peaks[-1]:.1f} "
+              f"GFLOP/s, median of all so far {peak:.1f}")
         print(f"         {flops:.0f} flops/point as written: {rate:6.1f} GFLOP/s = "
               f"{100 * rate / peak:4.1f} % of the measured peak (point-at-a-time: {flops_before:.0f} "
               f"flops/point, {rate_before:5.1f} GFLOP/s = {100 * rate_before / peak:4.1f} %); "
