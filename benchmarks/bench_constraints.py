@@ -293,12 +293,14 @@ def main():
         print(f"         multiply-add peak beside this order: {peaks[-2]:.1f} and {peaks[-1]:.1f} "
               f"GFLOP/s, median of all so far {peak:.1f}")
         print(f"         {flops:.0f} flops/point as written: {rate:6.1f} GFLOP/s = "
-              f"{100 * rate / peak:4.1f} % of the measured peak (point-at-a-time: {flops_before:.0f} "
+              f"{100 * rate / peak:4.1f} % of the measured peak (point-at-a-time: "
+              f"{flops_before:.0f} "
               f"flops/point, {rate_before:5.1f} GFLOP/s = {100 * rate_before / peak:4.1f} %); "
               f"its {flops_before:.0f} flops at the strip kernel's speed "
               f"{100 * flops_before * npts / t_bare / 1e9 / peak:4.1f} %")
         print(f"         stencils and traffic alone (same buffer, no algebra): "
-              f"{t_probe / t_bare:4.2f} of the kernel's time, {100 * 24 * 8 * npts / t_probe / triad_bw:5.1f} "
+              f"{t_probe / t_bare:4.2f} of the kernel's time, "
+              f"{100 * 24 * 8 * npts / t_probe / triad_bw:5.1f} "
               f"% of the triad")
         print(f"         roofline: {flops / bytes_per_point:5.2f} flops/byte x triad = "
               f"{roof:6.1f} GFLOP/s if memory-bound ({roof / peak:4.1f}x the peak: "

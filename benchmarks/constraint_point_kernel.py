@@ -24,8 +24,8 @@ SYM = np.array([[0, 1, 2], [1, 3, 4], [2, 4, 5]], dtype=np.int64)
 
 
 @grid_kernel
-def point_at_a_time_constraints(gamma, K, rho, S, interior, w1, w2, inv_h, sym, sixteen_pi, eight_pi,
-                         H, M, H_scale, M_scale):
+def point_at_a_time_constraints(gamma, K, rho, S, interior, w1, w2, inv_h, sym, sixteen_pi,
+                                eight_pi, H, M, H_scale, M_scale):
     """H, M_i and the size of their largest term; see the module docstring."""
     nx, ny, nz = rho.shape
     hx = inv_h[0]

@@ -81,7 +81,8 @@ def _inverse(g):
         for j in range(3):
             rows = [r for r in range(3) if r != j]
             cols = [c for c in range(3) if c != i]
-            minor = g[rows[0], cols[0]] * g[rows[1], cols[1]] - g[rows[0], cols[1]] * g[rows[1], cols[0]]
+            minor = (g[rows[0], cols[0]] * g[rows[1], cols[1]]
+                     - g[rows[0], cols[1]] * g[rows[1], cols[0]])
             cof[i, j] = (-1) ** (i + j) * minor
     det = np.einsum("i...,i...->...", g[0], cof[:, 0])
     return cof / det

@@ -35,7 +35,6 @@ __all__ = ["ConstraintResiduals", "ResidualNorms", "adm_constraints", "interior_
            "norm_partial", "residual_norms"]
 
 
-
 @renamed_keywords(mask="valid_mask")
 def interior_points(valid_mask, order):
     """Interior points: those whose whole stencil of ``order`` lies inside the grid and on
