@@ -24,166 +24,286 @@ uint8 (nx, ny, nz), 1 where the whole stencil lies on valid data (the caller gua
 stays ``radius`` points away from the faces). Outputs are written at every point: the residuals
 and the absolute value of their largest term (R, K^2, K_ij K^ij, 16 pi rho for H; D_j K^j_i,
 D_i K, 8 pi S_i for M_i) where ``interior`` is 1, NaN elsewhere.
-``sym`` (3, 3) int64 maps a pair of indices to its packed component.
+
+How the kernel is laid out (why: see :func:`adm_constraints_grid`). Each grid column (i, j) is
+done in strips of up to ``_STRIP`` points along z, with one (``_ROWS``, ``_STRIP``) buffer per
+column: first the 72 derivatives and 16 point values the equations need are written to rows of
+the buffer (one stencil loop along the strip per row), then every step of the algebra is one
+loop along the strip that reads rows and writes rows, so that LLVM vectorises it across points.
+The buffer rows are listed at ``_ROWS`` below (p: packed component (xx, xy, xz, yy, yz, zz);
+q, s: derivative axes; ``_pair(a, b)``: the packed index of a symmetric pair).
 """
 
-from __future__ import annotations
 
-import math
+from __future__ import annotations
 
 import numpy as np
 from numba import prange
 
-from ._compile import grid_kernel
+from ._compile import grid_kernel, point_function
 from .metric import inverse_metric, metric_factors
-from .stencils import d1, d2, d11
+from .stencils import d1_column, d2_column, d11_column, value_column
+
+#: Points along z per strip (the row length of the per-column buffer). A literal, so that LLVM
+#: sees the buffer's row stride as a constant and can prove that rows do not overlap.
+_STRIP = 64
+
+# Rows of the per-column buffer (module docstring). Inputs of the algebra:
+_G = 0      # gamma_p                                   6 rows
+_KL = 6     # K_p                                       6
+_DG = 12    # d_q gamma_p at 12 + 6 q + p               18
+_DK = 30    # d_q K_p at 30 + 6 q + p                   18
+_DDG = 48   # d_q d_s gamma_p at 48 + 6 pair(q, s) + p  36
+_RHO = 84   # rho                                       1
+_SRC = 85   # S_i                                       3
+# Its intermediate results:
+_GI = 88    # gamma^p                                   6
+_G1 = 94    # Gamma_{c (ab)} at 94 + 6 c + pair(a, b)   18
+_G2 = 112   # Gamma^m_(ab) at 112 + 6 m + pair(a, b)    18
+_T = 130    # T^d_{mb} = gamma^dc Gamma_mcb at 130 + 9 m + 3 d + b: 27
+_V = 157    # V_m = gamma^cd Gamma_mcd                  3
+_W = 160    # W^m = gamma^cd Gamma^m_cd                 3
+_KM = 163   # K_a^b = K_ac gamma^cb at 163 + 3 a + b    9
+_RIC = 172  # R_p                                       6
+_OUT = 178  # H, H scale, M_x, M_y, M_z, their three scales: 8
+_ROWS = 186
+
+
+@point_function
+def _pair(a, b):
+    """Packed index of the symmetric pair (a, b): xx 0, xy 1, xz 2, yy 3, yz 4, zz 5.
+
+    Called with literal indices (or indices of loops LLVM unrolls), it folds to a constant,
+    so every buffer row below is a compile-time constant."""
+    lo = min(a, b)
+    hi = max(a, b)
+    return lo * (5 - lo) // 2 + hi
+
+
+@point_function
+def _sym_contraction(buf, n, s, t, two):
+    """s^ab t_ab for two packed symmetric tensors at rows s..s+5 and t..t+5."""
+    return (buf[s, n] * buf[t, n] + buf[s + 3, n] * buf[t + 3, n] + buf[s + 5, n] * buf[t + 5, n]
+            + two * (buf[s + 1, n] * buf[t + 1, n] + buf[s + 2, n] * buf[t + 2, n]
+                     + buf[s + 4, n] * buf[t + 4, n]))
+
+
+@point_function
+def _inverse_metric_rows(buf, count, one):
+    """gamma^ij from gamma_ij (rows _G) into rows _GI, by the factorisation of metric.py."""
+    for n in range(count):
+        d1, d2, d3, l21, l31, l32 = metric_factors(buf[_G, n], buf[_G + 1, n], buf[_G + 2, n],
+                                                   buf[_G + 3, n], buf[_G + 4, n],
+                                                   buf[_G + 5, n], one)
+        ixx, ixy, ixz, iyy, iyz, izz = inverse_metric(d1, d2, d3, l21, l31, l32, one)
+        buf[_GI, n] = ixx
+        buf[_GI + 1, n] = ixy
+        buf[_GI + 2, n] = ixz
+        buf[_GI + 3, n] = iyy
+        buf[_GI + 4, n] = iyz
+        buf[_GI + 5, n] = izz
+
+
+@point_function
+def _christoffel_rows(buf, count, half):
+    """Gamma_cab = 1/2 (d_a g_cb + d_b g_ca - d_c g_ab) for the 18 (c, pair(a, b)), rows _G1."""
+    for n in range(count):
+        for c in range(3):
+            for a in range(3):
+                for b in range(a, 3):
+                    buf[_G1 + 6 * c + _pair(a, b), n] = half * (
+                        buf[_DG + 6 * a + _pair(c, b), n] + buf[_DG + 6 * b + _pair(c, a), n]
+                        - buf[_DG + 6 * c + _pair(a, b), n])
+
+
+@point_function
+def _raised_christoffel_rows(buf, count):
+    """Gamma^m_ab = gamma^mc Gamma_cab for the 18 (m, pair(a, b)), rows _G2."""
+    for n in range(count):
+        for m in range(3):
+            for a in range(3):
+                for b in range(a, 3):
+                    buf[_G2 + 6 * m + _pair(a, b), n] = (
+                        buf[_GI + _pair(m, 0), n] * buf[_G1 + _pair(a, b), n]
+                        + buf[_GI + _pair(m, 1), n] * buf[_G1 + 6 + _pair(a, b), n]
+                        + buf[_GI + _pair(m, 2), n] * buf[_G1 + 12 + _pair(a, b), n])
+
+
+@point_function
+def _christoffel_contractions(buf, count, two):
+    """T^d_mb = gamma^dc Gamma_mcb (rows _T), V_m = gamma^cd Gamma_mcd, W^m = gamma^cd
+    Gamma^m_cd (rows _V, _W)."""
+    for n in range(count):
+        for m in range(3):
+            for d in range(3):
+                for b in range(3):
+                    buf[_T + 9 * m + 3 * d + b, n] = (
+                        buf[_GI + _pair(d, 0), n] * buf[_G1 + 6 * m + _pair(0, b), n]
+                        + buf[_GI + _pair(d, 1), n] * buf[_G1 + 6 * m + _pair(1, b), n]
+                        + buf[_GI + _pair(d, 2), n] * buf[_G1 + 6 * m + _pair(2, b), n])
+    for n in range(count):
+        for m in range(3):
+            buf[_V + m, n] = _sym_contraction(buf, n, _GI, _G1 + 6 * m, two)
+            buf[_W + m, n] = _sym_contraction(buf, n, _GI, _G2 + 6 * m, two)
+
+
+@point_function
+def _mixed_curvature_rows(buf, count):
+    """K_m^b = K_mc gamma^cb, rows _KM + 3 m + b."""
+    for n in range(count):
+        for m in range(3):
+            for b in range(3):
+                buf[_KM + 3 * m + b, n] = (
+                    buf[_KL + _pair(m, 0), n] * buf[_GI + _pair(0, b), n]
+                    + buf[_KL + _pair(m, 1), n] * buf[_GI + _pair(1, b), n]
+                    + buf[_KL + _pair(m, 2), n] * buf[_GI + _pair(2, b), n])
+
+
+@point_function
+def _ricci_row(buf, count, a, b, half):
+    """R_ab = gamma^cd [1/2 (d_c d_b g_ad + d_a d_d g_cb - d_c d_d g_ab - d_a d_b g_cd)
+    + Gamma^m_ad Gamma_mcb - Gamma^m_ab Gamma_mcd]  (module docstring)
+    = 1/2 gamma^cd (...) + Gamma^m_ad T^d_mb - Gamma^m_ab V_m, row _RIC + pair(a, b)."""
+    for n in range(count):
+        second = 0.0
+        for c in range(3):
+            for d in range(3):
+                second += buf[_GI + _pair(c, d), n] * (
+                    buf[_DDG + 6 * _pair(c, b) + _pair(a, d), n]
+                    + buf[_DDG + 6 * _pair(a, d) + _pair(c, b), n]
+                    - buf[_DDG + 6 * _pair(c, d) + _pair(a, b), n]
+                    - buf[_DDG + 6 * _pair(a, b) + _pair(c, d), n])
+        quad = 0.0
+        for m in range(3):
+            quad += (buf[_G2 + 6 * m + _pair(a, 0), n] * buf[_T + 9 * m + b, n]
+                     + buf[_G2 + 6 * m + _pair(a, 1), n] * buf[_T + 9 * m + 3 + b, n]
+                     + buf[_G2 + 6 * m + _pair(a, 2), n] * buf[_T + 9 * m + 6 + b, n]
+                     - buf[_G2 + 6 * m + _pair(a, b), n] * buf[_V + m, n])
+        buf[_RIC + _pair(a, b), n] = half * second + quad
+
+
+@point_function
+def _hamiltonian_rows(buf, count, sixteen_pi, two):
+    """H = R + K^2 - K_ij K^ij - 16 pi rho and its largest term, rows _OUT, _OUT + 1, with
+    K = K_a^a and K_ij K^ij = K_a^b K_b^a."""
+    for n in range(count):
+        ricci = _sym_contraction(buf, n, _GI, _RIC, two)
+        trace_k = buf[_KM, n] + buf[_KM + 4, n] + buf[_KM + 8, n]
+        k_sq = (buf[_KM, n] * buf[_KM, n] + buf[_KM + 4, n] * buf[_KM + 4, n]
+                + buf[_KM + 8, n] * buf[_KM + 8, n]
+                + two * (buf[_KM + 1, n] * buf[_KM + 3, n] + buf[_KM + 2, n] * buf[_KM + 6, n]
+                         + buf[_KM + 5, n] * buf[_KM + 7, n]))
+        matter = sixteen_pi * buf[_RHO, n]
+        buf[_OUT, n] = ricci + trace_k * trace_k - k_sq - matter
+        buf[_OUT + 1, n] = max(max(abs(ricci), trace_k * trace_k), max(k_sq, abs(matter)))
+
+
+@point_function
+def _momentum_rows(buf, count, a, eight_pi, two):
+    """M_a = gamma^bc (D_b K_ca - D_a K_bc) - 8 pi S_a and its largest term, rows _OUT + 2 + a
+    and _OUT + 5 + a. With D_c K_ab = d_c K_ab - Gamma^m_ca K_mb - Gamma^m_cb K_am and
+    X_a = Gamma^m_ab K_m^b:  gamma^bc D_b K_ca = gamma^bc d_b K_ca - W^m K_ma - X_a and
+    gamma^bc D_a K_bc = gamma^bc d_a K_bc - 2 X_a."""
+    for n in range(count):
+        x_a = 0.0
+        div_k = 0.0
+        for m in range(3):
+            x_a += (buf[_G2 + 6 * m + _pair(a, 0), n] * buf[_KM + 3 * m, n]
+                    + buf[_G2 + 6 * m + _pair(a, 1), n] * buf[_KM + 3 * m + 1, n]
+                    + buf[_G2 + 6 * m + _pair(a, 2), n] * buf[_KM + 3 * m + 2, n])
+            div_k += (buf[_GI + _pair(m, 0), n] * buf[_DK + 6 * m + _pair(0, a), n]
+                      + buf[_GI + _pair(m, 1), n] * buf[_DK + 6 * m + _pair(1, a), n]
+                      + buf[_GI + _pair(m, 2), n] * buf[_DK + 6 * m + _pair(2, a), n]
+                      - buf[_W + m, n] * buf[_KL + _pair(m, a), n])
+        div_k -= x_a
+        grad_k = _sym_contraction(buf, n, _GI, _DK + 6 * a, two) - two * x_a
+        source = eight_pi * buf[_SRC + a, n]
+        buf[_OUT + 2 + a, n] = div_k - grad_k - source
+        buf[_OUT + 5 + a, n] = max(max(abs(div_k), abs(grad_k)), abs(source))
 
 
 @grid_kernel
-def adm_constraints_grid(gamma, K, rho, S, interior, w1, w2, inv_h, sym, sixteen_pi, eight_pi,
+def adm_constraints_grid(gamma, K, rho, S, interior, w1, w2, inv_h, sixteen_pi, eight_pi,
                          H, M, H_scale, M_scale):
-    """H, M_i and the size of their largest term; see the module docstring."""
+    """H, M_i and the size of their largest term; see the module docstring.
+
+    Points within ``radius`` = len(w1) of a face are NaN whatever ``interior`` says there
+    (the caller's interior points never lie there).
+
+    Why strips (measured, bench_constraints.py): the point-at-a-time form of this kernel, with
+    per-point 3x3 scratch arrays, compiled to scalar code only. Here every loop along a strip
+    touches one buffer whose row stride is a compile-time constant and whose rows are
+    compile-time constants (the algebra's point functions are called with literal indices),
+    so LLVM can prove that its stores do not overlap its loads and vectorises it. The stencil
+    loops copy from one grid array into the buffer, as in :func:`d1_column`.
+    """
+    u = np.uint64
     nx, ny, nz = rho.shape
-    hx = inv_h[0]
-    hy = inv_h[1]
-    hz = inv_h[2]
+    r = w1.shape[0]
+    half = 0.5
+    two = 2.0
+    nan = np.nan
     for column in prange(nx * ny):
         i = column // ny
         j = column - i * ny
-        # Per-column scratch: one allocation per column, reused along it.
-        g = np.empty((3, 3))
-        gi = np.empty((3, 3))
-        kl = np.empty((3, 3))
-        ku = np.empty((3, 3))
-        dg = np.empty((3, 3, 3))  # dg[a, b, c] = d_c g_ab
-        ddg = np.empty((3, 3, 3, 3))  # ddg[a, b, c, d] = d_c d_d g_ab
-        dk = np.empty((3, 3, 3))  # dk[a, b, c] = d_c K_ab
-        gam1 = np.empty((3, 3, 3))  # Gamma_kij
-        gam2 = np.empty((3, 3, 3))  # Gamma^k_ij
-        ric = np.empty((3, 3))
+        edge = (i < r) | (i >= nx - r) | (j < r) | (j >= ny - r)
         for k in range(nz):
-            if interior[i, j, k] == 0:
-                H[i, j, k] = math.nan
-                H_scale[i, j, k] = math.nan
+            if edge | (k < r) | (k >= nz - r):
+                H[i, j, k] = nan
+                H_scale[i, j, k] = nan
                 for a in range(3):
-                    M[a, i, j, k] = math.nan
-                    M_scale[a, i, j, k] = math.nan
-                continue
+                    M[a, i, j, k] = nan
+                    M_scale[a, i, j, k] = nan
+        if edge:
+            continue
+        buf = np.empty((_ROWS, _STRIP))
+        for start in range(r, nz - r, _STRIP):
+            count = min(_STRIP, nz - r - start)
+            base = u(start)
+            for p in range(6):
+                value_column(gamma, p, i, j, start, count, buf, _G + p)
+                value_column(K, p, i, j, start, count, buf, _KL + p)
+            for q in range(3):
+                for p in range(6):
+                    d1_column(gamma, p, i, j, start, count, q, r, w1, inv_h[q], buf,
+                              _DG + 6 * q + p)
+                    d1_column(K, p, i, j, start, count, q, r, w1, inv_h[q], buf,
+                              _DK + 6 * q + p)
+                    d2_column(gamma, p, i, j, start, count, q, r, w2, inv_h[q] * inv_h[q], buf,
+                              _DDG + 6 * _pair(q, q) + p)
+            for q in range(2):
+                for s in range(q + 1, 3):
+                    for p in range(6):
+                        d11_column(gamma, p, i, j, start, count, q, s, r, w1, inv_h[q],
+                                   inv_h[s], buf, _DDG + 6 * _pair(q, s) + p)
+            for n in range(count):
+                buf[_RHO, n] = rho[i, j, base + u(n)]
             for a in range(3):
-                for b in range(a, 3):
-                    c = sym[a, b]
-                    g[a, b] = gamma[c, i, j, k]
-                    g[b, a] = g[a, b]
-                    kl[a, b] = K[c, i, j, k]
-                    kl[b, a] = kl[a, b]
-                    # Literal axes: the inlined stencils then resolve their axis branch at
-                    # compile time (a loop variable axis made the kernel ~2x slower).
-                    gx = d1(gamma, c, i, j, k, 0, w1, hx)
-                    gy = d1(gamma, c, i, j, k, 1, w1, hy)
-                    gz = d1(gamma, c, i, j, k, 2, w1, hz)
-                    dg[a, b, 0] = gx
-                    dg[a, b, 1] = gy
-                    dg[a, b, 2] = gz
-                    dg[b, a, 0] = gx
-                    dg[b, a, 1] = gy
-                    dg[b, a, 2] = gz
-                    kx = d1(K, c, i, j, k, 0, w1, hx)
-                    ky = d1(K, c, i, j, k, 1, w1, hy)
-                    kz = d1(K, c, i, j, k, 2, w1, hz)
-                    dk[a, b, 0] = kx
-                    dk[a, b, 1] = ky
-                    dk[a, b, 2] = kz
-                    dk[b, a, 0] = kx
-                    dk[b, a, 1] = ky
-                    dk[b, a, 2] = kz
-                    gxx = d2(gamma, c, i, j, k, 0, w2, hx * hx)
-                    gyy = d2(gamma, c, i, j, k, 1, w2, hy * hy)
-                    gzz = d2(gamma, c, i, j, k, 2, w2, hz * hz)
-                    gxy = d11(gamma, c, i, j, k, 0, 1, w1, hx, hy)
-                    gxz = d11(gamma, c, i, j, k, 0, 2, w1, hx, hz)
-                    gyz = d11(gamma, c, i, j, k, 1, 2, w1, hy, hz)
-                    ddg[a, b, 0, 0] = gxx
-                    ddg[a, b, 1, 1] = gyy
-                    ddg[a, b, 2, 2] = gzz
-                    ddg[a, b, 0, 1] = gxy
-                    ddg[a, b, 1, 0] = gxy
-                    ddg[a, b, 0, 2] = gxz
-                    ddg[a, b, 2, 0] = gxz
-                    ddg[a, b, 1, 2] = gyz
-                    ddg[a, b, 2, 1] = gyz
-                    for e in range(3):
-                        for f in range(3):
-                            ddg[b, a, e, f] = ddg[a, b, e, f]
-            factors = metric_factors(g[0, 0], g[0, 1], g[0, 2], g[1, 1], g[1, 2], g[2, 2], 1.0)
-            ixx, ixy, ixz, iyy, iyz, izz = inverse_metric(factors[0], factors[1], factors[2],
-                                                          factors[3], factors[4], factors[5], 1.0)
-            gi[0, 0] = ixx
-            gi[0, 1] = ixy
-            gi[0, 2] = ixz
-            gi[1, 1] = iyy
-            gi[1, 2] = iyz
-            gi[2, 2] = izz
-            gi[1, 0] = ixy
-            gi[2, 0] = ixz
-            gi[2, 1] = iyz
-            for c in range(3):
-                for a in range(3):
-                    for b in range(3):
-                        gam1[c, a, b] = 0.5 * (dg[c, b, a] + dg[c, a, b] - dg[a, b, c])
-            for m in range(3):
-                for a in range(3):
-                    for b in range(3):
-                        s = 0.0
-                        for c in range(3):
-                            s += gi[m, c] * gam1[c, a, b]
-                        gam2[m, a, b] = s
+                value_column(S, a, i, j, start, count, buf, _SRC + a)
+            # The algebra, one loop along the strip per call; literal indices (docstring).
+            _inverse_metric_rows(buf, count, half + half)
+            _christoffel_rows(buf, count, half)
+            _raised_christoffel_rows(buf, count)
+            _christoffel_contractions(buf, count, two)
+            _mixed_curvature_rows(buf, count)
+            _ricci_row(buf, count, 0, 0, half)
+            _ricci_row(buf, count, 0, 1, half)
+            _ricci_row(buf, count, 0, 2, half)
+            _ricci_row(buf, count, 1, 1, half)
+            _ricci_row(buf, count, 1, 2, half)
+            _ricci_row(buf, count, 2, 2, half)
+            _hamiltonian_rows(buf, count, sixteen_pi, two)
+            _momentum_rows(buf, count, 0, eight_pi, two)
+            _momentum_rows(buf, count, 1, eight_pi, two)
+            _momentum_rows(buf, count, 2, eight_pi, two)
+            for n in range(count):
+                k = base + u(n)
+                inside = interior[i, j, k] != 0
+                H[i, j, k] = buf[_OUT, n] if inside else nan
+                H_scale[i, j, k] = buf[_OUT + 1, n] if inside else nan
             for a in range(3):
-                for b in range(a, 3):
-                    s = 0.0
-                    for c in range(3):
-                        for d in range(3):
-                            second = (ddg[a, d, c, b] + ddg[c, b, a, d]
-                                      - ddg[a, b, c, d] - ddg[c, d, a, b])
-                            quad = 0.0
-                            for m in range(3):
-                                quad += gam2[m, a, d] * gam1[m, c, b] - gam2[m, a, b] * gam1[m, c, d]
-                            s += gi[c, d] * (0.5 * second + quad)
-                    ric[a, b] = s
-                    ric[b, a] = s
-            ricci = 0.0
-            trace_k = 0.0
-            for a in range(3):
-                for b in range(3):
-                    ricci += gi[a, b] * ric[a, b]
-                    trace_k += gi[a, b] * kl[a, b]
-            for a in range(3):
-                for b in range(3):
-                    s = 0.0
-                    for c in range(3):
-                        for d in range(3):
-                            s += gi[a, c] * gi[b, d] * kl[c, d]
-                    ku[a, b] = s
-            k_sq = 0.0
-            for a in range(3):
-                for b in range(3):
-                    k_sq += ku[a, b] * kl[a, b]
-            matter = sixteen_pi * rho[i, j, k]
-            H[i, j, k] = ricci + trace_k * trace_k - k_sq - matter
-            H_scale[i, j, k] = max(max(abs(ricci), trace_k * trace_k), max(k_sq, abs(matter)))
-            # M_i = gamma^jk D_j K_ki - gamma^jk D_i K_jk - 8 pi S_i
-            for a in range(3):
-                div_k = 0.0
-                grad_k = 0.0
-                for b in range(3):
-                    for c in range(3):
-                        # D_b K_ca and D_a K_bc
-                        dbca = dk[c, a, b]
-                        dabc = dk[b, c, a]
-                        for m in range(3):
-                            dbca -= gam2[m, b, c] * kl[m, a] + gam2[m, b, a] * kl[c, m]
-                            dabc -= gam2[m, a, b] * kl[m, c] + gam2[m, a, c] * kl[b, m]
-                        div_k += gi[b, c] * dbca
-                        grad_k += gi[b, c] * dabc
-                source = eight_pi * S[a, i, j, k]
-                M[a, i, j, k] = div_k - grad_k - source
-                M_scale[a, i, j, k] = max(max(abs(div_k), abs(grad_k)), abs(source))
+                for n in range(count):
+                    k = base + u(n)
+                    inside = interior[i, j, k] != 0
+                    M[a, i, j, k] = buf[_OUT + 2 + a, n] if inside else nan
+                    M_scale[a, i, j, k] = buf[_OUT + 5 + a, n] if inside else nan

@@ -27,7 +27,8 @@ serves every order. Callers keep ``radius`` points away from the faces.
 
 :func:`d1_column` is the first derivative for a whole grid column (i, j, k0..k0+count-1) at once,
 written so that LLVM vectorises it along z (see its docstring); use it where a kernel needs many
-derivatives per point.
+derivatives per point. :func:`d2_column` and :func:`d11_column` are its second and mixed
+derivatives, :func:`value_column` copies the column's values (the same buffer layout).
 """
 
 from __future__ import annotations
@@ -47,6 +48,9 @@ __all__ = [
     "d2",
     "d11",
     "d1_column",
+    "d2_column",
+    "d11_column",
+    "value_column",
     "d1_staggered",
 ]
 
@@ -216,3 +220,93 @@ def d1_column(f, c, i, j, k0, count, axis, radius, weights, inv_h, out, row):
                                    - f[c, i - 2 * oi, j - 2 * oj, k - ok2])
                            + w3 * (f[c, i + 3 * oi, j + 3 * oj, k + ok3]
                                    - f[c, i - 3 * oi, j - 3 * oj, k - ok3]))
+
+
+@point_function
+def value_column(f, c, i, j, k0, count, out, row):
+    """out[row, n] = f[c, i, j, k0 + n] for n = 0..count-1 (unsigned index: see d1_column)."""
+    u = np.uint64
+    base = u(k0)
+    for n in range(count):
+        out[row, n] = f[c, i, j, base + u(n)]
+
+
+@point_function
+def d2_column(f, c, i, j, k0, count, axis, radius, weights, inv_h2, out, row):
+    """out[row, n] = d^2 f[c] / (d x^axis)^2 at (i, j, k0 + n), n = 0..count-1.
+
+    The centred sum of :func:`d2` with ``weights`` from :func:`second_derivative_weights`
+    (``radius`` = len(weights) - 1, 1 to 3) and ``inv_h2`` = 1 / h^2, written as
+    :func:`d1_column` (unsigned index along the column, radius and axis resolved outside the
+    loop over k); the same caller rules.
+    """
+    u = np.uint64
+    oi = 1 if axis == 0 else 0
+    oj = 1 if axis == 1 else 0
+    ok = u(1) if axis == 2 else u(0)
+    base = u(k0)
+    w0 = weights[0] * inv_h2
+    w1 = weights[1] * inv_h2
+    if radius == 1:
+        for n in range(count):
+            k = base + u(n)
+            out[row, n] = w0 * f[c, i, j, k] + w1 * (f[c, i + oi, j + oj, k + ok]
+                                                      + f[c, i - oi, j - oj, k - ok])
+    elif radius == 2:
+        w2 = weights[2] * inv_h2
+        ok2 = ok + ok
+        for n in range(count):
+            k = base + u(n)
+            out[row, n] = (w0 * f[c, i, j, k]
+                           + w1 * (f[c, i + oi, j + oj, k + ok] + f[c, i - oi, j - oj, k - ok])
+                           + w2 * (f[c, i + 2 * oi, j + 2 * oj, k + ok2]
+                                   + f[c, i - 2 * oi, j - 2 * oj, k - ok2]))
+    else:
+        w2 = weights[2] * inv_h2
+        w3 = weights[3] * inv_h2
+        ok2 = ok + ok
+        ok3 = ok2 + ok
+        for n in range(count):
+            k = base + u(n)
+            out[row, n] = (w0 * f[c, i, j, k]
+                           + w1 * (f[c, i + oi, j + oj, k + ok] + f[c, i - oi, j - oj, k - ok])
+                           + w2 * (f[c, i + 2 * oi, j + 2 * oj, k + ok2]
+                                   + f[c, i - 2 * oi, j - 2 * oj, k - ok2])
+                           + w3 * (f[c, i + 3 * oi, j + 3 * oj, k + ok3]
+                                   + f[c, i - 3 * oi, j - 3 * oj, k - ok3]))
+
+
+@point_function
+def d11_column(f, c, i, j, k0, count, axis_a, axis_b, radius, weights, inv_ha, inv_hb, out, row):
+    """out[row, n] = d^2 f[c] / (d x^a d x^b) at (i, j, k0 + n), ``axis_a`` < ``axis_b``.
+
+    The mixed stencil of :func:`d11` (the first-derivative stencil along a and along b),
+    summed as sum_{m,q} w_m w_q / (h_a h_b) [f(+m, +q) - f(+m, -q) - f(-m, +q) + f(-m, -q)]
+    (offsets m along a, q along b): one pass over the column per pair (m, q), so that each
+    loop over k is straight-line code whatever the order (see :func:`d1_column`). Only
+    ``axis_b`` can be z, so the index along the column moves by +-q only. The same caller
+    rules as :func:`d1_column`; ``radius`` >= 1.
+    """
+    u = np.uint64
+    base = u(k0)
+    for m in range(1, radius + 1):
+        ai = m if axis_a == 0 else 0
+        aj = m if axis_a == 1 else 0
+        for q in range(1, radius + 1):
+            bj = q if axis_b == 1 else 0
+            bk = u(q) if axis_b == 2 else u(0)
+            w = weights[m - 1] * weights[q - 1] * inv_ha * inv_hb
+            kp = base + bk
+            km = base - bk
+            if m == 1 and q == 1:
+                for n in range(count):
+                    out[row, n] = w * ((f[c, i + ai, j + aj + bj, kp + u(n)]
+                                        - f[c, i + ai, j + aj - bj, km + u(n)])
+                                       - (f[c, i - ai, j - aj + bj, kp + u(n)]
+                                          - f[c, i - ai, j - aj - bj, km + u(n)]))
+            else:
+                for n in range(count):
+                    out[row, n] += w * ((f[c, i + ai, j + aj + bj, kp + u(n)]
+                                         - f[c, i + ai, j + aj - bj, km + u(n)])
+                                        - (f[c, i - ai, j - aj + bj, kp + u(n)]
+                                           - f[c, i - ai, j - aj - bj, km + u(n)]))

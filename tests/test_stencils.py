@@ -130,3 +130,54 @@ def test_column_derivative_equals_point_derivative(rng, order):
         points = [_apply_all(f[1:], w, stencils.second_derivative_weights(order),
                              np.full(3, inv_h), 4, 5, k)[axis, 0] for k in range(r, 16 - r)]
         np.testing.assert_allclose(column, points, rtol=1e-14, atol=1e-13)
+
+
+@search_kernel
+def _second_columns(f, c, i, j, k0, count, radius, w1, w2, inv_h):
+    """Rows 0..2: d2 along x, y, z; rows 3..5: mixed (x, y), (x, z), (y, z); row 6: values."""
+    out = np.empty((7, count))
+    for axis in range(3):
+        stencils.d2_column(f, c, i, j, k0, count, axis, radius, w2, inv_h[axis] * inv_h[axis],
+                           out, axis)
+    row = 3
+    for a in range(2):
+        for b in range(a + 1, 3):
+            stencils.d11_column(f, c, i, j, k0, count, a, b, radius, w1, inv_h[a], inv_h[b],
+                                out, row)
+            row += 1
+    stencils.value_column(f, c, i, j, k0, count, out, 6)
+    return out
+
+
+@pytest.mark.parametrize("order", stencils.SUPPORTED_ORDERS)
+def test_second_derivative_columns_equal_point_derivatives(rng, order):
+    # The column forms used by the constraint kernel's strips against the point functions d2
+    # and d11 (checked against sympy above). They sum the same terms in another order (the
+    # mixed one multiplies the weights first), so they agree to round-off: the sum of the
+    # absolute terms is at most |f| sum|w2| / h^2 <= 4 * 6.1 / 0.04 ~ 600 (|f| <= 4 for these
+    # normal samples; sum|w2| = 6.1 at order 6, the largest; h >= 0.2), and summing at most 36
+    # terms in two orders moves each result by at most ~36 eps * 600 ~ 5e-12 (Higham,
+    # Accuracy and Stability of Numerical Algorithms (2002), sec. 4.2, from memory); 1e-11.
+    f = rng.standard_normal((2, 9, 10, 16))
+    w1 = stencils.first_derivative_weights(order)
+    w2 = stencils.second_derivative_weights(order)
+    r = order // 2
+    inv_h = np.array([1 / 0.2, 1 / 0.25, 1 / 0.3])
+    i, j = 4, 5
+    columns = _second_columns(f, 1, i, j, r, 16 - 2 * r, r, w1, w2, inv_h)
+    pairs = ((0, 1), (0, 2), (1, 2))
+    for n, k in enumerate(range(r, 16 - r)):
+        for axis in range(3):
+            expected = _second_point(f[1:], w1, w2, inv_h, i, j, k, axis, axis)
+            assert abs(columns[axis, n] - expected) <= 1e-11
+        for row, (a, b) in enumerate(pairs, start=3):
+            expected = _second_point(f[1:], w1, w2, inv_h, i, j, k, a, b)
+            assert abs(columns[row, n] - expected) <= 1e-11
+        assert columns[6, n] == f[1, i, j, k]
+
+
+@search_kernel
+def _second_point(f, w1, w2, inv_h, i, j, k, a, b):
+    if a == b:
+        return stencils.d2(f, 0, i, j, k, a, w2, inv_h[a] * inv_h[a])
+    return stencils.d11(f, 0, i, j, k, a, b, w1, inv_h[a], inv_h[b])

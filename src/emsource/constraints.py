@@ -34,8 +34,6 @@ from .unit_systems import check_unit_system
 __all__ = ["ConstraintResiduals", "ResidualNorms", "adm_constraints", "interior_points",
            "norm_partial", "residual_norms"]
 
-_SYM = np.array([[0, 1, 2], [1, 3, 4], [2, 4, 5]], dtype=np.int64)
-
 
 @renamed_keywords(mask="valid_mask")
 def interior_points(valid_mask, order):
@@ -263,7 +261,7 @@ def adm_constraints(gamma, K, E=None, B=None, *, spacing, order=4, units="gaussi
     with kernel_call():
         adm_constraints_grid(gamma64, K64, rho, S_i, interior.view(np.uint8),
                              first_derivative_weights(order), second_derivative_weights(order),
-                             1.0 / spacing, _SYM, 16.0 * math.pi, 8.0 * math.pi,
+                             1.0 / spacing, 16.0 * math.pi, 8.0 * math.pi,
                              H, M, H_scale, M_scale)
     return ConstraintResiduals(hamiltonian=H, momentum=M, hamiltonian_scale=H_scale,
                                momentum_scale=M_scale, interior=interior, order=order,
