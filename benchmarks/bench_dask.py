@@ -296,6 +296,8 @@ def main(argv=None):
     parser.add_argument("--points", type=int, default=256, help="points per axis (default 256)")
     parser.add_argument("--levels", type=int, default=4, help="time levels (default 4)")
     parser.add_argument("--repeat", type=int, default=3, help="timed runs each (default 3)")
+    parser.add_argument("--repeat-constraints", type=int, default=None,
+                        help="timed runs of the constraints, the slowest (default: --repeat)")
     parser.add_argument("--workers", type=int, nargs="+", default=[1, 2])
     parser.add_argument("--operations", nargs="+", choices=OPERATIONS, default=list(OPERATIONS))
     parser.add_argument("--block-mib", type=float, default=256,
@@ -321,9 +323,13 @@ def main(argv=None):
     points = n**3 * nlevels
     block = int(args.block_mib * MIB)
     interval = args.sample_ms / 1000
+    repeats = dict.fromkeys(OPERATIONS, args.repeat)
+    if args.repeat_constraints is not None:
+        repeats["constraints"] = args.repeat_constraints
     memory = psutil.virtual_memory()
     print(f"bench_dask {datetime.datetime.now():%Y-%m-%d %H:%M}: {n}^3 x {nlevels} levels = "
-          f"{points:.4g} points, medians of {args.repeat}; {os.cpu_count()} cores, "
+          f"{points:.4g} points, medians of {args.repeat} (constraints "
+          f"{repeats['constraints']}); {os.cpu_count()} cores, "
           f"{memory.total / 2**30:.1f} GiB memory ({memory.available / 2**30:.1f} available); "
           f"load averages {', '.join(f'{x:.2f}' for x in os.getloadavg())} at start")
     print(f"python {sys.version.split()[0]}, numpy {np.__version__}, numba {numba.__version__}, "
@@ -382,7 +388,7 @@ def main(argv=None):
         for operation in args.operations:
             single[operation](small)  # loads the kernels in this process
             results.append(measure(f"{operation}, single process", operation, path,
-                                   lambda: single[operation](path), args.repeat, interval))
+                                   lambda: single[operation](path), repeats[operation], interval))
         for workers in args.workers:
             threads = max(1, (os.cpu_count() or 1) // workers)
             print(f"Dask, {workers} worker(s) x 1 thread, Numba {threads} thread(s) each "
@@ -395,7 +401,8 @@ def main(argv=None):
                     distributed[operation](small)  # the workers import emsource, load kernels
                     results.append(measure(f"{operation}, Dask {workers} worker(s)", operation,
                                            path, lambda: distributed[operation](path),
-                                           args.repeat, interval, client=client, kind="dask"))
+                                           repeats[operation], interval, client=client,
+                                           kind="dask"))
         if os.path.exists(out):
             os.unlink(out)
 
