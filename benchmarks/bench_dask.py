@@ -1,7 +1,8 @@
 """Throughput and peak memory per worker of the Dask path (emsource.distributed) at 1 and 2 workers.
 
-Run:  python benchmarks/bench_dask.py [--points 256] [--levels 4] [--repeat 3] [--workers 1 2]
-                                      [--directory DIR] [--file PATH] [--block-mib 256]
+Run:  python benchmarks/bench_dask.py [--points 256] [--levels 4] [--repeat 3]
+          [--repeat-constraints N] [--workers 1 2] [--operations sources integrate constraints]
+          [--directory DIR] [--file PATH] [--block-mib 256] [--sample-ms 50]
 
 Needs the dask extra (pip install 'emsource[dask]'; psutil comes with distributed). It writes
 a float64 snapshot of points^3 with ``levels`` time levels (spatial_metric, extrinsic_curvature,
