@@ -12,7 +12,9 @@ passes (order 4, supplied time derivatives, every metric term on) called
   shared  through ``call_sharing_layouts``,
 on C-ordered inputs and on inputs stored z-fastest and seen through transposed views (strided),
 and prints shared / exact per layout. The same at 8^3 measures what the shared route adds per
-call (its argument key and Numba's conversion of C or writable arrays to the declared type).
+call (its argument key and Numba's conversion of C or writable arrays to the declared type),
+and the shared dispatchers called directly with writable arrays (converted) and with read-only
+views (exact match) isolate the conversion.
 For scale, a STREAM-style triad and the plain-NumPy residual of ``bench_conservation.py`` run in
 the same process. The first run compiles four specialisations per pass (minutes).
 """
@@ -35,7 +37,7 @@ from bench_conservation import (ARRAYS_MOVED, numpy_residual, smooth_curved_data
 
 from emsource.conservation import _PASS_1_INPUTS, _PASS_2_INPUTS  # noqa: E402
 from emsource.kernels import conservation as kernels  # noqa: E402
-from emsource.kernels._compile import call_sharing_layouts  # noqa: E402
+from emsource.kernels._compile import call_sharing_layouts, shared_dispatcher  # noqa: E402
 from emsource.kernels.stencils import first_derivative_weights  # noqa: E402
 
 
@@ -78,7 +80,25 @@ def variants(n):
             lambda first=first, second=second: (
                 call_sharing_layouts(kernels.fluxes_and_rates, first, _PASS_1_INPUTS),
                 call_sharing_layouts(kernels.residuals, second, _PASS_2_INPUTS)))
+        if layout == "contiguous":
+            # What Numba's conversion costs, without the key: the shared dispatchers called
+            # directly with the writable arrays (converted to read-only) and with read-only
+            # views of them (the declared types exactly).
+            one = shared_dispatcher(kernels.fluxes_and_rates, first, _PASS_1_INPUTS)
+            two = shared_dispatcher(kernels.residuals, second, _PASS_2_INPUTS)
+            fixed = [tuple(_read_only(a) if p in inputs else a for p, a in enumerate(args))
+                     for args, inputs in ((first, _PASS_1_INPUTS), (second, _PASS_2_INPUTS))]
+            found[(layout, "converted")] = (
+                lambda first=first, second=second, one=one, two=two: (one(*first), two(*second)))
+            found[(layout, "declared")] = (
+                lambda one=one, two=two, fixed=fixed: (one(*fixed[0]), two(*fixed[1])))
     return found, d, h
+
+
+def _read_only(a):
+    view = a.view()
+    view.flags.writeable = False
+    return view
 
 
 def interleaved_medians(calls, repeat):
@@ -109,6 +129,10 @@ def main(argv=None):
         medians = interleaved_medians(calls, repeat)
         points = size ** 3
         print(f"\n{size}^3, two passes:")
+        converted, declared = medians[("contiguous", "converted")], medians[("contiguous", "declared")]
+        print(f"    shared dispatchers called directly: writable C inputs (converted) "
+              f"{converted * 1e3:8.3f} ms, read-only (declared types) {declared * 1e3:8.3f} ms, "
+              f"ratio {converted / declared:5.3f}")
         for layout in ("contiguous", "z-fastest"):
             exact, shared = medians[(layout, "exact")], medians[(layout, "shared")]
             share = lambda t: 100 * ARRAYS_MOVED * 8 * points / t / triad  # noqa: E731

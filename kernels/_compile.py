@@ -38,7 +38,8 @@ import numpy as np
 from numba.core import types
 
 __all__ = ["FASTMATH_FLAGS", "grid_kernel", "point_function", "search_kernel", "tree_stamp",
-           "install_tree_stamp", "KERNEL_DIRECTORY", "call_sharing_layouts", "specialisations"]
+           "install_tree_stamp", "KERNEL_DIRECTORY", "call_sharing_layouts", "shared_dispatcher",
+           "specialisations"]
 
 #: The folder of the kernels (installed as ``emsource.kernels``).
 KERNEL_DIRECTORY = os.path.dirname(os.path.abspath(__file__))
@@ -107,17 +108,18 @@ def grid_kernel(function):
 # ------------------------------------------------------------------ one specialisation per layout
 #
 # Numba compiles a kernel once per tuple of argument types, and an array's type holds its layout:
-# "C" when NumPy calls it C-contiguous, else "A" (any strides), and whether it is read-only. A
-# kernel called with caller data in many layouts (transposed snapshot views, ghost zones sliced
-# off, one field stored differently from the others, a read-only memory map) therefore compiled
-# once per mix, about a minute each for the conservation kernels. call_sharing_layouts types the
-# caller's inputs of one call alike: all read-only "C" when every one is C-contiguous, else all
-# read-only "A". It compiles that signature into a dispatcher of its own, built with an explicit
-# signature list (Numba then disables compilation at call time), and calls it: Numba converts a
-# C or writable array to the declared read-only "A" type without compiling (a safe conversion;
-# the unboxed array structure is the same for every layout, so the call costs what an exact match
-# costs, measured in benchmarks/bench_conservation.py). Arrays the kernel writes keep their exact
-# types, so a C-ordered work or output array keeps its vectorised stores.
+# "C" or "F" when NumPy calls it C- or Fortran-contiguous, else "A" (any strides), and whether it
+# is read-only. A kernel called with caller data in many layouts (transposed snapshot views, ghost
+# zones sliced off, one field stored differently from the others, a read-only memory map)
+# therefore compiled once per mix, about a minute each for the conservation kernels.
+# call_sharing_layouts types the caller's inputs of one call alike: all read-only "C" when every
+# one is C-contiguous, else all read-only "A". It compiles that signature into a dispatcher of its
+# own, built with an explicit signature list (Numba then disables compilation at call time), and
+# calls it: Numba converts a C or writable array to the declared read-only "A" type without
+# compiling (a safe conversion; the unboxed array structure is the same for every layout, so the
+# call costs what an exact match costs, measured in benchmarks/bench_shared_layouts.py). Arrays
+# the kernel writes keep their exact types, so a C-ordered work or output array keeps its
+# vectorised stores.
 
 _SHARED_LOCK = threading.Lock()
 #: (kernel's Python function, layout, argument key) -> a dispatcher compiled for one signature.
@@ -127,14 +129,21 @@ _SHARED = {}
 _SHARED_BY_SIGNATURE = {}
 
 
-def _argument_key(value, is_input):
-    if isinstance(value, np.ndarray):
-        flags = value.flags
-        if is_input:
-            return ("input", value.dtype.str, value.ndim, flags.aligned)
-        return (value.dtype.str, value.ndim, flags.c_contiguous, flags.f_contiguous,
-                flags.writeable, flags.aligned)
-    return type(value)
+def _argument_key(arguments, inputs):
+    """What Numba's type of each argument depends on, the layout of ``inputs`` left out (one
+    loop, plain attributes: about 0.3 us per argument, measured)."""
+    key = []
+    for position, value in enumerate(arguments):
+        if type(value) is np.ndarray:
+            flags = value.flags
+            if position in inputs:
+                key.append((value.dtype, value.ndim, flags.aligned))
+            else:
+                key.append((value.dtype, value.ndim, flags.c_contiguous, flags.f_contiguous,
+                            flags.writeable, flags.aligned))
+        else:
+            key.append(type(value))
+    return tuple(key)
 
 
 def _shared_signature(arguments, inputs, layout):
@@ -147,6 +156,25 @@ def _shared_signature(arguments, inputs, layout):
     return tuple(signature)
 
 
+def shared_dispatcher(kernel, arguments, inputs):
+    """The dispatcher that :func:`call_sharing_layouts` calls for these arguments (compiled or
+    loaded from Numba's cache on first need; Numba converts the arguments to its one signature)."""
+    layout = "C" if all(arguments[p].flags.c_contiguous for p in inputs) else "A"
+    key = (kernel.py_func, layout, _argument_key(arguments, inputs))
+    shared = _SHARED.get(key)
+    if shared is None:
+        with _SHARED_LOCK:
+            shared = _SHARED.get(key)
+            if shared is None:
+                signature = _shared_signature(arguments, inputs, layout)
+                shared = _SHARED_BY_SIGNATURE.get((kernel.py_func, signature))
+                if shared is None:
+                    shared = numba.njit([signature], **_grid_options())(kernel.py_func)
+                    _SHARED_BY_SIGNATURE[(kernel.py_func, signature)] = shared
+                _SHARED[key] = shared
+    return shared
+
+
 def call_sharing_layouts(kernel, arguments, inputs):
     """Call the grid kernel ``kernel`` with ``arguments``, typing the arrays at the positions
     ``inputs`` (arrays the kernel only reads) by their dtype and dimension alone.
@@ -155,21 +183,7 @@ def call_sharing_layouts(kernel, arguments, inputs):
     "A" arrays, so that every mix of strided (and read-only) caller inputs shares one compiled
     specialisation per dtype and per type of the other arguments. Returns the kernel's result.
     """
-    layout = "C" if all(arguments[p].flags.c_contiguous for p in inputs) else "A"
-    key = (kernel.py_func, layout, tuple(_argument_key(a, p in inputs)
-                                         for p, a in enumerate(arguments)))
-    shared = _SHARED.get(key)
-    if shared is None:
-        with _SHARED_LOCK:
-            shared = _SHARED.get(key)
-            if shared is None:
-                signature = _shared_signature(arguments, frozenset(inputs), layout)
-                shared = _SHARED_BY_SIGNATURE.get((kernel.py_func, signature))
-                if shared is None:
-                    shared = numba.njit([signature], **_grid_options())(kernel.py_func)
-                    _SHARED_BY_SIGNATURE[(kernel.py_func, signature)] = shared
-                _SHARED[key] = shared
-    return shared(*arguments)
+    return shared_dispatcher(kernel, arguments, inputs)(*arguments)
 
 
 def specialisations(kernel):
