@@ -83,8 +83,8 @@ def test_strided_mixes_share_one_specialisation_and_give_the_same_numbers():
         "ghost zones, read-only metric": {k: (read_only(with_ghosts(v)) if k == "gamma"
                                               else with_ghosts(v)) for k, v in d.items()},
     }
-    own_before = own_signatures()
     reference = residual_of(d)
+    own_before = own_signatures()
     results = {}
     shared = []
     for name, mix in mixes.items():
