@@ -1,6 +1,6 @@
 """Cold compilation time of the kernels, per kernel and signature, in an empty Numba cache.
 
-Run:  python benchmarks/compile_times.py [--cases sources,conservation,strided,constraints]
+Run:  python benchmarks/compile_times.py [--cases sources,conservation,strided,mixed,constraints]
 
 Before Numba is imported, ``NUMBA_CACHE_DIR`` is pointed at a new empty directory (removed at
 the end), so every kernel compiles as on a user's first run. Each case calls a public function
@@ -10,6 +10,8 @@ once on a small grid (float64):
   conservation   ``conservation_residual`` on contiguous arrays, supplied time derivatives
   strided        the same on arrays stored z-fastest and seen through transposed views (the
                  snapshot layout with axes in the order z, y, x): every input strided
+  mixed          the same with only E, B and their time derivatives strided (another mix of
+                 contiguous and strided inputs; it shares the strided specialisation)
   constraints    ``adm_constraints`` on contiguous arrays
 
 Every compilation of a dispatcher is recorded through Numba's event API ("numba:compile");
@@ -27,7 +29,7 @@ import sys
 import tempfile
 import time
 
-CASES = ("sources", "conservation", "strided", "constraints")
+CASES = ("sources", "conservation", "strided", "mixed", "constraints")
 
 
 def _flat_data(grid, rng, np):
@@ -109,6 +111,10 @@ def _run(cases, n):
             *(_z_fastest(d[k], np) for k in ("alpha", "beta", "gamma", "K", "E", "B")),
             spacing=0.1, dt_E=_z_fastest(d["dt_E"], np), dt_B=_z_fastest(d["dt_B"], np),
             dt_gamma=_z_fastest(d["dt_gamma"], np)),
+        "mixed": lambda: conservation_residual(
+            d["alpha"], d["beta"], d["gamma"], d["K"], _z_fastest(d["E"], np),
+            _z_fastest(d["B"], np), spacing=0.1, dt_E=_z_fastest(d["dt_E"], np),
+            dt_B=_z_fastest(d["dt_B"], np), dt_gamma=d["dt_gamma"]),
         "constraints": lambda: adm_constraints(d["gamma"], d["K"], d["E"], d["B"], spacing=0.1),
     }
     print(f"numba {numba.__version__}, numpy {np.__version__}, {n}^3 float64, empty cache; "

@@ -31,11 +31,15 @@ from __future__ import annotations
 
 import hashlib
 import os
+import threading
 
 import numba
+import numpy as np
+from numba.core import types
 
 __all__ = ["FASTMATH_FLAGS", "grid_kernel", "point_function", "search_kernel", "tree_stamp",
-           "install_tree_stamp", "KERNEL_DIRECTORY"]
+           "install_tree_stamp", "KERNEL_DIRECTORY", "call_sharing_layouts", "shared_dispatcher",
+           "specialisations"]
 
 #: The folder of the kernels (installed as ``emsource.kernels``).
 KERNEL_DIRECTORY = os.path.dirname(os.path.abspath(__file__))
@@ -91,15 +95,107 @@ install_tree_stamp()
 FASTMATH_FLAGS = {"contract", "arcp", "reassoc", "nsz", "afn"}
 
 
+def _grid_options():
+    return dict(cache=True, parallel=True, nogil=True, fastmath=set(FASTMATH_FLAGS),
+                error_model="numpy")
+
+
 def grid_kernel(function):
     """Compile ``function`` as a parallel, disk-cached grid kernel (lazily, per signature)."""
-    return numba.njit(
-        cache=True,
-        parallel=True,
-        nogil=True,
-        fastmath=set(FASTMATH_FLAGS),
-        error_model="numpy",
-    )(function)
+    return numba.njit(**_grid_options())(function)
+
+
+# ------------------------------------------------------------------ one specialisation per layout
+#
+# Numba compiles a kernel once per tuple of argument types, and an array's type holds its layout:
+# "C" or "F" when NumPy calls it C- or Fortran-contiguous, else "A" (any strides), and whether it
+# is read-only. A kernel called with caller data in many layouts (transposed snapshot views, ghost
+# zones sliced off, one field stored differently from the others, a read-only memory map)
+# therefore compiled once per mix, about a minute each for the conservation kernels.
+# call_sharing_layouts types the caller's inputs of one call alike: all read-only "C" when every
+# one is C-contiguous, else all read-only "A". It compiles that signature into a dispatcher of its
+# own, built with an explicit signature list (Numba then disables compilation at call time), and
+# calls it: Numba converts a C or writable array to the declared read-only "A" type without
+# compiling (a safe conversion; the unboxed array structure is the same for every layout, so the
+# call costs what an exact match costs, measured in benchmarks/bench_shared_layouts.py). Arrays
+# the kernel writes keep their exact types, so a C-ordered work or output array keeps its
+# vectorised stores.
+
+_SHARED_LOCK = threading.Lock()
+#: (kernel's Python function, layout, argument key) -> a dispatcher compiled for one signature.
+_SHARED = {}
+#: (kernel's Python function, signature) -> that dispatcher (keys that differ only in ways Numba
+#: does not type, such as a Python int against a NumPy int64, share it).
+_SHARED_BY_SIGNATURE = {}
+
+
+def _argument_key(arguments, inputs):
+    """What Numba's type of each argument depends on, the layout of ``inputs`` left out (one
+    loop, plain attributes: about 0.3 us per argument, measured)."""
+    key = []
+    for position, value in enumerate(arguments):
+        if type(value) is np.ndarray:
+            flags = value.flags
+            if position in inputs:
+                key.append((value.dtype, value.ndim, flags.aligned))
+            else:
+                key.append((value.dtype, value.ndim, flags.c_contiguous, flags.f_contiguous,
+                            flags.writeable, flags.aligned))
+        else:
+            key.append(type(value))
+    return tuple(key)
+
+
+def _shared_signature(arguments, inputs, layout):
+    signature = []
+    for position, value in enumerate(arguments):
+        kind = numba.typeof(value)
+        if position in inputs:
+            kind = types.Array(kind.dtype, kind.ndim, layout, readonly=True, aligned=kind.aligned)
+        signature.append(kind)
+    return tuple(signature)
+
+
+def shared_dispatcher(kernel, arguments, inputs):
+    """The dispatcher that :func:`call_sharing_layouts` calls for these arguments (compiled or
+    loaded from Numba's cache on first need; Numba converts the arguments to its one signature)."""
+    layout = "C" if all(arguments[p].flags.c_contiguous for p in inputs) else "A"
+    key = (kernel.py_func, layout, _argument_key(arguments, inputs))
+    shared = _SHARED.get(key)
+    if shared is None:
+        with _SHARED_LOCK:
+            shared = _SHARED.get(key)
+            if shared is None:
+                signature = _shared_signature(arguments, inputs, layout)
+                shared = _SHARED_BY_SIGNATURE.get((kernel.py_func, signature))
+                if shared is None:
+                    shared = numba.njit([signature], **_grid_options())(kernel.py_func)
+                    _SHARED_BY_SIGNATURE[(kernel.py_func, signature)] = shared
+                _SHARED[key] = shared
+    return shared
+
+
+def call_sharing_layouts(kernel, arguments, inputs):
+    """Call the grid kernel ``kernel`` with ``arguments``, typing the arrays at the positions
+    ``inputs`` (arrays the kernel only reads) by their dtype and dimension alone.
+
+    All of them become read-only "C" arrays if every one of them is C-contiguous, else read-only
+    "A" arrays, so that every mix of strided (and read-only) caller inputs shares one compiled
+    specialisation per dtype and per type of the other arguments. Returns the kernel's result.
+    """
+    return shared_dispatcher(kernel, arguments, inputs)(*arguments)
+
+
+def specialisations(kernel):
+    """The argument types of every compiled specialisation of ``kernel`` in this process: its own
+    (compiled lazily at call time) and those of :func:`call_sharing_layouts`."""
+    found = list(kernel.signatures)
+    with _SHARED_LOCK:
+        shared = [d for (function, _), d in _SHARED_BY_SIGNATURE.items()
+                  if function is kernel.py_func]
+    for dispatcher in shared:
+        found.extend(dispatcher.signatures)
+    return found
 
 
 def search_kernel(function):

@@ -62,6 +62,7 @@ from . import _arguments as arg
 from ._deprecated_names import module_aliases, renamed_keywords
 from ._threading import kernel_call
 from .kernels import conservation as kernels
+from .kernels._compile import call_sharing_layouts
 from .kernels.stencils import first_derivative_weights, stencil_radius
 from .reductions import (BalancePartial, BalanceTerms, GlobalBalance, NormPartial, ResidualNorms,
                          Sum, combine_all)
@@ -277,6 +278,12 @@ def _work_array(function, work, shape, dtype):
     return work
 
 
+#: Argument positions of the caller's arrays (fields, metric, lapse, shift, curvature, charges,
+#: the time levels or supplied derivatives) in kernels.fluxes_and_rates and kernels.residuals.
+_PASS_1_INPUTS = (0, 1, 2, 4, 5, 7, 9, 10, 11, 13, 14)
+_PASS_2_INPUTS = (0, 1, 2, 4, 6, 7, 8, 9)
+
+
 def _run_kernels(p: _Prepared, order, rate_mode, rate_arrays, inv_2dt, write_sources, work=None,
                  function="conservation_residual"):
     """The two kernel passes; returns (residual, scale, sources, partials).
@@ -296,16 +303,19 @@ def _run_kernels(p: _Prepared, order, rate_mode, rate_arrays, inv_2dt, write_sou
     partials = np.empty((padded_shape[0] * padded_shape[1], 16), p.dtype)
     pad = (Ellipsis,) + (None,) * (3 - len(p.grid))
     rx, ry, rz = p.radii
+    # The caller's arrays (positions _PASS_1_INPUTS, _PASS_2_INPUTS) are typed by dtype alone:
+    # every mix of strided and contiguous inputs shares one compiled specialisation per pass.
     with kernel_call():
-        kernels.fluxes_and_rates(v["alpha"], v["beta"], v["gamma"], p.gidx, v["E"], v["B"],
-                                 rate_mode, g_a, gidx_a, e_a, b_a, g_b, gidx_b, e_b, b_b,
-                                 dt(inv_2dt), dt(p.coef), dt(0.5), work4)
-        kernels.residuals(v["alpha"], v["beta"], v["gamma"], p.gidx, v["K"], p.kidx, v["E"],
-                          v["B"], v["charge_density"], v["current_density"], work4,
-                          first_derivative_weights(order, p.dtype),
-                          dt(p.inv_h[0]), dt(p.inv_h[1]), dt(p.inv_h[2]), rx, ry, rz,
-                          dt(p.coef), dt(0.5), residual[pad], scale[pad], sources[pad],
-                          bool(write_sources), partials)
+        call_sharing_layouts(kernels.fluxes_and_rates, (
+            v["alpha"], v["beta"], v["gamma"], p.gidx, v["E"], v["B"], rate_mode, g_a, gidx_a,
+            e_a, b_a, g_b, gidx_b, e_b, b_b, dt(inv_2dt), dt(p.coef), dt(0.5), work4),
+            _PASS_1_INPUTS)
+        call_sharing_layouts(kernels.residuals, (
+            v["alpha"], v["beta"], v["gamma"], p.gidx, v["K"], p.kidx, v["E"], v["B"],
+            v["charge_density"], v["current_density"], work4,
+            first_derivative_weights(order, p.dtype), dt(p.inv_h[0]), dt(p.inv_h[1]),
+            dt(p.inv_h[2]), rx, ry, rz, dt(p.coef), dt(0.5), residual[pad], scale[pad],
+            sources[pad], bool(write_sources), partials), _PASS_2_INPUTS)
     return residual, scale, (sources if write_sources else None), partials, work4
 
 

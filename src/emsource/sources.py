@@ -17,6 +17,7 @@ from .input_forms import input_form
 from ._threading import kernel_call
 from ._call_plans import FlatPlan, PlanCache, signature
 from .kernels import sources as kernels
+from .kernels._compile import call_sharing_layouts
 from .unit_systems import stress_energy_prefactor
 
 __all__ = ["AdmSources", "GridPointError", "adm_sources", "stress_energy_4d"]
@@ -307,9 +308,12 @@ def _run_adm_kernel(grid, dtype, gidx, constants, views, flat, check):
     """One call of the source driver on kernel views (flat or column loop); on counted bad
     points, the search for the first one and :class:`GridPointError`."""
     g, ev, bv, rho, s_i, s_ij, s = views
-    driver = kernels.adm_sources_flat if flat else kernels.adm_sources_grid
     with kernel_call():
-        counts = driver(g, gidx, ev, bv, rho, s_i, s_ij, s, *constants, bool(check))
+        arguments = (g, gidx, ev, bv, rho, s_i, s_ij, s, *constants, bool(check))
+        if flat:
+            counts = kernels.adm_sources_flat(*arguments)
+        else:  # every mix of strided inputs shares one specialisation of the column loop
+            counts = call_sharing_layouts(kernels.adm_sources_grid, arguments, (0, 2, 3))
         if counts[0] or counts[1]:
             grid_views = arg.as_grid_views([g, ev, bv, rho, s_i, s_ij, s], flat, grid)
             raise_for_counts("adm_sources", counts, grid, dtype, kernels.first_failing_adm,
@@ -378,10 +382,13 @@ def stress_energy_4d(alpha, beta, gamma, E, B, *, units="gaussian", index="lower
     if not arg.has_points(grid):
         return result
     (a, be, g, ev, bv, t), flat = arg.kernel_views([lapse, shift, metric, e, b, t_view], grid)
-    driver = kernels.stress_energy_flat if flat else kernels.stress_energy_grid
     constants = arg.kernel_constants(form, dtype, prefactor) + (index == "upper",)
     with kernel_call():
-        counts = driver(a, be, g, gidx, ev, bv, t, *constants, bool(check))
+        arguments = (a, be, g, gidx, ev, bv, t, *constants, bool(check))
+        if flat:
+            counts = kernels.stress_energy_flat(*arguments)
+        else:
+            counts = call_sharing_layouts(kernels.stress_energy_grid, arguments, (0, 1, 2, 4, 5))
         if counts[0] or counts[1]:
             views = arg.as_grid_views([a, be, g, ev, bv, t], flat, grid)
             raise_for_counts(function, counts, grid, dtype, kernels.first_failing_stress_energy,
