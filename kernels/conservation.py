@@ -43,7 +43,7 @@ from .electromagnetic import (
     sqrt_determinant,
 )
 from .metric import inverse_metric, metric_factors
-from .stencils import d1_column
+from .stencils import d1_column, value_column
 
 
 @point_function
@@ -255,15 +255,6 @@ _STRIP = 128
 _ROWS = 81
 
 
-@point_function
-def _copy_column(f, c, i, j, k0, count, out, row):
-    """out[row, n] = f[c, i, j, k0 + n] for n = 0..count-1 (unsigned index: see d1_column)."""
-    u = np.uint64
-    base = u(k0)
-    for n in range(count):
-        out[row, n] = f[c, i, j, base + u(n)]
-
-
 @grid_kernel
 def residuals(alpha, beta, gamma, gidx, K, kidx, E, B, charge, current, work,
               weights, inv_hx, inv_hy, inv_hz, rx, ry, rz, coef, half,
@@ -352,16 +343,16 @@ def residuals(alpha, beta, gamma, gidx, K, kidx, E, B, charge, current, work,
                     d1_column(beta, c, i, j, start, count, q, radius[q], weights, inv_hs[q],
                               buf, 33 + 3 * q + c)
             for c in range(6):
-                _copy_column(gamma, gidx[c], i, j, start, count, buf, 42 + c)
-                _copy_column(K, kidx[c], i, j, start, count, buf, 59 + c)
+                value_column(gamma, gidx[c], i, j, start, count, buf, 42 + c)
+                value_column(K, kidx[c], i, j, start, count, buf, 59 + c)
             for c in range(3):
-                _copy_column(E, c, i, j, start, count, buf, 48 + c)
-                _copy_column(B, c, i, j, start, count, buf, 51 + c)
-                _copy_column(current, c, i, j, start, count, buf, 55 + c)
-            _copy_column(alpha, 0, i, j, start, count, buf, 54)
-            _copy_column(charge, 0, i, j, start, count, buf, 58)
+                value_column(E, c, i, j, start, count, buf, 48 + c)
+                value_column(B, c, i, j, start, count, buf, 51 + c)
+                value_column(current, c, i, j, start, count, buf, 55 + c)
+            value_column(alpha, 0, i, j, start, count, buf, 54)
+            value_column(charge, 0, i, j, start, count, buf, 58)
             for c in range(4):
-                _copy_column(work, 12 + c, i, j, start, count, buf, 65 + c)
+                value_column(work, 12 + c, i, j, start, count, buf, 65 + c)
             for n in range(count):
                 (d1, d2, d3, l21, l31, l32, sg, ex, ey, ez, exl, eyl, ezl, bx, by, bz, bxl, byl,
                  bzl, rho, sx, sy, sz, ux, uy, uz, energy2) = _contravariant_point(
