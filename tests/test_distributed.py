@@ -337,7 +337,12 @@ def test_radiation_bad_point_is_named_in_whole_grid_terms(tmp_path):
     with pytest.raises(SnapshotError) as found:
         radiation_series(path, block_bytes=SMALL_BLOCKS // 4, **options)
     assert "grid index (8, 4, 4)" in str(single.value)
-    assert str(found.value) == str(single.value)
+    # Nodes in several blocks have the bad value in their stencils, and which block's error the
+    # threaded scheduler raises first depends on the schedule: the node named may differ, the
+    # file, level, quantity, component and grid index may not.
+    named_node = "inside the interpolation stencil of the node at x = "
+    assert named_node in str(found.value)
+    assert str(found.value).split(named_node)[0] == str(single.value).split(named_node)[0]
 
 
 # --------------------------------------------------------------------------- time series
