@@ -15,9 +15,8 @@ import math
 from numba import prange
 
 from ._compile import grid_kernel, point_function
-from .electromagnetic import fields_both_indices, projections, sqrt_determinant
+from .electromagnetic import fields_both_indices, point_is_valid, projections, sqrt_determinant
 from .metric import metric_at, metric_factors
-from .point_checks import is_finite
 
 DECOMPOSITION_CHI = 0
 DECOMPOSITION_W = 1
@@ -95,9 +94,8 @@ def conformal_sources_grid(factor, tgamma, gidx, E, B, rho, S_i, S, A, decomposi
             A[3, i, j, k] = c * syy - trace * tyy
             A[4, i, j, k] = c * syz - trace * tyz
             A[5, i, j, k] = c * szz - trace * tzz
-            floor = pivot_floor * (gxx + gyy + gzz)
-            ok = ((d1 > floor) & (d2 > floor) & (d3 > floor)
-                  & is_finite(r * (one + gxx + gyy + gzz) + c + sx))
+            ok = point_is_valid(d1, d2, d3, pivot_floor * (gxx + gyy + gzz),
+                                r * (one + gxx + gyy + gzz) + c + sx)
             count += 0 if ok else 1
         bad += count
     return bad

@@ -25,9 +25,8 @@ from __future__ import annotations
 from numba import prange
 
 from ._compile import grid_kernel, point_function
-from .electromagnetic import fields_both_indices, sqrt_determinant
+from .electromagnetic import fields_both_indices, point_is_valid, sqrt_determinant
 from .metric import contract_index, inverse_metric, metric_at, metric_factors
-from .point_checks import is_finite
 
 
 @point_function
@@ -95,9 +94,8 @@ def faraday_grid(alpha, beta, gamma, gidx, E, B, F, form, upper, pivot_floor, on
             for c in range(6):
                 F[c, i, j, k] = f[c]
                 total += f[c]
-            floor = pivot_floor * (gxx + gyy + gzz)
-            ok = ((d1 > floor) & (d2 > floor) & (d3 > floor) & (a > 0)
-                  & is_finite(total + fields[0] + fields[3]))
+            ok = (point_is_valid(d1, d2, d3, pivot_floor * (gxx + gyy + gzz),
+                                 total + fields[0] + fields[3]) & (a > 0))
             count += 0 if ok else 1
         bad += count
     return bad
@@ -130,9 +128,8 @@ def fields_from_faraday_grid(alpha, beta, gamma, gidx, F, E, B, upper, pivot_flo
             B[0, i, j, k] = bx
             B[1, i, j, k] = by
             B[2, i, j, k] = bz
-            floor = pivot_floor * (gxx + gyy + gzz)
-            ok = ((d1 > floor) & (d2 > floor) & (d3 > floor) & (a > 0)
-                  & is_finite(ex + ey + ez + bx + by + bz))
+            ok = (point_is_valid(d1, d2, d3, pivot_floor * (gxx + gyy + gzz),
+                                 ex + ey + ez + bx + by + bz) & (a > 0))
             count += 0 if ok else 1
         bad += count
     return bad
@@ -161,8 +158,7 @@ def invariants_grid(gamma, gidx, E, B, out, form, pivot_floor, one):
             second = (one + one + one + one) * (exl * bx + eyl * by + ezl * bz)
             out[0, i, j, k] = first
             out[1, i, j, k] = second
-            floor = pivot_floor * (gxx + gyy + gzz)
-            ok = ((d1 > floor) & (d2 > floor) & (d3 > floor) & is_finite(e2 + b2 + second))
+            ok = point_is_valid(d1, d2, d3, pivot_floor * (gxx + gyy + gzz), e2 + b2 + second)
             count += 0 if ok else 1
         bad += count
     return bad

@@ -17,9 +17,8 @@ import math
 from numba import prange
 
 from ._compile import grid_kernel, point_function
-from .electromagnetic import fields_both_indices, sqrt_determinant
+from .electromagnetic import fields_both_indices, point_is_valid, sqrt_determinant
 from .metric import contract_index, metric_at, metric_factors
-from .point_checks import is_finite
 
 VELOCITY_EULERIAN = 0
 VELOCITY_FOUR = 1
@@ -100,10 +99,9 @@ def ideal_mhd_grid(alpha, beta, gamma, gidx, B, V, E, U, b, form, kind, pivot_fl
             b[1, i, j, k] = bx * il + bv * u1
             b[2, i, j, k] = by * il + bv * u2
             b[3, i, j, k] = bz * il + bv * u3
-            floor = pivot_floor * (gxx + gyy + gzz)
-            ok = ((d1 > floor) & (d2 > floor) & (d3 > floor) & (a > zero)
-                  & is_finite(bv * ut + u1 + u2 + u3 + E[0, i, j, k] + E[1, i, j, k]
-                              + E[2, i, j, k] + bx + by + bz))
+            ok = (point_is_valid(d1, d2, d3, pivot_floor * (gxx + gyy + gzz),
+                                 bv * ut + u1 + u2 + u3 + E[0, i, j, k] + E[1, i, j, k]
+                                 + E[2, i, j, k] + bx + by + bz) & (a > zero))
             count += 0 if ok else 1
         bad += count
     return bad
