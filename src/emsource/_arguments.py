@@ -7,6 +7,8 @@ copies an array; where a view is impossible the caller gets an error that says s
 
 from __future__ import annotations
 
+import math
+
 import numpy as np
 
 from .errors import GridPointError
@@ -34,6 +36,17 @@ FLOAT_DTYPES = (np.dtype(np.float64), np.dtype(np.float32))
 def choice(function: str, argument: str, value, allowed) -> None:
     if value not in allowed:
         raise ValueError(f"{function}: {argument} must be one of {tuple(allowed)}, found {value!r}")
+
+
+def positive_number(argument: str, value) -> float:
+    """``value`` as a float, or a ValueError naming ``argument`` unless it is positive and finite."""
+    try:
+        number = float(value)
+    except (TypeError, ValueError):
+        raise ValueError(f"{argument} must be a positive finite number, found {value!r}") from None
+    if not (math.isfinite(number) and number > 0):
+        raise ValueError(f"{argument} must be a positive finite number, found {value!r}")
+    return number
 
 
 def float_array(function: str, argument: str, value) -> np.ndarray:

@@ -36,7 +36,6 @@ O(h^4)) grid points per axis.
 
 from __future__ import annotations
 
-import math
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -176,16 +175,6 @@ def lagrange_weights(s: np.ndarray, npoints: int):
     return i0, weights
 
 
-def _check_radius(radius):
-    try:
-        r = float(radius)
-    except (TypeError, ValueError):
-        raise ValueError(f"sphere radius must be a positive finite number, found {radius!r}") from None
-    if not (math.isfinite(r) and r > 0):
-        raise ValueError(f"sphere radius must be a positive finite number, found {radius!r}")
-    return r
-
-
 #: Quadrature nodes whose place is computed at once when a sphere scans its nodes, and nodes
 #: interpolated at once (each gathers 3 x p^3 flux values). They bound the spheres' memory
 #: whatever ``theta_points`` is (N = 2 theta_points^2 nodes are never held at once).
@@ -213,7 +202,7 @@ class CoordinateSphere:
     """
 
     def __init__(self, radius, grid, theta_points, npoints):
-        self.radius = _check_radius(radius)
+        self.radius = args.positive_number("sphere radius", radius)
         self.npoints = npoints
         self.grid = grid
         if npoints < 2 or npoints % 2:
@@ -475,7 +464,7 @@ def integrate_level_arrays(grid, gamma, E, B, *, units="gaussian", lapse=None, s
                             in_place=False, by_position=True)
 
     partial = global_partial(function, comm, grid, compute)
-    return LevelIntegrals.from_partial(partial, label, time, [_check_radius(r) for r in radii])
+    return LevelIntegrals.from_partial(partial, label, time, [args.positive_number("sphere radius", r) for r in radii])
 
 
 @renamed_keywords(n_theta="theta_points")

@@ -39,6 +39,7 @@ from dataclasses import dataclass
 
 from scipy import constants
 
+from ._arguments import positive_number
 from .unit_systems import check_unit_system
 
 __all__ = ["NOMINAL_SOLAR_MASS_PARAMETER", "SCALE_UNITS", "STORED_UNITS", "PhysicalScale",
@@ -235,16 +236,6 @@ STORED_UNITS = {
 }
 
 
-def _positive(value, argument):
-    try:
-        number = float(value)
-    except (TypeError, ValueError):
-        raise ValueError(f"{argument} must be a positive finite number, found {value!r}") from None
-    if not (math.isfinite(number) and number > 0):
-        raise ValueError(f"{argument} must be a positive finite number, found {value!r}")
-    return number
-
-
 def physical_scale(mass_solar: float | None = None, units: str = "gaussian", *,
                    length_m=None, length_cm=None, time_s=None, mass_kg=None, mass_g=None,
                    ) -> PhysicalScale:
@@ -282,7 +273,7 @@ def physical_scale(mass_solar: float | None = None, units: str = "gaussian", *,
     (name, value), = given.items()
     unit = {"mass_solar": "solar_mass", "length_m": "m", "length_cm": "cm", "time_s": "s",
             "mass_kg": "kg", "mass_g": "g"}[name]
-    return scale_of(_positive(value, f"physical_scale: {name}"), unit, units)
+    return scale_of(positive_number(f"physical_scale: {name}", value), unit, units)
 
 
 def scale_of(value: float, unit: str, units: str = "gaussian", *, argument="unit") -> PhysicalScale:
@@ -292,7 +283,7 @@ def scale_of(value: float, unit: str, units: str = "gaussian", *, argument="unit
     """
     if unit not in SCALE_UNITS:
         raise ValueError(f"{argument} must be one of {list(SCALE_UNITS)}, found {unit!r}")
-    value = _positive(value, "scale value")
+    value = positive_number("scale value", value)
     return PhysicalScale(value * SCALE_UNITS[unit][1] / NOMINAL_SOLAR_MASS_PARAMETER, units)
 
 
