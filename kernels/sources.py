@@ -41,6 +41,7 @@ such point on the error path, with the same point functions.
 
 from __future__ import annotations
 
+import numpy as np
 from numba import prange
 
 from ._compile import grid_kernel, point_function, search_kernel
@@ -56,13 +57,16 @@ from .electromagnetic import (
 )
 from .metric import inverse_metric, metric_factors
 from .point_checks import is_finite
+from .vector_loops import count_flag, strip_count, strip_range
 
 
 @point_function
-def _adm_point(n, gamma, gidx, E, B, rho, S_i, S_ij, S, form, coef, half, tiny, pivot_floor):
-    """Write rho, S_i, S_ij, S at point ``n`` of (ncomp, npoints) arrays; return the checks as
-    bits: 1 if it fails :func:`point_is_valid` (the ten outputs bounded by :func:`sources_bound`),
-    2 if its energy density underflows (:func:`point_underflows`).
+def _adm_values(gxx, gxy, gxz, gyy, gyz, gzz, f1, f2, f3, f4, f5, f6, form, coef, half, tiny,
+                pivot_floor):
+    """rho, S_x, S_y, S_z, S_ij (packed) at one point from its metric and stored field
+    components, and the checks as bits: 1 if it fails :func:`point_is_valid` (the ten outputs
+    bounded by :func:`sources_bound`), 2 if its energy density underflows
+    (:func:`point_underflows`).
 
     The checks come back as one integer: returning boolean flags from this inlined function
     made the kernel 2-4 times slower (measured twice; LLVM stopped vectorising), and a check
@@ -70,18 +74,27 @@ def _adm_point(n, gamma, gidx, E, B, rho, S_i, S_ij, S, form, coef, half, tiny, 
     (measured), where this costs 0-4 % against the plain finiteness test it replaced.
     """
     one = half + half
-    gxx = gamma[gidx[0], n]
-    gxy = gamma[gidx[1], n]
-    gxz = gamma[gidx[2], n]
-    gyy = gamma[gidx[3], n]
-    gyz = gamma[gidx[4], n]
-    gzz = gamma[gidx[5], n]
     d1, d2, d3, l21, l31, l32 = metric_factors(gxx, gxy, gxz, gyy, gyz, gzz, one)
     sg = sqrt_determinant(d1, d2, d3)
     fields = fields_both_indices(form, gxx, gxy, gxz, gyy, gyz, gzz, d1, d2, d3, l21, l31, l32,
-                                 E[0, n], E[1, n], E[2, n], B[0, n], B[1, n], B[2, n], one)
+                                 f1, f2, f3, f4, f5, f6, one)
     r, sx, sy, sz, sxx, sxy, sxz, syy, syz, szz, _energy2 = projections(
         gxx, gxy, gxz, gyy, gyz, gzz, sg, fields, coef, half)
+    trace = gxx + gyy + gzz
+    valid = point_is_valid(d1, d2, d3, pivot_floor * trace, sources_bound(r, trace, one))
+    status = (0 if valid else 1) + (2 if point_underflows(r, fields, tiny) else 0)
+    return r, sx, sy, sz, sxx, sxy, sxz, syy, syz, szz, status
+
+
+@point_function
+def _adm_point(n, gamma, gidx, E, B, rho, S_i, S_ij, S, form, coef, half, tiny, pivot_floor):
+    """Write rho, S_i, S_ij, S at point ``n`` of (ncomp, npoints) arrays; return the check bits
+    of :func:`_adm_values`."""
+    r, sx, sy, sz, sxx, sxy, sxz, syy, syz, szz, status = _adm_values(
+        gamma[gidx[0], n], gamma[gidx[1], n], gamma[gidx[2], n],
+        gamma[gidx[3], n], gamma[gidx[4], n], gamma[gidx[5], n],
+        E[0, n], E[1, n], E[2, n], B[0, n], B[1, n], B[2, n],
+        form, coef, half, tiny, pivot_floor)
     rho[n] = r
     S[n] = r  # the electromagnetic stress-energy is traceless: S = gamma^ij S_ij = rho
     S_i[0, n] = sx
@@ -93,9 +106,7 @@ def _adm_point(n, gamma, gidx, E, B, rho, S_i, S_ij, S, form, coef, half, tiny, 
     S_ij[3, n] = syy
     S_ij[4, n] = syz
     S_ij[5, n] = szz
-    trace = gxx + gyy + gzz
-    valid = point_is_valid(d1, d2, d3, pivot_floor * trace, sources_bound(r, trace, one))
-    return (0 if valid else 1) + (2 if point_underflows(r, fields, tiny) else 0)
+    return status
 
 
 @point_function
@@ -232,14 +243,94 @@ def adm_sources_flat(gamma, gidx, E, B, rho, S_i, S_ij, S, form, coef, half, tin
     S_i = S_i.reshape((S_i.shape[0], S_i.size // S_i.shape[0]))
     S_ij = S_ij.reshape((S_ij.shape[0], S_ij.size // S_ij.shape[0]))
     S = S.reshape(npoints)
+    zero = half - half
+    one = half + half
     bad_count = 0
     underflow_count = 0
-    for n in prange(npoints):
-        status = _adm_point(n, gamma, gidx, E, B, rho, S_i, S_ij, S, form, coef, half, tiny,
-                            pivot_floor)
+    for strip in prange(strip_count(npoints)):
+        start, stop = strip_range(strip, npoints)
+        bad = zero
+        low = zero
+        for n in range(start, stop):
+            status = _adm_point(n, gamma, gidx, E, B, rho, S_i, S_ij, S, form, coef, half, tiny,
+                                pivot_floor)
+            bad += count_flag(status & 1, one, zero)
+            low += count_flag(status & 2, one, zero)
         if check:
-            bad_count += status & 1
-            underflow_count += status >> 1
+            bad_count += int(bad)
+            underflow_count += int(low)
+    return bad_count, underflow_count
+
+
+@grid_kernel
+def adm_sources_window(gamma, gidx, E, B, rho, S_i, S_ij, S, steps, shape, form, coef, half,
+                       tiny, pivot_floor, check):
+    """rho, S_i, S_ij, S over windows of larger arrays (ghost zones sliced off), each array a
+    1-D span of its memory; returns the two counts.
+
+    Array a (gamma, E, B, rho, S_i, S_ij, S in this order) holds component c of point
+    (i, j, k) of the (nx, ny, nz) = ``shape`` window at c steps[a, 0] + i steps[a, 1]
+    + j steps[a, 2] + k (uint64 element steps; z is contiguous): the loop along z then reads
+    and writes unit-stride rows and vectorises (:mod:`~emsource.kernels.vector_loops`), where
+    :func:`adm_sources_grid` over the same views as strided arrays stays scalar.
+    """
+    nx = np.uint64(shape[0])
+    ny = np.uint64(shape[1])
+    nz = np.uint64(shape[2])
+    zero = half - half
+    one = half + half
+    g0 = np.uint64(gidx[0]) * steps[0, 0]
+    g1 = np.uint64(gidx[1]) * steps[0, 0]
+    g2 = np.uint64(gidx[2]) * steps[0, 0]
+    g3 = np.uint64(gidx[3]) * steps[0, 0]
+    g4 = np.uint64(gidx[4]) * steps[0, 0]
+    g5 = np.uint64(gidx[5]) * steps[0, 0]
+    e1 = steps[1, 0]
+    b1 = steps[2, 0]
+    v1 = steps[4, 0]
+    t1 = steps[5, 0]
+    bad_count = 0
+    underflow_count = 0
+    for column in prange(nx * ny):
+        i = np.uint64(column) // ny
+        j = np.uint64(column) - i * ny
+        at_g = i * steps[0, 1] + j * steps[0, 2]
+        at_e = i * steps[1, 1] + j * steps[1, 2]
+        at_b = i * steps[2, 1] + j * steps[2, 2]
+        at_rho = i * steps[3, 1] + j * steps[3, 2]
+        at_v = i * steps[4, 1] + j * steps[4, 2]
+        at_t = i * steps[5, 1] + j * steps[5, 2]
+        at_s = i * steps[6, 1] + j * steps[6, 2]
+        bad = zero
+        low = zero
+        for k in range(nz):
+            g = at_g + k
+            e = at_e + k
+            b = at_b + k
+            r, sx, sy, sz, sxx, sxy, sxz, syy, syz, szz, status = _adm_values(
+                gamma[g0 + g], gamma[g1 + g], gamma[g2 + g],
+                gamma[g3 + g], gamma[g4 + g], gamma[g5 + g],
+                E[e], E[e1 + e], E[e1 + e1 + e], B[b], B[b1 + b], B[b1 + b1 + b],
+                form, coef, half, tiny, pivot_floor)
+            rho[at_rho + k] = r
+            S[at_s + k] = r
+            v = at_v + k
+            S_i[v] = sx
+            S_i[v1 + v] = sy
+            S_i[v1 + v1 + v] = sz
+            t = at_t + k
+            S_ij[t] = sxx
+            S_ij[t1 + t] = sxy
+            S_ij[t1 + t1 + t] = sxz
+            t = t1 + t1 + t1 + t
+            S_ij[t] = syy
+            S_ij[t1 + t] = syz
+            S_ij[t1 + t1 + t] = szz
+            bad += count_flag(status & 1, one, zero)
+            low += count_flag(status & 2, one, zero)
+        if check:
+            bad_count += int(bad)
+            underflow_count += int(low)
     return bad_count, underflow_count
 
 
@@ -273,14 +364,23 @@ def adm_sources_grid(gamma, gidx, E, B, rho, S_i, S_ij, S, form, coef, half, tin
 def stress_energy_flat(alpha, beta, gamma, gidx, E, B, T, form, coef, half, tiny, pivot_floor,
                        upper, check):
     """Packed T_ab or T^ab over (ncomp, npoints) arrays; returns the two counts."""
+    zero = half - half
+    one = half + half
     bad_count = 0
     underflow_count = 0
-    for n in prange(alpha.shape[0]):
-        valid, low = _stress_energy_point(n, alpha, beta, gamma, gidx, E, B, T,
-                                          form, coef, half, tiny, pivot_floor, upper)
+    npoints = alpha.shape[0]
+    for strip in prange(strip_count(npoints)):
+        start, stop = strip_range(strip, npoints)
+        bad = zero
+        low = zero
+        for n in range(start, stop):
+            valid, underflows = _stress_energy_point(n, alpha, beta, gamma, gidx, E, B, T, form,
+                                                     coef, half, tiny, pivot_floor, upper)
+            bad += count_flag(not valid, one, zero)
+            low += count_flag(underflows, one, zero)
         if check:
-            bad_count += 0 if valid else 1
-            underflow_count += 1 if low else 0
+            bad_count += int(bad)
+            underflow_count += int(low)
     return bad_count, underflow_count
 
 

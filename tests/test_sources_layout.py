@@ -91,23 +91,40 @@ class _SharedRouteSpy(_Spy):
         return self.real(kernel, arguments, inputs)
 
 
-@pytest.mark.parametrize("contiguous", [True, False])
-def test_inputs_reach_the_kernel_without_copies(rng, monkeypatch, contiguous):
+@pytest.mark.parametrize("route", ["flat", "window", "columns"])
+def test_inputs_reach_the_kernel_without_copies(rng, monkeypatch, route):
     alpha, beta, gamma, E, B = random_curved_data(rng, (8, 8, 8))
-    if not contiguous:
+    if route == "window":  # ghost zones sliced off: contiguous along z
         gamma, E, B = (a[:, 2:-2, 1:-1, 2:-2] for a in (gamma, E, B))
-    if contiguous:
+    elif route == "columns":  # z reversed: no unit stride along z, the column loop
+        gamma, E, B = (a[:, 2:-2, 1:-1, ::-1] for a in (gamma, E, B))
+    if route == "flat":
         spy = _Spy(kernels.adm_sources_flat)
         monkeypatch.setattr(kernels, "adm_sources_flat", spy)
-    else:  # the column loop is called through the route that shares one specialisation
+    else:  # the strided drivers are called through the route that shares one specialisation
         spy = _SharedRouteSpy(emsource.sources.call_sharing_layouts)
         monkeypatch.setattr(emsource.sources, "call_sharing_layouts", spy)
     src = emsource.adm_sources(gamma, E, B)
     passed = spy.arrays
-    assert len(passed) == 7
-    for given, seen in zip((gamma, E, B) + tuple(src), passed):
-        assert np.shares_memory(given, seen)
-        assert seen.size == given.size  # the whole array is seen, not a copied part
+    given = (gamma, E, B) + tuple(src)
+    if route != "window":
+        assert len(passed) == 7
+        for array, seen in zip(given, passed):
+            assert np.shares_memory(array, seen)
+            assert seen.size == array.size  # the whole array is seen, not a copied part
+        return
+    # The windowed driver sees 1-D spans of the same memory and uint64 element steps.
+    spans, steps = passed[:7], passed[7]
+    assert steps.shape == (7, 3) and steps.dtype == np.uint64
+    for array, span, step in zip(given, spans, steps):
+        assert span.ndim == 1 and span.flags.c_contiguous
+        assert span.__array_interface__["data"][0] == array.__array_interface__["data"][0]
+        grid = array if array.ndim == 3 else array.reshape((-1,) + array.shape[-3:])
+        for component in range(grid.shape[0] if array.ndim == 4 else 1):
+            for i, j in ((0, 0), (1, 2), (grid.shape[-3] - 1, grid.shape[-2] - 1)):
+                start = int(component * step[0] + i * step[1] + j * step[2])
+                row = grid[i, j] if array.ndim == 3 else grid[component, i, j]
+                np.testing.assert_array_equal(span[start:start + row.size], row)
 
 
 def test_out_buffers_are_filled_in_place(rng):

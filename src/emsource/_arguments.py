@@ -399,6 +399,53 @@ def _c_strides(a: np.ndarray, grid) -> tuple:
     return tuple(reversed(strides))
 
 
+def unit_stride_spans(views):
+    """``views`` (the (ncomp, nx, ny, nz) and (nx, ny, nz) column-loop views of one call) as
+    1-D spans of their memory with element steps, for the windowed kernels; None if they
+    cannot be.
+
+    Returns ``(spans, steps, shape)``: ``spans[a]`` is a C-contiguous 1-D array from the first
+    to the last element of ``views[a]``, ``steps[a]`` the uint64 (component, x, y) element
+    steps, ``shape`` the (nx, ny, nz) window, so that ``views[a][c, i, j, k]`` is
+    ``spans[a][c steps[a, 0] + i steps[a, 1] + j steps[a, 2] + k]``. Applies when every view
+    has non-negative strides that are whole elements and is contiguous along z (ghost zones
+    sliced off C-ordered or padded arrays); component-last and reversed views go to the column
+    loop. A span covers memory between the window's points that belongs to the same array
+    (ghost zones, other components); the kernels touch the window's points only.
+    """
+    shape = views[0].shape[-3:]
+    steps = np.empty((len(views), 3), np.uint64)
+    spans = []
+    for position, view in enumerate(views):
+        itemsize = view.itemsize
+        strides = view.strides
+        if min(strides) < 0 or any(s % itemsize for s in strides):
+            return None
+        if view.shape[-1] != 1 and strides[-1] != itemsize:
+            return None
+        element_steps = [s // itemsize for s in strides]
+        steps[position] = element_steps[-4] if view.ndim == 4 else 0, element_steps[-3], element_steps[-2]
+        extent = 1
+        for n, step in zip(view.shape, element_steps):
+            extent += (n - 1) * step
+        spans.append(_span(view, extent))
+    return spans, steps, tuple(int(n) for n in shape)
+
+
+def _span(view: np.ndarray, extent: int) -> np.ndarray:
+    """A C-contiguous 1-D array of ``extent`` elements starting at ``view``'s first element."""
+    owner = view
+    while isinstance(owner.base, np.ndarray):
+        owner = owner.base
+    if owner.base is None and type(owner) is np.ndarray and owner.flags.c_contiguous:
+        offset = view.__array_interface__["data"][0] - owner.__array_interface__["data"][0]
+        if 0 <= offset and offset + extent * view.itemsize <= owner.nbytes:
+            # About 0.5 us; as_strided below takes about 6 us.
+            return np.ndarray((extent,), view.dtype, buffer=owner, offset=offset)
+    return np.lib.stride_tricks.as_strided(view, shape=(extent,), strides=(view.itemsize,),
+                                           writeable=view.flags.writeable)
+
+
 def three_axis_views(arrays, grid):
     """Views of component-first arrays on a 1-, 2- or 3-D ``grid`` with length-1 axes appended
     up to three grid axes, the form the column kernels take (no copy)."""

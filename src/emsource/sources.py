@@ -305,13 +305,19 @@ _INPUT_NAMES = ("gamma", "E", "B")
 
 
 def _run_adm_kernel(grid, dtype, gidx, constants, views, flat, check):
-    """One call of the source driver on kernel views (flat or column loop); on counted bad
-    points, the search for the first one and :class:`GridPointError`."""
+    """One call of the source driver on kernel views (flat loop, windowed loop or column loop);
+    on counted bad points, the search for the first one and :class:`GridPointError`."""
     g, ev, bv, rho, s_i, s_ij, s = views
     with kernel_call():
         arguments = (g, gidx, ev, bv, rho, s_i, s_ij, s, *constants, bool(check))
+        spans = None if flat else arg.unit_stride_spans(views)
         if flat:
             counts = kernels.adm_sources_flat(*arguments)
+        elif spans is not None:  # windows contiguous along z (ghost zones sliced off)
+            (g1, e1, b1, *outputs), steps, shape = spans
+            counts = call_sharing_layouts(
+                kernels.adm_sources_window,
+                (g1, gidx, e1, b1, *outputs, steps, shape, *constants, bool(check)), (0, 2, 3))
         else:  # every mix of strided inputs shares one specialisation of the column loop
             counts = call_sharing_layouts(kernels.adm_sources_grid, arguments, (0, 2, 3))
         if counts[0] or counts[1]:

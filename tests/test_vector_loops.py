@@ -1,0 +1,189 @@
+"""The vectorisable loops of the source drivers (kernels/vector_loops.py): the windowed driver
+over 1-D spans and the strip loops of the flat drivers.
+
+What could go wrong and is checked here: a span or a step that addresses the wrong element
+(results compared with the same data made contiguous, and with the 4D brute-force reference
+built from F^ab, J. D. Jackson, Classical Electrodynamics, 3rd ed. (1999), sec. 12.10, eq.
+12.113, and E. Gourgoulhon, 3+1 Formalism in General Relativity (2012), sec. 5.2, for the
+projections); a window whose span would leave its array (foreign memory takes the slow
+constructor); counts of bad points lost between strips or columns when they are summed in the
+data's dtype (counts compared with NumPy's count of the same points, across many strips).
+"""
+
+import math
+
+import numpy as np
+import pytest
+
+import emsource
+import emsource.grid_arrays
+import emsource.sources
+from emsource import _arguments as arg
+from emsource.kernels import sources as kernels
+from emsource.kernels._compile import call_sharing_layouts
+from emsource.kernels.vector_loops import STRIP_POINTS
+
+from conftest import assert_same_arithmetic, random_curved_data
+from reference_stress_energy import grid_reference
+
+GHOSTS = (slice(None),) + (slice(3, -3),) * 3
+
+
+def _route_spy(monkeypatch):
+    """Record which driver each adm_sources call reaches."""
+    reached = []
+    real = emsource.sources.call_sharing_layouts
+
+    def spy(kernel, arguments, inputs):
+        reached.append(kernel.py_func.__name__)
+        return real(kernel, arguments, inputs)
+
+    monkeypatch.setattr(emsource.sources, "call_sharing_layouts", spy)
+    return reached
+
+
+@pytest.mark.parametrize("dtype", [np.float64, np.float32])
+@pytest.mark.parametrize("field_index", ["upper", "lower", "densitized"])
+def test_window_of_a_ghosted_grid_equals_the_same_data_made_contiguous(rng, monkeypatch, dtype,
+                                                                      field_index):
+    _, _, gamma, E, B = random_curved_data(rng, (12, 11, 13), dtype)
+    views = [a[GHOSTS] for a in (gamma, E, B)]
+    reached = _route_spy(monkeypatch)
+    windowed = emsource.adm_sources(*views, field_index=field_index)
+    assert reached == ["adm_sources_window"]
+    copied = emsource.adm_sources(*(np.ascontiguousarray(v) for v in views),
+                                  field_index=field_index)
+    for a, b in zip(windowed, copied):
+        assert_same_arithmetic(a, b)
+
+
+def test_window_agrees_with_the_4d_reference(rng):
+    """Independent route: T^ab from F^ab and the 4-metric, projected (tests/reference_stress_energy)."""
+    alpha, beta, gamma, E, B = random_curved_data(rng, (9, 10, 8))
+    views = [a[GHOSTS] for a in (gamma, E, B)]
+    src = emsource.adm_sources(*views)
+    rho, S_i, S_ij, _, _ = grid_reference(alpha[GHOSTS[1:]], beta[GHOSTS], *views, 1 / (4 * math.pi))
+    # The kernel and the reference round differently (L D L^T against a 4x4 inverse): a few
+    # hundred eps of the largest value bounds it for metrics of condition number below ~10.
+    for ours, reference in ((src.rho, rho), (src.S_i, S_i), (src.S_ij, S_ij), (src.S, rho)):
+        np.testing.assert_allclose(ours, reference, rtol=0,
+                                   atol=256 * np.finfo(float).eps * np.abs(reference).max())
+
+
+@pytest.mark.parametrize("grid, window", [((20,), (slice(3, -3),)),
+                                          ((9, 12), (slice(1, -2), slice(3, -3)))])
+def test_windows_of_one_and_two_dimensional_grids(rng, monkeypatch, grid, window):
+    _, _, gamma, E, B = random_curved_data(rng, grid)
+    views = [a[(slice(None),) + window] for a in (gamma, E, B)]
+    reached = _route_spy(monkeypatch)
+    windowed = emsource.adm_sources(*views)
+    assert reached == ["adm_sources_window"]
+    for a, b in zip(windowed, emsource.adm_sources(*(np.ascontiguousarray(v) for v in views))):
+        assert_same_arithmetic(a, b)
+
+
+def test_full_metric_padded_inputs_and_outputs_inside_one_state_array(rng, monkeypatch):
+    """A (3, 3) metric, padded grid functions, and outputs that are windows of the same state
+    array as the inputs (disjoint components): every array has its own steps."""
+    _, _, gamma, E, B = random_curved_data(rng, (10, 10, 10))
+    full = gamma[np.array([[0, 1, 2], [1, 3, 4], [2, 4, 5]])]
+    padded_full = emsource.grid_arrays.grid_function_like(full)
+    padded_full[...] = full
+    state = np.zeros((6 + 1 + 3 + 6 + 1, 10, 10, 10))
+    state[0:3], state[3:6] = E, B
+    window = (slice(3, -3),) * 3
+    inputs = (padded_full[(slice(None), slice(None)) + window], state[(slice(0, 3),) + window],
+              state[(slice(3, 6),) + window])
+    out = (state[(6,) + window], state[(slice(7, 10),) + window],
+           state[(slice(10, 16),) + window], state[(16,) + window])
+    reached = _route_spy(monkeypatch)
+    emsource.adm_sources(*inputs, out=out)
+    assert reached == ["adm_sources_window"]
+    expected = emsource.adm_sources(np.ascontiguousarray(gamma[GHOSTS]), E[GHOSTS], B[GHOSTS])
+    for a, b in zip(out, expected):
+        assert_same_arithmetic(a, b)
+    np.testing.assert_array_equal(state[0:3], E)  # inputs untouched
+    assert np.all(state[(slice(6, 17), slice(0, 3))] == 0)  # nothing written outside the window
+
+
+def test_window_over_foreign_memory(rng):
+    """Arrays over a bytearray (no owning ndarray): the span comes from as_strided."""
+    _, _, gamma, E, B = random_curved_data(rng, (10, 9, 11))
+    foreign = []
+    for a in (gamma, E, B):
+        buffer = bytearray(a.nbytes)
+        view = np.frombuffer(buffer, a.dtype).reshape(a.shape)
+        view[...] = a
+        foreign.append(view[GHOSTS])
+    spans, _, _ = arg.unit_stride_spans(arg.three_axis_views(foreign, foreign[0].shape[1:]))
+    for span, view in zip(spans, foreign):
+        assert span.__array_interface__["data"][0] == view.__array_interface__["data"][0]
+    got = emsource.adm_sources(*foreign)
+    for a, b in zip(got, emsource.adm_sources(*(a[GHOSTS] for a in (gamma, E, B)))):
+        np.testing.assert_array_equal(a, b)
+
+
+def test_views_without_unit_z_stride_take_the_column_loop(rng, monkeypatch):
+    _, _, gamma, E, B = random_curved_data(rng, (8, 8, 8))
+    reached = _route_spy(monkeypatch)
+    reversed_views = [a[:, :, :, ::-1] for a in (gamma, E, B)]
+    every_other = [a[:, :, :, ::2] for a in (gamma, E, B)]
+    emsource.adm_sources(*reversed_views)
+    emsource.adm_sources(*every_other)
+    emsource.adm_sources(*(np.moveaxis(a, 0, -1) for a in (gamma, E, B)),
+                         layout="component_last")
+    assert reached == ["adm_sources_grid"] * 3
+
+
+@pytest.mark.parametrize("dtype", [np.float32, np.float64])
+@pytest.mark.parametrize("route", ["flat", "window", "columns"])
+def test_counts_of_bad_and_underflowing_points_are_exact_across_strips(rng, dtype, route):
+    """Counts summed per strip (flat) or column (window) in the data's dtype, then in int64:
+    compared with NumPy's count of the same points over many strips (grid of ~15 strips)."""
+    shape = (26, 25, 24)  # 15600 points, 15.2 strips of 1024
+    assert math.prod(shape) > 15 * STRIP_POINTS
+    _, _, gamma, E, B = random_curved_data(rng, tuple(n + 6 for n in shape), dtype)
+    inner = GHOSTS[1:]
+    bad = rng.random(shape) < 0.3
+    original = gamma.copy()
+    gamma[(0,) + inner][bad] = np.nan
+    if route == "flat":
+        arrays = [np.ascontiguousarray(a[GHOSTS]) for a in (gamma, E, B)]
+    elif route == "window":
+        arrays = [a[GHOSTS] for a in (gamma, E, B)]
+    else:
+        arrays = [a[GHOSTS][..., ::-1] for a in (gamma, E, B)]
+    with pytest.raises(emsource.GridPointError) as err:
+        emsource.adm_sources(*arrays)
+    assert f"{int(bad.sum())} of {bad.size} grid points" in str(err.value)
+    # Underflow: every field component tiny enough that E^2 + B^2 falls below the smallest
+    # normal number (|f| ~ 1e-30 in float32, 1e-170 in float64), on a third of the points.
+    gamma[...] = original
+    low = rng.random(shape) < 0.35
+    tiny = np.finfo(dtype).tiny ** 0.5 / 16
+    for field in (E, B):
+        for c in range(3):
+            field[(c,) + inner][low] = tiny
+    if route == "flat":
+        arrays = [np.ascontiguousarray(a[GHOSTS]) for a in (gamma, E, B)]
+    counts = _driver_counts(arrays, route)
+    assert counts == (0, int(low.sum()))
+
+
+def _driver_counts(arrays, route):
+    """The (bad, underflowing) counts the driver of ``route`` returns for ``arrays``."""
+    gamma, E, B = arrays
+    dtype = gamma.dtype
+    out = [np.empty(gamma.shape[1:], dtype), np.empty((3,) + gamma.shape[1:], dtype),
+           np.empty((6,) + gamma.shape[1:], dtype), np.empty(gamma.shape[1:], dtype)]
+    constants = arg.kernel_constants(0, dtype, 1 / (4 * math.pi))
+    gidx = np.arange(6)
+    if route == "flat":
+        return tuple(kernels.adm_sources_flat(gamma, gidx, E, B, *out, *constants, True))
+    # Through the route the package takes, which shares one compiled specialisation per layout.
+    if route == "window":
+        (g, e, b, *outputs), steps, shape = arg.unit_stride_spans([gamma, E, B] + out)
+        arguments = (g, gidx, e, b, *outputs, steps, shape, *constants, True)
+        return tuple(call_sharing_layouts(kernels.adm_sources_window, arguments, (0, 2, 3)))
+    arguments = (gamma, gidx, E, B, *out, *constants, True)
+    return tuple(call_sharing_layouts(kernels.adm_sources_grid, arguments, (0, 2, 3)))
