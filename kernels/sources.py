@@ -57,7 +57,7 @@ from .electromagnetic import (
 )
 from .metric import inverse_metric, metric_factors
 from .point_checks import is_finite
-from .vector_loops import count_flag, strip_count, strip_range
+from .vector_loops import count_flag, strip_count, strip_length, strip_range
 
 
 @point_function
@@ -247,8 +247,9 @@ def adm_sources_flat(gamma, gidx, E, B, rho, S_i, S_ij, S, form, coef, half, tin
     one = half + half
     bad_count = 0
     underflow_count = 0
-    for strip in prange(strip_count(npoints)):
-        start, stop = strip_range(strip, npoints)
+    length = strip_length(npoints)
+    for strip in prange(strip_count(npoints, length)):
+        start, stop = strip_range(strip, length, npoints)
         bad = zero
         low = zero
         for n in range(start, stop):
@@ -369,8 +370,9 @@ def stress_energy_flat(alpha, beta, gamma, gidx, E, B, T, form, coef, half, tiny
     bad_count = 0
     underflow_count = 0
     npoints = alpha.shape[0]
-    for strip in prange(strip_count(npoints)):
-        start, stop = strip_range(strip, npoints)
+    length = strip_length(npoints)
+    for strip in prange(strip_count(npoints, length)):
+        start, stop = strip_range(strip, length, npoints)
         bad = zero
         low = zero
         for n in range(start, stop):
