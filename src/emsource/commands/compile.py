@@ -4,7 +4,9 @@ Each kernel is compiled once per argument signature (dtype, memory layout) and c
 run, of any command or of the Python API, loads it. This command calls every public function
 on tiny grids in the common signatures: float64 and float32, contiguous, padded grid
 functions (the sources' flat driver takes contiguous 3-D arrays whole and padded ones as rows:
-two signatures) and strided (ghost zones sliced off, component-last data). With ``--diagnostics`` also the conservation and constraint kernels
+two signatures), ghost zones sliced off (the sources' windowed driver; the column loops of the
+others) and component-last data (the sources' column loop). With ``--diagnostics`` also the
+conservation and constraint kernels
 (float64, the difference orders share one signature), which take minutes.
 """
 
@@ -67,6 +69,9 @@ def common_signatures():
                       lambda ga=padded[0], e=padded[1], b=padded[2]: emsource.adm_sources(
                           ga, e, b, out=emsource.AdmSources(*(
                               grid_function_like(a) for a in emsource.adm_sources(ga, e, b))))))
+        calls.append((f"sources, {name}, component-last",
+                      lambda ga=gamma, e=E, b=B: emsource.adm_sources(
+                          *(np.moveaxis(a, 0, -1) for a in (ga, e, b)), layout="component_last")))
         calls.append((f"energy fluxes, {name}",
                       lambda al=alpha, be=beta, ga=gamma, e=E, b=B: energy_fluxes(al, be, ga, e, b)))
     return calls
