@@ -187,3 +187,32 @@ def _driver_counts(arrays, route):
         return tuple(call_sharing_layouts(kernels.adm_sources_window, arguments, (0, 2, 3)))
     arguments = (gamma, gidx, E, B, *out, *constants, True)
     return tuple(call_sharing_layouts(kernels.adm_sources_grid, arguments, (0, 2, 3)))
+
+
+@pytest.mark.parametrize("dtype", [np.float64, np.float32])
+@pytest.mark.parametrize("index", ["lower", "upper"])
+def test_spacetime_components_on_a_window_equal_the_same_data_made_contiguous(rng, monkeypatch,
+                                                                             dtype, index):
+    alpha, beta, gamma, E, B = random_curved_data(rng, (11, 12, 10), dtype)
+    views = [alpha[GHOSTS[1:]]] + [a[GHOSTS] for a in (beta, gamma, E, B)]
+    reached = _route_spy(monkeypatch)
+    windowed = emsource.stress_energy_4d(*views, index=index)
+    assert reached == ["stress_energy_window"]
+    assert_same_arithmetic(windowed, emsource.stress_energy_4d(
+        *(np.ascontiguousarray(v) for v in views), index=index))
+
+
+@pytest.mark.parametrize("route", ["flat", "window"])
+def test_spacetime_components_count_every_bad_lapse_across_strips(rng, route):
+    """A lapse that is not positive fails the T_ab point check: counted exactly over ~15 strips
+    (the status bits the T_ab point function returns since it vectorises)."""
+    shape = (26, 25, 24)
+    alpha, beta, gamma, E, B = random_curved_data(rng, tuple(n + 6 for n in shape))
+    bad = rng.random(shape) < 0.4
+    alpha[GHOSTS[1:]][bad] = -1.0
+    views = [alpha[GHOSTS[1:]]] + [a[GHOSTS] for a in (beta, gamma, E, B)]
+    if route == "flat":
+        views = [np.ascontiguousarray(v) for v in views]
+    with pytest.raises(emsource.GridPointError) as err:
+        emsource.stress_energy_4d(*views)
+    assert f"{int(bad.sum())} of {bad.size} grid points" in str(err.value)

@@ -391,8 +391,15 @@ def stress_energy_4d(alpha, beta, gamma, E, B, *, units="gaussian", index="lower
     constants = arg.kernel_constants(form, dtype, prefactor) + (index == "upper",)
     with kernel_call():
         arguments = (a, be, g, gidx, ev, bv, t, *constants, bool(check))
+        spans = None if flat else arg.unit_stride_spans([a, be, g, ev, bv, t])
         if flat:
             counts = kernels.stress_energy_flat(*arguments)
+        elif spans is not None:  # windows contiguous along z (ghost zones sliced off)
+            (a1, be1, g1, e1, b1, t1), steps, window = spans
+            counts = call_sharing_layouts(
+                kernels.stress_energy_window,
+                (a1, be1, g1, gidx, e1, b1, t1, steps, window, *constants, bool(check)),
+                (0, 1, 2, 4, 5))
         else:
             counts = call_sharing_layouts(kernels.stress_energy_grid, arguments, (0, 1, 2, 4, 5))
         if counts[0] or counts[1]:

@@ -4,10 +4,10 @@ Each kernel is compiled once per argument signature (dtype, memory layout) and c
 run, of any command or of the Python API, loads it. This command calls every public function
 on tiny grids in the common signatures: float64 and float32, contiguous, padded grid
 functions (the sources' flat driver takes contiguous 3-D arrays whole and padded ones as rows:
-two signatures), ghost zones sliced off (the sources' windowed driver; the column loops of the
-others) and component-last data (the sources' column loop). With ``--diagnostics`` also the
-conservation and constraint kernels
-(float64, the difference orders share one signature), which take minutes.
+two signatures), ghost zones sliced off (the windowed drivers of the sources and T_ab; the
+column loops of the others) and component-last data (the column loops of the sources and T_ab).
+With ``--diagnostics`` also the conservation and constraint kernels (float64, the difference
+orders share one signature), which take minutes.
 """
 
 from __future__ import annotations
@@ -72,6 +72,10 @@ def common_signatures():
         calls.append((f"sources, {name}, component-last",
                       lambda ga=gamma, e=E, b=B: emsource.adm_sources(
                           *(np.moveaxis(a, 0, -1) for a in (ga, e, b)), layout="component_last")))
+        calls.append((f"T_ab, {name}, component-last",
+                      lambda al=alpha, be=beta, ga=gamma, e=E, b=B: emsource.stress_energy_4d(
+                          al, *(np.moveaxis(a, 0, -1) for a in (be, ga, e, b)),
+                          layout="component_last")))
         calls.append((f"energy fluxes, {name}",
                       lambda al=alpha, be=beta, ga=gamma, e=E, b=B: energy_fluxes(al, be, ga, e, b)))
     return calls
