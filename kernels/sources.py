@@ -57,7 +57,8 @@ from .electromagnetic import (
 )
 from .metric import inverse_metric, metric_factors
 from .point_checks import is_finite
-from .vector_loops import count_flag, strip_count, strip_length, strip_range
+from .vector_loops import (count_flag, packed_rows, span_start, strip_count, strip_length,
+                           strip_range, window_column)
 
 
 @point_function
@@ -269,6 +270,18 @@ def adm_sources_flat(gamma, gidx, E, B, rho, S_i, S_ij, S, form, coef, half, tin
     return bad_count, underflow_count
 
 
+@point_function
+def _span_metric_fields(gamma, metric_rows, g, E, e_step, e, B, b_step, b):
+    """The six packed metric components and the six stored field components at one point of
+    windows given as spans (:mod:`~emsource.kernels.vector_loops`): ``g``, ``e``, ``b`` are the
+    point's offsets in the three spans, ``metric_rows`` the metric's component offsets, and
+    ``e_step``, ``b_step`` the field spans' component steps."""
+    r0, r1, r2, r3, r4, r5 = metric_rows
+    return (gamma[r0 + g], gamma[r1 + g], gamma[r2 + g], gamma[r3 + g], gamma[r4 + g],
+            gamma[r5 + g], E[e], E[e_step + e], E[e_step + e_step + e], B[b], B[b_step + b],
+            B[b_step + b_step + b])
+
+
 @grid_kernel
 def adm_sources_window(gamma, gidx, E, B, rho, S_i, S_ij, S, steps, shape, form, coef, half,
                        tiny, pivot_floor, check):
@@ -281,43 +294,33 @@ def adm_sources_window(gamma, gidx, E, B, rho, S_i, S_ij, S, steps, shape, form,
     and writes unit-stride rows and vectorises (:mod:`~emsource.kernels.vector_loops`), where
     :func:`adm_sources_grid` over the same views as strided arrays stays scalar.
     """
-    nx = np.uint64(shape[0])
     ny = np.uint64(shape[1])
     nz = np.uint64(shape[2])
     zero = half - half
     one = half + half
-    g0 = np.uint64(gidx[0]) * steps[0, 0]
-    g1 = np.uint64(gidx[1]) * steps[0, 0]
-    g2 = np.uint64(gidx[2]) * steps[0, 0]
-    g3 = np.uint64(gidx[3]) * steps[0, 0]
-    g4 = np.uint64(gidx[4]) * steps[0, 0]
-    g5 = np.uint64(gidx[5]) * steps[0, 0]
+    metric_rows = packed_rows(gidx, steps[0, 0])
     e1 = steps[1, 0]
     b1 = steps[2, 0]
     v1 = steps[4, 0]
     t1 = steps[5, 0]
     bad_count = 0
     underflow_count = 0
-    for column in prange(nx * ny):
-        i = np.uint64(column) // ny
-        j = np.uint64(column) - i * ny
-        at_g = i * steps[0, 1] + j * steps[0, 2]
-        at_e = i * steps[1, 1] + j * steps[1, 2]
-        at_b = i * steps[2, 1] + j * steps[2, 2]
-        at_rho = i * steps[3, 1] + j * steps[3, 2]
-        at_v = i * steps[4, 1] + j * steps[4, 2]
-        at_t = i * steps[5, 1] + j * steps[5, 2]
-        at_s = i * steps[6, 1] + j * steps[6, 2]
+    for column in prange(shape[0] * shape[1]):
+        i, j = window_column(column, ny)
+        at_g = span_start(steps, 0, i, j)
+        at_e = span_start(steps, 1, i, j)
+        at_b = span_start(steps, 2, i, j)
+        at_rho = span_start(steps, 3, i, j)
+        at_v = span_start(steps, 4, i, j)
+        at_t = span_start(steps, 5, i, j)
+        at_s = span_start(steps, 6, i, j)
         bad = zero
         low = zero
         for k in range(nz):
-            g = at_g + k
-            e = at_e + k
-            b = at_b + k
+            (gxx, gxy, gxz, gyy, gyz, gzz, f1, f2, f3, f4, f5, f6) = _span_metric_fields(
+                gamma, metric_rows, at_g + k, E, e1, at_e + k, B, b1, at_b + k)
             r, sx, sy, sz, sxx, sxy, sxz, syy, syz, szz, status = _adm_values(
-                gamma[g0 + g], gamma[g1 + g], gamma[g2 + g],
-                gamma[g3 + g], gamma[g4 + g], gamma[g5 + g],
-                E[e], E[e1 + e], E[e1 + e1 + e], B[b], B[b1 + b], B[b1 + b1 + b],
+                gxx, gxy, gxz, gyy, gyz, gzz, f1, f2, f3, f4, f5, f6,
                 form, coef, half, tiny, pivot_floor)
             rho[at_rho + k] = r
             S[at_s + k] = r
@@ -398,43 +401,33 @@ def stress_energy_window(alpha, beta, gamma, gidx, E, B, T, steps, shape, form, 
     """Packed T_ab or T^ab over windows of larger arrays given as 1-D spans (alpha, beta,
     gamma, E, B, T: rows of ``steps`` in this order), as :func:`adm_sources_window`; returns
     the two counts."""
-    nx = np.uint64(shape[0])
     ny = np.uint64(shape[1])
     nz = np.uint64(shape[2])
     zero = half - half
     one = half + half
-    g0 = np.uint64(gidx[0]) * steps[2, 0]
-    g1 = np.uint64(gidx[1]) * steps[2, 0]
-    g2 = np.uint64(gidx[2]) * steps[2, 0]
-    g3 = np.uint64(gidx[3]) * steps[2, 0]
-    g4 = np.uint64(gidx[4]) * steps[2, 0]
-    g5 = np.uint64(gidx[5]) * steps[2, 0]
+    metric_rows = packed_rows(gidx, steps[2, 0])
     s1 = steps[1, 0]
     e1 = steps[3, 0]
     b1 = steps[4, 0]
     t1 = steps[5, 0]
     bad_count = 0
     underflow_count = 0
-    for column in prange(nx * ny):
-        i = np.uint64(column) // ny
-        j = np.uint64(column) - i * ny
-        at_a = i * steps[0, 1] + j * steps[0, 2]
-        at_s = i * steps[1, 1] + j * steps[1, 2]
-        at_g = i * steps[2, 1] + j * steps[2, 2]
-        at_e = i * steps[3, 1] + j * steps[3, 2]
-        at_b = i * steps[4, 1] + j * steps[4, 2]
-        at_t = i * steps[5, 1] + j * steps[5, 2]
+    for column in prange(shape[0] * shape[1]):
+        i, j = window_column(column, ny)
+        at_a = span_start(steps, 0, i, j)
+        at_s = span_start(steps, 1, i, j)
+        at_g = span_start(steps, 2, i, j)
+        at_e = span_start(steps, 3, i, j)
+        at_b = span_start(steps, 4, i, j)
+        at_t = span_start(steps, 5, i, j)
         bad = zero
         low = zero
         for k in range(nz):
-            g = at_g + k
-            e = at_e + k
-            b = at_b + k
+            (gxx, gxy, gxz, gyy, gyz, gzz, f1, f2, f3, f4, f5, f6) = _span_metric_fields(
+                gamma, metric_rows, at_g + k, E, e1, at_e + k, B, b1, at_b + k)
             v = at_s + k
             c0, c1, c2, c3, c4, c5, c6, c7, c8, c9, status = _stress_energy_values(
-                gamma[g0 + g], gamma[g1 + g], gamma[g2 + g],
-                gamma[g3 + g], gamma[g4 + g], gamma[g5 + g],
-                E[e], E[e1 + e], E[e1 + e1 + e], B[b], B[b1 + b], B[b1 + b1 + b],
+                gxx, gxy, gxz, gyy, gyz, gzz, f1, f2, f3, f4, f5, f6,
                 alpha[at_a + k], beta[v], beta[s1 + v], beta[s1 + s1 + v],
                 form, coef, half, tiny, pivot_floor, upper)
             t = at_t + k

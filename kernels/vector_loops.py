@@ -33,7 +33,8 @@ import numpy as np
 
 from ._compile import point_function
 
-__all__ = ["STRIP_POINTS", "SHORTEST_STRIP", "SMALL_GRID_STRIPS", "strip_length", "strip_count", "strip_range",
+__all__ = ["STRIP_POINTS", "SHORTEST_STRIP", "SMALL_GRID_STRIPS", "window_column", "span_start",
+           "packed_rows", "strip_length", "strip_count", "strip_range",
            "count_flag"]
 
 #: Points per strip of a flat loop on a large grid: float32 counts per strip stay exact.
@@ -75,3 +76,29 @@ def count_flag(flag, one, zero):
     """1 or 0 in the data's dtype (``one``, ``zero``): a count that keeps the loop's widest type
     that of the data."""
     return one if flag else zero
+
+
+# ------------------------------------------------------------------ windows given as 1-D spans
+# A windowed driver gets each array as a 1-D span and a row of uint64 element steps
+# (component, x, y; z is 1): see ``emsource._arguments.unit_stride_spans``.
+
+
+@point_function
+def window_column(column, ny):
+    """(i, j), uint64, of column number ``column`` of a window with ``ny`` columns along y."""
+    i = np.uint64(column) // ny
+    return i, np.uint64(column) - i * ny
+
+
+@point_function
+def span_start(steps, array, i, j):
+    """Offset in array number ``array``'s span of the window's point (i, j, 0)."""
+    return i * steps[array, 1] + j * steps[array, 2]
+
+
+@point_function
+def packed_rows(gidx, step):
+    """Offsets of the six packed metric components (rows ``gidx`` of a span whose component
+    step is ``step``)."""
+    return (np.uint64(gidx[0]) * step, np.uint64(gidx[1]) * step, np.uint64(gidx[2]) * step,
+            np.uint64(gidx[3]) * step, np.uint64(gidx[4]) * step, np.uint64(gidx[5]) * step)
