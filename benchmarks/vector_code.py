@@ -1,0 +1,87 @@
+"""Packed (SIMD) against scalar arithmetic in the machine code of the source and T_ab drivers.
+
+Run:  python benchmarks/vector_code.py
+
+Numba does not show the machine code of kernels loaded from its disk cache, so this script
+re-runs itself with ``NUMBA_CACHE_DIR`` set to an empty temporary directory, calls the public
+functions on contiguous arrays, padded grid functions, ghost-zone views and component-last data
+(float64 and float32), and counts, in every compiled specialisation of the drivers in
+``emsource.kernels.sources``, the packed arithmetic instructions on 128-, 256- and 512-bit
+registers (``v{add,sub,mul,div,sqrt,fmadd,...}p{s,d}`` on xmm/ymm/zmm) and the scalar ones
+(``...s{s,d}``). A driver whose loop vectorised shows packed operations; one that did not
+shows scalar operations only. See DEVELOPERS.md "Vectorised point loops".
+"""
+
+from __future__ import annotations
+
+import os
+import re
+import subprocess
+import sys
+import tempfile
+
+ARITHMETIC = r"v(?:add|sub|mul|div|sqrt|f[n]?m(?:add|sub)\d*)"
+
+
+def counts(assembly):
+    packed = {width: len(re.findall(ARITHMETIC + r"p[sd]\s+[^\n]*%" + width, assembly))
+              for width in ("xmm", "ymm", "zmm")}
+    scalar = len(re.findall(ARITHMETIC + r"s[sd]\s", assembly))
+    return packed, scalar
+
+
+def measure():
+    import numpy as np
+
+    import emsource
+    from emsource.grid_arrays import grid_function_like
+    from emsource.kernels import sources
+    from emsource.kernels._compile import _SHARED_BY_SIGNATURE
+
+    for dtype in (np.float64, np.float32):
+        rng = np.random.default_rng(0)
+        grid = (12, 12, 12)
+        gamma = np.zeros((6,) + grid, dtype)
+        gamma[[0, 3, 5]] = 1
+        alpha = np.ones(grid, dtype)
+        beta = np.zeros((3,) + grid, dtype)
+        E, B = (rng.standard_normal((3,) + grid).astype(dtype) for _ in range(2))
+        ghost = (slice(None),) + (slice(2, -2),) * 3
+        padded = [grid_function_like(a) for a in (gamma, E, B)]
+        for p, a in zip(padded, (gamma, E, B)):
+            p[...] = a
+        emsource.adm_sources(gamma, E, B)
+        emsource.adm_sources(*padded)
+        emsource.adm_sources(gamma[ghost], E[ghost], B[ghost])
+        emsource.adm_sources(*(np.moveaxis(a, 0, -1) for a in (gamma, E, B)),
+                             layout="component_last")
+        emsource.stress_energy_4d(alpha, beta, gamma, E, B)
+        emsource.stress_energy_4d(alpha[ghost[1:]], beta[ghost], gamma[ghost], E[ghost], B[ghost])
+        emsource.stress_energy_4d(alpha, *(np.moveaxis(a, 0, -1) for a in (beta, gamma, E, B)),
+                                  layout="component_last")
+    drivers = [getattr(sources, name) for name in ("adm_sources_flat", "adm_sources_window",
+                                                   "adm_sources_grid", "stress_energy_flat",
+                                                   "stress_energy_window", "stress_energy_grid")]
+    print(f"{'driver':22s} {'first argument':34s} {'xmm':>5s} {'ymm':>5s} {'zmm':>5s} "
+          f"{'scalar':>7s}")
+    for driver in drivers:
+        dispatchers = [driver] + [d for (function, _), d in _SHARED_BY_SIGNATURE.items()
+                                  if function is driver.py_func]
+        for dispatcher in dispatchers:
+            for signature in dispatcher.signatures:
+                packed, scalar = counts(dispatcher.inspect_asm(signature))
+                print(f"{driver.py_func.__name__:22s} {str(signature[0]):34s} "
+                      f"{packed['xmm']:5d} {packed['ymm']:5d} {packed['zmm']:5d} {scalar:7d}")
+
+
+def main():
+    if os.environ.get("EMSOURCE_VECTOR_CODE_CHILD"):
+        measure()
+        return 0
+    with tempfile.TemporaryDirectory(prefix="emsource-vector-code-") as cache:
+        environment = dict(os.environ, NUMBA_CACHE_DIR=cache, EMSOURCE_VECTOR_CODE_CHILD="1")
+        return subprocess.run([sys.executable, __file__], env=environment).returncode
+
+
+if __name__ == "__main__":
+    sys.exit(main())
