@@ -262,9 +262,11 @@ def _momentum_terms(q, sg, a, coef, half, energy2, rho, rho_e, e_low, lorentz_b,
     return dt_m + (div_a + div_b + div_c) - src_q, big, src_q
 
 
-#: Points along z per strip of pass 2 (the row length of its per-column buffer). A literal, so
-#: that LLVM sees the buffer's row stride as a constant (see :func:`residuals`).
+#: Points along z per strip of pass 2. Literals, so that LLVM sees the buffer's row stride as a
+#: constant (see :func:`residuals`); its rows hold one more cache line than a strip, so that
+#: row r + 4 does not start in the same L1 set as row r (1-3 % faster than 128, measured).
 _STRIP = 128
+_ROW_LENGTH = 136
 
 #: Rows of the pass-2 buffer: 42 derivatives, then the residuals, scales and sources (4 each).
 _RESIDUAL = 42
@@ -291,25 +293,29 @@ def residuals(alpha, beta, gamma, gidx, K, kidx, E, B, charge, current, work,
     hand sides are written to ``sources`` (4, nx, ny, nz) too (else ``sources`` is not touched).
 
     Each grid column (i, j) is done in strips of up to ``_STRIP`` interior points along z, with
-    one small (``_ROWS``, ``_STRIP``) buffer per column (it stays in cache; no whole-grid
-    temporary). Per strip:
+    one small (``_ROWS``, ``_ROW_LENGTH``) buffer on the thread's stack
+    (:func:`emsource.kernels.strip_buffers.strip_buffer`; no whole-grid temporary). Per strip:
 
-    1. the 42 first derivatives the equations need go to rows 0..41, one call site of
-       :func:`emsource.kernels.stencils.d1_column` per kind of derivative (Numba inlines at the
-       IR level: one inlined stencil per derivative, 42 copies, took over a minute to compile,
-       measured). Rows: 0..2 d_a F^a, 3 + 3a + q d_a M^a_q, 12 + q d_q alpha, 15 + 6q + c
-       d_q gamma_c, 33 + 3q + c d_q beta^c;
-    2. the 27 point values the equations read are copied to rows 42..68;
-    3. one loop over the strip reads only the buffer and writes residual, scale and source
-       terms to rows 69..80;
-    4. short loops copy those rows to the outputs and reduce them into ``partials``.
+    1. the 42 first derivatives the equations need go to rows 0..41: the three derivatives of
+       each of alpha, gamma_c, beta^c in one loop (:func:`emsource.kernels.stencils.
+       d1_axes_column`), the flux derivatives d_a F^a, d_a M^a_q one loop each
+       (:func:`emsource.kernels.stencils.d1_column`), one call site per kind (Numba inlines at
+       the IR level: one inlined stencil per derivative, 42 copies, took over a minute to
+       compile, measured). Rows: 0..2 d_a F^a, 3 + 3a + q d_a M^a_q, 12 + q d_q alpha,
+       15 + 6q + c d_q gamma_c, 33 + 3q + c d_q beta^c;
+    2. one loop over the strip reads the derivatives from the buffer and the point values
+       from the inputs and writes residual, scale and source terms to rows 42..53;
+    3. short loops copy those rows to the outputs and reduce them into ``partials``.
 
     Why this shape (measured, 128^3, order 4): LLVM vectorises a loop only if it can prove, or
     check at run time with at most 8 comparisons, that its stores do not overlap its loads.
-    A step 3 that reads 9 arrays (35 rows at unknown distances) and writes 3 stays scalar; this
-    one touches one buffer whose row stride is a compile-time constant, and every other loop
-    copies from one array to one other. Indices along z are unsigned for the reason given in
-    ``d1_column``.
+    With a buffer from ``np.empty`` the point values had to be copied into it first (27 short
+    loops) and each derivative had its own loop; a stack buffer overlaps no input, so loops
+    that read many input rows and write only the buffer vectorise without checks. Against the
+    previous shape (kept in ``benchmarks/conservation_old_kernels.py``) this takes 0.9 of the
+    CPU time at 128^3 and the same at 134^3 (README "Speed": the derivative loops are bound by
+    reading the neighbouring rows, not by their number). Indices along z are unsigned for the
+    reason given in ``d1_column``.
     """
     u = np.uint64
     nx = alpha.shape[1]
@@ -364,7 +370,7 @@ def residuals(alpha, beta, gamma, gidx, K, kidx, E, B, charge, current, work,
             partials[column, 8 + c] = zero
         if edge:
             continue
-        buf = strip_buffer(_ROWS, _STRIP, work)
+        buf = strip_buffer(_ROWS, _ROW_LENGTH, work)
         for start in range(k0, k1, _STRIP):
             count = min(_STRIP, k1 - start)
             base = u(start)

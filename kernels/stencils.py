@@ -227,7 +227,7 @@ def d1_column(f, c, i, j, k0, count, axis, radius, weights, inv_h, out, row):
 @point_function
 def d1_axes_column(f, c, i, j, k0, count, radius, sx, sy, sz, weights, inv_hx, inv_hy, inv_hz,
                    out, row_x, row_y, row_z):
-    """out[row_a, n] = d f[c] / d x^a at (i, j, k0 + n), n = 0..count-1, for a = x, y, z in one loop.
+    """out[row_a, n] = d f[c] / d x^a at (i, j, k0 + n), n = 0..count-1, a = x, y, z, in one loop.
 
     The centred sums of :func:`d1_column` along the three axes, read from the 9 rows (or 7, 5)
     around the column in one pass: ``radius`` (1 to 3) is the stencil's, and ``sx``, ``sy``,
