@@ -8,17 +8,18 @@ Why not ``np.empty`` inside the ``prange`` body (what the strip kernels did firs
 vectorises a loop only if it can prove, or check at run time with at most 8 comparisons, that
 its stores do not overlap its loads. Memory from ``np.empty`` comes back from a call into
 Numba's allocator, so LLVM must assume it may overlap every input array: a stencil loop that
-reads 9 rows of an input and stores 3 rows of the buffer needs 9 checks and stays scalar, and
-the point values had to be copied into the buffer row by row (one short loop each) before the
-algebra could vectorise. A stack slot that never escapes is known to LLVM to overlap no
-argument, so loops that read any number of input rows and write only the buffer need no
+reads 9 rows of an input and stores 3 rows of the buffer would need 9 checks, one more than
+LLVM inserts by default, and the point values had to be copied into the buffer row by row
+(one short loop each) before the algebra could vectorise. A stack slot that never escapes is
+known to LLVM to overlap no argument, so loops that read any number of input rows and write only the buffer need no
 run-time checks at all (LLVM's alias analysis of identified local objects; common practice).
-Measured in ``benchmarks/bench_conservation.py`` (see README "Speed").
+The machine code of such loops holds packed arithmetic (checked with ``inspect_asm`` on an
+uncached serial copy). Speed: ``benchmarks/bench_conservation.py`` (see README "Speed").
 
 The array has no memory owner (``meminfo`` is null, as for arrays made from raw pointers), so
 it must not outlive the function that creates it: never return it, store it in another array
 or hand it to Python. The size must fit the threads' stacks: a few hundred KiB at most
-(a worker thread's stack is 2 MiB or more with every Numba threading layer; common practice).
+(a worker thread's stack is 2 MiB or more with every Numba threading layer; from memory).
 """
 
 from __future__ import annotations
