@@ -235,7 +235,8 @@ def d1_axes_column(f, c, i, j, k0, count, radius, sx, sy, sz, weights, inv_hx, i
     2D grid), whose differences f - f are then 0. Use it where the loop's stores cannot overlap
     its loads without run-time checks (``out`` from :func:`emsource.kernels.strip_buffers.
     strip_buffer`): with an ``out`` from ``np.empty`` LLVM would need 9 run-time overlap checks,
-    one more than it inserts by default (DEVELOPERS.md, "Adding a kernel"). The same caller rules as :func:`d1_column`.
+    one more than it inserts by default (DEVELOPERS.md, "Adding a kernel"). The same caller
+    rules as :func:`d1_column`.
     """
     u = np.uint64
     base = u(k0)
