@@ -12,7 +12,8 @@ reads 9 rows of an input and stores 3 rows of the buffer would need 9 checks, on
 LLVM inserts by default, and the point values had to be copied into the buffer row by row
 (one short loop each) before the algebra could vectorise. A stack slot that never escapes is
 known to LLVM to overlap no argument, so loops that read any number of input rows and write
-only the buffer need no run-time checks at all (LLVM's alias analysis of identified local objects; common practice).
+only the buffer need no run-time checks at all (LLVM's alias analysis of identified local
+objects; common practice).
 The machine code of such loops holds packed arithmetic (checked with ``inspect_asm`` on an
 uncached serial copy). Speed: ``benchmarks/bench_conservation.py`` (see README "Speed").
 
