@@ -15,6 +15,8 @@ In one run and on the same Numba threads it measures
       be read apart;
   (c) a plain-NumPy implementation of the same residual (slicing for the differences, whole-
       grid temporaries), written here, and the speed-up of (b) over it.
+The kernels as they were before the stack strip buffer (``conservation_old_kernels.py`` beside
+this script) are timed in the same run, each right after the current ones, at orders 2, 4, 6.
 It prints medians: points per second, the effective bandwidth counting each array the two
 passes read or write once (94 per point), its share of the triad, and the ratios.
 The machine is shared and noisy: read ratios, not absolute figures.
@@ -24,7 +26,9 @@ from __future__ import annotations
 
 import argparse
 import math
+import os
 import statistics
+import sys
 import time
 
 import numba
@@ -35,6 +39,9 @@ from emsource.conservation import conservation_residual, new_work_array
 from emsource.kernels import conservation as kernels
 from emsource.kernels._compile import grid_kernel
 from emsource.kernels.stencils import d1_column, first_derivative_weights
+
+sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
+import conservation_old_kernels as old_kernels  # noqa: E402  (the "before", see docstring)
 
 # Pass 1 reads alpha, beta 3, gamma 6, E 3, B 3, dt_gamma 6, dt_E 3, dt_B 3 and writes 16;
 # pass 2 reads alpha, beta 3, gamma 6, K 6, E 3, B 3, rho_e, j 3, work 16 and writes 8.
@@ -214,7 +221,8 @@ def main(argv=None):
     args = parser.parse_args(argv)
     n = args.points
     print(f"numba {numba.__version__}, numpy {np.__version__}, {numba.get_num_threads()} threads, "
-          f"{n}^3 float64, order 4, medians of {args.repeat}")
+          f"{n}^3 float64, medians of {args.repeat}; load average {os.getloadavg()} at "
+          f"{time.strftime('%H:%M:%S', time.gmtime())} UTC")
     triad = triad_bandwidth(args.repeat)
     print(f"\n(a) triad bandwidth: {triad / 1e9:.1f} GB/s")
 
@@ -230,25 +238,26 @@ def main(argv=None):
     weights = first_derivative_weights(4)
     coef = 1.0 / (4.0 * math.pi)
 
-    def two_passes():
-        kernels.fluxes_and_rates(v["alpha"], v["beta"], v["gamma"], gidx, v["E"], v["B"], 2,
-                                 v["dt_gamma"], gidx, v["dt_E"], v["dt_B"],
-                                 v["gamma"], gidx, v["E"], v["B"], 0.0, coef, 0.5, work)
-        kernels.residuals(v["alpha"], v["beta"], v["gamma"], gidx, v["K"], gidx, v["E"], v["B"],
-                          v["charge_density"], v["current_density"], work, weights,
-                          1 / h, 1 / h, 1 / h, 2, 2, 2, coef, 0.5, residual, scale, residual, False,
-                          partials)
+    def two_passes(module=kernels, order=4):
+        r = order // 2
+        module.fluxes_and_rates(v["alpha"], v["beta"], v["gamma"], gidx, v["E"], v["B"], 2,
+                                v["dt_gamma"], gidx, v["dt_E"], v["dt_B"],
+                                v["gamma"], gidx, v["E"], v["B"], 0.0, coef, 0.5, work)
+        module.residuals(v["alpha"], v["beta"], v["gamma"], gidx, v["K"], gidx, v["E"], v["B"],
+                         v["charge_density"], v["current_density"], work,
+                         first_derivative_weights(order), 1 / h, 1 / h, 1 / h, r, r, r, coef, 0.5,
+                         residual, scale, residual, False, partials)
 
-    def pass1():
-        kernels.fluxes_and_rates(v["alpha"], v["beta"], v["gamma"], gidx, v["E"], v["B"], 2,
-                                 v["dt_gamma"], gidx, v["dt_E"], v["dt_B"],
-                                 v["gamma"], gidx, v["E"], v["B"], 0.0, coef, 0.5, work)
+    def pass1(module=kernels):
+        module.fluxes_and_rates(v["alpha"], v["beta"], v["gamma"], gidx, v["E"], v["B"], 2,
+                                v["dt_gamma"], gidx, v["dt_E"], v["dt_B"],
+                                v["gamma"], gidx, v["E"], v["B"], 0.0, coef, 0.5, work)
 
-    def pass2():
-        kernels.residuals(v["alpha"], v["beta"], v["gamma"], gidx, v["K"], gidx, v["E"], v["B"],
-                          v["charge_density"], v["current_density"], work, weights,
-                          1 / h, 1 / h, 1 / h, 2, 2, 2, coef, 0.5, residual, scale, residual, False,
-                          partials)
+    def pass2(module=kernels):
+        module.residuals(v["alpha"], v["beta"], v["gamma"], gidx, v["K"], gidx, v["E"], v["B"],
+                         v["charge_density"], v["current_density"], work, weights,
+                         1 / h, 1 / h, 1 / h, 2, 2, 2, coef, 0.5, residual, scale, residual, False,
+                         partials)
 
     # Same-traffic probes (no physics), each timed next to the pass it mirrors.
     flat_in = np.random.default_rng(1).random((PASS1_ARRAYS - 16, points))
@@ -263,23 +272,33 @@ def main(argv=None):
         "pass 2 (residuals)": (pass2, lambda: _pass2_traffic(fields, point_rows, weights, 1 / h,
                                                              probe_out), PASS2_ARRAYS),
     }
-    print("\n(b0) each pass, and a kernel with the same traffic and no physics (arrays counted once)")
+    print("\n(b0) each pass (current kernels, the old ones, and a kernel with the same traffic and "
+          "no physics; arrays counted once)")
     for name, (real, probe, arrays) in probes.items():
         t_real = median_seconds(real, args.repeat)
+        t_old = median_seconds(lambda: real(old_kernels), args.repeat)
         t_probe = median_seconds(probe, args.repeat)
         t_triad = 3 * 8 * 2**25 / triad_bandwidth(3)
         share = lambda t: 100 * arrays * 8 * points / t / (3 * 8 * 2**25 / t_triad)  # noqa: E731
-        print(f"    {name:28s} {t_real * 1e3:7.1f} ms  {share(t_real):4.0f}% of triad;  "
-              f"same traffic, no physics {t_probe * 1e3:7.1f} ms  {share(t_probe):4.0f}%;  "
-              f"pass / probe time {t_real / t_probe:4.2f}")
+        print(f"    {name:28s} {t_real * 1e3:7.1f} ms  {share(t_real):4.0f}% of triad;  old kernel "
+              f"{t_old * 1e3:7.1f} ms {share(t_old):4.0f}% (new / old time {t_real / t_old:4.2f});  "
+              f"same traffic, no physics {t_probe * 1e3:7.1f} ms  {share(t_probe):4.0f}%")
 
-    kernel_seconds = median_seconds(two_passes, args.repeat)
-    kernel_rate = points / kernel_seconds
-    bandwidth = ARRAYS_MOVED * 8 * points / kernel_seconds
-    print("\n(b) residual, supplied time derivatives, all metric terms")
-    print(f"    two kernel passes, buffers preallocated: {kernel_seconds * 1e3:8.1f} ms  "
-          f"{kernel_rate / 1e6:6.1f} Mpoints/s  {bandwidth / 1e9:5.1f} GB/s  "
-          f"{100 * bandwidth / triad:4.0f}% of triad")
+    print("\n(b) residual, supplied time derivatives, all metric terms: the two kernel passes, "
+          "buffers preallocated (old kernels timed right after)")
+    kernel_seconds = None
+    for order in (4, 2, 6):
+        triad_now = triad_bandwidth(3)
+        t_new = median_seconds(lambda: two_passes(kernels, order), args.repeat)
+        t_old = median_seconds(lambda: two_passes(old_kernels, order), args.repeat)
+        if order == 4:
+            kernel_seconds = t_new
+        for label, t in (("current", t_new), ("old", t_old)):
+            bandwidth = ARRAYS_MOVED * 8 * points / t
+            print(f"    order {order} {label:8s} {t * 1e3:8.1f} ms  {points / t / 1e6:6.1f} Mpoints/s  "
+                  f"{bandwidth / 1e9:5.1f} GB/s  {100 * bandwidth / triad_now:4.0f}% of the triad "
+                  f"measured just before ({triad_now / 1e9:.1f} GB/s)")
+        print(f"    order {order} current / old time {t_new / t_old:.2f}")
 
     def public(work=None):
         return conservation_residual(d["alpha"], d["beta"], d["gamma"], d["K"], d["E"], d["B"],
@@ -307,6 +326,24 @@ def main(argv=None):
     mine = np.concatenate([ours.energy[None], ours.momentum])[(slice(None),) + inner]
     big = np.concatenate([ours.energy_scale[None], ours.momentum_scale])[(slice(None),) + inner]
     print(f"    largest |kernel - NumPy| / largest term: {np.max(np.abs(mine - theirs)) / np.max(big):.1e}")
+
+    # (d) data stored z, y, x (x fastest), seen through transposed views: the strips then walk
+    # across planes (a stride of n^2 points); the public call against the contiguous one.
+    stored_zyx = {k: np.moveaxis(np.ascontiguousarray(np.moveaxis(a, (-3, -1), (-1, -3))),
+                                 (-3, -1), (-1, -3)) for k, a in d.items()}
+
+    def public_zyx():
+        z = stored_zyx
+        return conservation_residual(z["alpha"], z["beta"], z["gamma"], z["K"], z["E"], z["B"],
+                                     spacing=h, order=4, charge_density=z["charge_density"],
+                                     current_density=z["current_density"], dt_E=z["dt_E"],
+                                     dt_B=z["dt_B"], dt_gamma=z["dt_gamma"])
+
+    zyx_seconds = median_seconds(public_zyx, max(3, args.repeat // 2))
+    contiguous_seconds = median_seconds(public, max(3, args.repeat // 2))
+    print(f"\n(d) public call on data stored z, y, x (transposed views): {zyx_seconds * 1e3:8.1f} ms "
+          f"against {contiguous_seconds * 1e3:8.1f} ms contiguous ({zyx_seconds / contiguous_seconds:.1f}x)")
+    print(f"\nload average {os.getloadavg()} at {time.strftime('%H:%M:%S', time.gmtime())} UTC")
 
 
 if __name__ == "__main__":

@@ -43,7 +43,8 @@ from .electromagnetic import (
     sqrt_determinant,
 )
 from .metric import inverse_metric, metric_factors
-from .stencils import d1_column, value_column
+from .stencils import d1_axes_column, d1_column
+from .strip_buffers import strip_buffer
 
 
 @point_function
@@ -82,6 +83,35 @@ def _densities(g, g0, g1, g2, g3, g4, g5, e, b, i, j, k, coef, half):
     return sg * point[19], sg * point[20], sg * point[21], sg * point[22]
 
 
+@point_function
+def _flux_point(alpha, beta, gamma, c0, c1, c2, c3, c4, c5, E, B, i, j, k, coef, half, work):
+    """Writes F^i and M^i_j at point (i, j, k) to rows 0..11 of ``work`` and returns the point
+    values the time terms need: the metric factors, sg, E^i, E_i, B^i, B_i, rho and S_i."""
+    (d1, d2, d3, l21, l31, l32, sg, ex, ey, ez, exl, eyl, ezl, bx, by, bz, bxl, byl, bzl,
+     rho, sx, sy, sz, ux, uy, uz, energy2) = _contravariant_point(
+        gamma[c0, i, j, k], gamma[c1, i, j, k], gamma[c2, i, j, k], gamma[c3, i, j, k],
+        gamma[c4, i, j, k], gamma[c5, i, j, k], E[0, i, j, k], E[1, i, j, k], E[2, i, j, k],
+        B[0, i, j, k], B[1, i, j, k], B[2, i, j, k], coef, half)
+    fields = (ex, ey, ez, exl, eyl, ezl, bx, by, bz, bxl, byl, bzl)
+    (f0, f1, f2, m0, m1, m2, m3, m4, m5, m6, m7, m8) = energy_momentum_fluxes(
+        alpha[0, i, j, k], beta[0, i, j, k], beta[1, i, j, k], beta[2, i, j, k],
+        sg, rho, sx, sy, sz, ux, uy, uz, fields, energy2, coef, half)
+    work[0, i, j, k] = f0
+    work[1, i, j, k] = f1
+    work[2, i, j, k] = f2
+    work[3, i, j, k] = m0
+    work[4, i, j, k] = m1
+    work[5, i, j, k] = m2
+    work[6, i, j, k] = m3
+    work[7, i, j, k] = m4
+    work[8, i, j, k] = m5
+    work[9, i, j, k] = m6
+    work[10, i, j, k] = m7
+    work[11, i, j, k] = m8
+    return (d1, d2, d3, l21, l31, l32, sg, ex, ey, ez, exl, eyl, ezl, bx, by, bz, bxl, byl, bzl,
+            rho, sx, sy, sz)
+
+
 @grid_kernel
 def fluxes_and_rates(alpha, beta, gamma, gidx, E, B, rate_mode,
                      g_a, gidx_a, e_a, b_a, g_b, gidx_b, e_b, b_b, inv_2dt, coef, half, work):
@@ -90,13 +120,15 @@ def fluxes_and_rates(alpha, beta, gamma, gidx, E, B, rate_mode,
     ``rate_mode`` 0: densities; 1: (D(level b) - D(level a)) * inv_2dt with level a = t - dt,
     level b = t + dt; 2: d_t D from d_t gamma = g_a, d_t E = e_a, d_t B = b_a (level b unused).
 
-    Loop shape: per grid column, one loop over k writes the fluxes and the densities, and for
-    modes 1 and 2 a second loop overwrites rows 12..15 with the rates, recomputing the few point
-    values it needs from the column that the first loop has just brought into cache. Each loop
-    is branch-free, and with a C-ordered ``work`` they vectorise along z (LLVM's remarks and
-    the machine code show it; one loop with the mode branch inside, writing a padded work
-    array, runs scalar and 2x slower on 128^3, measured). Component indices are read into
-    scalars before the loops.
+    Loop shape: per grid column, in mode 2 one loop over k writes the fluxes and the rates from
+    one evaluation of the point (its metric factorisation holds most of the divisions and the
+    square root, the costliest instructions of the pass); in modes 0 and 1 one loop writes the
+    fluxes and the densities, and for mode 1 a second loop overwrites rows 12..15 with the
+    differences of the two levels' densities. The mode is branched on per column, outside the
+    loops, so each loop is branch-free, and with a C-ordered ``work`` they vectorise along z
+    (the machine code shows packed arithmetic; one loop with the mode branch inside, writing a
+    padded work array, ran scalar and 2x slower on 128^3, measured). Component indices are
+    read into scalars before the loops.
     """
     nx = alpha.shape[1]
     ny = alpha.shape[2]
@@ -124,49 +156,13 @@ def fluxes_and_rates(alpha, beta, gamma, gidx, E, B, rate_mode,
     for column in prange(nx * ny):
         i = column // ny
         j = column - i * ny
-        for k in range(nz):
-            (d1, d2, d3, l21, l31, l32, sg, ex, ey, ez, exl, eyl, ezl, bx, by, bz, bxl, byl, bzl,
-             rho, sx, sy, sz, ux, uy, uz, energy2) = _contravariant_point(
-                gamma[c0, i, j, k], gamma[c1, i, j, k], gamma[c2, i, j, k], gamma[c3, i, j, k],
-                gamma[c4, i, j, k], gamma[c5, i, j, k], E[0, i, j, k], E[1, i, j, k],
-                E[2, i, j, k], B[0, i, j, k], B[1, i, j, k], B[2, i, j, k], coef, half)
-            fields = (ex, ey, ez, exl, eyl, ezl, bx, by, bz, bxl, byl, bzl)
-            (f0, f1, f2, m0, m1, m2, m3, m4, m5, m6, m7, m8) = energy_momentum_fluxes(
-                alpha[0, i, j, k], beta[0, i, j, k], beta[1, i, j, k], beta[2, i, j, k],
-                sg, rho, sx, sy, sz, ux, uy, uz, fields, energy2, coef, half)
-            work[0, i, j, k] = f0
-            work[1, i, j, k] = f1
-            work[2, i, j, k] = f2
-            work[3, i, j, k] = m0
-            work[4, i, j, k] = m1
-            work[5, i, j, k] = m2
-            work[6, i, j, k] = m3
-            work[7, i, j, k] = m4
-            work[8, i, j, k] = m5
-            work[9, i, j, k] = m6
-            work[10, i, j, k] = m7
-            work[11, i, j, k] = m8
-            work[12, i, j, k] = sg * rho
-            work[13, i, j, k] = sg * sx
-            work[14, i, j, k] = sg * sy
-            work[15, i, j, k] = sg * sz
-        if rate_mode == 1:
-            for k in range(nz):
-                da0, da1, da2, da3 = _densities(g_a, a0, a1, a2, a3, a4, a5, e_a, b_a, i, j, k,
-                                                coef, half)
-                db0, db1, db2, db3 = _densities(g_b, b0, b1, b2, b3, b4, b5, e_b, b_b, i, j, k,
-                                                coef, half)
-                work[12, i, j, k] = (db0 - da0) * inv_2dt
-                work[13, i, j, k] = (db1 - da1) * inv_2dt
-                work[14, i, j, k] = (db2 - da2) * inv_2dt
-                work[15, i, j, k] = (db3 - da3) * inv_2dt
-        elif rate_mode == 2:
+        if rate_mode == 2:
+            # One loop: the rates need the point values the fluxes were computed from, so the
+            # point (factorisation, divisions, square root) is computed once, not twice.
             for k in range(nz):
                 (d1, d2, d3, l21, l31, l32, sg, ex, ey, ez, exl, eyl, ezl, bx, by, bz, bxl, byl,
-                 bzl, rho, sx, sy, sz, ux, uy, uz, energy2) = _contravariant_point(
-                    gamma[c0, i, j, k], gamma[c1, i, j, k], gamma[c2, i, j, k], gamma[c3, i, j, k],
-                    gamma[c4, i, j, k], gamma[c5, i, j, k], E[0, i, j, k], E[1, i, j, k],
-                    E[2, i, j, k], B[0, i, j, k], B[1, i, j, k], B[2, i, j, k], coef, half)
+                 bzl, rho, sx, sy, sz) = _flux_point(alpha, beta, gamma, c0, c1, c2, c3, c4, c5,
+                                                     E, B, i, j, k, coef, half, work)
                 ixx, ixy, ixz, iyy, iyz, izz = inverse_metric(d1, d2, d3, l21, l31, l32, one)
                 det = sg * sg
                 hxx = g_a[a0, i, j, k]
@@ -199,6 +195,25 @@ def fluxes_and_rates(alpha, beta, gamma, gidx, E, B, rate_mode,
                                      + cdet * (fz * bx - fx * bz + ez * cx - ex * cz))
                 work[15, i, j, k] = (dlndet * sg * sz
                                      + cdet * (fx * by - fy * bx + ex * cy - ey * cx))
+            continue
+        for k in range(nz):
+            (d1, d2, d3, l21, l31, l32, sg, ex, ey, ez, exl, eyl, ezl, bx, by, bz, bxl, byl,
+             bzl, rho, sx, sy, sz) = _flux_point(alpha, beta, gamma, c0, c1, c2, c3, c4, c5,
+                                                 E, B, i, j, k, coef, half, work)
+            work[12, i, j, k] = sg * rho
+            work[13, i, j, k] = sg * sx
+            work[14, i, j, k] = sg * sy
+            work[15, i, j, k] = sg * sz
+        if rate_mode == 1:
+            for k in range(nz):
+                da0, da1, da2, da3 = _densities(g_a, a0, a1, a2, a3, a4, a5, e_a, b_a, i, j, k,
+                                                coef, half)
+                db0, db1, db2, db3 = _densities(g_b, b0, b1, b2, b3, b4, b5, e_b, b_b, i, j, k,
+                                                coef, half)
+                work[12, i, j, k] = (db0 - da0) * inv_2dt
+                work[13, i, j, k] = (db1 - da1) * inv_2dt
+                work[14, i, j, k] = (db2 - da2) * inv_2dt
+                work[15, i, j, k] = (db3 - da3) * inv_2dt
 
 
 @point_function
@@ -247,12 +262,17 @@ def _momentum_terms(q, sg, a, coef, half, energy2, rho, rho_e, e_low, lorentz_b,
     return dt_m + (div_a + div_b + div_c) - src_q, big, src_q
 
 
-#: Points along z per strip of pass 2 (the row length of its per-column buffer). A literal, so
-#: that LLVM sees the buffer's row stride as a constant (see :func:`residuals`).
+#: Points along z per strip of pass 2. Literals, so that LLVM sees the buffer's row stride as a
+#: constant (see :func:`residuals`); its rows hold one more cache line than a strip, so that
+#: row r + 4 does not start in the same L1 set as row r (1-3 % faster than 128, measured).
 _STRIP = 128
+_ROW_LENGTH = 136
 
-#: Rows of the pass-2 buffer: 42 derivatives, 27 point values, 12 results.
-_ROWS = 81
+#: Rows of the pass-2 buffer: 42 derivatives, then the residuals, scales and sources (4 each).
+_RESIDUAL = 42
+_SCALE = 46
+_SOURCE = 50
+_ROWS = 54
 
 
 @grid_kernel
@@ -273,25 +293,29 @@ def residuals(alpha, beta, gamma, gidx, K, kidx, E, B, charge, current, work,
     hand sides are written to ``sources`` (4, nx, ny, nz) too (else ``sources`` is not touched).
 
     Each grid column (i, j) is done in strips of up to ``_STRIP`` interior points along z, with
-    one small (``_ROWS``, ``_STRIP``) buffer per column (it stays in cache; no whole-grid
-    temporary). Per strip:
+    one small (``_ROWS``, ``_ROW_LENGTH``) buffer on the thread's stack
+    (:func:`emsource.kernels.strip_buffers.strip_buffer`; no whole-grid temporary). Per strip:
 
-    1. the 42 first derivatives the equations need go to rows 0..41, one call site of
-       :func:`emsource.kernels.stencils.d1_column` per kind of derivative (Numba inlines at the
-       IR level: one inlined stencil per derivative, 42 copies, took over a minute to compile,
-       measured). Rows: 0..2 d_a F^a, 3 + 3a + q d_a M^a_q, 12 + q d_q alpha, 15 + 6q + c
-       d_q gamma_c, 33 + 3q + c d_q beta^c;
-    2. the 27 point values the equations read are copied to rows 42..68;
-    3. one loop over the strip reads only the buffer and writes residual, scale and source
-       terms to rows 69..80;
-    4. short loops copy those rows to the outputs and reduce them into ``partials``.
+    1. the 42 first derivatives the equations need go to rows 0..41: the three derivatives of
+       each of alpha, gamma_c, beta^c in one loop (:func:`emsource.kernels.stencils.
+       d1_axes_column`), the flux derivatives d_a F^a, d_a M^a_q one loop each
+       (:func:`emsource.kernels.stencils.d1_column`), one call site per kind (Numba inlines at
+       the IR level: one inlined stencil per derivative, 42 copies, took over a minute to
+       compile, measured). Rows: 0..2 d_a F^a, 3 + 3a + q d_a M^a_q, 12 + q d_q alpha,
+       15 + 6q + c d_q gamma_c, 33 + 3q + c d_q beta^c;
+    2. one loop over the strip reads the derivatives from the buffer and the point values
+       from the inputs and writes residual, scale and source terms to rows 42..53;
+    3. short loops copy those rows to the outputs and reduce them into ``partials``.
 
     Why this shape (measured, 128^3, order 4): LLVM vectorises a loop only if it can prove, or
     check at run time with at most 8 comparisons, that its stores do not overlap its loads.
-    A step 3 that reads 9 arrays (35 rows at unknown distances) and writes 3 stays scalar; this
-    one touches one buffer whose row stride is a compile-time constant, and every other loop
-    copies from one array to one other. Indices along z are unsigned for the reason given in
-    ``d1_column``.
+    With a buffer from ``np.empty`` the point values had to be copied into it first (27 short
+    loops) and each derivative had its own loop; a stack buffer overlaps no input, so loops
+    that read many input rows and write only the buffer vectorise without checks. Against the
+    previous shape (kept in ``benchmarks/conservation_old_kernels.py``) this takes 0.9 of the
+    CPU time at 128^3 and the same at 134^3 (README "Speed": the derivative loops are bound by
+    reading the neighbouring rows, not by their number). Indices along z are unsigned for the
+    reason given in ``d1_column``.
     """
     u = np.uint64
     nx = alpha.shape[1]
@@ -305,74 +329,88 @@ def residuals(alpha, beta, gamma, gidx, K, kidx, E, B, charge, current, work,
     inv_hs = (inv_hx, inv_hy, inv_hz)
     k0 = rz
     k1 = nz - rz
+    # Stencil radius of the order, and 1 / 0 for an axis with / without extent (radius 0).
+    order_radius = weights.shape[0]
+    step_x = 1 if rx > 0 else 0
+    step_y = 1 if ry > 0 else 0
+    step_z = 1 if rz > 0 else 0
+    g0 = gidx[0]
+    g1 = gidx[1]
+    g2 = gidx[2]
+    g3 = gidx[3]
+    g4 = gidx[4]
+    g5 = gidx[5]
+    q0 = kidx[0]
+    q1 = kidx[1]
+    q2 = kidx[2]
+    q3 = kidx[3]
+    q4 = kidx[4]
+    q5 = kidx[5]
     for column in prange(nx * ny):
         i = column // ny
         j = column - i * ny
         edge = (i < rx) | (i >= nx - rx) | (j < ry) | (j >= ny - ry)
+        # NaN on the boundary layer: the whole column at an edge, else k < k0 and k >= k1.
+        low = nz if edge else k0
+        high = nz if edge else k1
         for c in range(4):
-            for k in range(nz):
-                if edge | (k < k0) | (k >= k1):
-                    residual[c, i, j, k] = nan
-                    scale[c, i, j, k] = nan
-                    if write_sources:
-                        sources[c, i, j, k] = nan
+            for k in range(low):
+                residual[c, i, j, k] = nan
+                scale[c, i, j, k] = nan
+            for k in range(high, nz):
+                residual[c, i, j, k] = nan
+                scale[c, i, j, k] = nan
+            if write_sources:
+                for k in range(low):
+                    sources[c, i, j, k] = nan
+                for k in range(high, nz):
+                    sources[c, i, j, k] = nan
         for c in range(8):
             partials[column, c] = zero
             partials[column, 8 + c] = zero
         if edge:
             continue
-        buf = np.empty((_ROWS, _STRIP), dtype=work.dtype)
+        buf = strip_buffer(_ROWS, _ROW_LENGTH, work)
         for start in range(k0, k1, _STRIP):
             count = min(_STRIP, k1 - start)
             base = u(start)
+            d1_axes_column(alpha, 0, i, j, start, count, order_radius, step_x, step_y, step_z,
+                           weights, inv_hx, inv_hy, inv_hz, buf, 12, 13, 14)
+            for c in range(6):
+                d1_axes_column(gamma, gidx[c], i, j, start, count, order_radius, step_x, step_y,
+                               step_z, weights, inv_hx, inv_hy, inv_hz, buf, 15 + c, 21 + c,
+                               27 + c)
+            for c in range(3):
+                d1_axes_column(beta, c, i, j, start, count, order_radius, step_x, step_y, step_z,
+                               weights, inv_hx, inv_hy, inv_hz, buf, 33 + c, 36 + c, 39 + c)
             for a in range(3):
                 d1_column(work, a, i, j, start, count, a, radius[a], weights, inv_hs[a], buf, a)
             for a in range(3):
                 for q in range(3):
                     d1_column(work, 3 + 3 * a + q, i, j, start, count, a, radius[a], weights,
                               inv_hs[a], buf, 3 + 3 * a + q)
-            for q in range(3):
-                d1_column(alpha, 0, i, j, start, count, q, radius[q], weights, inv_hs[q], buf,
-                          12 + q)
-            for q in range(3):
-                for c in range(6):
-                    d1_column(gamma, gidx[c], i, j, start, count, q, radius[q], weights,
-                              inv_hs[q], buf, 15 + 6 * q + c)
-            for q in range(3):
-                for c in range(3):
-                    d1_column(beta, c, i, j, start, count, q, radius[q], weights, inv_hs[q],
-                              buf, 33 + 3 * q + c)
-            for c in range(6):
-                value_column(gamma, gidx[c], i, j, start, count, buf, 42 + c)
-                value_column(K, kidx[c], i, j, start, count, buf, 59 + c)
-            for c in range(3):
-                value_column(E, c, i, j, start, count, buf, 48 + c)
-                value_column(B, c, i, j, start, count, buf, 51 + c)
-                value_column(current, c, i, j, start, count, buf, 55 + c)
-            value_column(alpha, 0, i, j, start, count, buf, 54)
-            value_column(charge, 0, i, j, start, count, buf, 58)
-            for c in range(4):
-                value_column(work, 12 + c, i, j, start, count, buf, 65 + c)
             for n in range(count):
+                k = base + u(n)
                 (d1, d2, d3, l21, l31, l32, sg, ex, ey, ez, exl, eyl, ezl, bx, by, bz, bxl, byl,
                  bzl, rho, sx, sy, sz, ux, uy, uz, energy2) = _contravariant_point(
-                    buf[42, n], buf[43, n], buf[44, n], buf[45, n], buf[46, n], buf[47, n],
-                    buf[48, n], buf[49, n], buf[50, n], buf[51, n], buf[52, n], buf[53, n], coef,
-                    half)
+                    gamma[g0, i, j, k], gamma[g1, i, j, k], gamma[g2, i, j, k],
+                    gamma[g3, i, j, k], gamma[g4, i, j, k], gamma[g5, i, j, k],
+                    E[0, i, j, k], E[1, i, j, k], E[2, i, j, k],
+                    B[0, i, j, k], B[1, i, j, k], B[2, i, j, k], coef, half)
                 ixx, ixy, ixz, iyy, iyz, izz = inverse_metric(d1, d2, d3, l21, l31, l32, one)
-                a = buf[54, n]
-                jx = buf[55, n]
-                jy = buf[56, n]
-                jz = buf[57, n]
-                rho_e = buf[58, n]
+                a = alpha[0, i, j, k]
+                jx = current[0, i, j, k]
+                jy = current[1, i, j, k]
+                jz = current[2, i, j, k]
+                rho_e = charge[0, i, j, k]
                 # Energy: sg [alpha K_ij S^ij - S^i d_i alpha - alpha j^i E_i], with
                 # K_ij S^ij = coef (-K_ij E^i E^j - K_ij B^i B^j + 1/2 K (E^2 + B^2)).
-                kxx = buf[59, n]
-                kxy = buf[60, n]
-                kxz = buf[61, n]
-                kyy = buf[62, n]
-                kyz = buf[63, n]
-                kzz = buf[64, n]
+                kxx = K[q0, i, j, k]
+                kxy = K[q1, i, j, k]
+                kxz = K[q2, i, j, k]
+                kyy = K[q3, i, j, k]
+                kyz = K[q4, i, j, k]
+                kzz = K[q5, i, j, k]
                 trace_k = (ixx * kxx + iyy * kyy + izz * kzz
                            + two * (ixy * kxy + ixz * kxz + iyz * kyz))
                 kee = (kxx * ex * ex + kyy * ey * ey + kzz * ez * ez
@@ -385,46 +423,46 @@ def residuals(alpha, beta, gamma, gidx, K, kidx, E, B, charge, current, work,
                 da2 = buf[14, n]
                 lapse_e = -sg * (ux * da0 + uy * da1 + uz * da2)
                 work_e = -sg * a * (jx * exl + jy * eyl + jz * ezl)
-                dt_e = buf[65, n]
+                dt_e = work[12, i, j, k]
                 fe0 = buf[0, n]
                 fe1 = buf[1, n]
                 fe2 = buf[2, n]
                 src_e = curvature + lapse_e + work_e
-                buf[69, n] = dt_e + (fe0 + fe1 + fe2) - src_e
-                buf[73, n] = _max3(_max3(abs(dt_e), abs(fe0), abs(fe1)),
+                buf[42, n] = dt_e + (fe0 + fe1 + fe2) - src_e
+                buf[46, n] = _max3(_max3(abs(dt_e), abs(fe0), abs(fe1)),
                                    _max3(abs(fe2), abs(curvature), abs(lapse_e)), abs(work_e))
-                buf[77, n] = src_e
+                buf[50, n] = src_e
                 # Momentum: epsilon_qkl j^k B^l = sg [qkl] j^k B^l.
                 fields = (ex, ey, ez, bx, by, bz)
                 inverse = (ixx, ixy, ixz, iyy, iyz, izz)
                 s_low = (sx, sy, sz)
                 r1, s1, src1 = _momentum_terms(0, sg, a, coef, half, energy2, rho, rho_e, exl,
                                                sg * (jy * bz - jz * by), s_low, fields, inverse,
-                                               buf[66, n], buf, n)
+                                               work[13, i, j, k], buf, n)
                 r2, s2, src2 = _momentum_terms(1, sg, a, coef, half, energy2, rho, rho_e, eyl,
                                                sg * (jz * bx - jx * bz), s_low, fields, inverse,
-                                               buf[67, n], buf, n)
+                                               work[14, i, j, k], buf, n)
                 r3, s3, src3 = _momentum_terms(2, sg, a, coef, half, energy2, rho, rho_e, ezl,
                                                sg * (jx * by - jy * bx), s_low, fields, inverse,
-                                               buf[68, n], buf, n)
-                buf[70, n] = r1
-                buf[71, n] = r2
-                buf[72, n] = r3
-                buf[74, n] = s1
-                buf[75, n] = s2
-                buf[76, n] = s3
-                buf[78, n] = src1
-                buf[79, n] = src2
-                buf[80, n] = src3
+                                               work[15, i, j, k], buf, n)
+                buf[43, n] = r1
+                buf[44, n] = r2
+                buf[45, n] = r3
+                buf[47, n] = s1
+                buf[48, n] = s2
+                buf[49, n] = s3
+                buf[51, n] = src1
+                buf[52, n] = src2
+                buf[53, n] = src3
             for c in range(4):
                 for n in range(count):
-                    residual[c, i, j, base + u(n)] = buf[69 + c, n]
+                    residual[c, i, j, base + u(n)] = buf[_RESIDUAL + c, n]
                 for n in range(count):
-                    scale[c, i, j, base + u(n)] = buf[73 + c, n]
+                    scale[c, i, j, base + u(n)] = buf[_SCALE + c, n]
             if write_sources:
                 for c in range(4):
                     for n in range(count):
-                        sources[c, i, j, base + u(n)] = buf[77 + c, n]
+                        sources[c, i, j, base + u(n)] = buf[_SOURCE + c, n]
             # Norm sums and maxima of the strip, from the rows just written (still in cache).
             for c in range(4):
                 sum_r = zero
@@ -432,8 +470,8 @@ def residuals(alpha, beta, gamma, gidx, K, kidx, E, B, charge, current, work,
                 max_r = partials[column, 8 + c]
                 max_s = partials[column, 12 + c]
                 for n in range(count):
-                    r = buf[69 + c, n]
-                    s = buf[73 + c, n]
+                    r = buf[_RESIDUAL + c, n]
+                    s = buf[_SCALE + c, n]
                     sum_r += r * r
                     sum_s += s * s
                     max_r = abs(r) if abs(r) > max_r else max_r

@@ -28,7 +28,8 @@ serves every order. Callers keep ``radius`` points away from the faces.
 :func:`d1_column` is the first derivative for a whole grid column (i, j, k0..k0+count-1) at once,
 written so that LLVM vectorises it along z (see its docstring); use it where a kernel needs many
 derivatives per point. :func:`d2_column` and :func:`d11_column` are its second and mixed
-derivatives, :func:`value_column` copies the column's values (the same buffer layout).
+derivatives, :func:`value_column` copies the column's values (the same buffer layout), and
+:func:`d1_axes_column` gives the first derivatives along all three axes in one loop.
 """
 
 from __future__ import annotations
@@ -48,6 +49,7 @@ __all__ = [
     "d2",
     "d11",
     "d1_column",
+    "d1_axes_column",
     "d2_column",
     "d11_column",
     "value_column",
@@ -220,6 +222,73 @@ def d1_column(f, c, i, j, k0, count, axis, radius, weights, inv_h, out, row):
                                    - f[c, i - 2 * oi, j - 2 * oj, k - ok2])
                            + w3 * (f[c, i + 3 * oi, j + 3 * oj, k + ok3]
                                    - f[c, i - 3 * oi, j - 3 * oj, k - ok3]))
+
+
+@point_function
+def d1_axes_column(f, c, i, j, k0, count, radius, sx, sy, sz, weights, inv_hx, inv_hy, inv_hz,
+                   out, row_x, row_y, row_z):
+    """out[row_a, n] = d f[c] / d x^a at (i, j, k0 + n), n = 0..count-1, a = x, y, z, in one loop.
+
+    The centred sums of :func:`d1_column` along the three axes, read from the 9 rows (or 7, 5)
+    around the column in one pass: ``radius`` (1 to 3) is the stencil's, and ``sx``, ``sy``,
+    ``sz`` are 1 for an axis with extent and 0 for an axis without (a length-1 axis of a 1D or
+    2D grid), whose differences f - f are then 0. Use it where the loop's stores cannot overlap
+    its loads without run-time checks (``out`` from :func:`emsource.kernels.strip_buffers.
+    strip_buffer`): with an ``out`` from ``np.empty`` LLVM would need 9 run-time overlap checks,
+    one more than it inserts by default (DEVELOPERS.md, "Adding a kernel"). The same caller
+    rules as :func:`d1_column`.
+    """
+    u = np.uint64
+    base = u(k0)
+    oz = u(sz)
+    wx1 = weights[0] * inv_hx
+    wy1 = weights[0] * inv_hy
+    wz1 = weights[0] * inv_hz
+    if radius == 1:
+        for n in range(count):
+            k = base + u(n)
+            out[row_x, n] = wx1 * (f[c, i + sx, j, k] - f[c, i - sx, j, k])
+            out[row_y, n] = wy1 * (f[c, i, j + sy, k] - f[c, i, j - sy, k])
+            out[row_z, n] = wz1 * (f[c, i, j, k + oz] - f[c, i, j, k - oz])
+    elif radius == 2:
+        wx2 = weights[1] * inv_hx
+        wy2 = weights[1] * inv_hy
+        wz2 = weights[1] * inv_hz
+        sx2 = sx + sx
+        sy2 = sy + sy
+        oz2 = oz + oz
+        for n in range(count):
+            k = base + u(n)
+            out[row_x, n] = (wx1 * (f[c, i + sx, j, k] - f[c, i - sx, j, k])
+                             + wx2 * (f[c, i + sx2, j, k] - f[c, i - sx2, j, k]))
+            out[row_y, n] = (wy1 * (f[c, i, j + sy, k] - f[c, i, j - sy, k])
+                             + wy2 * (f[c, i, j + sy2, k] - f[c, i, j - sy2, k]))
+            out[row_z, n] = (wz1 * (f[c, i, j, k + oz] - f[c, i, j, k - oz])
+                             + wz2 * (f[c, i, j, k + oz2] - f[c, i, j, k - oz2]))
+    else:
+        wx2 = weights[1] * inv_hx
+        wy2 = weights[1] * inv_hy
+        wz2 = weights[1] * inv_hz
+        wx3 = weights[2] * inv_hx
+        wy3 = weights[2] * inv_hy
+        wz3 = weights[2] * inv_hz
+        sx2 = sx + sx
+        sy2 = sy + sy
+        oz2 = oz + oz
+        sx3 = sx2 + sx
+        sy3 = sy2 + sy
+        oz3 = oz2 + oz
+        for n in range(count):
+            k = base + u(n)
+            out[row_x, n] = (wx1 * (f[c, i + sx, j, k] - f[c, i - sx, j, k])
+                             + wx2 * (f[c, i + sx2, j, k] - f[c, i - sx2, j, k])
+                             + wx3 * (f[c, i + sx3, j, k] - f[c, i - sx3, j, k]))
+            out[row_y, n] = (wy1 * (f[c, i, j + sy, k] - f[c, i, j - sy, k])
+                             + wy2 * (f[c, i, j + sy2, k] - f[c, i, j - sy2, k])
+                             + wy3 * (f[c, i, j + sy3, k] - f[c, i, j - sy3, k]))
+            out[row_z, n] = (wz1 * (f[c, i, j, k + oz] - f[c, i, j, k - oz])
+                             + wz2 * (f[c, i, j, k + oz2] - f[c, i, j, k - oz2])
+                             + wz3 * (f[c, i, j, k + oz3] - f[c, i, j, k - oz3]))
 
 
 @point_function

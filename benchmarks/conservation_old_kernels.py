@@ -1,0 +1,419 @@
+"""The conservation kernels as they were before the stack strip buffer (commit b89a3b2), kept
+only so that ``bench_conservation.py`` can time the old and the new passes side by side in one
+run. Not part of the package; do not import it from ``src/`` or ``kernels/``.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+from numba import prange
+
+from emsource.kernels._compile import grid_kernel, point_function
+from emsource.kernels.electromagnetic import (
+    FORM_CONTRAVARIANT,
+    energy_momentum_fluxes,
+    fields_both_indices,
+    momentum_upper,
+    projections,
+    sqrt_determinant,
+)
+from emsource.kernels.metric import inverse_metric, metric_factors
+from emsource.kernels.stencils import d1_column, value_column
+
+
+@point_function
+def _contravariant_point(gxx, gxy, gxz, gyy, gyz, gzz, ex, ey, ez, bx, by, bz, coef, half):
+    """The point physics the conservation kernels need, from contravariant fields.
+
+    Returns one flat tuple (a tuple nested in a returned tuple breaks Numba's parallel array
+    analysis): the metric factors (d1, d2, d3, l21, l31, l32), sg, the fields with both index
+    positions (E^i, E_i, B^i, B_i), rho, S_i, S^i and E^2 + B^2, all from
+    :mod:`emsource.kernels.electromagnetic`.
+    """
+    one = half + half
+    d1, d2, d3, l21, l31, l32 = metric_factors(gxx, gxy, gxz, gyy, gyz, gzz, one)
+    sg = sqrt_determinant(d1, d2, d3)
+    fields = fields_both_indices(FORM_CONTRAVARIANT, gxx, gxy, gxz, gyy, gyz, gzz,
+                                 d1, d2, d3, l21, l31, l32, ex, ey, ez, bx, by, bz, one)
+    (rho, sx, sy, sz, _sxx, _sxy, _sxz, _syy, _syz, _szz,
+     energy2) = projections(gxx, gxy, gxz, gyy, gyz, gzz, sg, fields, coef, half)
+    ux, uy, uz = momentum_upper(sg, fields, coef)
+    exu, eyu, ezu, exl, eyl, ezl, bxu, byu, bzu, bxl, byl, bzl = fields
+    return (d1, d2, d3, l21, l31, l32, sg, exu, eyu, ezu, exl, eyl, ezl, bxu, byu, bzu,
+            bxl, byl, bzl, rho, sx, sy, sz, ux, uy, uz, energy2)
+
+
+@point_function
+def _densities(g, g0, g1, g2, g3, g4, g5, e, b, i, j, k, coef, half):
+    """sg rho and sg S_j at one point of the level (g, e, b): the conserved densities.
+
+    ``g0..g5`` are the six component indices of the metric (xx, xy, xz, yy, yz, zz) in ``g``.
+    """
+    point = _contravariant_point(
+        g[g0, i, j, k], g[g1, i, j, k], g[g2, i, j, k], g[g3, i, j, k], g[g4, i, j, k],
+        g[g5, i, j, k], e[0, i, j, k], e[1, i, j, k], e[2, i, j, k], b[0, i, j, k], b[1, i, j, k],
+        b[2, i, j, k], coef, half)
+    sg = point[6]
+    return sg * point[19], sg * point[20], sg * point[21], sg * point[22]
+
+
+@grid_kernel
+def fluxes_and_rates(alpha, beta, gamma, gidx, E, B, rate_mode,
+                     g_a, gidx_a, e_a, b_a, g_b, gidx_b, e_b, b_b, inv_2dt, coef, half, work):
+    """Fluxes F^i, M^i_j and the time terms (see module docstring) at every grid point.
+
+    ``rate_mode`` 0: densities; 1: (D(level b) - D(level a)) * inv_2dt with level a = t - dt,
+    level b = t + dt; 2: d_t D from d_t gamma = g_a, d_t E = e_a, d_t B = b_a (level b unused).
+
+    Loop shape: per grid column, one loop over k writes the fluxes and the densities, and for
+    modes 1 and 2 a second loop overwrites rows 12..15 with the rates, recomputing the few point
+    values it needs from the column that the first loop has just brought into cache. Each loop
+    is branch-free, and with a C-ordered ``work`` they vectorise along z (LLVM's remarks and
+    the machine code show it; one loop with the mode branch inside, writing a padded work
+    array, runs scalar and 2x slower on 128^3, measured). Component indices are read into
+    scalars before the loops.
+    """
+    nx = alpha.shape[1]
+    ny = alpha.shape[2]
+    nz = alpha.shape[3]
+    one = half + half
+    two = one + one
+    c0 = gidx[0]
+    c1 = gidx[1]
+    c2 = gidx[2]
+    c3 = gidx[3]
+    c4 = gidx[4]
+    c5 = gidx[5]
+    a0 = gidx_a[0]
+    a1 = gidx_a[1]
+    a2 = gidx_a[2]
+    a3 = gidx_a[3]
+    a4 = gidx_a[4]
+    a5 = gidx_a[5]
+    b0 = gidx_b[0]
+    b1 = gidx_b[1]
+    b2 = gidx_b[2]
+    b3 = gidx_b[3]
+    b4 = gidx_b[4]
+    b5 = gidx_b[5]
+    for column in prange(nx * ny):
+        i = column // ny
+        j = column - i * ny
+        for k in range(nz):
+            (d1, d2, d3, l21, l31, l32, sg, ex, ey, ez, exl, eyl, ezl, bx, by, bz, bxl, byl, bzl,
+             rho, sx, sy, sz, ux, uy, uz, energy2) = _contravariant_point(
+                gamma[c0, i, j, k], gamma[c1, i, j, k], gamma[c2, i, j, k], gamma[c3, i, j, k],
+                gamma[c4, i, j, k], gamma[c5, i, j, k], E[0, i, j, k], E[1, i, j, k],
+                E[2, i, j, k], B[0, i, j, k], B[1, i, j, k], B[2, i, j, k], coef, half)
+            fields = (ex, ey, ez, exl, eyl, ezl, bx, by, bz, bxl, byl, bzl)
+            (f0, f1, f2, m0, m1, m2, m3, m4, m5, m6, m7, m8) = energy_momentum_fluxes(
+                alpha[0, i, j, k], beta[0, i, j, k], beta[1, i, j, k], beta[2, i, j, k],
+                sg, rho, sx, sy, sz, ux, uy, uz, fields, energy2, coef, half)
+            work[0, i, j, k] = f0
+            work[1, i, j, k] = f1
+            work[2, i, j, k] = f2
+            work[3, i, j, k] = m0
+            work[4, i, j, k] = m1
+            work[5, i, j, k] = m2
+            work[6, i, j, k] = m3
+            work[7, i, j, k] = m4
+            work[8, i, j, k] = m5
+            work[9, i, j, k] = m6
+            work[10, i, j, k] = m7
+            work[11, i, j, k] = m8
+            work[12, i, j, k] = sg * rho
+            work[13, i, j, k] = sg * sx
+            work[14, i, j, k] = sg * sy
+            work[15, i, j, k] = sg * sz
+        if rate_mode == 1:
+            for k in range(nz):
+                da0, da1, da2, da3 = _densities(g_a, a0, a1, a2, a3, a4, a5, e_a, b_a, i, j, k,
+                                                coef, half)
+                db0, db1, db2, db3 = _densities(g_b, b0, b1, b2, b3, b4, b5, e_b, b_b, i, j, k,
+                                                coef, half)
+                work[12, i, j, k] = (db0 - da0) * inv_2dt
+                work[13, i, j, k] = (db1 - da1) * inv_2dt
+                work[14, i, j, k] = (db2 - da2) * inv_2dt
+                work[15, i, j, k] = (db3 - da3) * inv_2dt
+        elif rate_mode == 2:
+            for k in range(nz):
+                (d1, d2, d3, l21, l31, l32, sg, ex, ey, ez, exl, eyl, ezl, bx, by, bz, bxl, byl,
+                 bzl, rho, sx, sy, sz, ux, uy, uz, energy2) = _contravariant_point(
+                    gamma[c0, i, j, k], gamma[c1, i, j, k], gamma[c2, i, j, k], gamma[c3, i, j, k],
+                    gamma[c4, i, j, k], gamma[c5, i, j, k], E[0, i, j, k], E[1, i, j, k],
+                    E[2, i, j, k], B[0, i, j, k], B[1, i, j, k], B[2, i, j, k], coef, half)
+                ixx, ixy, ixz, iyy, iyz, izz = inverse_metric(d1, d2, d3, l21, l31, l32, one)
+                det = sg * sg
+                hxx = g_a[a0, i, j, k]
+                hxy = g_a[a1, i, j, k]
+                hxz = g_a[a2, i, j, k]
+                hyy = g_a[a3, i, j, k]
+                hyz = g_a[a4, i, j, k]
+                hzz = g_a[a5, i, j, k]
+                fx = e_a[0, i, j, k]
+                fy = e_a[1, i, j, k]
+                fz = e_a[2, i, j, k]
+                cx = b_a[0, i, j, k]
+                cy = b_a[1, i, j, k]
+                cz = b_a[2, i, j, k]
+                # d_t ln det gamma = gamma^ij d_t gamma_ij (Jacobi's formula).
+                dlndet = (ixx * hxx + iyy * hyy + izz * hzz
+                          + two * (ixy * hxy + ixz * hxz + iyz * hyz))
+                quad = (hxx * (ex * ex + bx * bx) + hyy * (ey * ey + by * by)
+                        + hzz * (ez * ez + bz * bz)
+                        + two * (hxy * (ex * ey + bx * by) + hxz * (ex * ez + bx * bz)
+                                 + hyz * (ey * ez + by * bz)))
+                drho = coef * (half * quad + exl * fx + eyl * fy + ezl * fz
+                               + bxl * cx + byl * cy + bzl * cz)
+                work[12, i, j, k] = sg * (half * dlndet * rho + drho)
+                # sg S_j = coef det [jkl] E^k B^l.
+                cdet = coef * det
+                work[13, i, j, k] = (dlndet * sg * sx
+                                     + cdet * (fy * bz - fz * by + ey * cz - ez * cy))
+                work[14, i, j, k] = (dlndet * sg * sy
+                                     + cdet * (fz * bx - fx * bz + ez * cx - ex * cz))
+                work[15, i, j, k] = (dlndet * sg * sz
+                                     + cdet * (fx * by - fy * bx + ex * cy - ey * cx))
+
+
+@point_function
+def _max3(a, b, c):
+    m = a if a > b else b
+    return m if m > c else c
+
+
+@point_function
+def _momentum_terms(q, sg, a, coef, half, energy2, rho, rho_e, e_low, lorentz_b, s_low, fields,
+                    inverse, dt_m, der, k):
+    """Residual, largest term and source of momentum equation q at row k of ``der``.
+
+    sg [(alpha/2) S^ik d_q gamma_ik + S_i d_q beta^i - rho d_q alpha
+        - alpha (rho_e E_q + epsilon_qkl j^k B^l)],
+    S^ik dg_ik = coef (-E^i E^k dg_ik - B^i B^k dg_ik + 1/2 (E^2 + B^2) gamma^ik dg_ik).
+    Derivatives come from the rows of ``der`` (see :func:`residuals`).
+    """
+    two = half * 4
+    ex, ey, ez, bx, by, bz = fields
+    ixx, ixy, ixz, iyy, iyz, izz = inverse
+    sx, sy, sz = s_low
+    g0 = 15 + 6 * q
+    hxx = der[g0, k]
+    hxy = der[g0 + 1, k]
+    hxz = der[g0 + 2, k]
+    hyy = der[g0 + 3, k]
+    hyz = der[g0 + 4, k]
+    hzz = der[g0 + 5, k]
+    b0 = 33 + 3 * q
+    div_a = der[3 + q, k]
+    div_b = der[6 + q, k]
+    div_c = der[9 + q, k]
+    trace_h = ixx * hxx + iyy * hyy + izz * hzz + two * (ixy * hxy + ixz * hxz + iyz * hyz)
+    heb = (hxx * (ex * ex + bx * bx) + hyy * (ey * ey + by * by) + hzz * (ez * ez + bz * bz)
+           + two * (hxy * (ex * ey + bx * by) + hxz * (ex * ez + bx * bz) + hyz * (ey * ez + by * bz)))
+    metric_q = sg * half * a * coef * (half * energy2 * trace_h - heb)
+    shift_q = sg * (sx * der[b0, k] + sy * der[b0 + 1, k] + sz * der[b0 + 2, k])
+    lapse_q = -sg * rho * der[12 + q, k]
+    charge_q = -sg * a * rho_e * e_low
+    current_q = -sg * a * lorentz_b
+    src_q = metric_q + shift_q + lapse_q + charge_q + current_q
+    big = _max3(_max3(abs(dt_m), abs(div_a), abs(div_b)),
+                _max3(abs(div_c), abs(metric_q), abs(shift_q)),
+                _max3(abs(lapse_q), abs(charge_q), abs(current_q)))
+    return dt_m + (div_a + div_b + div_c) - src_q, big, src_q
+
+
+#: Points along z per strip of pass 2 (the row length of its per-column buffer). A literal, so
+#: that LLVM sees the buffer's row stride as a constant (see :func:`residuals`).
+_STRIP = 128
+
+#: Rows of the pass-2 buffer: 42 derivatives, 27 point values, 12 results.
+_ROWS = 81
+
+
+@grid_kernel
+def residuals(alpha, beta, gamma, gidx, K, kidx, E, B, charge, current, work,
+              weights, inv_hx, inv_hy, inv_hz, rx, ry, rz, coef, half,
+              residual, scale, sources, write_sources, partials):
+    """Residuals of the energy (component 0) and momentum (1..3) equations.
+
+    ``partials`` (nx * ny, 16) receives per grid column the sums of squares of the residuals
+    (0..3) and of the scales (4..7) and the largest |residual| (8..11) and scale (12..15) over
+    the column's interior points, so that norms need no whole-grid temporaries (a max
+    reduction across prange would be slow: measured in the source kernels). NaN residuals make
+    the sums NaN and are skipped by the maxima.
+
+    ``residual`` and ``scale`` are (4, nx, ny, nz); points within ``rx``, ``ry``, ``rz`` of a face
+    get NaN. ``scale`` is the largest absolute value among the terms of each equation at the
+    point (time term, each d_i of the flux, each source term). With ``write_sources`` the right-
+    hand sides are written to ``sources`` (4, nx, ny, nz) too (else ``sources`` is not touched).
+
+    Each grid column (i, j) is done in strips of up to ``_STRIP`` interior points along z, with
+    one small (``_ROWS``, ``_STRIP``) buffer per column (it stays in cache; no whole-grid
+    temporary). Per strip:
+
+    1. the 42 first derivatives the equations need go to rows 0..41, one call site of
+       :func:`emsource.kernels.stencils.d1_column` per kind of derivative (Numba inlines at the
+       IR level: one inlined stencil per derivative, 42 copies, took over a minute to compile,
+       measured). Rows: 0..2 d_a F^a, 3 + 3a + q d_a M^a_q, 12 + q d_q alpha, 15 + 6q + c
+       d_q gamma_c, 33 + 3q + c d_q beta^c;
+    2. the 27 point values the equations read are copied to rows 42..68;
+    3. one loop over the strip reads only the buffer and writes residual, scale and source
+       terms to rows 69..80;
+    4. short loops copy those rows to the outputs and reduce them into ``partials``.
+
+    Why this shape (measured, 128^3, order 4): LLVM vectorises a loop only if it can prove, or
+    check at run time with at most 8 comparisons, that its stores do not overlap its loads.
+    A step 3 that reads 9 arrays (35 rows at unknown distances) and writes 3 stays scalar; this
+    one touches one buffer whose row stride is a compile-time constant, and every other loop
+    copies from one array to one other. Indices along z are unsigned for the reason given in
+    ``d1_column``.
+    """
+    u = np.uint64
+    nx = alpha.shape[1]
+    ny = alpha.shape[2]
+    nz = alpha.shape[3]
+    one = half + half
+    two = one + one
+    zero = one - one
+    nan = zero / zero
+    radius = (rx, ry, rz)
+    inv_hs = (inv_hx, inv_hy, inv_hz)
+    k0 = rz
+    k1 = nz - rz
+    for column in prange(nx * ny):
+        i = column // ny
+        j = column - i * ny
+        edge = (i < rx) | (i >= nx - rx) | (j < ry) | (j >= ny - ry)
+        for c in range(4):
+            for k in range(nz):
+                if edge | (k < k0) | (k >= k1):
+                    residual[c, i, j, k] = nan
+                    scale[c, i, j, k] = nan
+                    if write_sources:
+                        sources[c, i, j, k] = nan
+        for c in range(8):
+            partials[column, c] = zero
+            partials[column, 8 + c] = zero
+        if edge:
+            continue
+        buf = np.empty((_ROWS, _STRIP), dtype=work.dtype)
+        for start in range(k0, k1, _STRIP):
+            count = min(_STRIP, k1 - start)
+            base = u(start)
+            for a in range(3):
+                d1_column(work, a, i, j, start, count, a, radius[a], weights, inv_hs[a], buf, a)
+            for a in range(3):
+                for q in range(3):
+                    d1_column(work, 3 + 3 * a + q, i, j, start, count, a, radius[a], weights,
+                              inv_hs[a], buf, 3 + 3 * a + q)
+            for q in range(3):
+                d1_column(alpha, 0, i, j, start, count, q, radius[q], weights, inv_hs[q], buf,
+                          12 + q)
+            for q in range(3):
+                for c in range(6):
+                    d1_column(gamma, gidx[c], i, j, start, count, q, radius[q], weights,
+                              inv_hs[q], buf, 15 + 6 * q + c)
+            for q in range(3):
+                for c in range(3):
+                    d1_column(beta, c, i, j, start, count, q, radius[q], weights, inv_hs[q],
+                              buf, 33 + 3 * q + c)
+            for c in range(6):
+                value_column(gamma, gidx[c], i, j, start, count, buf, 42 + c)
+                value_column(K, kidx[c], i, j, start, count, buf, 59 + c)
+            for c in range(3):
+                value_column(E, c, i, j, start, count, buf, 48 + c)
+                value_column(B, c, i, j, start, count, buf, 51 + c)
+                value_column(current, c, i, j, start, count, buf, 55 + c)
+            value_column(alpha, 0, i, j, start, count, buf, 54)
+            value_column(charge, 0, i, j, start, count, buf, 58)
+            for c in range(4):
+                value_column(work, 12 + c, i, j, start, count, buf, 65 + c)
+            for n in range(count):
+                (d1, d2, d3, l21, l31, l32, sg, ex, ey, ez, exl, eyl, ezl, bx, by, bz, bxl, byl,
+                 bzl, rho, sx, sy, sz, ux, uy, uz, energy2) = _contravariant_point(
+                    buf[42, n], buf[43, n], buf[44, n], buf[45, n], buf[46, n], buf[47, n],
+                    buf[48, n], buf[49, n], buf[50, n], buf[51, n], buf[52, n], buf[53, n], coef,
+                    half)
+                ixx, ixy, ixz, iyy, iyz, izz = inverse_metric(d1, d2, d3, l21, l31, l32, one)
+                a = buf[54, n]
+                jx = buf[55, n]
+                jy = buf[56, n]
+                jz = buf[57, n]
+                rho_e = buf[58, n]
+                # Energy: sg [alpha K_ij S^ij - S^i d_i alpha - alpha j^i E_i], with
+                # K_ij S^ij = coef (-K_ij E^i E^j - K_ij B^i B^j + 1/2 K (E^2 + B^2)).
+                kxx = buf[59, n]
+                kxy = buf[60, n]
+                kxz = buf[61, n]
+                kyy = buf[62, n]
+                kyz = buf[63, n]
+                kzz = buf[64, n]
+                trace_k = (ixx * kxx + iyy * kyy + izz * kzz
+                           + two * (ixy * kxy + ixz * kxz + iyz * kyz))
+                kee = (kxx * ex * ex + kyy * ey * ey + kzz * ez * ez
+                       + two * (kxy * ex * ey + kxz * ex * ez + kyz * ey * ez))
+                kbb = (kxx * bx * bx + kyy * by * by + kzz * bz * bz
+                       + two * (kxy * bx * by + kxz * bx * bz + kyz * by * bz))
+                curvature = sg * a * coef * (half * trace_k * energy2 - kee - kbb)
+                da0 = buf[12, n]
+                da1 = buf[13, n]
+                da2 = buf[14, n]
+                lapse_e = -sg * (ux * da0 + uy * da1 + uz * da2)
+                work_e = -sg * a * (jx * exl + jy * eyl + jz * ezl)
+                dt_e = buf[65, n]
+                fe0 = buf[0, n]
+                fe1 = buf[1, n]
+                fe2 = buf[2, n]
+                src_e = curvature + lapse_e + work_e
+                buf[69, n] = dt_e + (fe0 + fe1 + fe2) - src_e
+                buf[73, n] = _max3(_max3(abs(dt_e), abs(fe0), abs(fe1)),
+                                   _max3(abs(fe2), abs(curvature), abs(lapse_e)), abs(work_e))
+                buf[77, n] = src_e
+                # Momentum: epsilon_qkl j^k B^l = sg [qkl] j^k B^l.
+                fields = (ex, ey, ez, bx, by, bz)
+                inverse = (ixx, ixy, ixz, iyy, iyz, izz)
+                s_low = (sx, sy, sz)
+                r1, s1, src1 = _momentum_terms(0, sg, a, coef, half, energy2, rho, rho_e, exl,
+                                               sg * (jy * bz - jz * by), s_low, fields, inverse,
+                                               buf[66, n], buf, n)
+                r2, s2, src2 = _momentum_terms(1, sg, a, coef, half, energy2, rho, rho_e, eyl,
+                                               sg * (jz * bx - jx * bz), s_low, fields, inverse,
+                                               buf[67, n], buf, n)
+                r3, s3, src3 = _momentum_terms(2, sg, a, coef, half, energy2, rho, rho_e, ezl,
+                                               sg * (jx * by - jy * bx), s_low, fields, inverse,
+                                               buf[68, n], buf, n)
+                buf[70, n] = r1
+                buf[71, n] = r2
+                buf[72, n] = r3
+                buf[74, n] = s1
+                buf[75, n] = s2
+                buf[76, n] = s3
+                buf[78, n] = src1
+                buf[79, n] = src2
+                buf[80, n] = src3
+            for c in range(4):
+                for n in range(count):
+                    residual[c, i, j, base + u(n)] = buf[69 + c, n]
+                for n in range(count):
+                    scale[c, i, j, base + u(n)] = buf[73 + c, n]
+            if write_sources:
+                for c in range(4):
+                    for n in range(count):
+                        sources[c, i, j, base + u(n)] = buf[77 + c, n]
+            # Norm sums and maxima of the strip, from the rows just written (still in cache).
+            for c in range(4):
+                sum_r = zero
+                sum_s = zero
+                max_r = partials[column, 8 + c]
+                max_s = partials[column, 12 + c]
+                for n in range(count):
+                    r = buf[69 + c, n]
+                    s = buf[73 + c, n]
+                    sum_r += r * r
+                    sum_s += s * s
+                    max_r = abs(r) if abs(r) > max_r else max_r
+                    max_s = s if s > max_s else max_s
+                partials[column, c] += sum_r
+                partials[column, 4 + c] += sum_s
+                partials[column, 8 + c] = max_r
+                partials[column, 12 + c] = max_s
