@@ -76,6 +76,9 @@ def interpreted(dispatcher, seen):
                                          if not k.startswith("__")})
     fake_math.sqrt = _sqrt
     namespace.update(np=fake_np, prange=range, math=fake_math)
+    if "stack_doubles" in namespace:  # a buffer in the stack frame: an object array here
+        namespace["stack_doubles"] = lambda rows, length: (rows, length)
+        namespace["carray"] = lambda size, shape: np.empty(shape, dtype=object)
     if "sqrt" in namespace:
         namespace["sqrt"] = _sqrt
     return copy

@@ -27,8 +27,9 @@ D_i K, 8 pi S_i for M_i) where ``interior`` is 1, NaN elsewhere.
 
 How the kernel is laid out (why: see :func:`adm_constraints_grid`). Each grid column (i, j) is
 done in strips of up to ``_STRIP`` points along z, with one (``_ROWS``, ``_STRIP``) buffer per
-column: first the 72 derivatives and 16 point values the equations need are written to rows of
-the buffer (one stencil loop along the strip per row), then every step of the algebra is one
+thread in its stack frame (:func:`emsource.kernels._compile.stack_doubles`): first the 72
+derivatives and 16 point values the equations need are written to rows of the buffer (one
+stencil loop along the strip per row), then every step of the algebra is one
 loop along the strip that reads rows and writes rows, so that LLVM vectorises it across points.
 The buffer rows are listed at ``_ROWS`` below (p: packed component (xx, xy, xz, yy, yz, zz);
 q, s: derivative axes; ``_pair(a, b)``: the packed index of a symmetric pair).
@@ -38,9 +39,9 @@ q, s: derivative axes; ``_pair(a, b)``: the packed index of a symmetric pair).
 from __future__ import annotations
 
 import numpy as np
-from numba import prange
+from numba import carray, prange
 
-from ._compile import grid_kernel, point_function
+from ._compile import grid_kernel, point_function, stack_doubles
 from .metric import inverse_metric, metric_factors
 from .stencils import d1_column, d2_column, d11_column, value_column
 
@@ -256,7 +257,8 @@ def adm_constraints_grid(gamma, K, rho, S, interior, w1, w2, inv_h, sixteen_pi, 
                     M_scale[a, i, j, k] = nan
         if edge:
             continue
-        buf = np.empty((_ROWS, _STRIP))
+        # In the stack frame (see _compile.stack_doubles: no run-time overlap checks).
+        buf = carray(stack_doubles(_ROWS, _STRIP), (_ROWS, _STRIP))
         for start in range(r, nz - r, _STRIP):
             count = min(_STRIP, nz - r - start)
             base = u(start)
