@@ -13,10 +13,11 @@ Prints medians of repeated runs on a Kerr-Newman box for orders 2, 4, 6:
   same run at every vector width LLVM can emit here (128-, 256- and 512-bit, each in a child
   process started with NUMBA_CPU_FEATURES set for that width, before and after the kernels;
   8 independent chains of 16 multiply-adds per element, both threads), the highest rate
-  measured in the run (at any width) being the peak used, and beside it the derived figure (cores x clock x 2 FMA ports x 8 lanes x 2,
-  the port count from memory); the bare kernel compiled for 256- and 512-bit vectors (child
-  processes); and the roofline: operations per byte moved times the triad bandwidth, the rate
-  at which the kernel would be bound by memory instead.
+  measured in the run (at any width) being the peak used, and beside it the derived figure
+  (cores x clock x 2 FMA ports x 8 lanes x 2, the port count from memory); the bare kernel
+  compiled for 256- and 512-bit vectors (child processes); and the roofline: operations per
+  byte moved times the triad bandwidth, the rate at which the kernel would be bound by memory
+  instead.
 
 Usage: python benchmarks/bench_constraints.py [N] [repeats]    (default N = 64, 5 repeats)
 """
@@ -36,8 +37,9 @@ from emsource.grid import UniformGrid
 from emsource.kernels._compile import grid_kernel, stack_doubles
 from emsource.kernels import constraints as strips
 from emsource.kernels.constraints import adm_constraints_grid
-from emsource.kernels.stencils import (d1_column, d2_column, d11_column, first_derivative_weights,
-                                       second_derivative_weights, value_column)
+from emsource.kernels.stencils import (d1_column, d1_d2_column, d11_column,
+                                       first_derivative_weights, second_derivative_weights,
+                                       value_column)
 from numba import carray, prange
 
 #: The strip kernel's buffer shape, as module constants (literal sizes for stack_doubles).
@@ -192,10 +194,9 @@ def _stencil_probe(gamma, K, rho, S, interior, w1, w2, inv_h, H, M, H_scale, M_s
                 value_column(K, p, i, j, start, count, buf, 6 + p)
             for q in range(3):
                 for p in range(6):
-                    d1_column(gamma, p, i, j, start, count, q, r, w1, inv_h[q], buf, 12 + 6 * q + p)
+                    d1_d2_column(gamma, p, i, j, start, count, q, r, w1, w2, inv_h[q], buf,
+                                 12 + 6 * q + p, 48 + 6 * q + p)
                     d1_column(K, p, i, j, start, count, q, r, w1, inv_h[q], buf, 30 + 6 * q + p)
-                    d2_column(gamma, p, i, j, start, count, q, r, w2, inv_h[q] * inv_h[q], buf,
-                              48 + 6 * q + p)
             for q in range(2):
                 for s in range(q + 1, 3):
                     for p in range(6):
@@ -458,7 +459,8 @@ def main():
         shares = (f"{100 * rate / best:4.1f} % of the highest measured peak, "
                   f"{100 * rate / own:4.1f} % of the {own_width} peak"
                   + (f", {100 * rate / derived:4.1f} % of the derived peak" if derived else ""))
-        print(f"order {order}: {flops:.0f} flops per interior point as written: {rate:5.1f} GFLOP/s "
+        print(f"order {order}: {flops:.0f} flops per interior point as written: "
+              f"{rate:5.1f} GFLOP/s "
               f"= {shares}; point-at-a-time kernel {rate_before:5.1f} GFLOP/s "
               f"({r['flops_before']:.0f} flops/point)")
         print(f"         roofline: {flops / bytes_per_point:5.2f} flops/byte x triad = "

@@ -40,7 +40,8 @@ import numpy as np
 from numba.core import types
 from numba.extending import intrinsic
 
-__all__ = ["FASTMATH_FLAGS", "grid_kernel", "stack_doubles", "point_function", "search_kernel", "tree_stamp",
+__all__ = ["FASTMATH_FLAGS", "grid_kernel", "stack_doubles", "point_function", "search_kernel",
+           "tree_stamp",
            "install_tree_stamp", "KERNEL_DIRECTORY", "call_sharing_layouts", "shared_dispatcher",
            "specialisations"]
 

@@ -43,7 +43,7 @@ from numba import carray, prange
 
 from ._compile import grid_kernel, point_function, stack_doubles
 from .metric import inverse_metric, metric_factors
-from .stencils import d1_column, d2_column, d11_column, value_column
+from .stencils import d1_column, d1_d2_column, d11_column, value_column
 
 #: Points along z per strip (the row length of the per-column buffer). A literal, so that LLVM
 #: sees the buffer's row stride as a constant and can prove that rows do not overlap.
@@ -267,12 +267,10 @@ def adm_constraints_grid(gamma, K, rho, S, interior, w1, w2, inv_h, sixteen_pi, 
                 value_column(K, p, i, j, start, count, buf, _KL + p)
             for q in range(3):
                 for p in range(6):
-                    d1_column(gamma, p, i, j, start, count, q, r, w1, inv_h[q], buf,
-                              _DG + 6 * q + p)
+                    d1_d2_column(gamma, p, i, j, start, count, q, r, w1, w2, inv_h[q], buf,
+                                 _DG + 6 * q + p, _DDG + 6 * _pair(q, q) + p)
                     d1_column(K, p, i, j, start, count, q, r, w1, inv_h[q], buf,
                               _DK + 6 * q + p)
-                    d2_column(gamma, p, i, j, start, count, q, r, w2, inv_h[q] * inv_h[q], buf,
-                              _DDG + 6 * _pair(q, q) + p)
             for q in range(2):
                 for s in range(q + 1, 3):
                     for p in range(6):
