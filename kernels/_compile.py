@@ -232,13 +232,13 @@ def stack_doubles(typingctx, rows, length):
     Why: LLVM knows that such a buffer (an ``alloca`` whose address never leaves the function)
     cannot overlap any array the kernel received, so a loop that reads grid arrays and writes
     the buffer needs no run-time overlap checks and no scalar fallback copy; an ``np.empty``
-    buffer is memory LLVM knows nothing about. In the constraint kernel (72 stencil loops per
-    strip of 64 points, 186 buffer rows) this cut the run time by 10-15 % at orders 4 and 6
-    (``benchmarks/bench_constraints.py``, interleaved runs on 64^3; see README "Speed"), and it
+    buffer is memory LLVM knows nothing about. In the constraint kernel (then 72 stencil loops
+    per strip of 64 points, 186 buffer rows) this cut the run time by 2-15 % at order 4 and 12-18 %
+    at order 6 (interleaved runs of both forms on 64^3, shared machine; see README "Speed"), and it
     saves one heap allocation per grid column. Inside a ``prange`` loop the buffer belongs to
     the function Numba builds for the loop body: one per thread, reused by every iteration of
     that thread; each thread's stack must hold it (186 x 64 doubles = 93 KiB here, against
-    thread stacks of megabytes).
+    thread stacks of a few MiB, common practice for Linux threads).
     """
     from numba.core.errors import TypingError
 
