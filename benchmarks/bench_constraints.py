@@ -8,12 +8,16 @@ Prints medians of repeated runs on a Kerr-Newman box for orders 2, 4, 6:
   the contractions), and the ratio;
 - a STREAM-style triad a = b + s c measured in the same run, and the kernel's effective
   bandwidth (its 16 input and 8 output arrays counted once per point) as a share of it;
-- the floating-point rate: operations per point as written (``constraint_flops.py``) times
-  points per second, against this machine's peak measured in the same run by a multiply-add
-  kernel (16 dependent multiply-adds per element of a 512-element row per thread: the rows
-  stay in L1 and out-of-order execution overlaps the chains of successive elements), and the
-  roofline: operations per byte moved times the triad bandwidth, the rate at which the kernel
-  would be bound by memory instead.
+- the floating-point rate: operations per interior point as written (``constraint_flops.py``)
+  times interior points per second, against this machine's multiply-add peak measured in the
+  same run at every vector width LLVM can emit here (128-, 256- and 512-bit, each in a child
+  process started with NUMBA_CPU_FEATURES set for that width, before and after the kernels;
+  8 independent chains of 16 multiply-adds per element, both threads), the highest rate
+  measured in the run (at any width) being the peak used, and beside it the derived figure
+  (cores x clock x 2 FMA ports x 8 lanes x 2, the port count from memory); the bare kernel
+  compiled for 256- and 512-bit vectors (child processes); and the roofline: operations per
+  byte moved times the triad bandwidth, the rate at which the kernel would be bound by memory
+  instead.
 
 Usage: python benchmarks/bench_constraints.py [N] [repeats]    (default N = 64, 5 repeats)
 """
@@ -33,9 +37,14 @@ from emsource.grid import UniformGrid
 from emsource.kernels._compile import grid_kernel
 from emsource.kernels import constraints as strips
 from emsource.kernels.constraints import adm_constraints_grid
-from emsource.kernels.stencils import (d1_column, d2_column, d11_column, first_derivative_weights,
-                                       second_derivative_weights, value_column)
+from emsource.kernels.strip_buffers import strip_buffer
+from emsource.kernels.stencils import (d1_column, d1_d2_column, d11_column,
+                                       first_derivative_weights, second_derivative_weights,
+                                       value_column)
 from numba import prange
+
+#: The strip kernel's buffer shape, as module constants (literal sizes for strip_buffer).
+_ROWS, _STRIP = strips._ROWS, strips._STRIP
 
 
 @grid_kernel
@@ -44,43 +53,124 @@ def _triad(a, b, c, s):
         a[n] = b[n] + s * c[n]
 
 
+#: Independent multiply-add chains per element in :func:`_multiply_adds`. A 256- or 512-bit FMA
+#: takes 4 cycles before its result can feed the next one and a core can start up to two per
+#: cycle (latency and port count from memory), so 8 independent chains keep both ports busy
+#: without relying on out-of-order execution across loop iterations.
+CHAINS = 8
+
+
 @grid_kernel
 def _multiply_adds(rows, a, b, repeats):
-    """16 dependent x = a x + b per element and repeat (2 flops each), one row per thread."""
+    """16 dependent x = a x + b (2 flops each) in each of ``CHAINS`` independent chains, per
+    element of a (threads, CHAINS, 64) block, one block per thread (4 KiB: stays in L1).
+    LLVM vectorises the loop over the 64 elements at the width it chooses for this process."""
     for t in prange(rows.shape[0]):
         for _ in range(repeats):
-            for n in range(rows.shape[1]):
-                x = rows[t, n]
-                x = x * a + b
-                x = x * a + b
-                x = x * a + b
-                x = x * a + b
-                x = x * a + b
-                x = x * a + b
-                x = x * a + b
-                x = x * a + b
-                x = x * a + b
-                x = x * a + b
-                x = x * a + b
-                x = x * a + b
-                x = x * a + b
-                x = x * a + b
-                x = x * a + b
-                x = x * a + b
-                rows[t, n] = x
+            for n in range(rows.shape[2]):
+                x0 = rows[t, 0, n]
+                x1 = rows[t, 1, n]
+                x2 = rows[t, 2, n]
+                x3 = rows[t, 3, n]
+                x4 = rows[t, 4, n]
+                x5 = rows[t, 5, n]
+                x6 = rows[t, 6, n]
+                x7 = rows[t, 7, n]
+                for _step in range(16):
+                    x0 = x0 * a + b
+                    x1 = x1 * a + b
+                    x2 = x2 * a + b
+                    x3 = x3 * a + b
+                    x4 = x4 * a + b
+                    x5 = x5 * a + b
+                    x6 = x6 * a + b
+                    x7 = x7 * a + b
+                rows[t, 0, n] = x0
+                rows[t, 1, n] = x1
+                rows[t, 2, n] = x2
+                rows[t, 3, n] = x3
+                rows[t, 4, n] = x4
+                rows[t, 5, n] = x5
+                rows[t, 6, n] = x6
+                rows[t, 7, n] = x7
 
 
 def measured_peak(threads, repeats, seconds=0.1):
-    """GFLOP/s of :func:`_multiply_adds` on ``threads`` rows of 512 (median of ``repeats``),
-    each run about ``seconds`` long (as long as a kernel call here, so that a shared machine's
-    load falls on both alike)."""
-    rows = np.ones((threads, 512))
+    """GFLOP/s of :func:`_multiply_adds` on ``threads`` blocks (median of ``repeats``), each run
+    about ``seconds`` long (as long as a kernel call here, so that a shared machine's load falls
+    on both alike)."""
+    rows = np.ones((threads, CHAINS, 64))
     _multiply_adds(rows, 0.999999, 1e-6, 1)
     t0 = time.perf_counter()
     _multiply_adds(rows, 0.999999, 1e-6, 1000)
     count = max(1000, int(1000 * seconds / (time.perf_counter() - t0)))
     t = median_time(lambda: _multiply_adds(rows, 0.999999, 1e-6, count), repeats)
     return 2 * 16 * rows.size * count / t / 1e9
+
+
+#: The vector widths LLVM can be asked for on an AVX-512 CPU, as target-feature changes added to
+#: the host's features through Numba's NUMBA_CPU_FEATURES (LLVM's own tuning flags: with
+#: "prefer-256-bit", its default on this CPU, loops use 256-bit registers; removing it allows
+#: 512-bit ones; "prefer-128-bit" asks for 128-bit ones).
+WIDTHS = {"128-bit": ",+prefer-128-bit", "256-bit": "", "512-bit": ",-prefer-256-bit"}
+
+
+def host_features():
+    import llvmlite.binding as llvm
+
+    return llvm.get_host_cpu_features().flatten()
+
+
+def width_of_this_process():
+    """The vector width LLVM uses in this process (from NUMBA_CPU_FEATURES, else the default)."""
+    import numba
+
+    features = numba.config.CPU_FEATURES or ""
+    if "-prefer-256-bit" in features:
+        return "512-bit"
+    if "+prefer-128-bit" in features:
+        return "128-bit"
+    return "256-bit"
+
+
+def child_figures(width, task, repeats):
+    """Run this script with ``--child TASK`` in a process whose LLVM emits ``width`` vectors;
+    returns the numbers it prints (GFLOP/s for "peak", milliseconds per order for "kernel")."""
+    import os
+    import subprocess
+    import sys
+
+    environment = dict(os.environ)
+    environment.pop("NUMBA_CPU_FEATURES", None)
+    if WIDTHS[width]:
+        environment["NUMBA_CPU_FEATURES"] = host_features() + WIDTHS[width]
+    result = subprocess.run([sys.executable, os.path.abspath(__file__), "--child", task,
+                             "--points", str(CHILD_POINTS), str(repeats)], env=environment,
+                            capture_output=True, text=True, check=True)
+    return [float(x) for x in result.stdout.split()]
+
+
+#: Grid of the kernel timings in child processes (set from the command line).
+CHILD_POINTS = 64
+
+
+def derived_peak(threads):
+    """(GFLOP/s, how it is derived): threads x clock (the "cpu MHz" of /proc/cpuinfo) x 2 FMA
+    ports (from memory, not measured) x 8 float64 lanes x 2 flops."""
+    mhz = None
+    try:
+        with open("/proc/cpuinfo") as info:
+            for line in info:
+                if line.startswith("cpu MHz"):
+                    mhz = float(line.split(":")[1])
+                    break
+    except OSError:
+        pass
+    if mhz is None:
+        return None, "clock unknown"
+    value = threads * mhz / 1e3 * 2 * 8 * 2
+    return value, (f"{threads} cores x {mhz / 1e3:.2f} GHz x 2 FMA ports (port count from memory, "
+                   f"never measured) x 8 float64 lanes x 2 flops")
 
 
 @grid_kernel
@@ -96,7 +186,7 @@ def _stencil_probe(gamma, K, rho, S, interior, w1, w2, inv_h, H, M, H_scale, M_s
         j = column - i * ny
         if (i < r) | (i >= nx - r) | (j < r) | (j >= ny - r):
             continue
-        buf = np.empty((strips._ROWS, strips._STRIP))
+        buf = strip_buffer(_ROWS, _STRIP, rho)
         for start in range(r, nz - r, strips._STRIP):
             count = min(strips._STRIP, nz - r - start)
             base = u(start)
@@ -105,10 +195,9 @@ def _stencil_probe(gamma, K, rho, S, interior, w1, w2, inv_h, H, M, H_scale, M_s
                 value_column(K, p, i, j, start, count, buf, 6 + p)
             for q in range(3):
                 for p in range(6):
-                    d1_column(gamma, p, i, j, start, count, q, r, w1, inv_h[q], buf, 12 + 6 * q + p)
+                    d1_d2_column(gamma, p, i, j, start, count, q, r, w1, w2, inv_h[q], buf,
+                                 12 + 6 * q + p, 48 + 6 * q + p)
                     d1_column(K, p, i, j, start, count, q, r, w1, inv_h[q], buf, 30 + 6 * q + p)
-                    d2_column(gamma, p, i, j, start, count, q, r, w2, inv_h[q] * inv_h[q], buf,
-                              48 + 6 * q + p)
             for q in range(2):
                 for s in range(q + 1, 3):
                     for p in range(6):
@@ -206,26 +295,73 @@ def numpy_constraints(gamma, K, rho, S, h):
     return H, M
 
 
+def kernel_data(n):
+    """The benchmark's Kerr-Newman box: grid, exact data, rho and S_i (Gaussian units)."""
+    from emsource import adm_sources
+
+    grid = UniformGrid.from_bounds((2.5, 0.5, -0.5), (3.5, 1.5, 0.5), (n, n, n))
+    d = kerr_newman(grid, mass=1.0, spin=0.6, charge=0.5)
+    s = adm_sources(d.gamma, d.E, d.B, units="gaussian")
+    return grid, d, np.ascontiguousarray(s.rho), np.ascontiguousarray(s.S_i)
+
+
+def kernel_call(grid, d, rho, S, order):
+    """A function that runs the bare strip kernel once at ``order`` (outputs allocated once)."""
+    ev = interior_points(np.ones(grid.shape, dtype=bool), order).view(np.uint8)
+    outs = (np.empty(grid.shape), np.empty((3,) + grid.shape), np.empty(grid.shape),
+            np.empty((3,) + grid.shape))
+    w1, w2 = first_derivative_weights(order), second_derivative_weights(order)
+    inv_h = np.full(3, 1.0 / grid.spacing[0])
+
+    def bare():
+        adm_constraints_grid(d.gamma, d.K, rho, S, ev, w1, w2, inv_h, 16 * math.pi, 8 * math.pi,
+                             *outs)
+    return bare, outs, (ev, w1, w2, inv_h)
+
+
+def child(task, n, repeats):
+    """What a child process of :func:`child_figures` prints."""
+    import numba
+
+    if task == "peak":
+        print(f"{measured_peak(numba.get_num_threads(), repeats):.3f}")
+        return
+    grid, d, rho, S = kernel_data(n)
+    figures = []
+    for order in (2, 4, 6):
+        bare = kernel_call(grid, d, rho, S, order)[0]
+        bare()
+        figures.append(median_time(bare, repeats) * 1e3)
+    print(" ".join(f"{x:.4f}" for x in figures))
+
+
 def main():
     import argparse
+    import os
 
     import numba
 
+    global CHILD_POINTS
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("points", nargs="?", type=int, default=64, help="points per axis (64)")
     parser.add_argument("repeats", nargs="?", type=int, default=5,
                         help="repetitions per median (5)")
+    parser.add_argument("--child", choices=("peak", "kernel"), help=argparse.SUPPRESS)
+    parser.add_argument("--points", dest="child_points", type=int, help=argparse.SUPPRESS)
     options = parser.parse_args()
+    if options.child:
+        child(options.child, options.child_points, options.repeats)
+        return
     n, repeats = options.points, options.repeats
+    CHILD_POINTS = n
+    threads = numba.get_num_threads()
+    own_width = width_of_this_process()
 
-    grid = UniformGrid.from_bounds((2.5, 0.5, -0.5), (3.5, 1.5, 0.5), (n, n, n))
-    d = kerr_newman(grid, mass=1.0, spin=0.6, charge=0.5)
+    grid, d, src_rho, src_S = kernel_data(n)
     h = grid.spacing[0]
-    features = numba.config.CPU_FEATURES or ""
-    width = "512-bit allowed" if "-prefer-256-bit" in features else "LLVM's default width"
-    print(f"Kerr-Newman box, {n}^3 points, float64, {numba.get_num_threads()} threads, "
-          f"median of {repeats}; vector instructions: {width} (512-bit: run with "
-          f"NUMBA_CPU_FEATURES set to the host's features plus ',-prefer-256-bit')")
+    print(f"Kerr-Newman box, {n}^3 points, float64, {threads} threads, median of {repeats}; "
+          f"this process: {own_width} vectors; load average at the start "
+          f"{' '.join(f'{x:.2f}' for x in os.getloadavg())}")
 
     # Triad over as many points as the kernel touches arrays: 24 arrays of n^3.
     m = 24 * n**3
@@ -233,30 +369,20 @@ def main():
     _triad(a, b, c, 3.0)
     t_triad = median_time(lambda: _triad(a, b, c, 3.0), repeats)
     triad_bw = 3 * 8 * m / t_triad
-    peaks = [measured_peak(numba.get_num_threads(), repeats)]
-    print(f"triad: {triad_bw / 1e9:.2f} GB/s (3 arrays counted); multiply-add peak: "
-          f"{peaks[0]:.1f} GFLOP/s (measured again beside each order; the median so far is used)")
+    # The multiply-add peak at every width, each in a child process (LLVM's width is fixed per
+    # process), before and after the kernels; the own width again beside each order.
+    width_peaks = {w: child_figures(w, "peak", repeats) for w in WIDTHS}
+    peaks = [measured_peak(threads, repeats)]
+    print(f"triad: {triad_bw / 1e9:.2f} GB/s (3 arrays counted); multiply-add peak at the start: "
+          + ", ".join(f"{w} {v[0]:.1f}" for w, v in width_peaks.items())
+          + f" GFLOP/s (child processes), {own_width} in this process {peaks[0]:.1f}")
 
-    src_rho = np.zeros(grid.shape)
-    src_S = np.zeros((3,) + grid.shape)
-    from emsource import adm_sources
-
-    s = adm_sources(d.gamma, d.E, d.B, units="gaussian")
-    src_rho[...] = s.rho
-    src_S[...] = s.S_i
     # Bytes per point: 16 float64 inputs, 8 float64 outputs, the uint8 interior mask.
     bytes_per_point = 24 * 8 + 1
+    results = {}
     for order in (2, 4, 6):
-        ev = interior_points(np.ones(grid.shape, dtype=bool), order).view(np.uint8)
-        outs = (np.empty(grid.shape), np.empty((3,) + grid.shape), np.empty(grid.shape),
-                np.empty((3,) + grid.shape))
+        bare, outs, (ev, w1, w2, inv_h) = kernel_call(grid, d, src_rho, src_S, order)
         before = tuple(np.empty_like(o) for o in outs)
-        w1, w2 = first_derivative_weights(order), second_derivative_weights(order)
-        inv_h = np.full(3, 1.0 / h)
-
-        def bare():
-            adm_constraints_grid(d.gamma, d.K, src_rho, src_S, ev, w1, w2, inv_h,
-                                 16 * math.pi, 8 * math.pi, *outs)
 
         def point_at_a_time():
             point_at_a_time_constraints(d.gamma, d.K, src_rho, src_S, ev, w1, w2, inv_h, _SYM,
@@ -268,43 +394,31 @@ def main():
         bare()
         point_at_a_time()
         probe()
-        peaks.append(measured_peak(numba.get_num_threads(), repeats))
+        peaks.append(measured_peak(threads, repeats))
         t_bare = median_time(bare, repeats)
         t_probe = median_time(probe, repeats)
-        peaks.append(measured_peak(numba.get_num_threads(), repeats))
-        peak = statistics.median(peaks)
+        peaks.append(measured_peak(threads, repeats))
         t_before = median_time(point_at_a_time, repeats)
         t_public = median_time(lambda: adm_constraints(d.gamma, d.K, d.E, d.B, spacing=h,
                                                        order=order), repeats)
-        npts = n**3
-        bw = 24 * 8 * npts / t_bare
+        # Work is done at interior points only (radius = order / 2 from every face).
+        npts = (n - order) ** 3
+        bw = 24 * 8 * n**3 / t_bare
         flops, _ = flops_per_point(order)
         flops_before, _ = flops_per_point(order, point_kernel=True)
-        rate = flops * npts / t_bare / 1e9
-        rate_before = flops_before * npts / t_before / 1e9
-        roof = triad_bw * flops / bytes_per_point / 1e9
         agree = max(float(np.nanmax(np.abs(x - y))) for x, y in zip(outs[:2], before[:2]))
-        print(f"order {order}: kernel {npts / t_bare / 1e6:7.2f} Mpoint/s "
-              f"({t_bare * 1e3:7.1f} ms; effective bandwidth {100 * bw / triad_bw:5.1f} % of "
-              f"triad), public call with EM sources and checks {npts / t_public / 1e6:7.2f} "
-              f"Mpoint/s")
+        results[order] = dict(t_bare=t_bare, t_probe=t_probe, t_before=t_before,
+                              t_public=t_public, npts=npts, bw=bw, flops=flops,
+                              flops_before=flops_before, agree=agree)
+        print(f"order {order}: kernel {npts / t_bare / 1e6:7.2f} Mpoint/s ({t_bare * 1e3:6.1f} ms; "
+              f"effective bandwidth {100 * bw / triad_bw:5.1f} % of triad), public call with EM "
+              f"sources and checks {npts / t_public / 1e6:7.2f} Mpoint/s")
         print(f"         point-at-a-time kernel {npts / t_before / 1e6:7.2f} Mpoint/s: the strips "
               f"are {t_before / t_bare:4.2f}x faster (max |difference| {agree:.1e})")
-        print(f"         multiply-add peak beside this order: {peaks[-2]:.1f} and {peaks[-1]:.1f} "
-              f"GFLOP/s, median of all so far {peak:.1f}")
-        print(f"         {flops:.0f} flops/point as written: {rate:6.1f} GFLOP/s = "
-              f"{100 * rate / peak:4.1f} % of the measured peak (point-at-a-time: "
-              f"{flops_before:.0f} "
-              f"flops/point, {rate_before:5.1f} GFLOP/s = {100 * rate_before / peak:4.1f} %); "
-              f"its {flops_before:.0f} flops at the strip kernel's speed "
-              f"{100 * flops_before * npts / t_bare / 1e9 / peak:4.1f} %")
         print(f"         stencils and traffic alone (same buffer, no algebra): "
-              f"{t_probe / t_bare:4.2f} of the kernel's time, "
-              f"{100 * 24 * 8 * npts / t_probe / triad_bw:5.1f} "
-              f"% of the triad")
-        print(f"         roofline: {flops / bytes_per_point:5.2f} flops/byte x triad = "
-              f"{roof:6.1f} GFLOP/s if memory-bound ({roof / peak:4.1f}x the peak: "
-              f"{'compute' if roof > peak else 'memory'}-bound)")
+              f"{t_probe / t_bare:4.2f} of the kernel's time")
+        print(f"         multiply-add peak beside this order ({own_width}): {peaks[-2]:.1f} and "
+              f"{peaks[-1]:.1f} GFLOP/s")
         if order == 4:
             t_np = median_time(lambda: numpy_constraints(d.gamma, d.K, src_rho, src_S, h),
                                max(1, repeats // 2))
@@ -314,6 +428,45 @@ def main():
                        np.abs(M_np - outs[1][(slice(None),) + core]).max())
             print(f"         plain NumPy (order 4): {npts / t_np / 1e6:7.2f} Mpoint/s; "
                   f"kernel is {t_np / t_bare:5.1f}x faster; max |difference| {diff:.1e}")
+
+    for w, v in width_peaks.items():
+        v.extend(child_figures(w, "peak", repeats))
+    kernel_by_width = {w: child_figures(w, "kernel", repeats) for w in ("256-bit", "512-bit")}
+    # The peak is the highest rate measured in this run, at any width and in any process: other
+    # jobs on a shared machine only slow a measurement down, so the highest one is the closest
+    # to what the machine can do (a median would lower the peak and flatter the kernel).
+    width_best = {w: max(v) for w, v in width_peaks.items()}
+    width_best[own_width] = max(width_best[own_width], max(peaks))
+    best_width = max(width_best, key=width_best.get)
+    best = width_best[best_width]
+    own = width_best[own_width]
+    derived, how = derived_peak(threads)
+    print()
+    print("multiply-add peak, GFLOP/s (child processes before and after the kernels): "
+          + "; ".join(f"{w} {v[0]:.1f} / {v[1]:.1f}" for w, v in width_peaks.items())
+          + f"; {own_width} in this process ({len(peaks)} runs): "
+          + " ".join(f"{x:.1f}" for x in peaks))
+    print(f"peak used: the highest measured, {best:.1f} GFLOP/s ({best_width}; {own_width}: "
+          f"{own:.1f}); derived: "
+          + (f"{derived:.0f} GFLOP/s = {how}" if derived else how))
+    print("the bare kernel compiled for each width (child processes, ms at order 2 / 4 / 6): "
+          + "; ".join(f"{w} " + " / ".join(f"{x:.1f}" for x in v)
+                      for w, v in kernel_by_width.items()))
+    for order, r in results.items():
+        flops, t_bare, npts = r["flops"], r["t_bare"], r["npts"]
+        rate = flops * npts / t_bare / 1e9
+        rate_before = r["flops_before"] * npts / r["t_before"] / 1e9
+        roof = triad_bw * flops / bytes_per_point / 1e9
+        shares = (f"{100 * rate / best:4.1f} % of the highest measured peak, "
+                  f"{100 * rate / own:4.1f} % of the {own_width} peak"
+                  + (f", {100 * rate / derived:4.1f} % of the derived peak" if derived else ""))
+        print(f"order {order}: {flops:.0f} flops per interior point as written: "
+              f"{rate:5.1f} GFLOP/s "
+              f"= {shares}; point-at-a-time kernel {rate_before:5.1f} GFLOP/s "
+              f"({r['flops_before']:.0f} flops/point)")
+        print(f"         roofline: {flops / bytes_per_point:5.2f} flops/byte x triad = "
+              f"{roof:6.1f} GFLOP/s if memory-bound ({roof / best:4.1f}x the highest peak)")
+    print(f"load average at the end {' '.join(f'{x:.2f}' for x in os.getloadavg())}")
 
 
 if __name__ == "__main__":

@@ -216,3 +216,4 @@ def point_function(function):
         fastmath=set(FASTMATH_FLAGS),
         error_model="numpy",
     )(function)
+

@@ -27,8 +27,9 @@ D_i K, 8 pi S_i for M_i) where ``interior`` is 1, NaN elsewhere.
 
 How the kernel is laid out (why: see :func:`adm_constraints_grid`). Each grid column (i, j) is
 done in strips of up to ``_STRIP`` points along z, with one (``_ROWS``, ``_STRIP``) buffer per
-column: first the 72 derivatives and 16 point values the equations need are written to rows of
-the buffer (one stencil loop along the strip per row), then every step of the algebra is one
+thread on its stack (:func:`emsource.kernels.strip_buffers.strip_buffer`): first the 72
+derivatives and 16 point values the equations need are written to rows of the buffer (one
+stencil loop along the strip per row), then every step of the algebra is one
 loop along the strip that reads rows and writes rows, so that LLVM vectorises it across points.
 The buffer rows are listed at ``_ROWS`` below (p: packed component (xx, xy, xz, yy, yz, zz);
 q, s: derivative axes; ``_pair(a, b)``: the packed index of a symmetric pair).
@@ -41,8 +42,9 @@ import numpy as np
 from numba import prange
 
 from ._compile import grid_kernel, point_function
+from .strip_buffers import strip_buffer
 from .metric import inverse_metric, metric_factors
-from .stencils import d1_column, d2_column, d11_column, value_column
+from .stencils import d1_column, d1_d2_column, d11_column, value_column
 
 #: Points along z per strip (the row length of the per-column buffer). A literal, so that LLVM
 #: sees the buffer's row stride as a constant and can prove that rows do not overlap.
@@ -256,7 +258,8 @@ def adm_constraints_grid(gamma, K, rho, S, interior, w1, w2, inv_h, sixteen_pi, 
                     M_scale[a, i, j, k] = nan
         if edge:
             continue
-        buf = np.empty((_ROWS, _STRIP))
+        # On the thread's stack (see strip_buffers: no run-time overlap checks).
+        buf = strip_buffer(_ROWS, _STRIP, H)
         for start in range(r, nz - r, _STRIP):
             count = min(_STRIP, nz - r - start)
             base = u(start)
@@ -265,12 +268,10 @@ def adm_constraints_grid(gamma, K, rho, S, interior, w1, w2, inv_h, sixteen_pi, 
                 value_column(K, p, i, j, start, count, buf, _KL + p)
             for q in range(3):
                 for p in range(6):
-                    d1_column(gamma, p, i, j, start, count, q, r, w1, inv_h[q], buf,
-                              _DG + 6 * q + p)
+                    d1_d2_column(gamma, p, i, j, start, count, q, r, w1, w2, inv_h[q], buf,
+                                 _DG + 6 * q + p, _DDG + 6 * _pair(q, q) + p)
                     d1_column(K, p, i, j, start, count, q, r, w1, inv_h[q], buf,
                               _DK + 6 * q + p)
-                    d2_column(gamma, p, i, j, start, count, q, r, w2, inv_h[q] * inv_h[q], buf,
-                              _DDG + 6 * _pair(q, q) + p)
             for q in range(2):
                 for s in range(q + 1, 3):
                     for p in range(6):

@@ -28,8 +28,9 @@ serves every order. Callers keep ``radius`` points away from the faces.
 :func:`d1_column` is the first derivative for a whole grid column (i, j, k0..k0+count-1) at once,
 written so that LLVM vectorises it along z (see its docstring); use it where a kernel needs many
 derivatives per point. :func:`d2_column` and :func:`d11_column` are its second and mixed
-derivatives, :func:`value_column` copies the column's values (the same buffer layout), and
-:func:`d1_axes_column` gives the first derivatives along all three axes in one loop.
+derivatives, :func:`d1_d2_column` the first and second derivative along one axis in one pass,
+:func:`d1_axes_column` the first derivatives along all three axes in one loop, and
+:func:`value_column` copies the column's values (the same buffer layout).
 """
 
 from __future__ import annotations
@@ -52,6 +53,7 @@ __all__ = [
     "d1_axes_column",
     "d2_column",
     "d11_column",
+    "d1_d2_column",
     "value_column",
     "d1_staggered",
 ]
@@ -379,3 +381,61 @@ def d11_column(f, c, i, j, k0, count, axis_a, axis_b, radius, weights, inv_ha, i
                                          - f[c, i + ai, j + aj - bj, km + u(n)])
                                         - (f[c, i - ai, j - aj + bj, kp + u(n)]
                                            - f[c, i - ai, j - aj - bj, km + u(n)]))
+
+
+@point_function
+def d1_d2_column(f, c, i, j, k0, count, axis, radius, w1, w2, inv_h, out, row1, row2):
+    """out[row1, n] = d f[c] / d x^axis and out[row2, n] = d^2 f[c] / (d x^axis)^2 at
+    (i, j, k0 + n), n = 0..count-1, in one pass over the column.
+
+    The sums of :func:`d1_column` (weights ``w1``) and :func:`d2_column` (weights ``w2``,
+    ``inv_h`` squared here), term by term the same; both read f(x +- m h), so one pass loads
+    each value once (5 loads per point at radius 2 instead of 4 + 5) and runs one loop instead
+    of two. The same caller rules as :func:`d1_column`; ``radius`` 1 to 3.
+    """
+    u = np.uint64
+    oi = 1 if axis == 0 else 0
+    oj = 1 if axis == 1 else 0
+    ok = u(1) if axis == 2 else u(0)
+    base = u(k0)
+    inv_h2 = inv_h * inv_h
+    a1 = w1[0] * inv_h
+    b0 = w2[0] * inv_h2
+    b1 = w2[1] * inv_h2
+    if radius == 1:
+        for n in range(count):
+            k = base + u(n)
+            p1 = f[c, i + oi, j + oj, k + ok]
+            m1 = f[c, i - oi, j - oj, k - ok]
+            out[row1, n] = a1 * (p1 - m1)
+            out[row2, n] = b0 * f[c, i, j, k] + b1 * (p1 + m1)
+    elif radius == 2:
+        a2 = w1[1] * inv_h
+        b2 = w2[2] * inv_h2
+        ok2 = ok + ok
+        for n in range(count):
+            k = base + u(n)
+            p1 = f[c, i + oi, j + oj, k + ok]
+            m1 = f[c, i - oi, j - oj, k - ok]
+            p2 = f[c, i + 2 * oi, j + 2 * oj, k + ok2]
+            m2 = f[c, i - 2 * oi, j - 2 * oj, k - ok2]
+            out[row1, n] = a1 * (p1 - m1) + a2 * (p2 - m2)
+            out[row2, n] = b0 * f[c, i, j, k] + b1 * (p1 + m1) + b2 * (p2 + m2)
+    else:
+        a2 = w1[1] * inv_h
+        a3 = w1[2] * inv_h
+        b2 = w2[2] * inv_h2
+        b3 = w2[3] * inv_h2
+        ok2 = ok + ok
+        ok3 = ok2 + ok
+        for n in range(count):
+            k = base + u(n)
+            p1 = f[c, i + oi, j + oj, k + ok]
+            m1 = f[c, i - oi, j - oj, k - ok]
+            p2 = f[c, i + 2 * oi, j + 2 * oj, k + ok2]
+            m2 = f[c, i - 2 * oi, j - 2 * oj, k - ok2]
+            p3 = f[c, i + 3 * oi, j + 3 * oj, k + ok3]
+            m3 = f[c, i - 3 * oi, j - 3 * oj, k - ok3]
+            out[row1, n] = a1 * (p1 - m1) + a2 * (p2 - m2) + a3 * (p3 - m3)
+            out[row2, n] = (b0 * f[c, i, j, k] + b1 * (p1 + m1) + b2 * (p2 + m2)
+                            + b3 * (p3 + m3))

@@ -27,6 +27,7 @@ from __future__ import annotations
 
 from numba import types
 from numba.core import cgutils
+from numba.core.errors import TypingError
 from numba.extending import intrinsic
 
 __all__ = ["strip_buffer", "MAX_STRIP_BUFFER_BYTES"]
@@ -43,9 +44,10 @@ def strip_buffer(typingctx, rows, points, like):
     constants); the values are not initialised.
     """
     if not (isinstance(rows, types.IntegerLiteral) and isinstance(points, types.IntegerLiteral)):
-        return None
+        raise TypingError(f"strip_buffer needs literal integer sizes (module constants), found "
+                          f"{rows} and {points}")
     if not isinstance(like, types.Array):
-        return None
+        raise TypingError(f"strip_buffer takes its dtype from an array, found {like}")
     nrows = rows.literal_value
     npoints = points.literal_value
     dtype = like.dtype
