@@ -419,8 +419,8 @@ def unit_stride_spans(views):
     for position, view in enumerate(views):
         itemsize = view.itemsize
         strides = view.strides
-        if min(strides) < 0 or any(s % itemsize for s in strides):
-            return None
+        if view.ndim > 4 or min(strides) < 0 or any(s % itemsize for s in strides):
+            return None  # one component axis at most (a (3, 3) metric arrives seen as 9)
         if view.shape[-1] != 1 and strides[-1] != itemsize:
             return None
         element_steps = [s // itemsize for s in strides]
