@@ -1,7 +1,7 @@
 """How a grid loop is written so that LLVM vectorises it: strips, unsigned indices, float counts.
 
 Three things decide whether the point loop of a kernel becomes packed (SIMD) code, each found
-by reading the machine code of the source drivers (``benchmarks/bench_sources.py``, DEVELOPERS.md
+by reading the machine code of the source drivers (``benchmarks/vector_code.py``, DEVELOPERS.md
 "Vectorised point loops"):
 
 - Unsigned indices. Numba indexes an array with a signed integer by first adding the length
