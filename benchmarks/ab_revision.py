@@ -3,7 +3,8 @@
 Run:  python benchmarks/ab_revision.py [--rev b89a3b2] [--size 128] [--repeat 7]
 
 ``kernels/sources.py`` of the revision is read with ``git show`` and loaded beside the current
-module (its relative imports resolve to the current point-physics layer, unchanged since), so
+module (``kernel_revision.py``; its relative imports resolve to the current point-physics
+layer, unchanged since), so
 both drivers run on the same arrays, interleaved, each right after a triad (see
 ``bench_sources.py``). Cases: the flat source driver, the flat T_ab driver (lower and upper),
 float64 and float32 on contiguous arrays; and a ghost-zone view of the (size + 6)^3 grid, where
@@ -14,13 +15,10 @@ share of the triad and the median of the paired time ratios new / old.
 from __future__ import annotations
 
 import argparse
-import importlib.util
 import math
 import os
 import statistics
-import subprocess
 import sys
-import tempfile
 
 import numpy as np
 
@@ -30,22 +28,7 @@ from emsource.kernels import sources as current
 from emsource.kernels._compile import call_sharing_layouts
 
 from bench_sources import Triad, flat_space_fields, interleaved, paired_ratio
-
-ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
-
-
-def revision_module(rev):
-    """``kernels/sources.py`` at ``rev`` as the module ``emsource.kernels._revision_sources``."""
-    source = subprocess.run(["git", "show", f"{rev}:kernels/sources.py"], cwd=ROOT, check=True,
-                            capture_output=True, text=True).stdout
-    directory = tempfile.mkdtemp(prefix="emsource-ab-")
-    path = os.path.join(directory, "revision_sources.py")
-    with open(path, "w") as handle:
-        handle.write(source)
-    spec = importlib.util.spec_from_file_location("emsource.kernels._revision_sources", path)
-    module = importlib.util.module_from_spec(spec)
-    spec.loader.exec_module(module)
-    return module
+from kernel_revision import revision_module
 
 
 def cases_of(n, old):
@@ -97,7 +80,7 @@ def main(argv=None):
     parser.add_argument("--repeat", type=int, default=7, help="repetitions per median")
     args = parser.parse_args(argv)
     load = os.getloadavg()[0]
-    old = revision_module(args.rev)
+    old = revision_module(args.rev, "sources")
     triad = Triad()
     results = interleaved(cases_of(args.size, old), triad, args.repeat)
     n = args.size

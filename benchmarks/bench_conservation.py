@@ -1,6 +1,6 @@
 """Speed of the conservation residual (emsource.conservation), with a bandwidth yardstick.
 
-Run:  python benchmarks/bench_conservation.py [--points 128] [--repeat 7]
+Run:  python benchmarks/bench_conservation.py [--points 128] [--repeat 7] [--rev b89a3b2]
 
 In one run and on the same Numba threads it measures
   (a) a STREAM-style triad a = b + s c (bandwidth counted as 3 arrays moved, the usual way),
@@ -15,8 +15,9 @@ In one run and on the same Numba threads it measures
       be read apart;
   (c) a plain-NumPy implementation of the same residual (slicing for the differences, whole-
       grid temporaries), written here, and the speed-up of (b) over it.
-The kernels as they were before the stack strip buffer (``conservation_old_kernels.py`` beside
-this script) are timed in the same run, each right after the current ones, at orders 2, 4, 6.
+The kernels as they were before the stack strip buffer (``kernels/conservation.py`` at git
+revision ``--rev``, loaded by ``kernel_revision.py``) are timed in the same run, each right after
+the current ones, at orders 2, 4, 6.
 It prints medians: points per second, the effective bandwidth counting each array the two
 passes read or write once (94 per point), its share of the triad, and the ratios.
 The machine is shared and noisy: read ratios, not absolute figures.
@@ -41,7 +42,7 @@ from emsource.kernels._compile import grid_kernel
 from emsource.kernels.stencils import d1_column, first_derivative_weights
 
 sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
-import conservation_old_kernels as old_kernels  # noqa: E402  (the "before", see docstring)
+from kernel_revision import revision_module  # noqa: E402  (the "before", see docstring)
 
 # Pass 1 reads alpha, beta 3, gamma 6, E 3, B 3, dt_gamma 6, dt_E 3, dt_B 3 and writes 16;
 # pass 2 reads alpha, beta 3, gamma 6, K 6, E 3, B 3, rho_e, j 3, work 16 and writes 8.
@@ -218,8 +219,11 @@ def main(argv=None):
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--points", type=int, default=128, help="points per axis (default 128)")
     parser.add_argument("--repeat", type=int, default=7, help="repetitions per median (default 7)")
+    parser.add_argument("--rev", default="b89a3b2",
+                        help="git revision of the old kernels (default b89a3b2, before the stack buffer)")
     args = parser.parse_args(argv)
     n = args.points
+    old_kernels = revision_module(args.rev, "conservation")
     print(f"numba {numba.__version__}, numpy {np.__version__}, {numba.get_num_threads()} threads, "
           f"{n}^3 float64, medians of {args.repeat}; load average {os.getloadavg()} at "
           f"{time.strftime('%H:%M:%S', time.gmtime())} UTC")

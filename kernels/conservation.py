@@ -312,8 +312,8 @@ def residuals(alpha, beta, gamma, gidx, K, kidx, E, B, charge, current, work,
     With a buffer from ``np.empty`` the point values had to be copied into it first (27 short
     loops) and each derivative had its own loop; a stack buffer overlaps no input, so loops
     that read many input rows and write only the buffer vectorise without checks. Against the
-    previous shape (kept in ``benchmarks/conservation_old_kernels.py``) this takes 0.9 of the
-    CPU time at 128^3 and the same at 134^3 (README "Speed": the derivative loops are bound by
+    previous shape (commit b89a3b2, timed by ``benchmarks/bench_conservation.py``) this takes
+    0.9 of the CPU time at 128^3 and the same at 134^3 (README "Speed": the derivative loops are bound by
     reading the neighbouring rows, not by their number). Indices along z are unsigned for the
     reason given in ``d1_column``.
     """
