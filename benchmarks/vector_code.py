@@ -51,6 +51,9 @@ def measure():
         for p, a in zip(padded, (gamma, E, B)):
             p[...] = a
         emsource.adm_sources(gamma, E, B)
+        for field_index in ("lower", "densitized"):  # one driver per input form
+            emsource.adm_sources(gamma, E, B, field_index=field_index)
+        emsource.stress_energy_4d(alpha, beta, gamma, E, B, index="upper")
         emsource.adm_sources(*padded)
         emsource.adm_sources(gamma[ghost], E[ghost], B[ghost])
         emsource.adm_sources(*(np.moveaxis(a, 0, -1) for a in (gamma, E, B)),
@@ -59,18 +62,26 @@ def measure():
         emsource.stress_energy_4d(alpha[ghost[1:]], beta[ghost], gamma[ghost], E[ghost], B[ghost])
         emsource.stress_energy_4d(alpha, *(np.moveaxis(a, 0, -1) for a in (beta, gamma, E, B)),
                                   layout="component_last")
-    drivers = [getattr(sources, name) for name in ("adm_sources_flat", "adm_sources_window",
-                                                   "adm_sources_grid", "stress_energy_flat",
-                                                   "stress_energy_window", "stress_energy_grid")]
-    print(f"{'driver':22s} {'first argument':34s} {'xmm':>5s} {'ymm':>5s} {'zmm':>5s} "
+    forms = {sources.FORM_CONTRAVARIANT: "E^i", sources.FORM_COVARIANT: "E_i",
+             sources.FORM_DENSITIZED: "dens."}
+    drivers = ([(f"{d.py_func.__name__} {forms[f]}", d) for f, d in sources.ADM_SOURCES_FLAT.items()]
+               + [(f"{d.py_func.__name__} {forms[f]}", d)
+                  for f, d in sources.ADM_SOURCES_WINDOW.items()]
+               + [("adm_sources_grid", sources.adm_sources_grid)]
+               + [(f"{d.py_func.__name__} {forms[f]}{' up' if u else ''}", d)
+                  for (f, u), d in sources.STRESS_ENERGY_FLAT.items()]
+               + [(f"{d.py_func.__name__} {forms[f]}{' up' if u else ''}", d)
+                  for (f, u), d in sources.STRESS_ENERGY_WINDOW.items()]
+               + [("stress_energy_grid", sources.stress_energy_grid)])
+    print(f"{'driver':30s} {'first argument':34s} {'xmm':>5s} {'ymm':>5s} {'zmm':>5s} "
           f"{'scalar':>7s}")
-    for driver in drivers:
+    for label, driver in drivers:
         dispatchers = [driver] + [d for (function, _), d in _SHARED_BY_SIGNATURE.items()
                                   if function is driver.py_func]
         for dispatcher in dispatchers:
             for signature in dispatcher.signatures:
                 packed, scalar = counts(dispatcher.inspect_asm(signature))
-                print(f"{driver.py_func.__name__:22s} {str(signature[0]):34s} "
+                print(f"{label:30s} {str(signature[0]):34s} "
                       f"{packed['xmm']:5d} {packed['ymm']:5d} {packed['zmm']:5d} {scalar:7d}")
 
 

@@ -57,7 +57,10 @@ def fields_both_indices(form, gxx, gxy, gxz, gyy, gyz, gzz, d1, d2, d3, l21, l31
     FORM_COVARIANT: f = (E_x, E_y, E_z, B_x, B_y, B_z), raised with gamma^ij (from the factors).
     FORM_DENSITIZED: f = sg (E^x, E^y, E^z, B^x, B^y, B^z), divided by sg = sqrt(det gamma_ij)
     (the caller's sg from the same pivots, so LLVM computes it once), then lowered.
-    One assignment per branch and one return: LLVM then unswitches the loop on ``form``.
+    One assignment per branch and one return. LLVM does not unswitch a vectorised loop on a
+    run-time ``form`` (it computed part of the densitized branch in every form's loop): the
+    vectorised drivers pass it as a constant (:mod:`~emsource.kernels.sources`, one driver
+    per form).
     """
     if form == FORM_COVARIANT:
         ixx, ixy, ixz, iyy, iyz, izz = inverse_metric(d1, d2, d3, l21, l31, l32, one)

@@ -22,7 +22,10 @@ axis (xx, xy, xz, yy, yz, zz), so one compiled kernel serves a packed (6, ...) m
 full (3, 3, ...) metric reshaped to (9, ...) as a view. The ``*_flat`` drivers take arrays of
 shape (ncomp, npoints) (contiguous grids seen as one line); the ``*_grid`` drivers take
 (ncomp, nx, ny, nz) arrays with arbitrary strides (ghost zones sliced off, component-last data)
-and run the same point code on one (ncomp, nz) column view at a time. (Indexing with tuples
+and run the same point code on one (ncomp, nz) column view at a time. The flat and windowed
+drivers exist once per input form (and T_ab / T^ab), with the form a constant in the loop:
+``ADM_SOURCES_FLAT[form]``, ``ADM_SOURCES_WINDOW[form]``, ``STRESS_ENERGY_FLAT[form, upper]``,
+``STRESS_ENERGY_WINDOW[form, upper]`` (they take no ``form``/``upper`` argument). (Indexing with tuples
 built per point, ``a[(c,) + idx]``, is about four times slower: it defeats vectorisation.)
 
 Scalar constants ``coef`` and ``half`` arrive in the dtype of the data so that float32 data are
@@ -46,6 +49,9 @@ from numba import prange
 
 from ._compile import grid_kernel, point_function, search_kernel
 from .electromagnetic import (
+    FORM_CONTRAVARIANT,
+    FORM_COVARIANT,
+    FORM_DENSITIZED,
     energy_momentum_fluxes,
     fields_both_indices,
     momentum_upper,
@@ -235,39 +241,55 @@ def _flux_point(n, alpha, beta, gamma, gidx, E, B, out, form, coef, half, tiny, 
     return valid, point_underflows(r, fields, tiny)
 
 
-@grid_kernel
-def adm_sources_flat(gamma, gidx, E, B, rho, S_i, S_ij, S, form, coef, half, tiny, pivot_floor,
-                     check):
-    """rho, S_i, S_ij, S over arrays of shape (ncomp, row length) and (npoints,), or over
-    C-contiguous (ncomp, *grid) and grid-shaped arrays, which it sees as those (a reshape
-    here costs nothing; each in Python costs a small grid's call about 0.15 us); returns the
-    two counts. The loop count is the scalar output's size: rows may be longer (padded)."""
-    npoints = rho.size
-    gamma = gamma.reshape((gamma.shape[0], gamma.size // gamma.shape[0]))
-    E = E.reshape((E.shape[0], E.size // E.shape[0]))
-    B = B.reshape((B.shape[0], B.size // B.shape[0]))
-    rho = rho.reshape(npoints)
-    S_i = S_i.reshape((S_i.shape[0], S_i.size // S_i.shape[0]))
-    S_ij = S_ij.reshape((S_ij.shape[0], S_ij.size // S_ij.shape[0]))
-    S = S.reshape(npoints)
+@point_function
+def _adm_strip(start, stop, gamma, gidx, E, B, rho, S_i, S_ij, S, form, coef, half, tiny,
+               pivot_floor):
+    """Points ``start`` to ``stop`` (uint64) of (ncomp, npoints) arrays, as :func:`_adm_point`;
+    returns the strip's two counts in the data's dtype (:func:`~.vector_loops.count_flag`)."""
     zero = half - half
     one = half + half
-    bad_count = 0
-    underflow_count = 0
-    length = strip_length(npoints)
-    for strip in prange(strip_count(npoints, length)):
-        start, stop = strip_range(strip, length, npoints)
-        bad = zero
-        low = zero
-        for n in range(start, stop):
-            status = _adm_point(n, gamma, gidx, E, B, rho, S_i, S_ij, S, form, coef, half, tiny,
-                                pivot_floor)
-            bad += count_flag(status & 1, one, zero)
-            low += count_flag(status & 2, one, zero)
-        if check:
-            bad_count += int(bad)
-            underflow_count += int(low)
-    return bad_count, underflow_count
+    bad = zero
+    low = zero
+    for n in range(start, stop):
+        status = _adm_point(n, gamma, gidx, E, B, rho, S_i, S_ij, S, form, coef, half, tiny,
+                            pivot_floor)
+        bad += count_flag(status & 1, one, zero)
+        low += count_flag(status & 2, one, zero)
+    return bad, low
+
+
+def _adm_sources_flat_for(form):
+    """The flat source driver of input form ``form`` (a constant in its loop)."""
+
+    @grid_kernel
+    def adm_sources_flat(gamma, gidx, E, B, rho, S_i, S_ij, S, coef, half, tiny, pivot_floor,
+                         check):
+        """rho, S_i, S_ij, S over arrays of shape (ncomp, row length) and (npoints,), or over
+        C-contiguous (ncomp, *grid) and grid-shaped arrays, which it sees as those (a reshape
+        here costs nothing; each in Python costs a small grid's call about 0.15 us); returns
+        the two counts. The loop count is the scalar output's size: rows may be longer
+        (padded)."""
+        npoints = rho.size
+        gamma = gamma.reshape((gamma.shape[0], gamma.size // gamma.shape[0]))
+        E = E.reshape((E.shape[0], E.size // E.shape[0]))
+        B = B.reshape((B.shape[0], B.size // B.shape[0]))
+        rho = rho.reshape(npoints)
+        S_i = S_i.reshape((S_i.shape[0], S_i.size // S_i.shape[0]))
+        S_ij = S_ij.reshape((S_ij.shape[0], S_ij.size // S_ij.shape[0]))
+        S = S.reshape(npoints)
+        bad_count = 0
+        underflow_count = 0
+        length = strip_length(npoints)
+        for strip in prange(strip_count(npoints, length)):
+            start, stop = strip_range(strip, length, npoints)
+            bad, low = _adm_strip(start, stop, gamma, gidx, E, B, rho, S_i, S_ij, S, form, coef,
+                                  half, tiny, pivot_floor)
+            if check:
+                bad_count += int(bad)
+                underflow_count += int(low)
+        return bad_count, underflow_count
+
+    return adm_sources_flat
 
 
 @point_function
@@ -282,66 +304,82 @@ def _span_metric_fields(gamma, metric_rows, g, E, e_step, e, B, b_step, b):
             B[b_step + b_step + b])
 
 
-@grid_kernel
-def adm_sources_window(gamma, gidx, E, B, rho, S_i, S_ij, S, steps, shape, form, coef, half,
-                       tiny, pivot_floor, check):
-    """rho, S_i, S_ij, S over windows of larger arrays (ghost zones sliced off), each array a
-    1-D span of its memory; returns the two counts.
-
-    Array a (gamma, E, B, rho, S_i, S_ij, S in this order) holds component c of point
-    (i, j, k) of the (nx, ny, nz) = ``shape`` window at c steps[a, 0] + i steps[a, 1]
-    + j steps[a, 2] + k (uint64 element steps; z is contiguous): the loop along z then reads
-    and writes unit-stride rows and vectorises (:mod:`~emsource.kernels.vector_loops`), where
-    :func:`adm_sources_grid` over the same views as strided arrays stays scalar.
-    """
-    ny = np.uint64(shape[1])
-    nz = np.uint64(shape[2])
+@point_function
+def _adm_window_column(gamma, metric_rows, E, e1, B, b1, rho, S_i, v1, S_ij, t1, S, steps, i, j,
+                       nz, form, coef, half, tiny, pivot_floor):
+    """Column (i, j) of windows given as spans, as :func:`adm_sources_window`; returns the
+    column's two counts in the data's dtype."""
     zero = half - half
     one = half + half
-    metric_rows = packed_rows(gidx, steps[0, 0])
-    e1 = steps[1, 0]
-    b1 = steps[2, 0]
-    v1 = steps[4, 0]
-    t1 = steps[5, 0]
-    bad_count = 0
-    underflow_count = 0
-    for column in prange(shape[0] * shape[1]):
-        i, j = window_column(column, ny)
-        at_g = span_start(steps, 0, i, j)
-        at_e = span_start(steps, 1, i, j)
-        at_b = span_start(steps, 2, i, j)
-        at_rho = span_start(steps, 3, i, j)
-        at_v = span_start(steps, 4, i, j)
-        at_t = span_start(steps, 5, i, j)
-        at_s = span_start(steps, 6, i, j)
-        bad = zero
-        low = zero
-        for k in range(nz):
-            (gxx, gxy, gxz, gyy, gyz, gzz, f1, f2, f3, f4, f5, f6) = _span_metric_fields(
-                gamma, metric_rows, at_g + k, E, e1, at_e + k, B, b1, at_b + k)
-            r, sx, sy, sz, sxx, sxy, sxz, syy, syz, szz, status = _adm_values(
-                gxx, gxy, gxz, gyy, gyz, gzz, f1, f2, f3, f4, f5, f6,
-                form, coef, half, tiny, pivot_floor)
-            rho[at_rho + k] = r
-            S[at_s + k] = r
-            v = at_v + k
-            S_i[v] = sx
-            S_i[v1 + v] = sy
-            S_i[v1 + v1 + v] = sz
-            t = at_t + k
-            S_ij[t] = sxx
-            S_ij[t1 + t] = sxy
-            S_ij[t1 + t1 + t] = sxz
-            t = t1 + t1 + t1 + t
-            S_ij[t] = syy
-            S_ij[t1 + t] = syz
-            S_ij[t1 + t1 + t] = szz
-            bad += count_flag(status & 1, one, zero)
-            low += count_flag(status & 2, one, zero)
-        if check:
-            bad_count += int(bad)
-            underflow_count += int(low)
-    return bad_count, underflow_count
+    at_g = span_start(steps, 0, i, j)
+    at_e = span_start(steps, 1, i, j)
+    at_b = span_start(steps, 2, i, j)
+    at_rho = span_start(steps, 3, i, j)
+    at_v = span_start(steps, 4, i, j)
+    at_t = span_start(steps, 5, i, j)
+    at_s = span_start(steps, 6, i, j)
+    bad = zero
+    low = zero
+    for k in range(nz):
+        (gxx, gxy, gxz, gyy, gyz, gzz, f1, f2, f3, f4, f5, f6) = _span_metric_fields(
+            gamma, metric_rows, at_g + k, E, e1, at_e + k, B, b1, at_b + k)
+        r, sx, sy, sz, sxx, sxy, sxz, syy, syz, szz, status = _adm_values(
+            gxx, gxy, gxz, gyy, gyz, gzz, f1, f2, f3, f4, f5, f6,
+            form, coef, half, tiny, pivot_floor)
+        rho[at_rho + k] = r
+        S[at_s + k] = r
+        v = at_v + k
+        S_i[v] = sx
+        S_i[v1 + v] = sy
+        S_i[v1 + v1 + v] = sz
+        t = at_t + k
+        S_ij[t] = sxx
+        S_ij[t1 + t] = sxy
+        S_ij[t1 + t1 + t] = sxz
+        t = t1 + t1 + t1 + t
+        S_ij[t] = syy
+        S_ij[t1 + t] = syz
+        S_ij[t1 + t1 + t] = szz
+        bad += count_flag(status & 1, one, zero)
+        low += count_flag(status & 2, one, zero)
+    return bad, low
+
+
+def _adm_sources_window_for(form):
+    """The windowed source driver of input form ``form`` (a constant in its loop)."""
+
+    @grid_kernel
+    def adm_sources_window(gamma, gidx, E, B, rho, S_i, S_ij, S, steps, shape, coef, half, tiny,
+                           pivot_floor, check):
+        """rho, S_i, S_ij, S over windows of larger arrays (ghost zones sliced off), each array
+        a 1-D span of its memory; returns the two counts.
+
+        Array a (gamma, E, B, rho, S_i, S_ij, S in this order) holds component c of point
+        (i, j, k) of the (nx, ny, nz) = ``shape`` window at c steps[a, 0] + i steps[a, 1]
+        + j steps[a, 2] + k (uint64 element steps; z is contiguous): the loop along z then
+        reads and writes unit-stride rows and vectorises (:mod:`~emsource.kernels.vector_loops`),
+        where :func:`adm_sources_grid` over the same views as strided arrays stays scalar.
+        """
+        ny = np.uint64(shape[1])
+        nz = np.uint64(shape[2])
+        metric_rows = packed_rows(gidx, steps[0, 0])
+        e1 = steps[1, 0]
+        b1 = steps[2, 0]
+        v1 = steps[4, 0]
+        t1 = steps[5, 0]
+        bad_count = 0
+        underflow_count = 0
+        for column in prange(shape[0] * shape[1]):
+            i, j = window_column(column, ny)
+            bad, low = _adm_window_column(gamma, metric_rows, E, e1, B, b1, rho, S_i, v1, S_ij,
+                                          t1, S, steps, i, j, nz, form, coef, half, tiny,
+                                          pivot_floor)
+            if check:
+                bad_count += int(bad)
+                underflow_count += int(low)
+        return bad_count, underflow_count
+
+    return adm_sources_window
 
 
 @grid_kernel
@@ -370,92 +408,142 @@ def adm_sources_grid(gamma, gidx, E, B, rho, S_i, S_ij, S, form, coef, half, tin
     return bad_count, underflow_count
 
 
-@grid_kernel
-def stress_energy_flat(alpha, beta, gamma, gidx, E, B, T, form, coef, half, tiny, pivot_floor,
-                       upper, check):
-    """Packed T_ab or T^ab over (ncomp, npoints) arrays; returns the two counts."""
+@point_function
+def _stress_energy_strip(start, stop, alpha, beta, gamma, gidx, E, B, T, form, coef, half, tiny,
+                         pivot_floor, upper):
+    """Points ``start`` to ``stop`` (uint64) of (ncomp, npoints) arrays, as
+    :func:`_stress_energy_point`; returns the strip's two counts in the data's dtype."""
     zero = half - half
     one = half + half
-    bad_count = 0
-    underflow_count = 0
-    npoints = alpha.shape[0]
-    length = strip_length(npoints)
-    for strip in prange(strip_count(npoints, length)):
-        start, stop = strip_range(strip, length, npoints)
-        bad = zero
-        low = zero
-        for n in range(start, stop):
-            status = _stress_energy_point(n, alpha, beta, gamma, gidx, E, B, T, form, coef, half,
-                                          tiny, pivot_floor, upper)
-            bad += count_flag(status & 1, one, zero)
-            low += count_flag(status & 2, one, zero)
-        if check:
-            bad_count += int(bad)
-            underflow_count += int(low)
-    return bad_count, underflow_count
+    bad = zero
+    low = zero
+    for n in range(start, stop):
+        status = _stress_energy_point(n, alpha, beta, gamma, gidx, E, B, T, form, coef, half,
+                                      tiny, pivot_floor, upper)
+        bad += count_flag(status & 1, one, zero)
+        low += count_flag(status & 2, one, zero)
+    return bad, low
 
 
-@grid_kernel
-def stress_energy_window(alpha, beta, gamma, gidx, E, B, T, steps, shape, form, coef, half, tiny,
-                         pivot_floor, upper, check):
-    """Packed T_ab or T^ab over windows of larger arrays given as 1-D spans (alpha, beta,
-    gamma, E, B, T: rows of ``steps`` in this order), as :func:`adm_sources_window`; returns
-    the two counts."""
-    ny = np.uint64(shape[1])
-    nz = np.uint64(shape[2])
+def _stress_energy_flat_for(form, upper):
+    """The flat T_ab (``upper`` False) or T^ab driver of input form ``form`` (both constants
+    in its loop)."""
+
+    @grid_kernel
+    def stress_energy_flat(alpha, beta, gamma, gidx, E, B, T, coef, half, tiny, pivot_floor,
+                           check):
+        """Packed T_ab or T^ab over (ncomp, npoints) arrays; returns the two counts."""
+        bad_count = 0
+        underflow_count = 0
+        npoints = alpha.shape[0]
+        length = strip_length(npoints)
+        for strip in prange(strip_count(npoints, length)):
+            start, stop = strip_range(strip, length, npoints)
+            bad, low = _stress_energy_strip(start, stop, alpha, beta, gamma, gidx, E, B, T, form,
+                                            coef, half, tiny, pivot_floor, upper)
+            if check:
+                bad_count += int(bad)
+                underflow_count += int(low)
+        return bad_count, underflow_count
+
+    return stress_energy_flat
+
+
+@point_function
+def _stress_energy_window_column(alpha, beta, s1, gamma, metric_rows, E, e1, B, b1, T, t1, steps,
+                                 i, j, nz, form, coef, half, tiny, pivot_floor, upper):
+    """Column (i, j) of windows given as spans, as :func:`stress_energy_window`; returns the
+    column's two counts in the data's dtype."""
     zero = half - half
     one = half + half
-    metric_rows = packed_rows(gidx, steps[2, 0])
-    s1 = steps[1, 0]
-    e1 = steps[3, 0]
-    b1 = steps[4, 0]
-    t1 = steps[5, 0]
-    bad_count = 0
-    underflow_count = 0
-    for column in prange(shape[0] * shape[1]):
-        i, j = window_column(column, ny)
-        at_a = span_start(steps, 0, i, j)
-        at_s = span_start(steps, 1, i, j)
-        at_g = span_start(steps, 2, i, j)
-        at_e = span_start(steps, 3, i, j)
-        at_b = span_start(steps, 4, i, j)
-        at_t = span_start(steps, 5, i, j)
-        bad = zero
-        low = zero
-        for k in range(nz):
-            (gxx, gxy, gxz, gyy, gyz, gzz, f1, f2, f3, f4, f5, f6) = _span_metric_fields(
-                gamma, metric_rows, at_g + k, E, e1, at_e + k, B, b1, at_b + k)
-            v = at_s + k
-            c0, c1, c2, c3, c4, c5, c6, c7, c8, c9, status = _stress_energy_values(
-                gxx, gxy, gxz, gyy, gyz, gzz, f1, f2, f3, f4, f5, f6,
-                alpha[at_a + k], beta[v], beta[s1 + v], beta[s1 + s1 + v],
-                form, coef, half, tiny, pivot_floor, upper)
-            t = at_t + k
-            T[t] = c0
-            t += t1
-            T[t] = c1
-            t += t1
-            T[t] = c2
-            t += t1
-            T[t] = c3
-            t += t1
-            T[t] = c4
-            t += t1
-            T[t] = c5
-            t += t1
-            T[t] = c6
-            t += t1
-            T[t] = c7
-            t += t1
-            T[t] = c8
-            t += t1
-            T[t] = c9
-            bad += count_flag(status & 1, one, zero)
-            low += count_flag(status & 2, one, zero)
-        if check:
-            bad_count += int(bad)
-            underflow_count += int(low)
-    return bad_count, underflow_count
+    at_a = span_start(steps, 0, i, j)
+    at_s = span_start(steps, 1, i, j)
+    at_g = span_start(steps, 2, i, j)
+    at_e = span_start(steps, 3, i, j)
+    at_b = span_start(steps, 4, i, j)
+    at_t = span_start(steps, 5, i, j)
+    bad = zero
+    low = zero
+    for k in range(nz):
+        (gxx, gxy, gxz, gyy, gyz, gzz, f1, f2, f3, f4, f5, f6) = _span_metric_fields(
+            gamma, metric_rows, at_g + k, E, e1, at_e + k, B, b1, at_b + k)
+        v = at_s + k
+        c0, c1, c2, c3, c4, c5, c6, c7, c8, c9, status = _stress_energy_values(
+            gxx, gxy, gxz, gyy, gyz, gzz, f1, f2, f3, f4, f5, f6,
+            alpha[at_a + k], beta[v], beta[s1 + v], beta[s1 + s1 + v],
+            form, coef, half, tiny, pivot_floor, upper)
+        t = at_t + k
+        T[t] = c0
+        t += t1
+        T[t] = c1
+        t += t1
+        T[t] = c2
+        t += t1
+        T[t] = c3
+        t += t1
+        T[t] = c4
+        t += t1
+        T[t] = c5
+        t += t1
+        T[t] = c6
+        t += t1
+        T[t] = c7
+        t += t1
+        T[t] = c8
+        t += t1
+        T[t] = c9
+        bad += count_flag(status & 1, one, zero)
+        low += count_flag(status & 2, one, zero)
+    return bad, low
+
+
+def _stress_energy_window_for(form, upper):
+    """The windowed T_ab / T^ab driver of input form ``form`` (both constants in its loop)."""
+
+    @grid_kernel
+    def stress_energy_window(alpha, beta, gamma, gidx, E, B, T, steps, shape, coef, half, tiny,
+                             pivot_floor, check):
+        """Packed T_ab or T^ab over windows of larger arrays given as 1-D spans (alpha, beta,
+        gamma, E, B, T: rows of ``steps`` in this order), as the windowed source driver;
+        returns the two counts."""
+        ny = np.uint64(shape[1])
+        nz = np.uint64(shape[2])
+        metric_rows = packed_rows(gidx, steps[2, 0])
+        s1 = steps[1, 0]
+        e1 = steps[3, 0]
+        b1 = steps[4, 0]
+        t1 = steps[5, 0]
+        bad_count = 0
+        underflow_count = 0
+        for column in prange(shape[0] * shape[1]):
+            i, j = window_column(column, ny)
+            bad, low = _stress_energy_window_column(alpha, beta, s1, gamma, metric_rows, E, e1, B,
+                                                    b1, T, t1, steps, i, j, nz, form, coef, half,
+                                                    tiny, pivot_floor, upper)
+            if check:
+                bad_count += int(bad)
+                underflow_count += int(low)
+        return bad_count, underflow_count
+
+    return stress_energy_window
+
+
+# ------------------------------------------------------------------ one driver per input form
+# The input form (and, for T_ab, the index position) is a constant in each of these drivers'
+# loops: with both as run-time values LLVM kept one loop and computed part of the other forms'
+# arithmetic in it (DEVELOPERS.md "Vectorised point loops"). Each compiles on first use, so a
+# program that uses one form compiles one loop; indexed by form code (and ``upper``).
+INPUT_FORMS = (FORM_CONTRAVARIANT, FORM_COVARIANT, FORM_DENSITIZED)
+#: The flat source driver of each input form.
+ADM_SOURCES_FLAT = {form: _adm_sources_flat_for(form) for form in INPUT_FORMS}
+#: The windowed source driver of each input form.
+ADM_SOURCES_WINDOW = {form: _adm_sources_window_for(form) for form in INPUT_FORMS}
+#: The flat T_ab / T^ab driver of each (input form, upper).
+STRESS_ENERGY_FLAT = {(form, upper): _stress_energy_flat_for(form, upper)
+                      for form in INPUT_FORMS for upper in (False, True)}
+#: The windowed T_ab / T^ab driver of each (input form, upper).
+STRESS_ENERGY_WINDOW = {(form, upper): _stress_energy_window_for(form, upper)
+                        for form in INPUT_FORMS for upper in (False, True)}
 
 
 @grid_kernel

@@ -31,7 +31,7 @@ def test_kernel_cache_stamp_covers_the_whole_kernels_folder():
     gamma = np.zeros((6, 3, 3, 3))
     gamma[[0, 3, 5]] = 1.0
     emsource.adm_sources(gamma, np.ones((3, 3, 3, 3)), np.ones((3, 3, 3, 3)))
-    locator = source_kernels.adm_sources_flat._cache._impl._locator
+    locator = source_kernels.ADM_SOURCES_FLAT[0]._cache._impl._locator
     own_stamp, folder_stamp = locator.get_source_stamp()
     assert folder_stamp == _independent_stamp(os.path.dirname(source_kernels.__file__))
     assert type(locator).__name__.startswith("TreeStamped")

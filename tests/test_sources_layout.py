@@ -99,8 +99,8 @@ def test_inputs_reach_the_kernel_without_copies(rng, monkeypatch, route):
     elif route == "columns":  # z reversed: no unit stride along z, the column loop
         gamma, E, B = (a[:, 2:-2, 1:-1, ::-1] for a in (gamma, E, B))
     if route == "flat":
-        spy = _Spy(kernels.adm_sources_flat)
-        monkeypatch.setattr(kernels, "adm_sources_flat", spy)
+        spy = _Spy(kernels.ADM_SOURCES_FLAT[0])
+        monkeypatch.setitem(kernels.ADM_SOURCES_FLAT, 0, spy)
     else:  # the strided drivers are called through the route that shares one specialisation
         spy = _SharedRouteSpy(emsource.sources.call_sharing_layouts)
         monkeypatch.setattr(emsource.sources, "call_sharing_layouts", spy)

@@ -179,12 +179,12 @@ def _driver_counts(arrays, route):
     constants = arg.kernel_constants(0, dtype, 1 / (4 * math.pi))
     gidx = np.arange(6)
     if route == "flat":
-        return tuple(kernels.adm_sources_flat(gamma, gidx, E, B, *out, *constants, True))
+        return tuple(kernels.ADM_SOURCES_FLAT[0](gamma, gidx, E, B, *out, *constants[1:], True))
     # Through the route the package takes, which shares one compiled specialisation per layout.
     if route == "window":
         (g, e, b, *outputs), steps, shape = arg.unit_stride_spans([gamma, E, B] + out)
-        arguments = (g, gidx, e, b, *outputs, steps, shape, *constants, True)
-        return tuple(call_sharing_layouts(kernels.adm_sources_window, arguments, (0, 2, 3)))
+        arguments = (g, gidx, e, b, *outputs, steps, shape, *constants[1:], True)
+        return tuple(call_sharing_layouts(kernels.ADM_SOURCES_WINDOW[0], arguments, (0, 2, 3)))
     arguments = (gamma, gidx, E, B, *out, *constants, True)
     return tuple(call_sharing_layouts(kernels.adm_sources_grid, arguments, (0, 2, 3)))
 

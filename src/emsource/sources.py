@@ -308,18 +308,21 @@ def _run_adm_kernel(grid, dtype, gidx, constants, views, flat, check):
     """One call of the source driver on kernel views (flat loop, windowed loop or column loop);
     on counted bad points, the search for the first one and :class:`GridPointError`."""
     g, ev, bv, rho, s_i, s_ij, s = views
+    form, physics = constants[0], constants[1:]  # the vectorised drivers: one per form
     with kernel_call():
-        arguments = (g, gidx, ev, bv, rho, s_i, s_ij, s, *constants, bool(check))
         spans = None if flat else arg.unit_stride_spans(views)
         if flat:
-            counts = kernels.adm_sources_flat(*arguments)
+            counts = kernels.ADM_SOURCES_FLAT[form](g, gidx, ev, bv, rho, s_i, s_ij, s, *physics,
+                                                    bool(check))
         elif spans is not None:  # windows contiguous along z (ghost zones sliced off)
             (g1, e1, b1, *outputs), steps, shape = spans
             counts = call_sharing_layouts(
-                kernels.adm_sources_window,
-                (g1, gidx, e1, b1, *outputs, steps, shape, *constants, bool(check)), (0, 2, 3))
+                kernels.ADM_SOURCES_WINDOW[form],
+                (g1, gidx, e1, b1, *outputs, steps, shape, *physics, bool(check)), (0, 2, 3))
         else:  # every mix of strided inputs shares one specialisation of the column loop
-            counts = call_sharing_layouts(kernels.adm_sources_grid, arguments, (0, 2, 3))
+            counts = call_sharing_layouts(
+                kernels.adm_sources_grid,
+                (g, gidx, ev, bv, rho, s_i, s_ij, s, *constants, bool(check)), (0, 2, 3))
         if counts[0] or counts[1]:
             grid_views = arg.as_grid_views([g, ev, bv, rho, s_i, s_ij, s], flat, grid)
             raise_for_counts("adm_sources", counts, grid, dtype, kernels.first_failing_adm,
@@ -388,17 +391,20 @@ def stress_energy_4d(alpha, beta, gamma, E, B, *, units="gaussian", index="lower
     if not arg.has_points(grid):
         return result
     (a, be, g, ev, bv, t), flat = arg.kernel_views([lapse, shift, metric, e, b, t_view], grid)
-    constants = arg.kernel_constants(form, dtype, prefactor) + (index == "upper",)
+    upper = index == "upper"
+    constants = arg.kernel_constants(form, dtype, prefactor) + (upper,)
+    physics = constants[1:-1]  # the vectorised drivers: one per (form, upper)
     with kernel_call():
         arguments = (a, be, g, gidx, ev, bv, t, *constants, bool(check))
         spans = None if flat else arg.unit_stride_spans([a, be, g, ev, bv, t])
         if flat:
-            counts = kernels.stress_energy_flat(*arguments)
+            counts = kernels.STRESS_ENERGY_FLAT[form, upper](a, be, g, gidx, ev, bv, t, *physics,
+                                                             bool(check))
         elif spans is not None:  # windows contiguous along z (ghost zones sliced off)
             (a1, be1, g1, e1, b1, t1), steps, window = spans
             counts = call_sharing_layouts(
-                kernels.stress_energy_window,
-                (a1, be1, g1, gidx, e1, b1, t1, steps, window, *constants, bool(check)),
+                kernels.STRESS_ENERGY_WINDOW[form, upper],
+                (a1, be1, g1, gidx, e1, b1, t1, steps, window, *physics, bool(check)),
                 (0, 1, 2, 4, 5))
         else:
             counts = call_sharing_layouts(kernels.stress_energy_grid, arguments, (0, 1, 2, 4, 5))
