@@ -44,7 +44,7 @@ from numba import prange
 from ._compile import grid_kernel, point_function
 from .strip_buffers import strip_buffer
 from .metric import inverse_metric, metric_factors
-from .stencils import d1_column, d1_d2_column, d11_column, value_column
+from .stencils import d1_axes_column, d1_d2_column, d1_ring, d1_row, value_column
 
 #: Points along z per strip (the row length of the per-column buffer). A literal, so that LLVM
 #: sees the buffer's row stride as a constant and can prove that rows do not overlap.
@@ -69,6 +69,18 @@ _KM = 163   # K_a^b = K_ac gamma^cb at 163 + 3 a + b    9
 _RIC = 172  # R_p                                       6
 _OUT = 178  # H, H scale, M_x, M_y, M_z, their three scales: 8
 _ROWS = 186
+
+#: Columns along y per parallel task (one x index and a band of y): the task walks them in
+#: order, so each column's d_x g is computed once and kept for the mixed derivatives.
+_BAND = 64
+#: Row length of the ring buffer: a strip widened by the largest stencil radius (3) at each end.
+_SPAN = 72
+# Rows of the ring buffer: slot s (grid column j = s mod (2 r + 1)) holds d_x g_p at
+# _RING_STEP s + p and d_xx g_p at _RING_STEP s + 6 + p, on the strip widened by r in z;
+# after the 7 slots of order 6, d_y g_p at _SIDE + p and d_yy g_p at _SIDE + 6 + p (column j).
+_RING_STEP = 12
+_SIDE = 7 * _RING_STEP
+_RING_ROWS = _SIDE + 12
 
 
 @point_function
@@ -245,66 +257,92 @@ def adm_constraints_grid(gamma, K, rho, S, interior, w1, w2, inv_h, sixteen_pi, 
     half = 0.5
     two = 2.0
     nan = np.nan
-    for column in prange(nx * ny):
-        i = column // ny
-        j = column - i * ny
-        edge = (i < r) | (i >= nx - r) | (j < r) | (j >= ny - r)
-        for k in range(nz):
-            if edge | (k < r) | (k >= nz - r):
-                H[i, j, k] = nan
-                H_scale[i, j, k] = nan
-                for a in range(3):
-                    M[a, i, j, k] = nan
-                    M_scale[a, i, j, k] = nan
-        if edge:
+    period = 2 * r + 1  # ring slots: the columns j - r..j + r
+    bands = (ny + _BAND - 1) // _BAND
+    for task in prange(nx * bands):
+        i = task // bands
+        band = task - i * bands
+        low = band * _BAND
+        high = min(ny, low + _BAND)
+        edge_i = (i < r) | (i >= nx - r)
+        for j in range(low, high):
+            edge = edge_i | (j < r) | (j >= ny - r)
+            for k in range(nz):
+                if edge | (k < r) | (k >= nz - r):
+                    H[i, j, k] = nan
+                    H_scale[i, j, k] = nan
+                    for a in range(3):
+                        M[a, i, j, k] = nan
+                        M_scale[a, i, j, k] = nan
+        first = max(low, r)
+        last = min(high, ny - r)
+        if edge_i | (first >= last):
             continue
         # On the thread's stack (see strip_buffers: no run-time overlap checks).
         buf = strip_buffer(_ROWS, _STRIP, H)
+        ring = strip_buffer(_RING_ROWS, _SPAN, H)
         for start in range(r, nz - r, _STRIP):
             count = min(_STRIP, nz - r - start)
+            span = count + 2 * r
             base = u(start)
-            for p in range(6):
-                value_column(gamma, p, i, j, start, count, buf, _G + p)
-                value_column(K, p, i, j, start, count, buf, _KL + p)
-            for q in range(3):
+            # Walk the band's columns in order along y; column j + r enters the ring of d_x g,
+            # d_xx g (on the strip widened by r in z), then column j is done.
+            for entering in range(first - r, last + r):
+                slot = entering % period
                 for p in range(6):
-                    d1_d2_column(gamma, p, i, j, start, count, q, r, w1, w2, inv_h[q], buf,
-                                 _DG + 6 * q + p, _DDG + 6 * _pair(q, q) + p)
-                    d1_column(K, p, i, j, start, count, q, r, w1, inv_h[q], buf,
-                              _DK + 6 * q + p)
-            for q in range(2):
-                for s in range(q + 1, 3):
-                    for p in range(6):
-                        d11_column(gamma, p, i, j, start, count, q, s, r, w1, inv_h[q],
-                                   inv_h[s], buf, _DDG + 6 * _pair(q, s) + p)
-            for n in range(count):
-                buf[_RHO, n] = rho[i, j, base + u(n)]
-            for a in range(3):
-                value_column(S, a, i, j, start, count, buf, _SRC + a)
-            # The algebra, one loop along the strip per call; literal indices (docstring).
-            _inverse_metric_rows(buf, count, half + half)
-            _christoffel_rows(buf, count, half)
-            _raised_christoffel_rows(buf, count)
-            _christoffel_contractions(buf, count, two)
-            _mixed_curvature_rows(buf, count)
-            _ricci_row(buf, count, 0, 0, half)
-            _ricci_row(buf, count, 0, 1, half)
-            _ricci_row(buf, count, 0, 2, half)
-            _ricci_row(buf, count, 1, 1, half)
-            _ricci_row(buf, count, 1, 2, half)
-            _ricci_row(buf, count, 2, 2, half)
-            _hamiltonian_rows(buf, count, sixteen_pi, two)
-            _momentum_rows(buf, count, 0, eight_pi, two)
-            _momentum_rows(buf, count, 1, eight_pi, two)
-            _momentum_rows(buf, count, 2, eight_pi, two)
-            for n in range(count):
-                k = base + u(n)
-                inside = interior[i, j, k] != 0
-                H[i, j, k] = buf[_OUT, n] if inside else nan
-                H_scale[i, j, k] = buf[_OUT + 1, n] if inside else nan
-            for a in range(3):
+                    d1_d2_column(gamma, p, i, entering, start - r, span, 0, r, w1, w2, inv_h[0],
+                                 ring, _RING_STEP * slot + p, _RING_STEP * slot + 6 + p)
+                j = entering - r
+                if j < first:
+                    continue
+                centre = j % period
+                for p in range(6):
+                    value_column(gamma, p, i, j, start, count, buf, _G + p)
+                    value_column(K, p, i, j, start, count, buf, _KL + p)
+                    d1_d2_column(gamma, p, i, j, start, count, 2, r, w1, w2, inv_h[2], buf,
+                                 _DG + 12 + p, _DDG + 6 * _pair(2, 2) + p)
+                    d1_d2_column(gamma, p, i, j, start - r, span, 1, r, w1, w2, inv_h[1], ring,
+                                 _SIDE + p, _SIDE + 6 + p)
+                    # d_x g, d_xx g and d_xz g = d_z (d_x g) from the ring's centre slot.
+                    d1_row(ring, _RING_STEP * centre + p, _RING_STEP * centre + 6 + p, r, count,
+                           r, w1, inv_h[2], buf, _DG + p, _DDG + 6 * _pair(0, 0) + p,
+                           _DDG + 6 * _pair(0, 2) + p)
+                    # d_y g, d_yy g and d_yz g = d_z (d_y g).
+                    d1_row(ring, _SIDE + p, _SIDE + 6 + p, r, count, r, w1, inv_h[2], buf,
+                           _DG + 6 + p, _DDG + 6 * _pair(1, 1) + p, _DDG + 6 * _pair(1, 2) + p)
+                    # d_xy g = d_y (d_x g) across the ring's slots.
+                    d1_ring(ring, p, _RING_STEP, period, centre, r, count, r, w1, inv_h[1], buf,
+                            _DDG + 6 * _pair(0, 1) + p)
+                    d1_axes_column(K, p, i, j, start, count, r, 1, 1, 1, w1, inv_h[0], inv_h[1],
+                                   inv_h[2], buf, _DK + p, _DK + 6 + p, _DK + 12 + p)
+                for n in range(count):
+                    buf[_RHO, n] = rho[i, j, base + u(n)]
+                for a in range(3):
+                    value_column(S, a, i, j, start, count, buf, _SRC + a)
+                # The algebra, one loop along the strip per call; literal indices (docstring).
+                _inverse_metric_rows(buf, count, half + half)
+                _christoffel_rows(buf, count, half)
+                _raised_christoffel_rows(buf, count)
+                _christoffel_contractions(buf, count, two)
+                _mixed_curvature_rows(buf, count)
+                _ricci_row(buf, count, 0, 0, half)
+                _ricci_row(buf, count, 0, 1, half)
+                _ricci_row(buf, count, 0, 2, half)
+                _ricci_row(buf, count, 1, 1, half)
+                _ricci_row(buf, count, 1, 2, half)
+                _ricci_row(buf, count, 2, 2, half)
+                _hamiltonian_rows(buf, count, sixteen_pi, two)
+                _momentum_rows(buf, count, 0, eight_pi, two)
+                _momentum_rows(buf, count, 1, eight_pi, two)
+                _momentum_rows(buf, count, 2, eight_pi, two)
                 for n in range(count):
                     k = base + u(n)
                     inside = interior[i, j, k] != 0
-                    M[a, i, j, k] = buf[_OUT + 2 + a, n] if inside else nan
-                    M_scale[a, i, j, k] = buf[_OUT + 5 + a, n] if inside else nan
+                    H[i, j, k] = buf[_OUT, n] if inside else nan
+                    H_scale[i, j, k] = buf[_OUT + 1, n] if inside else nan
+                for a in range(3):
+                    for n in range(count):
+                        k = base + u(n)
+                        inside = interior[i, j, k] != 0
+                        M[a, i, j, k] = buf[_OUT + 2 + a, n] if inside else nan
+                        M_scale[a, i, j, k] = buf[_OUT + 5 + a, n] if inside else nan
