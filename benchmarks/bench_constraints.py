@@ -38,13 +38,12 @@ from emsource.kernels._compile import grid_kernel
 from emsource.kernels import constraints as strips
 from emsource.kernels.constraints import adm_constraints_grid
 from emsource.kernels.strip_buffers import strip_buffer
-from emsource.kernels.stencils import (d1_column, d1_d2_column, d11_column,
-                                       first_derivative_weights, second_derivative_weights,
-                                       value_column)
+from emsource.kernels.stencils import first_derivative_weights, second_derivative_weights
 from numba import prange
 
-#: The strip kernel's buffer shape, as module constants (literal sizes for strip_buffer).
+#: The strip kernel's buffer shapes, as module constants (literal sizes for strip_buffer).
 _ROWS, _STRIP = strips._ROWS, strips._STRIP
+_RING_ROWS, _SPAN = strips._RING_ROWS, strips._SPAN
 
 
 @grid_kernel
@@ -175,49 +174,48 @@ def derived_peak(threads):
 
 @grid_kernel
 def _stencil_probe(gamma, K, rho, S, interior, w1, w2, inv_h, H, M, H_scale, M_scale):
-    """The strip kernel's memory traffic and stencils without its algebra: the same 72
-    derivatives and 16 values into the same buffer, then 8 of its rows to the outputs (the
-    loop nest of ``adm_constraints_grid``; edges of the grid are not written)."""
+    """The strip kernel's memory traffic and stencils without its algebra: the same loop nest as
+    ``adm_constraints_grid`` and the same calls for the ring of d_x g and the 72 derivatives and
+    16 values of each strip (``_enter_ring``, ``_strip_inputs``), then 8 of the buffer's rows to
+    the outputs (edges of the grid are not written)."""
     u = np.uint64
     nx, ny, nz = rho.shape
     r = w1.shape[0]
-    for column in prange(nx * ny):
-        i = column // ny
-        j = column - i * ny
-        if (i < r) | (i >= nx - r) | (j < r) | (j >= ny - r):
+    period = 2 * r + 1
+    bands = (ny + strips._BAND - 1) // strips._BAND
+    for task in prange(nx * bands):
+        i = task // bands
+        band = task - i * bands
+        low = band * strips._BAND
+        first = max(low, r)
+        last = min(min(ny, low + strips._BAND), ny - r)
+        if (i < r) | (i >= nx - r) | (first >= last):
             continue
         buf = strip_buffer(_ROWS, _STRIP, rho)
+        ring = strip_buffer(_RING_ROWS, _SPAN, rho)
         for start in range(r, nz - r, strips._STRIP):
             count = min(strips._STRIP, nz - r - start)
+            span = count + 2 * r
             base = u(start)
-            for p in range(6):
-                value_column(gamma, p, i, j, start, count, buf, p)
-                value_column(K, p, i, j, start, count, buf, 6 + p)
-            for q in range(3):
-                for p in range(6):
-                    d1_d2_column(gamma, p, i, j, start, count, q, r, w1, w2, inv_h[q], buf,
-                                 12 + 6 * q + p, 48 + 6 * q + p)
-                    d1_column(K, p, i, j, start, count, q, r, w1, inv_h[q], buf, 30 + 6 * q + p)
-            for q in range(2):
-                for s in range(q + 1, 3):
-                    for p in range(6):
-                        d11_column(gamma, p, i, j, start, count, q, s, r, w1, inv_h[q],
-                                   inv_h[s], buf, 66 + 6 * (q + s - 1) + p)
-            for n in range(count):
-                buf[84, n] = rho[i, j, base + u(n)]
-            for a in range(3):
-                value_column(S, a, i, j, start, count, buf, 85 + a)
-            for n in range(count):
-                k = base + u(n)
-                inside = interior[i, j, k] != 0
-                H[i, j, k] = buf[12, n] if inside else np.nan
-                H_scale[i, j, k] = buf[48, n] if inside else np.nan
-            for a in range(3):
+            for entering in range(first - r, last + r):
+                strips._enter_ring(gamma, i, entering, start, span, r, w1, w2, inv_h[0], ring,
+                                   entering % period)
+                j = entering - r
+                if j < first:
+                    continue
+                strips._strip_inputs(gamma, K, rho, S, i, j, start, count, span, r, w1, w2,
+                                     inv_h, ring, j % period, period, buf)
                 for n in range(count):
                     k = base + u(n)
                     inside = interior[i, j, k] != 0
-                    M[a, i, j, k] = buf[30 + a, n] if inside else np.nan
-                    M_scale[a, i, j, k] = buf[66 + a, n] if inside else np.nan
+                    H[i, j, k] = buf[12, n] if inside else np.nan
+                    H_scale[i, j, k] = buf[48, n] if inside else np.nan
+                for a in range(3):
+                    for n in range(count):
+                        k = base + u(n)
+                        inside = interior[i, j, k] != 0
+                        M[a, i, j, k] = buf[30 + a, n] if inside else np.nan
+                        M_scale[a, i, j, k] = buf[66 + a, n] if inside else np.nan
 
 
 def median_time(function, repeats):

@@ -236,6 +236,48 @@ def _momentum_rows(buf, count, a, eight_pi, two):
         buf[_OUT + 5 + a, n] = max(max(abs(div_k), abs(grad_k)), abs(source))
 
 
+@point_function
+def _enter_ring(gamma, i, column, start, span, r, w1, w2, inv_hx, ring, slot):
+    """d_x g_p and d_xx g_p of grid column (i, ``column``) on the strip start - r..start + span
+    - r - 1 (the strip widened by r in z) into ring slot ``slot`` (rows at _RING_STEP slot)."""
+    for p in range(6):
+        d1_d2_column(gamma, p, i, column, start - r, span, 0, r, w1, w2, inv_hx, ring,
+                     _RING_STEP * slot + p, _RING_STEP * slot + 6 + p)
+
+
+@point_function
+def _strip_inputs(gamma, K, rho, S, i, j, start, count, span, r, w1, w2, inv_h, ring, centre,
+                  period, buf):
+    """The 72 derivatives and 16 values of the strip (i, j, start..start + count - 1) into the
+    rows _G.._SRC of ``buf``, with d_x g and d_xx g from ring slot ``centre`` (= j mod
+    ``period``) and the slots of columns j +- 1..r beside it."""
+    u = np.uint64
+    base = u(start)
+    for p in range(6):
+        value_column(gamma, p, i, j, start, count, buf, _G + p)
+        value_column(K, p, i, j, start, count, buf, _KL + p)
+        d1_d2_column(gamma, p, i, j, start, count, 2, r, w1, w2, inv_h[2], buf,
+                     _DG + 12 + p, _DDG + 6 * _pair(2, 2) + p)
+        d1_d2_column(gamma, p, i, j, start - r, span, 1, r, w1, w2, inv_h[1], ring,
+                     _SIDE + p, _SIDE + 6 + p)
+        # d_x g, d_xx g and d_xz g = d_z (d_x g) from the ring's centre slot.
+        d1_row(ring, _RING_STEP * centre + p, _RING_STEP * centre + 6 + p, r, count,
+               r, w1, inv_h[2], buf, _DG + p, _DDG + 6 * _pair(0, 0) + p,
+               _DDG + 6 * _pair(0, 2) + p)
+        # d_y g, d_yy g and d_yz g = d_z (d_y g).
+        d1_row(ring, _SIDE + p, _SIDE + 6 + p, r, count, r, w1, inv_h[2], buf,
+               _DG + 6 + p, _DDG + 6 * _pair(1, 1) + p, _DDG + 6 * _pair(1, 2) + p)
+        # d_xy g = d_y (d_x g) across the ring's slots.
+        d1_ring(ring, p, _RING_STEP, period, centre, r, count, r, w1, inv_h[1], buf,
+                _DDG + 6 * _pair(0, 1) + p)
+        d1_axes_column(K, p, i, j, start, count, r, 1, 1, 1, w1, inv_h[0], inv_h[1],
+                       inv_h[2], buf, _DK + p, _DK + 6 + p, _DK + 12 + p)
+    for n in range(count):
+        buf[_RHO, n] = rho[i, j, base + u(n)]
+    for a in range(3):
+        value_column(S, a, i, j, start, count, buf, _SRC + a)
+
+
 @grid_kernel
 def adm_constraints_grid(gamma, K, rho, S, interior, w1, w2, inv_h, sixteen_pi, eight_pi,
                          H, M, H_scale, M_scale):
@@ -288,37 +330,13 @@ def adm_constraints_grid(gamma, K, rho, S, interior, w1, w2, inv_h, sixteen_pi, 
             # Walk the band's columns in order along y; column j + r enters the ring of d_x g,
             # d_xx g (on the strip widened by r in z), then column j is done.
             for entering in range(first - r, last + r):
-                slot = entering % period
-                for p in range(6):
-                    d1_d2_column(gamma, p, i, entering, start - r, span, 0, r, w1, w2, inv_h[0],
-                                 ring, _RING_STEP * slot + p, _RING_STEP * slot + 6 + p)
+                _enter_ring(gamma, i, entering, start, span, r, w1, w2, inv_h[0], ring,
+                            entering % period)
                 j = entering - r
                 if j < first:
                     continue
-                centre = j % period
-                for p in range(6):
-                    value_column(gamma, p, i, j, start, count, buf, _G + p)
-                    value_column(K, p, i, j, start, count, buf, _KL + p)
-                    d1_d2_column(gamma, p, i, j, start, count, 2, r, w1, w2, inv_h[2], buf,
-                                 _DG + 12 + p, _DDG + 6 * _pair(2, 2) + p)
-                    d1_d2_column(gamma, p, i, j, start - r, span, 1, r, w1, w2, inv_h[1], ring,
-                                 _SIDE + p, _SIDE + 6 + p)
-                    # d_x g, d_xx g and d_xz g = d_z (d_x g) from the ring's centre slot.
-                    d1_row(ring, _RING_STEP * centre + p, _RING_STEP * centre + 6 + p, r, count,
-                           r, w1, inv_h[2], buf, _DG + p, _DDG + 6 * _pair(0, 0) + p,
-                           _DDG + 6 * _pair(0, 2) + p)
-                    # d_y g, d_yy g and d_yz g = d_z (d_y g).
-                    d1_row(ring, _SIDE + p, _SIDE + 6 + p, r, count, r, w1, inv_h[2], buf,
-                           _DG + 6 + p, _DDG + 6 * _pair(1, 1) + p, _DDG + 6 * _pair(1, 2) + p)
-                    # d_xy g = d_y (d_x g) across the ring's slots.
-                    d1_ring(ring, p, _RING_STEP, period, centre, r, count, r, w1, inv_h[1], buf,
-                            _DDG + 6 * _pair(0, 1) + p)
-                    d1_axes_column(K, p, i, j, start, count, r, 1, 1, 1, w1, inv_h[0], inv_h[1],
-                                   inv_h[2], buf, _DK + p, _DK + 6 + p, _DK + 12 + p)
-                for n in range(count):
-                    buf[_RHO, n] = rho[i, j, base + u(n)]
-                for a in range(3):
-                    value_column(S, a, i, j, start, count, buf, _SRC + a)
+                _strip_inputs(gamma, K, rho, S, i, j, start, count, span, r, w1, w2, inv_h,
+                              ring, j % period, period, buf)
                 # The algebra, one loop along the strip per call; literal indices (docstring).
                 _inverse_metric_rows(buf, count, half + half)
                 _christoffel_rows(buf, count, half)
