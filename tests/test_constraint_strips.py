@@ -15,7 +15,10 @@ and Christoffel symbols; rounding in any order of summation and association of t
 moves it by at most gamma_N = N eps / (1 - N eps) times the same sum with every term replaced by
 its absolute value (N. J. Higham, Accuracy and Stability of Numerical Algorithms, 2nd ed. (2002),
 sec. 3.1 and 4.2, from memory). The reference computes that sum of absolute values too
-(``magnitude=True``). The longest chain of roundings is a mixed derivative of order 6 (36 terms)
+(``magnitude=True``). The longest chain of roundings is a mixed derivative of order 6 (36 terms;
+the kernel takes it as d_z (d_x g), d_y (d_x g), d_z (d_y g), two nested sums of 6 terms over
+the same products of weights and values as the tensor-product stencil summed here, so fewer
+roundings per term than one sum of 36)
 feeding the Ricci tensor (9 x 4 second-derivative terms plus 9 x 3 x 2 products, contracted
 with 9 inverse-metric entries) and H (about 10 more): N <= 256 covers it, so the check is
 |kernel - reference| <= 256 eps * magnitude. A wrong index or sign gives an error of the size
