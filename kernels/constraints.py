@@ -69,6 +69,9 @@ _KM = 163   # K_a^b = K_ac gamma^cb at 163 + 3 a + b    9
 _RIC = 172  # R_p                                       6
 _OUT = 178  # H, H scale, M_x, M_y, M_z, their three scales: 8
 _ROWS = 186
+#: Row stride of the buffer in doubles: a strip and one cache line, so that rows do not lie a
+#: power of two apart (see the measurement in DEVELOPERS.md, "Strip kernels").
+_ROW_LENGTH = _STRIP + 8
 
 #: Columns along y per parallel task (one x index and a band of y): the task walks them in
 #: order, so each column's d_x g is computed once and kept for the mixed derivatives.
@@ -321,7 +324,7 @@ def adm_constraints_grid(gamma, K, rho, S, interior, w1, w2, inv_h, sixteen_pi, 
         if edge_i | (first >= last):
             continue
         # On the thread's stack (see strip_buffers: no run-time overlap checks).
-        buf = strip_buffer(_ROWS, _STRIP, H)
+        buf = strip_buffer(_ROWS, _ROW_LENGTH, H)
         ring = strip_buffer(_RING_ROWS, _SPAN, H)
         for start in range(r, nz - r, _STRIP):
             count = min(_STRIP, nz - r - start)
