@@ -30,7 +30,10 @@ written so that LLVM vectorises it along z (see its docstring); use it where a k
 derivatives per point. :func:`d2_column` and :func:`d11_column` are its second and mixed
 derivatives, :func:`d1_d2_column` the first and second derivative along one axis in one pass,
 :func:`d1_axes_column` the first derivatives along all three axes in one loop, and
-:func:`value_column` copies the column's values (the same buffer layout).
+:func:`value_column` copies the column's values (the same buffer layout). :func:`d1_row` and
+:func:`d1_ring` differentiate rows of a strip buffer that hold first derivatives (along the row,
+and across rows that hold neighbouring grid columns), which gives mixed second derivatives with
+fewer loads than :func:`d11_column` (the constraint kernel's route).
 """
 
 from __future__ import annotations
