@@ -42,8 +42,8 @@ j - r..j + r on the strip widened by r points at each end in z, each column ente
 then d_xz g = d_z (d_x g) and d_xy g = d_y (d_x g) come from the ring, d_yz g = d_z (d_y g)
 from d_y g on the widened strip (:func:`emsource.kernels.stencils.d1_row`,
 :func:`emsource.kernels.stencils.d1_ring`). Per metric component that is 16 loads from the
-grid and 12 from the ring per point at order 4 instead of 63 from the grid, and 9 grid columns
-touched instead of 25.
+grid and 16 from the stack buffers per point at order 4 instead of 63 from the grid, and 9
+grid columns touched instead of 25.
 """
 
 
