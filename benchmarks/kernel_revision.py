@@ -1,8 +1,8 @@
 """A kernel module as it was at an earlier git revision, loaded beside the current one.
 
 ``revision_module("b89a3b2", "conservation")`` reads ``kernels/conservation.py`` at that revision
-with ``git show`` and imports it as ``emsource.kernels._revision_b89a3b2_conservation``: its relative
-imports (``from .stencils import ...``) resolve to the current point functions, so the old loops
+with ``git show`` and imports it as ``emsource.kernels._revision_b89a3b2_conservation``: its
+relative imports (``from .stencils import ...``) resolve to the current point functions, so the old loops
 run on the same physics and can be timed beside the current ones in one process, without a copy
 of the old kernel in the tree. The file is written to a directory of its own per revision and
 rewritten only when its text changes, so Numba's disk cache keeps the compiled old kernels

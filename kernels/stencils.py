@@ -451,8 +451,8 @@ def d1_row(src, row, second_row, offset, count, radius, weights, inv_h, out, out
            out_second, out_d1):
     """Copy two buffer rows and differentiate the first along itself, in one pass:
     out[out_value, n] = src[row, offset + n], out[out_second, n] = src[second_row, offset + n]
-    and out[out_d1, n] = (1/h) sum_{m=1..r} w_m (src[row, offset + n + m] - src[row, offset + n - m])
-    for n = 0..count-1.
+    and out[out_d1, n] = (1/h) sum_{m=1..r} w_m (src[row, offset + n + m]
+    - src[row, offset + n - m]) for n = 0..count-1.
 
     For strip kernels that hold a derivative along x or y on a z-strip widened by ``radius``
     points at each end (``offset`` = ``radius``): the d1 row is then the mixed derivative
