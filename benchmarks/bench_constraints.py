@@ -2,8 +2,10 @@
 
 Prints medians of repeated runs on a Kerr-Newman box for orders 2, 4, 6:
 - points per second of the compiled strip kernel (the public call, EM sources included, and
-  the bare kernel call) and of the point-at-a-time kernel it replaced
-  (``constraint_point_kernel.py``), timed in the same run;
+  the bare kernel call), of main's kernel before the ring of first derivatives (``--rev``,
+  default :data:`constraint_flops.BEFORE`) and of the point-at-a-time kernel of
+  :data:`constraint_flops.POINT_AT_A_TIME`, both read from git by
+  ``kernel_revision.revision_module`` and timed interleaved with the current kernel in this run;
 - the same constraints written in plain NumPy (slices for the order-4 differences, einsum for
   the contractions), and the ratio;
 - a STREAM-style triad a = b + s c measured in the same run, and the kernel's effective
@@ -19,7 +21,8 @@ Prints medians of repeated runs on a Kerr-Newman box for orders 2, 4, 6:
   byte moved times the triad bandwidth, the rate at which the kernel would be bound by memory
   instead.
 
-Usage: python benchmarks/bench_constraints.py [N] [repeats]    (default N = 64, 5 repeats)
+Usage: python benchmarks/bench_constraints.py [N] [repeats] [--rev REV]
+       (default N = 64, 5 repeats, REV = constraint_flops.BEFORE)
 """
 
 import math
@@ -28,9 +31,8 @@ import time
 
 import numpy as np
 
-from constraint_flops import flops_per_point
-from constraint_point_kernel import SYM as _SYM
-from constraint_point_kernel import point_at_a_time_constraints
+from constraint_flops import BEFORE, PACKED_PAIR, POINT_AT_A_TIME, flops_per_point
+from kernel_revision import revision_module
 from emsource.constraints import adm_constraints, interior_points
 from emsource.exact import kerr_newman
 from emsource.grid import UniformGrid
@@ -38,13 +40,12 @@ from emsource.kernels._compile import grid_kernel
 from emsource.kernels import constraints as strips
 from emsource.kernels.constraints import adm_constraints_grid
 from emsource.kernels.strip_buffers import strip_buffer
-from emsource.kernels.stencils import (d1_column, d1_d2_column, d11_column,
-                                       first_derivative_weights, second_derivative_weights,
-                                       value_column)
+from emsource.kernels.stencils import first_derivative_weights, second_derivative_weights
 from numba import prange
 
-#: The strip kernel's buffer shape, as module constants (literal sizes for strip_buffer).
+#: The strip kernel's buffer shapes, as module constants (literal sizes for strip_buffer).
 _ROWS, _STRIP = strips._ROWS, strips._STRIP
+_RING_ROWS, _SPAN = strips._RING_ROWS, strips._SPAN
 
 
 @grid_kernel
@@ -175,49 +176,60 @@ def derived_peak(threads):
 
 @grid_kernel
 def _stencil_probe(gamma, K, rho, S, interior, w1, w2, inv_h, H, M, H_scale, M_scale):
-    """The strip kernel's memory traffic and stencils without its algebra: the same 72
-    derivatives and 16 values into the same buffer, then 8 of its rows to the outputs (the
-    loop nest of ``adm_constraints_grid``; edges of the grid are not written)."""
+    """The strip kernel's memory traffic and stencils without its algebra: the same loop nest as
+    ``adm_constraints_grid`` and the same calls for the ring of d_x g and the 72 derivatives and
+    16 values of each strip (``_enter_ring``, ``_strip_inputs``), then 8 of the buffer's rows to
+    the outputs (edges of the grid are not written)."""
     u = np.uint64
     nx, ny, nz = rho.shape
     r = w1.shape[0]
-    for column in prange(nx * ny):
-        i = column // ny
-        j = column - i * ny
-        if (i < r) | (i >= nx - r) | (j < r) | (j >= ny - r):
+    period = 2 * r + 1
+    bands = (ny + strips._BAND - 1) // strips._BAND
+    for task in prange(nx * bands):
+        i = task // bands
+        band = task - i * bands
+        low = band * strips._BAND
+        first = max(low, r)
+        last = min(min(ny, low + strips._BAND), ny - r)
+        if (i < r) | (i >= nx - r) | (first >= last):
             continue
         buf = strip_buffer(_ROWS, _STRIP, rho)
+        ring = strip_buffer(_RING_ROWS, _SPAN, rho)
         for start in range(r, nz - r, strips._STRIP):
             count = min(strips._STRIP, nz - r - start)
+            span = count + 2 * r
             base = u(start)
-            for p in range(6):
-                value_column(gamma, p, i, j, start, count, buf, p)
-                value_column(K, p, i, j, start, count, buf, 6 + p)
-            for q in range(3):
-                for p in range(6):
-                    d1_d2_column(gamma, p, i, j, start, count, q, r, w1, w2, inv_h[q], buf,
-                                 12 + 6 * q + p, 48 + 6 * q + p)
-                    d1_column(K, p, i, j, start, count, q, r, w1, inv_h[q], buf, 30 + 6 * q + p)
-            for q in range(2):
-                for s in range(q + 1, 3):
-                    for p in range(6):
-                        d11_column(gamma, p, i, j, start, count, q, s, r, w1, inv_h[q],
-                                   inv_h[s], buf, 66 + 6 * (q + s - 1) + p)
-            for n in range(count):
-                buf[84, n] = rho[i, j, base + u(n)]
-            for a in range(3):
-                value_column(S, a, i, j, start, count, buf, 85 + a)
-            for n in range(count):
-                k = base + u(n)
-                inside = interior[i, j, k] != 0
-                H[i, j, k] = buf[12, n] if inside else np.nan
-                H_scale[i, j, k] = buf[48, n] if inside else np.nan
-            for a in range(3):
+            for entering in range(first - r, last + r):
+                strips._enter_ring(gamma, i, entering, start, span, r, w1, w2, inv_h[0], ring,
+                                   entering % period)
+                j = entering - r
+                if j < first:
+                    continue
+                strips._strip_inputs(gamma, K, rho, S, i, j, start, count, span, r, w1, w2,
+                                     inv_h, ring, j % period, period, buf)
                 for n in range(count):
                     k = base + u(n)
                     inside = interior[i, j, k] != 0
-                    M[a, i, j, k] = buf[30 + a, n] if inside else np.nan
-                    M_scale[a, i, j, k] = buf[66 + a, n] if inside else np.nan
+                    H[i, j, k] = buf[12, n] if inside else np.nan
+                    H_scale[i, j, k] = buf[48, n] if inside else np.nan
+                for a in range(3):
+                    for n in range(count):
+                        k = base + u(n)
+                        inside = interior[i, j, k] != 0
+                        M[a, i, j, k] = buf[30 + a, n] if inside else np.nan
+                        M_scale[a, i, j, k] = buf[66 + a, n] if inside else np.nan
+
+
+def interleaved_medians(functions, repeats):
+    """Median seconds of each function, the functions called in turn ``repeats`` times (so that
+    a shared machine's load falls on all of them alike)."""
+    times = [[] for _ in functions]
+    for _ in range(repeats):
+        for function, record in zip(functions, times):
+            t0 = time.perf_counter()
+            function()
+            record.append(time.perf_counter() - t0)
+    return [statistics.median(record) for record in times]
 
 
 def median_time(function, repeats):
@@ -260,7 +272,7 @@ def numpy_constraints(gamma, K, rho, S, h):
         return out
 
     def full(p):
-        return np.stack([np.stack([p[_SYM[i, j]] for j in range(3)]) for i in range(3)])
+        return np.stack([np.stack([p[PACKED_PAIR[i, j]] for j in range(3)]) for i in range(3)])
 
     g = full(gamma[(slice(None),) + core])
     Kl = full(K[(slice(None),) + core])
@@ -346,6 +358,9 @@ def main():
     parser.add_argument("points", nargs="?", type=int, default=64, help="points per axis (64)")
     parser.add_argument("repeats", nargs="?", type=int, default=5,
                         help="repetitions per median (5)")
+    parser.add_argument("--rev", default=BEFORE,
+                        help=f"git revision of kernels/constraints.py timed as the before "
+                             f"(default {BEFORE})")
     parser.add_argument("--child", choices=("peak", "kernel"), help=argparse.SUPPRESS)
     parser.add_argument("--points", dest="child_points", type=int, help=argparse.SUPPRESS)
     options = parser.parse_args()
@@ -379,42 +394,52 @@ def main():
 
     # Bytes per point: 16 float64 inputs, 8 float64 outputs, the uint8 interior mask.
     bytes_per_point = 24 * 8 + 1
+    before_kernel = revision_module(options.rev, "constraints").adm_constraints_grid
+    point_kernel = revision_module(POINT_AT_A_TIME, "constraints").adm_constraints_grid
     results = {}
     for order in (2, 4, 6):
         bare, outs, (ev, w1, w2, inv_h) = kernel_call(grid, d, src_rho, src_S, order)
         before = tuple(np.empty_like(o) for o in outs)
+        scratch = tuple(np.empty_like(o) for o in outs)
+
+        def main_kernel():
+            before_kernel(d.gamma, d.K, src_rho, src_S, ev, w1, w2, inv_h, 16 * math.pi,
+                          8 * math.pi, *before)
 
         def point_at_a_time():
-            point_at_a_time_constraints(d.gamma, d.K, src_rho, src_S, ev, w1, w2, inv_h, _SYM,
-                                        16 * math.pi, 8 * math.pi, *before)
+            point_kernel(d.gamma, d.K, src_rho, src_S, ev, w1, w2, inv_h, PACKED_PAIR,
+                         16 * math.pi, 8 * math.pi, *scratch)
 
         def probe():
-            _stencil_probe(d.gamma, d.K, src_rho, src_S, ev, w1, w2, inv_h, *before)
+            _stencil_probe(d.gamma, d.K, src_rho, src_S, ev, w1, w2, inv_h, *scratch)
 
         bare()
+        main_kernel()
         point_at_a_time()
         probe()
         peaks.append(measured_peak(threads, repeats))
-        t_bare = median_time(bare, repeats)
-        t_probe = median_time(probe, repeats)
+        t_bare, t_main, t_probe = interleaved_medians((bare, main_kernel, probe), repeats)
         peaks.append(measured_peak(threads, repeats))
-        t_before = median_time(point_at_a_time, repeats)
+        t_point = median_time(point_at_a_time, repeats)
         t_public = median_time(lambda: adm_constraints(d.gamma, d.K, d.E, d.B, spacing=h,
                                                        order=order), repeats)
         # Work is done at interior points only (radius = order / 2 from every face).
         npts = (n - order) ** 3
         bw = 24 * 8 * n**3 / t_bare
         flops, _ = flops_per_point(order)
-        flops_before, _ = flops_per_point(order, point_kernel=True)
+        flops_main, _ = flops_per_point(order, options.rev)
+        flops_point, _ = flops_per_point(order, POINT_AT_A_TIME)
         agree = max(float(np.nanmax(np.abs(x - y))) for x, y in zip(outs[:2], before[:2]))
-        results[order] = dict(t_bare=t_bare, t_probe=t_probe, t_before=t_before,
+        results[order] = dict(t_bare=t_bare, t_probe=t_probe, t_main=t_main, t_point=t_point,
                               t_public=t_public, npts=npts, bw=bw, flops=flops,
-                              flops_before=flops_before, agree=agree)
+                              flops_main=flops_main, flops_point=flops_point, agree=agree)
         print(f"order {order}: kernel {npts / t_bare / 1e6:7.2f} Mpoint/s ({t_bare * 1e3:6.1f} ms; "
               f"effective bandwidth {100 * bw / triad_bw:5.1f} % of triad), public call with EM "
               f"sources and checks {npts / t_public / 1e6:7.2f} Mpoint/s")
-        print(f"         point-at-a-time kernel {npts / t_before / 1e6:7.2f} Mpoint/s: the strips "
-              f"are {t_before / t_bare:4.2f}x faster (max |difference| {agree:.1e})")
+        print(f"         main's kernel at {options.rev} (interleaved) {t_main * 1e3:6.1f} ms: "
+              f"this kernel takes {t_bare / t_main:5.3f} of its time (max |difference| of H, M "
+              f"{agree:.1e}); point-at-a-time kernel at {POINT_AT_A_TIME} "
+              f"{npts / t_point / 1e6:7.2f} Mpoint/s ({t_point / t_bare:4.2f}x this kernel's time)")
         print(f"         stencils and traffic alone (same buffer, no algebra): "
               f"{t_probe / t_bare:4.2f} of the kernel's time")
         print(f"         multiply-add peak beside this order ({own_width}): {peaks[-2]:.1f} and "
@@ -455,15 +480,18 @@ def main():
     for order, r in results.items():
         flops, t_bare, npts = r["flops"], r["t_bare"], r["npts"]
         rate = flops * npts / t_bare / 1e9
-        rate_before = r["flops_before"] * npts / r["t_before"] / 1e9
+        rate_main = r["flops_main"] * npts / r["t_main"] / 1e9
+        equivalent = r["flops_main"] * npts / t_bare / 1e9
         roof = triad_bw * flops / bytes_per_point / 1e9
         shares = (f"{100 * rate / best:4.1f} % of the highest measured peak, "
                   f"{100 * rate / own:4.1f} % of the {own_width} peak"
                   + (f", {100 * rate / derived:4.1f} % of the derived peak" if derived else ""))
         print(f"order {order}: {flops:.0f} flops per interior point as written: "
-              f"{rate:5.1f} GFLOP/s "
-              f"= {shares}; point-at-a-time kernel {rate_before:5.1f} GFLOP/s "
-              f"({r['flops_before']:.0f} flops/point)")
+              f"{rate:5.1f} GFLOP/s = {shares}")
+        print(f"         main's kernel at {options.rev}: {r['flops_main']:.0f} flops per point, "
+              f"{rate_main:5.1f} GFLOP/s = {100 * rate_main / best:4.1f} % of the highest peak; "
+              f"its count over this kernel's time: {equivalent:5.1f} GFLOP/s = "
+              f"{100 * equivalent / best:4.1f} %")
         print(f"         roofline: {flops / bytes_per_point:5.2f} flops/byte x triad = "
               f"{roof:6.1f} GFLOP/s if memory-bound ({roof / best:4.1f}x the highest peak)")
     print(f"load average at the end {' '.join(f'{x:.2f}' for x in os.getloadavg())}")

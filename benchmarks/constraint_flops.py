@@ -5,13 +5,17 @@ Run:  python benchmarks/constraint_flops.py
 Runs the Python source of ``kernels.constraints.adm_constraints_grid`` (and of every point
 function it calls) on a small grid whose values are a float subclass that counts +, -, *, /
 and sqrt. Loop bookkeeping, comparisons, abs and max are not counted; a multiply-add counts 2,
-as in a peak figure of 2 flops per FMA lane. The count per point is the difference between
-runs over one grid column of ``LONG`` and ``SHORT`` interior points along z, divided by
-``LONG - SHORT``: the strip kernel's once-per-strip set-up (weights times 1/h) is not counted
-as work per point. The compiled kernel may do fewer (LLVM removes common subexpressions and
-multiplications by 0), so the rate derived from this count is an upper estimate of the work
-done. The same count of the point-at-a-time kernel that preceded the strips
-(``constraint_point_kernel.py``) is given for comparison. ``bench_constraints.py`` divides
+as in a peak figure of 2 flops per FMA lane. The count per point is the mixed difference of
+four runs over one x-plane of ``SHORT`` or ``LONG`` interior columns along y, each of
+``SHORT`` or ``LONG`` interior points along z, divided by ``(LONG - SHORT)^2``: work done once
+per strip (weights times 1/h), once per column (the ends of the z-strip widened by the stencil
+radius) or once per walk along y (the first 2 r columns that enter the ring of d_x g) drops
+out, so the count is the work per point of a large grid. The compiled kernel may do fewer
+(LLVM removes common subexpressions and multiplications by 0), so the rate derived from this
+count is an upper estimate of the work done. The same count of main's kernel at
+``bench_constraints.BEFORE`` and of the point-at-a-time kernel at
+``bench_constraints.POINT_AT_A_TIME`` (both read from git with
+``kernel_revision.revision_module``) is given for comparison. ``bench_constraints.py`` divides
 these counts by its measured seconds per point for the GFLOP/s.
 """
 
@@ -21,12 +25,21 @@ from collections import Counter
 
 import numpy as np
 
-from constraint_point_kernel import SYM, point_at_a_time_constraints
+from kernel_revision import revision_module
 from emsource.kernels import constraints as kernel_module
 from emsource.kernels.stencils import first_derivative_weights, second_derivative_weights
 
-#: Interior points along z of the two counting runs (LONG - SHORT of them are counted).
+#: Interior columns along y and points along z of the counting runs (module docstring).
 SHORT, LONG = 1, 9
+
+#: Revisions of kernels/constraints.py counted beside the current kernel: main's strip kernel
+#: before the ring of first derivatives, and the last point-at-a-time kernel.
+BEFORE = "51d4f41"
+POINT_AT_A_TIME = "3ae0157"
+
+#: Packed component of the index pair (a, b) of a symmetric 3x3 tensor (the point-at-a-time
+#: kernel takes it as an argument).
+PACKED_PAIR = np.array([[0, 1, 2], [1, 3, 4], [2, 4, 5]], dtype=np.int64)
 
 COUNTS = Counter()
 
@@ -91,10 +104,9 @@ def counting_array(shape, rng, scale, offset=None):
     return array
 
 
-def _count(kernel, order, interior_along_z, point_kernel):
+def _count(kernel, order, columns_along_y, interior_along_z, point_kernel):
     radius = order // 2
-    n = 2 * radius + 1  # one interior column in the middle
-    shape = (n, n, 2 * radius + interior_along_z)
+    shape = (2 * radius + 1, 2 * radius + columns_along_y, 2 * radius + interior_along_z)
     rng = np.random.default_rng(1)
     identity = np.array([1, 0, 0, 1, 0, 1.0])[:, None, None, None]
     gamma = counting_array((6,) + shape, rng, 0.05, identity)
@@ -102,10 +114,10 @@ def _count(kernel, order, interior_along_z, point_kernel):
     rho = counting_array(shape, rng, 0.1)
     S = counting_array((3,) + shape, rng, 0.1)
     interior = np.zeros(shape, np.uint8)
-    interior[radius, radius, radius:shape[2] - radius] = 1
+    interior[radius, radius:shape[1] - radius, radius:shape[2] - radius] = 1
     as_counting = lambda w: np.array([CountingFloat(x) for x in w], dtype=object)  # noqa: E731
     outputs = [np.empty(s, dtype=object) for s in (shape, (3,) + shape, shape, (3,) + shape)]
-    extra = (SYM,) if point_kernel else ()
+    extra = (PACKED_PAIR,) if point_kernel else ()
     COUNTS.clear()
     kernel(gamma, K, rho, S, interior, as_counting(first_derivative_weights(order)),
            as_counting(second_derivative_weights(order)), as_counting([1.0] * 3), *extra,
@@ -113,20 +125,26 @@ def _count(kernel, order, interior_along_z, point_kernel):
     return Counter(COUNTS)
 
 
-def flops_per_point(order, point_kernel=False):
-    """(operations per interior point, their kinds) of the strip kernel, or with
-    ``point_kernel`` of the point-at-a-time kernel it replaced."""
-    dispatcher = point_at_a_time_constraints if point_kernel else kernel_module.adm_constraints_grid
-    kernel = interpreted(dispatcher, {})
-    short = _count(kernel, order, SHORT, point_kernel)
-    long = _count(kernel, order, LONG, point_kernel)
-    detail = {op: (long[op] - short[op]) / (LONG - SHORT) for op in long}
+def flops_per_point(order, revision=None):
+    """(operations per interior point, their kinds) of the current strip kernel, or of
+    kernels/constraints.py at git ``revision`` (the point-at-a-time kernel at
+    :data:`POINT_AT_A_TIME` takes the packed-pair table as an extra argument)."""
+    module = kernel_module if revision is None else revision_module(revision, "constraints")
+    kernel = interpreted(module.adm_constraints_grid, {})
+    point_kernel = revision == POINT_AT_A_TIME
+    runs = {(y, z): _count(kernel, order, y, z, point_kernel)
+            for y in (SHORT, LONG) for z in (SHORT, LONG)}
+    kinds = set().union(*runs.values())
+    detail = {op: (runs[LONG, LONG][op] - runs[SHORT, LONG][op] - runs[LONG, SHORT][op]
+                   + runs[SHORT, SHORT][op]) / (LONG - SHORT) ** 2 for op in kinds}
     return sum(detail.values()), detail
 
 
 if __name__ == "__main__":
     for order in (2, 4, 6):
         total, detail = flops_per_point(order)
-        before, _ = flops_per_point(order, point_kernel=True)
+        before, _ = flops_per_point(order, BEFORE)
+        point, _ = flops_per_point(order, POINT_AT_A_TIME)
         print(f"order {order}: {total:.0f} floating-point operations per interior point "
-              f"({detail}); the point-at-a-time kernel: {before:.0f}")
+              f"({detail}); main's strip kernel at {BEFORE}: {before:.0f}; the point-at-a-time "
+              f"kernel at {POINT_AT_A_TIME}: {point:.0f}")

@@ -1,18 +1,23 @@
 """A kernel module as it was at an earlier git revision, loaded beside the current one.
 
 ``revision_module("b89a3b2", "conservation")`` reads ``kernels/conservation.py`` at that revision
-with ``git show`` and imports it as ``emsource.kernels._revision_conservation``: its relative
-imports (``from .stencils import ...``) resolve to the current point functions, so the old loops
+with ``git show`` and imports it as ``emsource.kernels._revision_b89a3b2_conservation``: its
+relative imports (``from .stencils import ...``) resolve to the current point functions, so the old loops
 run on the same physics and can be timed beside the current ones in one process, without a copy
 of the old kernel in the tree. The file is written to a directory of its own per revision and
 rewritten only when its text changes, so Numba's disk cache keeps the compiled old kernels
-between runs. Needs a git checkout of the project (benchmarks only).
+between runs. The module is entered in ``sys.modules`` under a name of its own per revision:
+Numba records a cached kernel's module by name and imports it again when it loads the kernel
+from its disk cache, so a module missing there made the second run of a benchmark fail
+("No module named '<dynamic>'"), and two revisions of one kernel must not share a name.
+Needs a git checkout of the project (benchmarks only).
 """
 
 from __future__ import annotations
 
 import importlib.util
 import os
+import re
 import subprocess
 import sys
 import tempfile
@@ -24,12 +29,19 @@ __all__ = ["revision_module"]
 
 def revision_module(rev: str, kernel: str):
     """``kernels/<kernel>.py`` at git revision ``rev`` as the module
-    ``emsource.kernels._revision_<kernel>``."""
+    ``emsource.kernels._revision_<rev>_<kernel>`` (characters of ``rev`` that cannot be part of
+    a name replaced by ``_``)."""
+    tag = re.sub(r"\W", "_", rev)
+    name = f"emsource.kernels._revision_{tag}_{kernel}"
+    if name in sys.modules:
+        return sys.modules[name]
     source = subprocess.run(["git", "show", f"{rev}:kernels/{kernel}.py"], cwd=ROOT, check=True,
                             capture_output=True, text=True).stdout
     directory = os.path.join(tempfile.gettempdir(), f"emsource-revision-{rev}")
     os.makedirs(directory, exist_ok=True)
-    path = os.path.join(directory, f"revision_{kernel}.py")
+    # A file name of its own: cache entries written before the module had a name in sys.modules
+    # (under the old file name) recorded no importable module and cannot be loaded.
+    path = os.path.join(directory, f"{kernel}_{tag}.py")
     try:
         with open(path) as handle:
             unchanged = handle.read() == source
@@ -38,11 +50,12 @@ def revision_module(rev: str, kernel: str):
     if not unchanged:
         with open(path, "w") as handle:
             handle.write(source)
-    spec = importlib.util.spec_from_file_location(f"emsource.kernels._revision_{kernel}", path)
+    spec = importlib.util.spec_from_file_location(name, path)
     module = importlib.util.module_from_spec(spec)
-    # Registered before it runs: a kernel loaded from Numba's disk cache re-imports its module
-    # by name to rebuild its environment (unregistered, the second run failed with
-    # "No module named '<dynamic>'").
-    sys.modules[spec.name] = module
-    spec.loader.exec_module(module)
+    sys.modules[name] = module
+    try:
+        spec.loader.exec_module(module)
+    except BaseException:
+        del sys.modules[name]
+        raise
     return module

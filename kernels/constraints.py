@@ -26,13 +26,24 @@ and the absolute value of their largest term (R, K^2, K_ij K^ij, 16 pi rho for H
 D_i K, 8 pi S_i for M_i) where ``interior`` is 1, NaN elsewhere.
 
 How the kernel is laid out (why: see :func:`adm_constraints_grid`). Each grid column (i, j) is
-done in strips of up to ``_STRIP`` points along z, with one (``_ROWS``, ``_STRIP``) buffer per
-thread on its stack (:func:`emsource.kernels.strip_buffers.strip_buffer`): first the 72
+done in strips of up to ``_STRIP`` points along z, with one (``_ROWS``, ``_ROW_LENGTH``) buffer
+per thread on its stack (:func:`emsource.kernels.strip_buffers.strip_buffer`): first the 72
 derivatives and 16 point values the equations need are written to rows of the buffer (one
-stencil loop along the strip per row), then every step of the algebra is one
+stencil loop along the strip per few rows), then every step of the algebra is one
 loop along the strip that reads rows and writes rows, so that LLVM vectorises it across points.
 The buffer rows are listed at ``_ROWS`` below (p: packed component (xx, xy, xz, yy, yz, zz);
 q, s: derivative axes; ``_pair(a, b)``: the packed index of a symmetric pair).
+
+The mixed second derivatives of the metric are derivatives of first derivatives (the
+tensor-product stencil is the product of the 1-D ones, so only rounding differs): a parallel
+task takes one x index and a band of ``_BAND`` columns along y and walks them in order; a ring
+buffer (``_RING_ROWS``, ``_SPAN``, on the stack too) keeps d_x g and d_xx g of the columns
+j - r..j + r on the strip widened by r points at each end in z, each column entering it once;
+then d_xz g = d_z (d_x g) and d_xy g = d_y (d_x g) come from the ring, d_yz g = d_z (d_y g)
+from d_y g on the widened strip (:func:`emsource.kernels.stencils.d1_row`,
+:func:`emsource.kernels.stencils.d1_ring`). Per metric component that is 16 loads from the
+grid and 16 from the stack buffers per point at order 4 instead of 63 from the grid, and 9
+grid columns touched instead of 25.
 """
 
 
@@ -44,7 +55,7 @@ from numba import prange
 from ._compile import grid_kernel, point_function
 from .strip_buffers import strip_buffer
 from .metric import inverse_metric, metric_factors
-from .stencils import d1_column, d1_d2_column, d11_column, value_column
+from .stencils import d1_axes_column, d1_d2_column, d1_ring, d1_row, value_column
 
 #: Points along z per strip (the row length of the per-column buffer). A literal, so that LLVM
 #: sees the buffer's row stride as a constant and can prove that rows do not overlap.
@@ -69,6 +80,21 @@ _KM = 163   # K_a^b = K_ac gamma^cb at 163 + 3 a + b    9
 _RIC = 172  # R_p                                       6
 _OUT = 178  # H, H scale, M_x, M_y, M_z, their three scales: 8
 _ROWS = 186
+#: Row stride of the buffer in doubles: a strip and one cache line, so that rows do not lie a
+#: power of two apart (see the measurement in DEVELOPERS.md, "Strip kernels").
+_ROW_LENGTH = _STRIP + 8
+
+#: Columns along y per parallel task (one x index and a band of y): the task walks them in
+#: order, so each column's d_x g is computed once and kept for the mixed derivatives.
+_BAND = 64
+#: Row length of the ring buffer: a strip widened by the largest stencil radius (3) at each end.
+_SPAN = 72
+# Rows of the ring buffer: slot s (grid column j = s mod (2 r + 1)) holds d_x g_p at
+# _RING_STEP s + p and d_xx g_p at _RING_STEP s + 6 + p, on the strip widened by r in z;
+# after the 7 slots of order 6, d_y g_p at _SIDE + p and d_yy g_p at _SIDE + 6 + p (column j).
+_RING_STEP = 12
+_SIDE = 7 * _RING_STEP
+_RING_ROWS = _SIDE + 12
 
 
 @point_function
@@ -224,6 +250,48 @@ def _momentum_rows(buf, count, a, eight_pi, two):
         buf[_OUT + 5 + a, n] = max(max(abs(div_k), abs(grad_k)), abs(source))
 
 
+@point_function
+def _enter_ring(gamma, i, column, start, span, r, w1, w2, inv_hx, ring, slot):
+    """d_x g_p and d_xx g_p of grid column (i, ``column``) on the strip start - r..start + span
+    - r - 1 (the strip widened by r in z) into ring slot ``slot`` (rows at _RING_STEP slot)."""
+    for p in range(6):
+        d1_d2_column(gamma, p, i, column, start - r, span, 0, r, w1, w2, inv_hx, ring,
+                     _RING_STEP * slot + p, _RING_STEP * slot + 6 + p)
+
+
+@point_function
+def _strip_inputs(gamma, K, rho, S, i, j, start, count, span, r, w1, w2, inv_h, ring, centre,
+                  period, buf):
+    """The 72 derivatives and 16 values of the strip (i, j, start..start + count - 1) into the
+    rows _G.._SRC of ``buf``, with d_x g and d_xx g from ring slot ``centre`` (= j mod
+    ``period``) and the slots of columns j +- 1..r beside it."""
+    u = np.uint64
+    base = u(start)
+    for p in range(6):
+        value_column(gamma, p, i, j, start, count, buf, _G + p)
+        value_column(K, p, i, j, start, count, buf, _KL + p)
+        d1_d2_column(gamma, p, i, j, start, count, 2, r, w1, w2, inv_h[2], buf,
+                     _DG + 12 + p, _DDG + 6 * _pair(2, 2) + p)
+        d1_d2_column(gamma, p, i, j, start - r, span, 1, r, w1, w2, inv_h[1], ring,
+                     _SIDE + p, _SIDE + 6 + p)
+        # d_x g, d_xx g and d_xz g = d_z (d_x g) from the ring's centre slot.
+        d1_row(ring, _RING_STEP * centre + p, _RING_STEP * centre + 6 + p, r, count,
+               r, w1, inv_h[2], buf, _DG + p, _DDG + 6 * _pair(0, 0) + p,
+               _DDG + 6 * _pair(0, 2) + p)
+        # d_y g, d_yy g and d_yz g = d_z (d_y g).
+        d1_row(ring, _SIDE + p, _SIDE + 6 + p, r, count, r, w1, inv_h[2], buf,
+               _DG + 6 + p, _DDG + 6 * _pair(1, 1) + p, _DDG + 6 * _pair(1, 2) + p)
+        # d_xy g = d_y (d_x g) across the ring's slots.
+        d1_ring(ring, p, _RING_STEP, period, centre, r, count, r, w1, inv_h[1], buf,
+                _DDG + 6 * _pair(0, 1) + p)
+        d1_axes_column(K, p, i, j, start, count, r, 1, 1, 1, w1, inv_h[0], inv_h[1],
+                       inv_h[2], buf, _DK + p, _DK + 6 + p, _DK + 12 + p)
+    for n in range(count):
+        buf[_RHO, n] = rho[i, j, base + u(n)]
+    for a in range(3):
+        value_column(S, a, i, j, start, count, buf, _SRC + a)
+
+
 @grid_kernel
 def adm_constraints_grid(gamma, K, rho, S, interior, w1, w2, inv_h, sixteen_pi, eight_pi,
                          H, M, H_scale, M_scale):
@@ -237,7 +305,10 @@ def adm_constraints_grid(gamma, K, rho, S, interior, w1, w2, inv_h, sixteen_pi, 
     touches one buffer whose row stride is a compile-time constant and whose rows are
     compile-time constants (the algebra's point functions are called with literal indices),
     so LLVM can prove that its stores do not overlap its loads and vectorises it. The stencil
-    loops copy from one grid array into the buffer, as in :func:`d1_column`.
+    loops copy from one grid array (or the ring buffer) into the buffer, as in
+    :func:`emsource.kernels.stencils.d1_column`. Why the ring of first derivatives: the
+    tensor-product stencils of the mixed derivatives were most of the loads of the kernel
+    (DEVELOPERS.md, "Strip kernels").
     """
     u = np.uint64
     nx, ny, nz = rho.shape
@@ -245,66 +316,68 @@ def adm_constraints_grid(gamma, K, rho, S, interior, w1, w2, inv_h, sixteen_pi, 
     half = 0.5
     two = 2.0
     nan = np.nan
-    for column in prange(nx * ny):
-        i = column // ny
-        j = column - i * ny
-        edge = (i < r) | (i >= nx - r) | (j < r) | (j >= ny - r)
-        for k in range(nz):
-            if edge | (k < r) | (k >= nz - r):
-                H[i, j, k] = nan
-                H_scale[i, j, k] = nan
-                for a in range(3):
-                    M[a, i, j, k] = nan
-                    M_scale[a, i, j, k] = nan
-        if edge:
+    period = 2 * r + 1  # ring slots: the columns j - r..j + r
+    bands = (ny + _BAND - 1) // _BAND
+    for task in prange(nx * bands):
+        i = task // bands
+        band = task - i * bands
+        low = band * _BAND
+        high = min(ny, low + _BAND)
+        edge_i = (i < r) | (i >= nx - r)
+        for j in range(low, high):
+            edge = edge_i | (j < r) | (j >= ny - r)
+            for k in range(nz):
+                if edge | (k < r) | (k >= nz - r):
+                    H[i, j, k] = nan
+                    H_scale[i, j, k] = nan
+                    for a in range(3):
+                        M[a, i, j, k] = nan
+                        M_scale[a, i, j, k] = nan
+        first = max(low, r)
+        last = min(high, ny - r)
+        if edge_i | (first >= last):
             continue
         # On the thread's stack (see strip_buffers: no run-time overlap checks).
-        buf = strip_buffer(_ROWS, _STRIP, H)
+        buf = strip_buffer(_ROWS, _ROW_LENGTH, H)
+        ring = strip_buffer(_RING_ROWS, _SPAN, H)
         for start in range(r, nz - r, _STRIP):
             count = min(_STRIP, nz - r - start)
+            span = count + 2 * r
             base = u(start)
-            for p in range(6):
-                value_column(gamma, p, i, j, start, count, buf, _G + p)
-                value_column(K, p, i, j, start, count, buf, _KL + p)
-            for q in range(3):
-                for p in range(6):
-                    d1_d2_column(gamma, p, i, j, start, count, q, r, w1, w2, inv_h[q], buf,
-                                 _DG + 6 * q + p, _DDG + 6 * _pair(q, q) + p)
-                    d1_column(K, p, i, j, start, count, q, r, w1, inv_h[q], buf,
-                              _DK + 6 * q + p)
-            for q in range(2):
-                for s in range(q + 1, 3):
-                    for p in range(6):
-                        d11_column(gamma, p, i, j, start, count, q, s, r, w1, inv_h[q],
-                                   inv_h[s], buf, _DDG + 6 * _pair(q, s) + p)
-            for n in range(count):
-                buf[_RHO, n] = rho[i, j, base + u(n)]
-            for a in range(3):
-                value_column(S, a, i, j, start, count, buf, _SRC + a)
-            # The algebra, one loop along the strip per call; literal indices (docstring).
-            _inverse_metric_rows(buf, count, half + half)
-            _christoffel_rows(buf, count, half)
-            _raised_christoffel_rows(buf, count)
-            _christoffel_contractions(buf, count, two)
-            _mixed_curvature_rows(buf, count)
-            _ricci_row(buf, count, 0, 0, half)
-            _ricci_row(buf, count, 0, 1, half)
-            _ricci_row(buf, count, 0, 2, half)
-            _ricci_row(buf, count, 1, 1, half)
-            _ricci_row(buf, count, 1, 2, half)
-            _ricci_row(buf, count, 2, 2, half)
-            _hamiltonian_rows(buf, count, sixteen_pi, two)
-            _momentum_rows(buf, count, 0, eight_pi, two)
-            _momentum_rows(buf, count, 1, eight_pi, two)
-            _momentum_rows(buf, count, 2, eight_pi, two)
-            for n in range(count):
-                k = base + u(n)
-                inside = interior[i, j, k] != 0
-                H[i, j, k] = buf[_OUT, n] if inside else nan
-                H_scale[i, j, k] = buf[_OUT + 1, n] if inside else nan
-            for a in range(3):
+            # Walk the band's columns in order along y; column j + r enters the ring of d_x g,
+            # d_xx g (on the strip widened by r in z), then column j is done.
+            for entering in range(first - r, last + r):
+                _enter_ring(gamma, i, entering, start, span, r, w1, w2, inv_h[0], ring,
+                            entering % period)
+                j = entering - r
+                if j < first:
+                    continue
+                _strip_inputs(gamma, K, rho, S, i, j, start, count, span, r, w1, w2, inv_h,
+                              ring, j % period, period, buf)
+                # The algebra, one loop along the strip per call; literal indices (docstring).
+                _inverse_metric_rows(buf, count, half + half)
+                _christoffel_rows(buf, count, half)
+                _raised_christoffel_rows(buf, count)
+                _christoffel_contractions(buf, count, two)
+                _mixed_curvature_rows(buf, count)
+                _ricci_row(buf, count, 0, 0, half)
+                _ricci_row(buf, count, 0, 1, half)
+                _ricci_row(buf, count, 0, 2, half)
+                _ricci_row(buf, count, 1, 1, half)
+                _ricci_row(buf, count, 1, 2, half)
+                _ricci_row(buf, count, 2, 2, half)
+                _hamiltonian_rows(buf, count, sixteen_pi, two)
+                _momentum_rows(buf, count, 0, eight_pi, two)
+                _momentum_rows(buf, count, 1, eight_pi, two)
+                _momentum_rows(buf, count, 2, eight_pi, two)
                 for n in range(count):
                     k = base + u(n)
                     inside = interior[i, j, k] != 0
-                    M[a, i, j, k] = buf[_OUT + 2 + a, n] if inside else nan
-                    M_scale[a, i, j, k] = buf[_OUT + 5 + a, n] if inside else nan
+                    H[i, j, k] = buf[_OUT, n] if inside else nan
+                    H_scale[i, j, k] = buf[_OUT + 1, n] if inside else nan
+                for a in range(3):
+                    for n in range(count):
+                        k = base + u(n)
+                        inside = interior[i, j, k] != 0
+                        M[a, i, j, k] = buf[_OUT + 2 + a, n] if inside else nan
+                        M_scale[a, i, j, k] = buf[_OUT + 5 + a, n] if inside else nan

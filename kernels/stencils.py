@@ -30,7 +30,10 @@ written so that LLVM vectorises it along z (see its docstring); use it where a k
 derivatives per point. :func:`d2_column` and :func:`d11_column` are its second and mixed
 derivatives, :func:`d1_d2_column` the first and second derivative along one axis in one pass,
 :func:`d1_axes_column` the first derivatives along all three axes in one loop, and
-:func:`value_column` copies the column's values (the same buffer layout).
+:func:`value_column` copies the column's values (the same buffer layout). :func:`d1_row` and
+:func:`d1_ring` differentiate rows of a strip buffer that hold first derivatives (along the row,
+and across rows that hold neighbouring grid columns), which gives mixed second derivatives with
+fewer loads than :func:`d11_column` (the constraint kernel's route).
 """
 
 from __future__ import annotations
@@ -54,6 +57,8 @@ __all__ = [
     "d2_column",
     "d11_column",
     "d1_d2_column",
+    "d1_row",
+    "d1_ring",
     "value_column",
     "d1_staggered",
 ]
@@ -439,3 +444,94 @@ def d1_d2_column(f, c, i, j, k0, count, axis, radius, w1, w2, inv_h, out, row1, 
             out[row1, n] = a1 * (p1 - m1) + a2 * (p2 - m2) + a3 * (p3 - m3)
             out[row2, n] = (b0 * f[c, i, j, k] + b1 * (p1 + m1) + b2 * (p2 + m2)
                             + b3 * (p3 + m3))
+
+
+@point_function
+def d1_row(src, row, second_row, offset, count, radius, weights, inv_h, out, out_value,
+           out_second, out_d1):
+    """Copy two buffer rows and differentiate the first along itself, in one pass:
+    out[out_value, n] = src[row, offset + n], out[out_second, n] = src[second_row, offset + n]
+    and out[out_d1, n] = (1/h) sum_{m=1..r} w_m (src[row, offset + n + m]
+    - src[row, offset + n - m]) for n = 0..count-1.
+
+    For strip kernels that hold a derivative along x or y on a z-strip widened by ``radius``
+    points at each end (``offset`` = ``radius``): the d1 row is then the mixed derivative
+    d_z (d_a f), equal to the tensor-product stencil of :func:`d11_column` up to rounding (the
+    same products of weights and values, summed in another order). ``radius`` 1 to 3, at most
+    ``offset``; ``src`` and ``out`` distinct arrays (strip buffers, see
+    :func:`emsource.kernels.strip_buffers.strip_buffer`). Indices along the row are unsigned, as
+    in :func:`d1_column`.
+    """
+    u = np.uint64
+    base = u(offset)
+    w1 = weights[0] * inv_h
+    p1 = u(offset + 1)
+    m1 = u(offset - 1)
+    if radius == 1:
+        for n in range(count):
+            out[out_value, n] = src[row, base + u(n)]
+            out[out_second, n] = src[second_row, base + u(n)]
+            out[out_d1, n] = w1 * (src[row, p1 + u(n)] - src[row, m1 + u(n)])
+    elif radius == 2:
+        w2 = weights[1] * inv_h
+        p2 = u(offset + 2)
+        m2 = u(offset - 2)
+        for n in range(count):
+            out[out_value, n] = src[row, base + u(n)]
+            out[out_second, n] = src[second_row, base + u(n)]
+            out[out_d1, n] = (w1 * (src[row, p1 + u(n)] - src[row, m1 + u(n)])
+                              + w2 * (src[row, p2 + u(n)] - src[row, m2 + u(n)]))
+    else:
+        w2 = weights[1] * inv_h
+        w3 = weights[2] * inv_h
+        p2 = u(offset + 2)
+        m2 = u(offset - 2)
+        p3 = u(offset + 3)
+        m3 = u(offset - 3)
+        for n in range(count):
+            out[out_value, n] = src[row, base + u(n)]
+            out[out_second, n] = src[second_row, base + u(n)]
+            out[out_d1, n] = (w1 * (src[row, p1 + u(n)] - src[row, m1 + u(n)])
+                              + w2 * (src[row, p2 + u(n)] - src[row, m2 + u(n)])
+                              + w3 * (src[row, p3 + u(n)] - src[row, m3 + u(n)]))
+
+
+@point_function
+def d1_ring(src, first_row, row_step, period, centre, offset, count, radius, weights, inv_h,
+            out, out_row):
+    """out[out_row, n] = (1/h) sum_{m=1..r} w_m (F(centre + m)[offset + n] - F(centre - m)[offset
+    + n]), n = 0..count-1, where F(s) is the buffer row ``first_row + row_step * (s mod period)``.
+
+    The first derivative across rows that hold neighbouring grid columns in a ring of
+    ``period`` (>= 2 ``radius`` + 1) slots of ``row_step`` rows each: with the rows of d_x f
+    at columns j - r..j + r along y and ``centre`` = j mod ``period``, it is the mixed
+    derivative d_y (d_x f), the tensor-product stencil of :func:`d11_column` up to rounding.
+    The rows are resolved once, outside the loop over the strip. ``radius`` 1 to 3; ``src``
+    and ``out`` distinct arrays; unsigned indices along the row, as in :func:`d1_column`.
+    """
+    u = np.uint64
+    base = u(offset)
+    w1 = weights[0] * inv_h
+    p1 = first_row + row_step * ((centre + 1) % period)
+    m1 = first_row + row_step * ((centre + period - 1) % period)
+    if radius == 1:
+        for n in range(count):
+            out[out_row, n] = w1 * (src[p1, base + u(n)] - src[m1, base + u(n)])
+    elif radius == 2:
+        w2 = weights[1] * inv_h
+        p2 = first_row + row_step * ((centre + 2) % period)
+        m2 = first_row + row_step * ((centre + period - 2) % period)
+        for n in range(count):
+            out[out_row, n] = (w1 * (src[p1, base + u(n)] - src[m1, base + u(n)])
+                               + w2 * (src[p2, base + u(n)] - src[m2, base + u(n)]))
+    else:
+        w2 = weights[1] * inv_h
+        w3 = weights[2] * inv_h
+        p2 = first_row + row_step * ((centre + 2) % period)
+        m2 = first_row + row_step * ((centre + period - 2) % period)
+        p3 = first_row + row_step * ((centre + 3) % period)
+        m3 = first_row + row_step * ((centre + period - 3) % period)
+        for n in range(count):
+            out[out_row, n] = (w1 * (src[p1, base + u(n)] - src[m1, base + u(n)])
+                               + w2 * (src[p2, base + u(n)] - src[m2, base + u(n)])
+                               + w3 * (src[p3, base + u(n)] - src[m3, base + u(n)]))

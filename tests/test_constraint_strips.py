@@ -15,7 +15,10 @@ and Christoffel symbols; rounding in any order of summation and association of t
 moves it by at most gamma_N = N eps / (1 - N eps) times the same sum with every term replaced by
 its absolute value (N. J. Higham, Accuracy and Stability of Numerical Algorithms, 2nd ed. (2002),
 sec. 3.1 and 4.2, from memory). The reference computes that sum of absolute values too
-(``magnitude=True``). The longest chain of roundings is a mixed derivative of order 6 (36 terms)
+(``magnitude=True``). The longest chain of roundings is a mixed derivative of order 6 (36 terms;
+the kernel takes it as d_z (d_x g), d_y (d_x g), d_z (d_y g), two nested sums of 6 terms over
+the same products of weights and values as the tensor-product stencil summed here, so fewer
+roundings per term than one sum of 36)
 feeding the Ricci tensor (9 x 4 second-derivative terms plus 9 x 3 x 2 products, contracted
 with 9 inverse-metric entries) and H (about 10 more): N <= 256 covers it, so the check is
 |kernel - reference| <= 256 eps * magnitude. A wrong index or sign gives an error of the size
@@ -166,3 +169,36 @@ def test_strip_kernel_matches_the_pointwise_reference(rng, order):
         # The data are far from a solution: the residuals are of the size of their terms, so a
         # wrong term would show at relative size one.
         assert np.median(np.abs(reference)) > 1e-3 * np.median(magnitude), name
+
+
+@pytest.mark.parametrize("order", (2, 4, 6))
+def test_bands_of_columns_along_y_match_the_reference(rng, order):
+    # The kernel walks the columns of an x index in bands of _BAND along y, filling its ring of
+    # d_x gamma afresh at the start of each band: a y extent of two whole bands and a partial
+    # third one puts interior points on every band edge. Same reference and tolerance as above.
+    r = order // 2
+    shape = (2 * r + 1, 2 * strip_kernel._BAND + 5, 2 * r + 3)
+    spacing = (0.3, 0.4, 0.5)
+    gamma = (np.array([1, 0, 0, 1, 0, 1.0])[:, None, None, None]
+             + 0.1 * rng.standard_normal((6,) + shape))
+    K, S = rng.standard_normal((6,) + shape), rng.standard_normal((3,) + shape)
+    rho = rng.standard_normal(shape)
+    interior = interior_points(np.ones(shape, dtype=bool), order)
+    H, H_scale = np.empty(shape), np.empty(shape)
+    M, M_scale = np.empty((3,) + shape), np.empty((3,) + shape)
+    strip_kernel.adm_constraints_grid(gamma, K, rho, S, interior.view(np.uint8),
+                                      first_derivative_weights(order),
+                                      second_derivative_weights(order), 1.0 / np.array(spacing),
+                                      16 * math.pi, 8 * math.pi, H, M, H_scale, M_scale)
+    points = np.array(np.nonzero(interior))
+    band_edges = {j % strip_kernel._BAND for j in points[1]}
+    assert {0, strip_kernel._BAND - 1} <= band_edges  # first and last column of a band
+    for out in (H, H_scale, M[0], M[1], M[2], M_scale[1]):
+        assert np.array_equal(np.isnan(out), ~interior)
+    expected = reference_constraints(gamma, K, rho, S, points, spacing, order)
+    bounds = reference_constraints(gamma, K, rho, S, points, spacing, order, magnitude=True)
+    found = (H[interior], H_scale[interior], M[:, interior], M_scale[:, interior])
+    for name, value, reference, magnitude in zip(("H", "H scale", "M", "M scale"), found,
+                                                  expected, bounds):
+        error = np.abs(value - reference.astype(np.float64))
+        assert np.all(error <= 256 * EPS * magnitude.astype(np.float64)), name

@@ -217,3 +217,64 @@ def test_three_axis_column_equals_point_derivatives(rng, order):
     flat = _axes_columns(f, 1, i, j, r, 16 - 2 * r, r, 1, 0, 1, w, inv_h)
     assert np.all(flat[1] == 0.0)
     np.testing.assert_array_equal(flat[[0, 2]], columns[[0, 2]])
+
+
+@search_kernel
+def _nested_mixed_columns(f, c, i, j, k0, count, radius, w1, w2, inv_h, period, shift):
+    """d_xz f and d_xy f at (i, j, k0..k0 + count - 1) the way the constraint kernel takes them:
+    d_x f of the columns j - r..j + r on the strip widened by r in z, in ring slots
+    (column + ``shift``) mod ``period`` of 2 rows each (d_x f, d_xx f), then d1_row along the
+    centre slot and d1_ring across the slots. Rows 0..3 of the result: d_x f, d_xx f, d_xz f,
+    d_xy f; rows 4..6: d_y f, its copy and d_yz f from a d1_row call on a plain row of d_y f."""
+    ring = strip_buffer(16, 24, f)
+    buf = strip_buffer(7, 16, f)
+    span = count + 2 * radius
+    for column in range(j - radius, j + radius + 1):
+        slot = (column + shift) % period
+        stencils.d1_d2_column(f, c, i, column, k0 - radius, span, 0, radius, w1, w2, inv_h[0],
+                              ring, 2 * slot, 2 * slot + 1)
+    centre = (j + shift) % period
+    stencils.d1_row(ring, 2 * centre, 2 * centre + 1, radius, count, radius, w1, inv_h[2], buf,
+                    0, 1, 2)
+    stencils.d1_ring(ring, 0, 2, period, centre, radius, count, radius, w1, inv_h[1], buf, 3)
+    stencils.d1_column(f, c, i, j, k0 - radius, span, 1, radius, w1, inv_h[1], ring, 15)
+    stencils.d1_row(ring, 15, 15, radius, count, radius, w1, inv_h[2], buf, 4, 5, 6)
+    out = np.empty((7, count))
+    for row in range(7):
+        for n in range(count):
+            out[row, n] = buf[row, n]
+    return out
+
+
+@pytest.mark.parametrize("order", stencils.SUPPORTED_ORDERS)
+def test_mixed_derivatives_as_derivatives_of_first_derivatives(rng, order):
+    # d_z (d_x f) and d_y (d_x f) from the ring of first derivatives (d1_row, d1_ring: the
+    # constraint kernel's route) against the point function d11, the tensor-product stencil
+    # (checked against sympy above). The tensor product of two 1-D stencils is the 1-D stencil
+    # applied twice, so they differ only in rounding: the same products w_m w_q f / (h_a h_b),
+    # grouped and summed in another order. The sum of their absolute values is at most
+    # |f| (2 sum|w1|)^2 / (h_a h_b) <= 4 * 1.84^2 / (0.2 * 0.25) ~ 270 (|f| <= 4 for these
+    # normal samples, sum|w1| = 0.92 at order 6, the largest), and at most 36 terms summed in
+    # two orders move a result by at most ~36 eps * 270 ~ 2e-12 (Higham, Accuracy and Stability
+    # of Numerical Algorithms (2002), sec. 4.2, from memory): 1e-11, as for d11_column above.
+    # A wrong slot, offset or weight gives an error of the size of the derivative itself.
+    f = rng.standard_normal((2, 9, 10, 16))
+    w1 = stencils.first_derivative_weights(order)
+    w2 = stencils.second_derivative_weights(order)
+    r = order // 2
+    inv_h = np.array([1 / 0.2, 1 / 0.25, 1 / 0.3])
+    i, j = 4, 5
+    count = 16 - 4 * r  # the widened strip k0 - r..k0 + count + r - 1 stays in the array
+    for period, shift in ((2 * r + 1, 0), (7, 3)):  # slots in order, and rotated in a larger ring
+        columns = _nested_mixed_columns(f, 1, i, j, 2 * r, count, r, w1, w2, inv_h, period,
+                                        shift)
+        for n, k in enumerate(range(2 * r, 2 * r + count)):
+            # First derivatives: the same sums in the same order (1e-13, as above).
+            first = _apply_all(f[1:], w1, w2, inv_h, i, j, k)[:, 0]
+            assert abs(columns[0, n] - first[0]) <= 1e-13
+            assert abs(columns[1, n] - _second_point(f[1:], w1, w2, inv_h, i, j, k, 0, 0)) <= 1e-11
+            assert abs(columns[2, n] - _second_point(f[1:], w1, w2, inv_h, i, j, k, 0, 2)) <= 1e-11
+            assert abs(columns[3, n] - _second_point(f[1:], w1, w2, inv_h, i, j, k, 0, 1)) <= 1e-11
+            assert abs(columns[4, n] - first[1]) <= 1e-13
+            assert columns[5, n] == columns[4, n]
+            assert abs(columns[6, n] - _second_point(f[1:], w1, w2, inv_h, i, j, k, 1, 2)) <= 1e-11
