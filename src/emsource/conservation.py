@@ -310,13 +310,32 @@ def _run_kernels(p: _Prepared, order, rate_mode, rate_arrays, inv_2dt, write_sou
             v["alpha"], v["beta"], v["gamma"], p.gidx, v["E"], v["B"], rate_mode, g_a, gidx_a,
             e_a, b_a, g_b, gidx_b, e_b, b_b, dt(inv_2dt), dt(p.coef), dt(0.5), work4),
             _PASS_1_INPUTS)
+        lines = _plane_lines(v["alpha"], v["beta"], v["gamma"], v["K"], v["E"], v["B"],
+                             v["charge_density"], v["current_density"], work4, residual[pad],
+                             scale[pad], sources[pad])
         call_sharing_layouts(kernels.residuals, (
-            v["alpha"], v["beta"], v["gamma"], p.gidx, v["K"], p.kidx, v["E"], v["B"],
-            v["charge_density"], v["current_density"], work4,
+            *lines[:3], p.gidx, lines[3], p.kidx, *lines[4:9],
             first_derivative_weights(order, p.dtype), dt(p.inv_h[0]), dt(p.inv_h[1]),
-            dt(p.inv_h[2]), rx, ry, rz, dt(p.coef), dt(0.5), residual[pad], scale[pad],
-            sources[pad], bool(write_sources), partials), _PASS_2_INPUTS)
+            dt(p.inv_h[2]), rx, ry, rz, dt(p.coef), dt(0.5), *lines[9:],
+            bool(write_sources), partials, padded_shape[1], padded_shape[2]), _PASS_2_INPUTS)
     return residual, scale, (sources if write_sources else None), partials, work4
+
+
+def _plane_lines(*arrays):
+    """The (ncomp, nx, ny, nz) ``arrays`` as (ncomp, nx, 1, ny * nz) views when every one of
+    them allows it (y and z C-ordered, as in any C-contiguous array), else as they are.
+
+    Pass 2 (:func:`emsource.kernels.conservation.residuals`) then runs its strips along whole
+    x-planes instead of single columns: 0.8 of its time at 128^3 (README "Speed"). The views
+    share the arrays' memory (``copy=False``: a reshape that needs a copy raises).
+    """
+    lines = []
+    for a in arrays:
+        try:
+            lines.append(np.reshape(a, a.shape[:2] + (1, a.shape[2] * a.shape[3]), copy=False))
+        except ValueError:
+            return arrays
+    return tuple(lines)
 
 
 def _norm_partial_of_columns(partials, count):
