@@ -284,25 +284,33 @@ _ROWS = 50
 
 @grid_kernel
 def residuals(alpha, beta, gamma, gidx, K, kidx, E, B, charge, current, work,
-              weights, inv_hx, inv_hy, inv_hz, rx, ry, rz, coef, half,
-              residual, scale, sources, write_sources, partials, ny, nz):
+              weights, inv_hx, inv_hy, inv_hz, steps, radius0, radius1, radius2, coef, half,
+              residual, scale, sources, write_sources, partials, rows, row_length):
     """Residuals of the energy (component 0) and momentum (1..3) equations.
 
-    The grid is (nx, ny, nz); the arrays are either (ncomp, nx, ny, nz) or, when the wrapper
-    can see every array's (y, z) axes as one (C-ordered along them), (ncomp, nx, 1, ny * nz):
-    each x-plane is then one line of the array, and a strip runs through several grid columns
-    (the y-neighbours of a point are nz apart along the line). ``ny``, ``nz`` are the grid's.
+    Array axes and grid directions. The grid's points are held as (n0, rows, row_length) along
+    three array axes; for (ncomp, nx, ny, nz) arrays these are x, y, z, for data stored z, y, x
+    seen with the axes reversed (the wrapper's choice) z, y, x. The arrays are either
+    (ncomp, n0, rows, row_length) or, when the wrapper can see the last two axes of every array
+    as one (C-ordered along them), (ncomp, n0, 1, rows * row_length): each plane is then one
+    line, and a strip runs through several rows (neighbours along axis 1 are ``row_length``
+    apart along the line). ``radius0``, ``radius1``, ``radius2`` are the stencil radii along
+    the three array axes (0 along an axis without extent). The derivatives are by grid
+    direction: ``steps`` (3, 3) holds per direction x, y, z the array index step (i, j, k) to
+    the next point (all 0 for a direction without extent), and ``inv_hx``.. the inverse
+    spacings.
 
-    ``partials`` (nx * ny, 16) receives per grid column the sums of squares of the residuals
-    (0..3) and of the scales (4..7) and the largest |residual| (8..11) and scale (12..15) over
-    the column's interior points, so that norms need no whole-grid temporaries (a max
-    reduction across prange would be slow: measured in the source kernels). NaN residuals make
-    the sums NaN and are skipped by the maxima.
+    ``partials`` (n0 * rows, 16) receives per row of ``row_length`` points the sums of squares
+    of the residuals (0..3) and of the scales (4..7) and the largest |residual| (8..11) and
+    scale (12..15) over the row's interior points, so that norms need no whole-grid
+    temporaries (a max reduction across prange would be slow: measured in the source kernels).
+    NaN residuals make the sums NaN and are skipped by the maxima.
 
-    ``residual`` and ``scale`` are (4, ...) like the inputs; points within ``rx``, ``ry``, ``rz``
-    of a face get NaN. ``scale`` is the largest absolute value among the terms of each equation
-    at the point (time term, each d_i of the flux, each source term). With ``write_sources`` the
-    right-hand sides are written to ``sources`` (4, ...) too (else ``sources`` is not touched).
+    ``residual`` and ``scale`` are (4, ...) like the inputs; points within ``radius0``,
+    ``radius1``, ``radius2`` of a face get NaN. ``scale`` is the largest absolute value among
+    the terms of each equation at the point (time term, each d_i of the flux, each source
+    term). With ``write_sources`` the right-hand sides are written to ``sources`` (4, ...) too
+    (else ``sources`` is not touched).
 
     Each line is done in strips of up to ``_STRIP`` points, from the first interior point of
     its first interior row to the last of its last, with one (``_ROWS``, ``_ROW_LENGTH``)
@@ -317,36 +325,36 @@ def residuals(alpha, beta, gamma, gidx, K, kidx, E, B, charge, current, work,
        minute to compile, measured). Rows: see ``_DIVERGENCE`` .. ``_D_BETA``;
     2. one loop over the strip reads the derivatives from the buffer and the point values
        from the inputs and writes residual, scale and source terms to the buffer;
-    3. short loops copy those rows to the outputs and reduce each grid column's interior part
-       into ``partials``.
+    3. short loops copy those rows to the outputs and reduce each row's interior part into
+       ``partials``.
 
-    The points of a strip between two columns' interiors (within ``rz`` of the z faces) are
-    computed with stencils that reach into the neighbouring column and are then overwritten
-    with NaN, like the rest of the boundary layer.
+    The points of a strip between two rows' interiors (within ``radius2`` of the faces) are
+    computed with stencils that reach into the neighbouring row and are then overwritten with
+    NaN, like the rest of the boundary layer.
 
     Why this shape (measured, README "Speed"): LLVM vectorises a loop only if it can prove, or
     check at run time with at most 8 comparisons, that its stores do not overlap its loads; a
     stack buffer overlaps no input, so loops that read many input rows and write only the
-    buffer vectorise without checks. Strips through whole x-planes rather than columns: the
-    fixed cost per strip (loop set-up, the start of some 200 row streams) is shared by 4x more
-    points at 128^3. Indices along a line are unsigned for the reason given in ``d1_column``.
+    buffer vectorise without checks. Strips through whole planes rather than single rows: the
+    fixed cost per strip (loop set-up, the start of some 200 streams of neighbouring rows) is
+    shared by 4x more points at 128^3. Indices along a line are unsigned for the reason given
+    in ``d1_column``.
     """
     u = np.uint64
-    nx = alpha.shape[1]
+    n0 = alpha.shape[1]
     lines_per_plane = alpha.shape[2]
-    # One line per x-plane (ny rows of nz points) or one per grid column.
-    flat = lines_per_plane != ny
-    rows = ny if flat else 1
+    # One line per plane (rows of row_length points) or one per row.
+    flat = lines_per_plane != rows
+    rows_per_line = rows if flat else 1
+    nz = row_length
     one = half + half
     two = one + one
     zero = one - one
     nan = zero / zero
-    # Stencil radius of the order; the index steps to the next point along x, y, z (0 along an
-    # axis without extent, whose differences are then 0).
     order_radius = weights.shape[0]
-    step_x = (1 if rx > 0 else 0, 0, u(0))
-    step_y = (0, 0 if flat else (1 if ry > 0 else 0), u(nz) if (flat and ry > 0) else u(0))
-    step_z = (0, 0, u(1) if rz > 0 else u(0))
+    step_x = (steps[0, 0], steps[0, 1], u(steps[0, 2]))
+    step_y = (steps[1, 0], steps[1, 1], u(steps[1, 2]))
+    step_z = (steps[2, 0], steps[2, 1], u(steps[2, 2]))
     g0 = gidx[0]
     g1 = gidx[1]
     g2 = gidx[2]
@@ -359,22 +367,23 @@ def residuals(alpha, beta, gamma, gidx, K, kidx, E, B, charge, current, work,
     q3 = kidx[3]
     q4 = kidx[4]
     q5 = kidx[5]
-    for line in prange(nx * lines_per_plane):
+    for line in prange(n0 * lines_per_plane):
         i = line // lines_per_plane
         j = line - i * lines_per_plane
         first_row = 0 if flat else j
-        column0 = i * ny + first_row
-        for r in range(rows):
+        column0 = i * rows + first_row
+        for r in range(rows_per_line):
             for c in range(8):
                 partials[column0 + r, c] = zero
                 partials[column0 + r, 8 + c] = zero
         # The line's interior rows lo..hi-1 (relative to first_row).
-        lo = ry - first_row if ry > first_row else 0
-        hi = ny - ry - first_row if ny - ry - first_row < rows else rows
-        if (i >= rx) & (i < nx - rx) & (lo < hi):
+        lo = radius1 - first_row if radius1 > first_row else 0
+        hi = rows - radius1 - first_row
+        hi = hi if hi < rows_per_line else rows_per_line
+        if (i >= radius0) & (i < n0 - radius0) & (lo < hi):
             buf = strip_buffer(_ROWS, _ROW_LENGTH, work)
-            for start in range(lo * nz + rz, hi * nz - rz, _STRIP):
-                count = min(_STRIP, hi * nz - rz - start)
+            for start in range(lo * nz + radius2, hi * nz - radius2, _STRIP):
+                count = min(_STRIP, hi * nz - radius2 - start)
                 base = u(start)
                 d1_directions_column(alpha, 0, i, j, start, count, order_radius, step_x, step_y,
                                      step_z, weights, inv_hx, inv_hy, inv_hz, buf, _D_ALPHA,
@@ -464,11 +473,11 @@ def residuals(alpha, beta, gamma, gidx, K, kidx, E, B, charge, current, work,
                     for c in range(4):
                         for n in range(count):
                             sources[c, i, j, base + u(n)] = buf[_SOURCE + c, n]
-                # Norm sums and maxima of each grid column's interior part of the strip, from
-                # the rows just written (still in cache).
+                # Norm sums and maxima of each row's interior part of the strip, from the
+                # buffer rows just written (still in cache).
                 for r in range(start // nz, (start + count - 1) // nz + 1):
-                    a0 = r * nz + rz - start if r * nz + rz > start else 0
-                    a1 = r * nz + nz - rz - start
+                    a0 = r * nz + radius2 - start if r * nz + radius2 > start else 0
+                    a1 = r * nz + nz - radius2 - start
                     a1 = a1 if a1 < count else count
                     column = column0 + r
                     for c in range(4):
@@ -488,12 +497,13 @@ def residuals(alpha, beta, gamma, gidx, K, kidx, E, B, charge, current, work,
                         partials[column, 8 + c] = max_r
                         partials[column, 12 + c] = max_s
         # NaN on the boundary layer, after the strips: in one-line-per-plane mode it overwrites
-        # the points between two columns' interiors that the strips computed.
-        for r in range(rows):
+        # the points between two rows' interiors that the strips computed.
+        for r in range(rows_per_line):
             row = first_row + r
-            edge = (i < rx) | (i >= nx - rx) | (row < ry) | (row >= ny - ry)
-            low = nz if edge else rz
-            high = nz if edge else nz - rz
+            edge = ((i < radius0) | (i >= n0 - radius0) | (row < radius1)
+                    | (row >= rows - radius1))
+            low = nz if edge else radius2
+            high = nz if edge else nz - radius2
             offset = r * nz
             for c in range(4):
                 for k in range(offset, offset + low):

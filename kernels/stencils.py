@@ -481,9 +481,12 @@ def d1_directions_column(f, c, i, j, k0, count, radius, offsets_x, offsets_y, of
     if radius == 1:
         for n in range(count):
             k = base + u(n)
-            out[row_x, n] = wx1 * (f[c, i + xi1, j + xj1, k + xk1] - f[c, i - xi1, j - xj1, k - xk1])
-            out[row_y, n] = wy1 * (f[c, i + yi1, j + yj1, k + yk1] - f[c, i - yi1, j - yj1, k - yk1])
-            out[row_z, n] = wz1 * (f[c, i + zi1, j + zj1, k + zk1] - f[c, i - zi1, j - zj1, k - zk1])
+            out[row_x, n] = wx1 * (f[c, i + xi1, j + xj1, k + xk1]
+                                      - f[c, i - xi1, j - xj1, k - xk1])
+            out[row_y, n] = wy1 * (f[c, i + yi1, j + yj1, k + yk1]
+                                      - f[c, i - yi1, j - yj1, k - yk1])
+            out[row_z, n] = wz1 * (f[c, i + zi1, j + zj1, k + zk1]
+                                      - f[c, i - zi1, j - zj1, k - zk1])
     elif radius == 2:
         wx2 = weights[1] * inv_hx
         wy2 = weights[1] * inv_hy
