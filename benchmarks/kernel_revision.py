@@ -14,6 +14,7 @@ from __future__ import annotations
 import importlib.util
 import os
 import subprocess
+import sys
 import tempfile
 
 ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
@@ -39,5 +40,9 @@ def revision_module(rev: str, kernel: str):
             handle.write(source)
     spec = importlib.util.spec_from_file_location(f"emsource.kernels._revision_{kernel}", path)
     module = importlib.util.module_from_spec(spec)
+    # Registered before it runs: Numba's disk cache stores the module name of each compiled
+    # kernel and imports it again when it loads the kernel in a later process (an unregistered
+    # module failed there with "No module named '<dynamic>'").
+    sys.modules[spec.name] = module
     spec.loader.exec_module(module)
     return module
