@@ -483,7 +483,10 @@ def conservation_residual(alpha, beta, gamma, K, E, B, *, spacing, order=4, unit
     work : (16, *grid) ndarray, optional
         Scratch array in the inputs' dtype, reused between calls (an evolution loop then
         allocates only the outputs); it holds the fluxes and time terms afterwards. Make it with
-        :func:`new_work_array` (C-ordered; any (16, *grid) array works, more slowly).
+        :func:`new_work_array` (C-ordered; any (16, *grid) array works, more slowly). For inputs
+        stored z, y, x (transposed views), which the kernels walk with the axes reversed, give it
+        the same order, ``np.empty((16, nz, ny, nx)).transpose(0, 3, 2, 1)``: a C-ordered one
+        sends the call down the slower strided path.
     patch : emsource.patches.PatchGrid, optional
         Under MPI: the rank's patch; the arrays cover its local array, ghosts included.
     comm : mpi4py communicator, optional
