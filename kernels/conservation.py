@@ -23,6 +23,8 @@ Two passes over the grid, no other whole-grid temporaries:
 
 All arrays are (ncomp, nx, ny, nz) views (scalars as (1, nx, ny, nz)), any strides; a 1D or 2D
 grid comes with length-1 trailing axes, along which ``radius`` is 0 and no derivative is taken.
+Pass 2 may get them with the grid axes reversed (data stored z, y, x) and each plane as one line
+(see :func:`residuals`); pass 1, a pointwise loop, takes any of these arrangements.
 Metric and curvature are read through six component indices (``gidx``) so that a packed (6, ...)
 or a full (3, 3, ...) block seen as (9, ...) serve one compiled kernel. Constants arrive in the
 data's dtype.
