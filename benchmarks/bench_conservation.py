@@ -1,6 +1,6 @@
 """Speed of the conservation residual (emsource.conservation), with a bandwidth yardstick.
 
-Run:  python benchmarks/bench_conservation.py [--points 128] [--repeat 7] [--rev b89a3b2]
+Run:  python benchmarks/bench_conservation.py [--points 128] [--repeat 7] [--rev 51d4f41]
 
 In one run and on the same Numba threads it measures
   (a) a STREAM-style triad a = b + s c (bandwidth counted as 3 arrays moved, the usual way),
@@ -10,14 +10,14 @@ In one run and on the same Numba threads it measures
       ``conservation_residual`` (which allocates its outputs and computes the norms);
   (b0) each of the two passes alone, each next to a kernel with the same memory traffic and no
       physics (pass 1: 28 rows read, 16 written, flat; pass 2: the same 42 first derivatives
-      through ``d1_column`` into the same strip buffer, 16 more rows read, 8 written), so that
-      the share of the triad each pass loses to its access pattern and to its arithmetic can
-      be read apart;
+      through the same stencil functions into the same stack strip buffer, along the same
+      x-plane lines, 20 more rows read, 8 written), so that the share of the triad each pass
+      loses to its access pattern and to its arithmetic can be read apart;
   (c) a plain-NumPy implementation of the same residual (slicing for the differences, whole-
       grid temporaries), written here, and the speed-up of (b) over it.
-The kernels as they were before the stack strip buffer (``kernels/conservation.py`` at git
-revision ``--rev``, loaded by ``kernel_revision.py``) are timed in the same run, each right after
-the current ones, at orders 2, 4, 6.
+The kernels of an earlier revision (``kernels/conservation.py`` at git revision ``--rev``,
+default 51d4f41: pass 2 in strips along single grid columns; loaded by ``kernel_revision.py``)
+are timed in the same run, each right after the current ones, at orders 2, 4, 6.
 It prints medians: points per second, the effective bandwidth counting each array the two
 passes read or write once (94 per point), its share of the triad, and the ratios.
 The machine is shared and noisy: read ratios, not absolute figures.
@@ -39,7 +39,9 @@ from numba import prange
 from emsource.conservation import conservation_residual, new_work_array
 from emsource.kernels import conservation as kernels
 from emsource.kernels._compile import grid_kernel
-from emsource.kernels.stencils import d1_column, first_derivative_weights
+from emsource.kernels.stencils import (d1_directions_column, divergence_column,
+                                        first_derivative_weights)
+from emsource.kernels.strip_buffers import strip_buffer
 
 sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
 from kernel_revision import revision_module  # noqa: E402  (the "before", see docstring)
@@ -67,39 +69,43 @@ def _pass1_traffic(inputs, work):
 
 
 @grid_kernel
-def _pass2_traffic(fields, points, weights, inv_h, out):
-    """Pass 2's traffic without its physics: the same 42 first derivatives of ``fields``
-    (26, nx, ny, nz; 14 differentiated along each axis) by :func:`d1_column` into the same
-    (81, 128) strip buffer, 16 more point values read from ``points`` (16, nx, ny, nz), and 8
-    outputs (8, nx, ny, nz) written as sums of buffer rows, on the interior points (radius 2).
+def _pass2_traffic(fields, points, weights, inv_h, out, ny, nz):
+    """Pass 2's traffic without its physics, in its loop shape: each x-plane of the C-ordered
+    arrays as one line ((ncomp, nx, 1, ny * nz) views), strips of 512 points through its
+    interior columns, the same stencils into the same (50, 520) stack buffer: the three first
+    derivatives of 10 rows of ``fields`` (22, ...) and the divergences of the other 12 taken
+    three at a time (42 derivatives), 20 more point values read from ``points``, and 8 outputs
+    ``out`` (8, ...) written as sums of buffer rows, at radius 2.
     """
     u = np.uint64
     nx = fields.shape[1]
-    ny = fields.shape[2]
-    nz = fields.shape[3]
-    for column in prange(nx * ny):
-        i = column // ny
-        j = column - i * ny
-        if (i < 2) | (i >= nx - 2) | (j < 2) | (j >= ny - 2):
-            continue
-        buf = np.empty((81, 128), dtype=fields.dtype)
-        for start in range(2, nz - 2, 128):
-            count = min(128, nz - 2 - start)
-            for q in range(3):
-                for c in range(14):
-                    d1_column(fields, c + 4 * q, i, j, start, count, q, 2, weights, inv_h, buf,
-                              14 * q + c)
-            for c in range(16):
-                for n in range(count):
-                    buf[42 + c, n] = points[c, i, j, u(start) + u(n)]
+    step_x = (1, 0, u(0))
+    step_y = (0, 0, u(nz))
+    step_z = (0, 0, u(1))
+    for i in prange(2, nx - 2):
+        buf = strip_buffer(50, 520, fields)
+        for start in range(2 * nz + 2, (ny - 2) * nz - 2, 512):
+            count = min(512, (ny - 2) * nz - 2 - start)
+            base = u(start)
+            for c in range(10):
+                d1_directions_column(fields, c, i, 0, start, count, 2, step_x, step_y, step_z,
+                                     weights, inv_h, inv_h, inv_h, buf, 3 * c, 3 * c + 1,
+                                     3 * c + 2)
+            for q in range(4):
+                divergence_column(fields, 10 + 3 * q, 11 + 3 * q, 12 + 3 * q, i, 0, start, count,
+                                  2, step_x, step_y, step_z, weights, inv_h, inv_h, inv_h, buf,
+                                  30 + q, 34 + q)
             for n in range(count):
+                k = base + u(n)
                 s = buf[0, n]
-                for r in range(1, 58):
+                for r in range(1, 38):
                     s += buf[r, n]
-                buf[69, n] = s
+                for c in range(20):
+                    s += points[c, i, 0, k]
+                buf[38, n] = s
             for c in range(8):
                 for n in range(count):
-                    out[c, i, j, u(start) + u(n)] = buf[69, n] + c
+                    out[c, i, 0, base + u(n)] = buf[38, n] + c
 
 
 @grid_kernel
@@ -219,8 +225,9 @@ def main(argv=None):
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--points", type=int, default=128, help="points per axis (default 128)")
     parser.add_argument("--repeat", type=int, default=7, help="repetitions per median (default 7)")
-    parser.add_argument("--rev", default="b89a3b2",
-                        help="git revision of the old kernels (default b89a3b2, before the stack buffer)")
+    parser.add_argument("--rev", default="51d4f41",
+                        help="git revision of the old kernels (default 51d4f41, strips along "
+                             "single columns)")
     args = parser.parse_args(argv)
     n = args.points
     old_kernels = revision_module(args.rev, "conservation")
@@ -242,15 +249,35 @@ def main(argv=None):
     weights = first_derivative_weights(4)
     coef = 1.0 / (4.0 * math.pi)
 
+    lines = {k: a.reshape(a.shape[:2] + (1, n * n)) for k, a in v.items()}
+    work_lines, residual_lines, scale_lines = (a.reshape(a.shape[:2] + (1, n * n))
+                                               for a in (work, residual, scale))
+
+    # Index steps to the next point along x, y, z on those lines (see conservation._run_kernels).
+    plane_steps = np.array([(1, 0, 0), (0, 0, n), (0, 0, 1)], dtype=np.int64)
+
+    def residuals_of(module, weights, r):
+        """Pass 2 as the public wrapper calls it: the current kernel on x-plane lines (the
+        views ``conservation._plane_lines`` makes), an old one (no grid extent arguments) on
+        the (ncomp, nx, ny, nz) arrays."""
+        if module.residuals.py_func.__code__.co_argcount == 28:
+            a = lines
+            module.residuals(a["alpha"], a["beta"], a["gamma"], gidx, a["K"], gidx, a["E"],
+                             a["B"], a["charge_density"], a["current_density"], work_lines,
+                             weights, 1 / h, 1 / h, 1 / h, plane_steps, r, r, r, coef, 0.5,
+                             residual_lines, scale_lines, residual_lines, False, partials, n, n)
+        else:
+            module.residuals(v["alpha"], v["beta"], v["gamma"], gidx, v["K"], gidx, v["E"],
+                             v["B"], v["charge_density"], v["current_density"], work, weights,
+                             1 / h, 1 / h, 1 / h, r, r, r, coef, 0.5, residual, scale, residual,
+                             False, partials)
+
     def two_passes(module=kernels, order=4):
         r = order // 2
         module.fluxes_and_rates(v["alpha"], v["beta"], v["gamma"], gidx, v["E"], v["B"], 2,
                                 v["dt_gamma"], gidx, v["dt_E"], v["dt_B"],
                                 v["gamma"], gidx, v["E"], v["B"], 0.0, coef, 0.5, work)
-        module.residuals(v["alpha"], v["beta"], v["gamma"], gidx, v["K"], gidx, v["E"], v["B"],
-                         v["charge_density"], v["current_density"], work,
-                         first_derivative_weights(order), 1 / h, 1 / h, 1 / h, r, r, r, coef, 0.5,
-                         residual, scale, residual, False, partials)
+        residuals_of(module, first_derivative_weights(order), r)
 
     def pass1(module=kernels):
         module.fluxes_and_rates(v["alpha"], v["beta"], v["gamma"], gidx, v["E"], v["B"], 2,
@@ -258,23 +285,20 @@ def main(argv=None):
                                 v["gamma"], gidx, v["E"], v["B"], 0.0, coef, 0.5, work)
 
     def pass2(module=kernels):
-        module.residuals(v["alpha"], v["beta"], v["gamma"], gidx, v["K"], gidx, v["E"], v["B"],
-                         v["charge_density"], v["current_density"], work, weights,
-                         1 / h, 1 / h, 1 / h, 2, 2, 2, coef, 0.5, residual, scale, residual, False,
-                         partials)
+        residuals_of(module, weights, 2)
 
     # Same-traffic probes (no physics), each timed next to the pass it mirrors.
     flat_in = np.random.default_rng(1).random((PASS1_ARRAYS - 16, points))
     flat_in = np.concatenate([flat_in, flat_in[:16]])  # (28, npoints)
     flat_work = np.empty((16, points))
-    fields = np.random.default_rng(2).random((26, n, n, n))
-    point_rows = np.random.default_rng(3).random((16, n, n, n))
-    probe_out = np.empty((8, n, n, n))
+    fields = np.random.default_rng(2).random((22, n, 1, n * n))
+    point_rows = np.random.default_rng(3).random((20, n, 1, n * n))
+    probe_out = np.empty((8, n, 1, n * n))
     probes = {
         "pass 1 (fluxes and rates)": (pass1, lambda: _pass1_traffic(flat_in, flat_work),
                                       PASS1_ARRAYS),
         "pass 2 (residuals)": (pass2, lambda: _pass2_traffic(fields, point_rows, weights, 1 / h,
-                                                             probe_out), PASS2_ARRAYS),
+                                                             probe_out, n, n), PASS2_ARRAYS),
     }
     print("\n(b0) each pass (current kernels, the old ones, and a kernel with the same traffic and "
           "no physics; arrays counted once)")

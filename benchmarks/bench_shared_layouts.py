@@ -62,8 +62,8 @@ def pass_arguments(d, h, n):
              v["dt_E"], v["dt_B"], v["gamma"], gidx, v["E"], v["B"], f(0.0), coef, f(0.5), work)
     second = (v["alpha"], v["beta"], v["gamma"], gidx, v["K"], gidx, v["E"], v["B"],
               v["charge_density"], v["current_density"], work, first_derivative_weights(4),
-              f(1 / h), f(1 / h), f(1 / h), 2, 2, 2, coef, f(0.5), residual, scale, residual,
-              False, partials)
+              f(1 / h), f(1 / h), f(1 / h), np.eye(3, dtype=np.int64), 2, 2, 2, coef, f(0.5),
+              residual, scale, residual, False, partials, n, n)
     return first, second
 
 

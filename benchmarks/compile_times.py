@@ -9,9 +9,11 @@ once on a small grid (float64):
   sources        ``adm_sources`` on contiguous arrays
   conservation   ``conservation_residual`` on contiguous arrays, supplied time derivatives
   strided        the same on arrays stored z-fastest and seen through transposed views (the
-                 snapshot layout with axes in the order z, y, x): every input strided
+                 snapshot layout with axes in the order z, y, x): every input strided (the
+                 wrapper hands them to the kernels with the axes reversed, so they share the
+                 contiguous specialisation)
   mixed          the same with only E, B and their time derivatives strided (another mix of
-                 contiguous and strided inputs; it shares the strided specialisation)
+                 contiguous and strided inputs: the strided specialisation)
   constraints    ``adm_constraints`` on contiguous arrays
 
 Every compilation of a dispatcher is recorded through Numba's event API ("numba:compile");

@@ -23,6 +23,8 @@ Two passes over the grid, no other whole-grid temporaries:
 
 All arrays are (ncomp, nx, ny, nz) views (scalars as (1, nx, ny, nz)), any strides; a 1D or 2D
 grid comes with length-1 trailing axes, along which ``radius`` is 0 and no derivative is taken.
+Pass 2 may get them with the grid axes reversed (data stored z, y, x) and each plane as one line
+(see :func:`residuals`); pass 1, a pointwise loop, takes any of these arrangements.
 Metric and curvature are read through six component indices (``gidx``) so that a packed (6, ...)
 or a full (3, 3, ...) block seen as (9, ...) serve one compiled kernel. Constants arrive in the
 data's dtype.
@@ -43,7 +45,7 @@ from .electromagnetic import (
     sqrt_determinant,
 )
 from .metric import inverse_metric, metric_factors
-from .stencils import d1_axes_column, d1_column
+from .stencils import d1_directions_column, divergence_column
 from .strip_buffers import strip_buffer
 
 
@@ -236,104 +238,125 @@ def _momentum_terms(q, sg, a, coef, half, energy2, rho, rho_e, e_low, lorentz_b,
     ex, ey, ez, bx, by, bz = fields
     ixx, ixy, ixz, iyy, iyz, izz = inverse
     sx, sy, sz = s_low
-    g0 = 15 + 6 * q
+    g0 = _D_GAMMA + 6 * q
     hxx = der[g0, k]
     hxy = der[g0 + 1, k]
     hxz = der[g0 + 2, k]
     hyy = der[g0 + 3, k]
     hyz = der[g0 + 4, k]
     hzz = der[g0 + 5, k]
-    b0 = 33 + 3 * q
-    div_a = der[3 + q, k]
-    div_b = der[6 + q, k]
-    div_c = der[9 + q, k]
+    b0 = _D_BETA + 3 * q
+    divergence = der[_DIVERGENCE + 1 + q, k]
     trace_h = ixx * hxx + iyy * hyy + izz * hzz + two * (ixy * hxy + ixz * hxz + iyz * hyz)
     heb = (hxx * (ex * ex + bx * bx) + hyy * (ey * ey + by * by) + hzz * (ez * ez + bz * bz)
            + two * (hxy * (ex * ey + bx * by) + hxz * (ex * ez + bx * bz) + hyz * (ey * ez + by * bz)))
     metric_q = sg * half * a * coef * (half * energy2 * trace_h - heb)
     shift_q = sg * (sx * der[b0, k] + sy * der[b0 + 1, k] + sz * der[b0 + 2, k])
-    lapse_q = -sg * rho * der[12 + q, k]
+    lapse_q = -sg * rho * der[_D_ALPHA + q, k]
     charge_q = -sg * a * rho_e * e_low
     current_q = -sg * a * lorentz_b
     src_q = metric_q + shift_q + lapse_q + charge_q + current_q
-    big = _max3(_max3(abs(dt_m), abs(div_a), abs(div_b)),
-                _max3(abs(div_c), abs(metric_q), abs(shift_q)),
-                _max3(abs(lapse_q), abs(charge_q), abs(current_q)))
-    return dt_m + (div_a + div_b + div_c) - src_q, big, src_q
+    big = _max3(_max3(abs(dt_m), der[_FLUX_TERM + 1 + q, k], abs(metric_q)),
+                _max3(abs(shift_q), abs(lapse_q), abs(charge_q)), abs(current_q))
+    return dt_m + divergence - src_q, big, src_q
 
 
-#: Points along z per strip of pass 2. Literals, so that LLVM sees the buffer's row stride as a
-#: constant (see :func:`residuals`); its rows hold one more cache line than a strip, so that
-#: row r + 4 does not start in the same L1 set as row r (1-3 % faster than 128, measured).
-_STRIP = 128
-_ROW_LENGTH = 136
+#: Points per strip of pass 2 (literals, so that LLVM sees the buffer's row stride as a
+#: constant). A strip runs along the array's last axis, through several grid columns when the
+#: wrapper hands the kernel an x-plane as one line (see :func:`residuals`): each strip costs a
+#: fixed time besides its points (measured, one thread, 40 x 40 x 516 grid, order 4: 80 / 60 /
+#: 55 ns per point with strips of 128 / 256 / 512). The rows hold one cache line more than a
+#: strip, so that row r + 4 does not start in the same L1 set as row r (1-3 %, measured).
+_STRIP = 512
+_ROW_LENGTH = 520
 
-#: Rows of the pass-2 buffer: 42 derivatives, then the residuals, scales and sources (4 each).
-_RESIDUAL = 42
-_SCALE = 46
-_SOURCE = 50
-_ROWS = 54
+#: Rows of the pass-2 buffer: the flux divergence of the energy and the three momentum
+#: equations, the largest |d_a F^a| of each, d_q alpha, d_q gamma_c (6 per q), d_q beta^c
+#: (3 per q); then the residuals, scales and sources (4 each).
+_DIVERGENCE = 0
+_FLUX_TERM = 4
+_D_ALPHA = 8
+_D_GAMMA = 11
+_D_BETA = 29
+_RESIDUAL = 38
+_SCALE = 42
+_SOURCE = 46
+_ROWS = 50
 
 
 @grid_kernel
 def residuals(alpha, beta, gamma, gidx, K, kidx, E, B, charge, current, work,
-              weights, inv_hx, inv_hy, inv_hz, rx, ry, rz, coef, half,
-              residual, scale, sources, write_sources, partials):
+              weights, inv_hx, inv_hy, inv_hz, steps, radius0, radius1, radius2, coef, half,
+              residual, scale, sources, write_sources, partials, rows, row_length):
     """Residuals of the energy (component 0) and momentum (1..3) equations.
 
-    ``partials`` (nx * ny, 16) receives per grid column the sums of squares of the residuals
-    (0..3) and of the scales (4..7) and the largest |residual| (8..11) and scale (12..15) over
-    the column's interior points, so that norms need no whole-grid temporaries (a max
-    reduction across prange would be slow: measured in the source kernels). NaN residuals make
-    the sums NaN and are skipped by the maxima.
+    Array axes and grid directions. The grid's points are held as (n0, rows, row_length) along
+    three array axes; for (ncomp, nx, ny, nz) arrays these are x, y, z, for data stored z, y, x
+    seen with the axes reversed (the wrapper's choice) z, y, x. The arrays are either
+    (ncomp, n0, rows, row_length) or, when the wrapper can see the last two axes of every array
+    as one (C-ordered along them), (ncomp, n0, 1, rows * row_length): each plane is then one
+    line, and a strip runs through several rows (neighbours along axis 1 are ``row_length``
+    apart along the line). ``radius0``, ``radius1``, ``radius2`` are the stencil radii along
+    the three array axes (0 along an axis without extent). The derivatives are by grid
+    direction: ``steps`` (3, 3) holds per direction x, y, z the array index step (i, j, k) to
+    the next point (all 0 for a direction without extent), and ``inv_hx``.. the inverse
+    spacings.
 
-    ``residual`` and ``scale`` are (4, nx, ny, nz); points within ``rx``, ``ry``, ``rz`` of a face
-    get NaN. ``scale`` is the largest absolute value among the terms of each equation at the
-    point (time term, each d_i of the flux, each source term). With ``write_sources`` the right-
-    hand sides are written to ``sources`` (4, nx, ny, nz) too (else ``sources`` is not touched).
+    ``partials`` (n0 * rows, 16) receives per row of ``row_length`` points the sums of squares
+    of the residuals (0..3) and of the scales (4..7) and the largest |residual| (8..11) and
+    scale (12..15) over the row's interior points, so that norms need no whole-grid
+    temporaries (a max reduction across prange would be slow: measured in the source kernels).
+    NaN residuals make the sums NaN and are skipped by the maxima.
 
-    Each grid column (i, j) is done in strips of up to ``_STRIP`` interior points along z, with
-    one small (``_ROWS``, ``_ROW_LENGTH``) buffer on the thread's stack
-    (:func:`emsource.kernels.strip_buffers.strip_buffer`; no whole-grid temporary). Per strip:
+    ``residual`` and ``scale`` are (4, ...) like the inputs; points within ``radius0``,
+    ``radius1``, ``radius2`` of a face get NaN. ``scale`` is the largest absolute value among
+    the terms of each equation at the point (time term, each d_i of the flux, each source
+    term). With ``write_sources`` the right-hand sides are written to ``sources`` (4, ...) too
+    (else ``sources`` is not touched).
 
-    1. the 42 first derivatives the equations need go to rows 0..41: the three derivatives of
-       each of alpha, gamma_c, beta^c in one loop (:func:`emsource.kernels.stencils.
-       d1_axes_column`), the flux derivatives d_a F^a, d_a M^a_q one loop each
-       (:func:`emsource.kernels.stencils.d1_column`), one call site per kind (Numba inlines at
-       the IR level: one inlined stencil per derivative, 42 copies, took over a minute to
-       compile, measured). Rows: 0..2 d_a F^a, 3 + 3a + q d_a M^a_q, 12 + q d_q alpha,
-       15 + 6q + c d_q gamma_c, 33 + 3q + c d_q beta^c;
+    Each line is done in strips of up to ``_STRIP`` points, from the first interior point of
+    its first interior row to the last of its last, with one (``_ROWS``, ``_ROW_LENGTH``)
+    buffer on the thread's stack (:func:`emsource.kernels.strip_buffers.strip_buffer`; no
+    whole-grid temporary). Per strip:
+
+    1. the derivatives go to the buffer: the three first derivatives of each of alpha,
+       gamma_c, beta^c in one loop (:func:`emsource.kernels.stencils.d1_directions_column`),
+       and per conservation law the divergence of its flux and the largest of its three terms
+       in one loop (:func:`emsource.kernels.stencils.divergence_column`), one call site per
+       kind (Numba inlines at the IR level: one inlined stencil per derivative took over a
+       minute to compile, measured). Rows: see ``_DIVERGENCE`` .. ``_D_BETA``;
     2. one loop over the strip reads the derivatives from the buffer and the point values
-       from the inputs and writes residual, scale and source terms to rows 42..53;
-    3. short loops copy those rows to the outputs and reduce them into ``partials``.
+       from the inputs and writes residual, scale and source terms to the buffer;
+    3. short loops copy those rows to the outputs and reduce each row's interior part into
+       ``partials``.
 
-    Why this shape (measured, 128^3, order 4): LLVM vectorises a loop only if it can prove, or
-    check at run time with at most 8 comparisons, that its stores do not overlap its loads.
-    With a buffer from ``np.empty`` the point values had to be copied into it first (27 short
-    loops) and each derivative had its own loop; a stack buffer overlaps no input, so loops
-    that read many input rows and write only the buffer vectorise without checks. Against the
-    previous shape (commit b89a3b2, timed by ``benchmarks/bench_conservation.py``) this takes
-    0.9 of the CPU time at 128^3 and the same at 134^3 (README "Speed": the derivative loops are bound by
-    reading the neighbouring rows, not by their number). Indices along z are unsigned for the
-    reason given in ``d1_column``.
+    The points of a strip between two rows' interiors (within ``radius2`` of the faces) are
+    computed with stencils that reach into the neighbouring row and are then overwritten with
+    NaN, like the rest of the boundary layer.
+
+    Why this shape (measured, README "Speed"): LLVM vectorises a loop only if it can prove, or
+    check at run time with at most 8 comparisons, that its stores do not overlap its loads; a
+    stack buffer overlaps no input, so loops that read many input rows and write only the
+    buffer vectorise without checks. Strips through whole planes rather than single rows: the
+    fixed cost per strip (loop set-up, the start of some 200 streams of neighbouring rows) is
+    shared by 4x more points at 128^3. Indices along a line are unsigned for the reason given
+    in ``d1_column``.
     """
     u = np.uint64
-    nx = alpha.shape[1]
-    ny = alpha.shape[2]
-    nz = alpha.shape[3]
+    n0 = alpha.shape[1]
+    lines_per_plane = alpha.shape[2]
+    # One line per plane (rows of row_length points) or one per row.
+    flat = lines_per_plane != rows
+    rows_per_line = rows if flat else 1
+    nz = row_length
     one = half + half
     two = one + one
     zero = one - one
     nan = zero / zero
-    radius = (rx, ry, rz)
-    inv_hs = (inv_hx, inv_hy, inv_hz)
-    k0 = rz
-    k1 = nz - rz
-    # Stencil radius of the order, and 1 / 0 for an axis with / without extent (radius 0).
     order_radius = weights.shape[0]
-    step_x = 1 if rx > 0 else 0
-    step_y = 1 if ry > 0 else 0
-    step_z = 1 if rz > 0 else 0
+    step_x = (steps[0, 0], steps[0, 1], u(steps[0, 2]))
+    step_y = (steps[1, 0], steps[1, 1], u(steps[1, 2]))
+    step_z = (steps[2, 0], steps[2, 1], u(steps[2, 2]))
     g0 = gidx[0]
     g1 = gidx[1]
     g2 = gidx[2]
@@ -346,137 +369,153 @@ def residuals(alpha, beta, gamma, gidx, K, kidx, E, B, charge, current, work,
     q3 = kidx[3]
     q4 = kidx[4]
     q5 = kidx[5]
-    for column in prange(nx * ny):
-        i = column // ny
-        j = column - i * ny
-        edge = (i < rx) | (i >= nx - rx) | (j < ry) | (j >= ny - ry)
-        # NaN on the boundary layer: the whole column at an edge, else k < k0 and k >= k1.
-        low = nz if edge else k0
-        high = nz if edge else k1
-        for c in range(4):
-            for k in range(low):
-                residual[c, i, j, k] = nan
-                scale[c, i, j, k] = nan
-            for k in range(high, nz):
-                residual[c, i, j, k] = nan
-                scale[c, i, j, k] = nan
-            if write_sources:
-                for k in range(low):
-                    sources[c, i, j, k] = nan
-                for k in range(high, nz):
-                    sources[c, i, j, k] = nan
-        for c in range(8):
-            partials[column, c] = zero
-            partials[column, 8 + c] = zero
-        if edge:
-            continue
-        buf = strip_buffer(_ROWS, _ROW_LENGTH, work)
-        for start in range(k0, k1, _STRIP):
-            count = min(_STRIP, k1 - start)
-            base = u(start)
-            d1_axes_column(alpha, 0, i, j, start, count, order_radius, step_x, step_y, step_z,
-                           weights, inv_hx, inv_hy, inv_hz, buf, 12, 13, 14)
-            for c in range(6):
-                d1_axes_column(gamma, gidx[c], i, j, start, count, order_radius, step_x, step_y,
-                               step_z, weights, inv_hx, inv_hy, inv_hz, buf, 15 + c, 21 + c,
-                               27 + c)
-            for c in range(3):
-                d1_axes_column(beta, c, i, j, start, count, order_radius, step_x, step_y, step_z,
-                               weights, inv_hx, inv_hy, inv_hz, buf, 33 + c, 36 + c, 39 + c)
-            for a in range(3):
-                d1_column(work, a, i, j, start, count, a, radius[a], weights, inv_hs[a], buf, a)
-            for a in range(3):
-                for q in range(3):
-                    d1_column(work, 3 + 3 * a + q, i, j, start, count, a, radius[a], weights,
-                              inv_hs[a], buf, 3 + 3 * a + q)
-            for n in range(count):
-                k = base + u(n)
-                (d1, d2, d3, l21, l31, l32, sg, ex, ey, ez, exl, eyl, ezl, bx, by, bz, bxl, byl,
-                 bzl, rho, sx, sy, sz, ux, uy, uz, energy2) = _contravariant_point(
-                    gamma[g0, i, j, k], gamma[g1, i, j, k], gamma[g2, i, j, k],
-                    gamma[g3, i, j, k], gamma[g4, i, j, k], gamma[g5, i, j, k],
-                    E[0, i, j, k], E[1, i, j, k], E[2, i, j, k],
-                    B[0, i, j, k], B[1, i, j, k], B[2, i, j, k], coef, half)
-                ixx, ixy, ixz, iyy, iyz, izz = inverse_metric(d1, d2, d3, l21, l31, l32, one)
-                a = alpha[0, i, j, k]
-                jx = current[0, i, j, k]
-                jy = current[1, i, j, k]
-                jz = current[2, i, j, k]
-                rho_e = charge[0, i, j, k]
-                # Energy: sg [alpha K_ij S^ij - S^i d_i alpha - alpha j^i E_i], with
-                # K_ij S^ij = coef (-K_ij E^i E^j - K_ij B^i B^j + 1/2 K (E^2 + B^2)).
-                kxx = K[q0, i, j, k]
-                kxy = K[q1, i, j, k]
-                kxz = K[q2, i, j, k]
-                kyy = K[q3, i, j, k]
-                kyz = K[q4, i, j, k]
-                kzz = K[q5, i, j, k]
-                trace_k = (ixx * kxx + iyy * kyy + izz * kzz
-                           + two * (ixy * kxy + ixz * kxz + iyz * kyz))
-                kee = (kxx * ex * ex + kyy * ey * ey + kzz * ez * ez
-                       + two * (kxy * ex * ey + kxz * ex * ez + kyz * ey * ez))
-                kbb = (kxx * bx * bx + kyy * by * by + kzz * bz * bz
-                       + two * (kxy * bx * by + kxz * bx * bz + kyz * by * bz))
-                curvature = sg * a * coef * (half * trace_k * energy2 - kee - kbb)
-                da0 = buf[12, n]
-                da1 = buf[13, n]
-                da2 = buf[14, n]
-                lapse_e = -sg * (ux * da0 + uy * da1 + uz * da2)
-                work_e = -sg * a * (jx * exl + jy * eyl + jz * ezl)
-                dt_e = work[12, i, j, k]
-                fe0 = buf[0, n]
-                fe1 = buf[1, n]
-                fe2 = buf[2, n]
-                src_e = curvature + lapse_e + work_e
-                buf[42, n] = dt_e + (fe0 + fe1 + fe2) - src_e
-                buf[46, n] = _max3(_max3(abs(dt_e), abs(fe0), abs(fe1)),
-                                   _max3(abs(fe2), abs(curvature), abs(lapse_e)), abs(work_e))
-                buf[50, n] = src_e
-                # Momentum: epsilon_qkl j^k B^l = sg [qkl] j^k B^l.
-                fields = (ex, ey, ez, bx, by, bz)
-                inverse = (ixx, ixy, ixz, iyy, iyz, izz)
-                s_low = (sx, sy, sz)
-                r1, s1, src1 = _momentum_terms(0, sg, a, coef, half, energy2, rho, rho_e, exl,
-                                               sg * (jy * bz - jz * by), s_low, fields, inverse,
-                                               work[13, i, j, k], buf, n)
-                r2, s2, src2 = _momentum_terms(1, sg, a, coef, half, energy2, rho, rho_e, eyl,
-                                               sg * (jz * bx - jx * bz), s_low, fields, inverse,
-                                               work[14, i, j, k], buf, n)
-                r3, s3, src3 = _momentum_terms(2, sg, a, coef, half, energy2, rho, rho_e, ezl,
-                                               sg * (jx * by - jy * bx), s_low, fields, inverse,
-                                               work[15, i, j, k], buf, n)
-                buf[43, n] = r1
-                buf[44, n] = r2
-                buf[45, n] = r3
-                buf[47, n] = s1
-                buf[48, n] = s2
-                buf[49, n] = s3
-                buf[51, n] = src1
-                buf[52, n] = src2
-                buf[53, n] = src3
-            for c in range(4):
+    for line in prange(n0 * lines_per_plane):
+        i = line // lines_per_plane
+        j = line - i * lines_per_plane
+        first_row = 0 if flat else j
+        column0 = i * rows + first_row
+        for r in range(rows_per_line):
+            for c in range(8):
+                partials[column0 + r, c] = zero
+                partials[column0 + r, 8 + c] = zero
+        # The line's interior rows lo..hi-1 (relative to first_row).
+        lo = radius1 - first_row if radius1 > first_row else 0
+        hi = rows - radius1 - first_row
+        hi = hi if hi < rows_per_line else rows_per_line
+        if (i >= radius0) & (i < n0 - radius0) & (lo < hi):
+            buf = strip_buffer(_ROWS, _ROW_LENGTH, work)
+            for start in range(lo * nz + radius2, hi * nz - radius2, _STRIP):
+                count = min(_STRIP, hi * nz - radius2 - start)
+                base = u(start)
+                d1_directions_column(alpha, 0, i, j, start, count, order_radius, step_x, step_y,
+                                     step_z, weights, inv_hx, inv_hy, inv_hz, buf, _D_ALPHA,
+                                     _D_ALPHA + 1, _D_ALPHA + 2)
+                for c in range(6):
+                    d1_directions_column(gamma, gidx[c], i, j, start, count, order_radius,
+                                         step_x, step_y, step_z, weights, inv_hx, inv_hy, inv_hz,
+                                         buf, _D_GAMMA + c, _D_GAMMA + 6 + c, _D_GAMMA + 12 + c)
+                for c in range(3):
+                    d1_directions_column(beta, c, i, j, start, count, order_radius, step_x,
+                                         step_y, step_z, weights, inv_hx, inv_hy, inv_hz, buf,
+                                         _D_BETA + c, _D_BETA + 3 + c, _D_BETA + 6 + c)
+                for q in range(4):
+                    # F^a at work rows 0..2, M^a_q at 3 + 3a + q.
+                    cx = 0 if q == 0 else 2 + q
+                    cy = 1 if q == 0 else 5 + q
+                    cz = 2 if q == 0 else 8 + q
+                    divergence_column(work, cx, cy, cz, i, j, start, count, order_radius, step_x,
+                                      step_y, step_z, weights, inv_hx, inv_hy, inv_hz, buf,
+                                      _DIVERGENCE + q, _FLUX_TERM + q)
                 for n in range(count):
-                    residual[c, i, j, base + u(n)] = buf[_RESIDUAL + c, n]
-                for n in range(count):
-                    scale[c, i, j, base + u(n)] = buf[_SCALE + c, n]
-            if write_sources:
+                    k = base + u(n)
+                    (d1, d2, d3, l21, l31, l32, sg, ex, ey, ez, exl, eyl, ezl, bx, by, bz, bxl,
+                     byl, bzl, rho, sx, sy, sz, ux, uy, uz, energy2) = _contravariant_point(
+                        gamma[g0, i, j, k], gamma[g1, i, j, k], gamma[g2, i, j, k],
+                        gamma[g3, i, j, k], gamma[g4, i, j, k], gamma[g5, i, j, k],
+                        E[0, i, j, k], E[1, i, j, k], E[2, i, j, k],
+                        B[0, i, j, k], B[1, i, j, k], B[2, i, j, k], coef, half)
+                    ixx, ixy, ixz, iyy, iyz, izz = inverse_metric(d1, d2, d3, l21, l31, l32, one)
+                    a = alpha[0, i, j, k]
+                    jx = current[0, i, j, k]
+                    jy = current[1, i, j, k]
+                    jz = current[2, i, j, k]
+                    rho_e = charge[0, i, j, k]
+                    # Energy: sg [alpha K_ij S^ij - S^i d_i alpha - alpha j^i E_i], with
+                    # K_ij S^ij = coef (-K_ij E^i E^j - K_ij B^i B^j + 1/2 K (E^2 + B^2)).
+                    kxx = K[q0, i, j, k]
+                    kxy = K[q1, i, j, k]
+                    kxz = K[q2, i, j, k]
+                    kyy = K[q3, i, j, k]
+                    kyz = K[q4, i, j, k]
+                    kzz = K[q5, i, j, k]
+                    trace_k = (ixx * kxx + iyy * kyy + izz * kzz
+                               + two * (ixy * kxy + ixz * kxz + iyz * kyz))
+                    kee = (kxx * ex * ex + kyy * ey * ey + kzz * ez * ez
+                           + two * (kxy * ex * ey + kxz * ex * ez + kyz * ey * ez))
+                    kbb = (kxx * bx * bx + kyy * by * by + kzz * bz * bz
+                           + two * (kxy * bx * by + kxz * bx * bz + kyz * by * bz))
+                    curvature = sg * a * coef * (half * trace_k * energy2 - kee - kbb)
+                    lapse_e = -sg * (ux * buf[_D_ALPHA, n] + uy * buf[_D_ALPHA + 1, n]
+                                     + uz * buf[_D_ALPHA + 2, n])
+                    work_e = -sg * a * (jx * exl + jy * eyl + jz * ezl)
+                    dt_e = work[12, i, j, k]
+                    src_e = curvature + lapse_e + work_e
+                    buf[_RESIDUAL, n] = dt_e + buf[_DIVERGENCE, n] - src_e
+                    buf[_SCALE, n] = _max3(_max3(abs(dt_e), buf[_FLUX_TERM, n], abs(curvature)),
+                                           abs(lapse_e), abs(work_e))
+                    buf[_SOURCE, n] = src_e
+                    # Momentum: epsilon_qkl j^k B^l = sg [qkl] j^k B^l.
+                    fields = (ex, ey, ez, bx, by, bz)
+                    inverse = (ixx, ixy, ixz, iyy, iyz, izz)
+                    s_low = (sx, sy, sz)
+                    r1, s1, src1 = _momentum_terms(0, sg, a, coef, half, energy2, rho, rho_e, exl,
+                                                   sg * (jy * bz - jz * by), s_low, fields,
+                                                   inverse, work[13, i, j, k], buf, n)
+                    r2, s2, src2 = _momentum_terms(1, sg, a, coef, half, energy2, rho, rho_e, eyl,
+                                                   sg * (jz * bx - jx * bz), s_low, fields,
+                                                   inverse, work[14, i, j, k], buf, n)
+                    r3, s3, src3 = _momentum_terms(2, sg, a, coef, half, energy2, rho, rho_e, ezl,
+                                                   sg * (jx * by - jy * bx), s_low, fields,
+                                                   inverse, work[15, i, j, k], buf, n)
+                    buf[_RESIDUAL + 1, n] = r1
+                    buf[_RESIDUAL + 2, n] = r2
+                    buf[_RESIDUAL + 3, n] = r3
+                    buf[_SCALE + 1, n] = s1
+                    buf[_SCALE + 2, n] = s2
+                    buf[_SCALE + 3, n] = s3
+                    buf[_SOURCE + 1, n] = src1
+                    buf[_SOURCE + 2, n] = src2
+                    buf[_SOURCE + 3, n] = src3
                 for c in range(4):
                     for n in range(count):
-                        sources[c, i, j, base + u(n)] = buf[_SOURCE + c, n]
-            # Norm sums and maxima of the strip, from the rows just written (still in cache).
+                        residual[c, i, j, base + u(n)] = buf[_RESIDUAL + c, n]
+                    for n in range(count):
+                        scale[c, i, j, base + u(n)] = buf[_SCALE + c, n]
+                if write_sources:
+                    for c in range(4):
+                        for n in range(count):
+                            sources[c, i, j, base + u(n)] = buf[_SOURCE + c, n]
+                # Norm sums and maxima of each row's interior part of the strip, from the
+                # buffer rows just written (still in cache).
+                for r in range(start // nz, (start + count - 1) // nz + 1):
+                    a0 = r * nz + radius2 - start if r * nz + radius2 > start else 0
+                    a1 = r * nz + nz - radius2 - start
+                    a1 = a1 if a1 < count else count
+                    column = column0 + r
+                    for c in range(4):
+                        sum_r = zero
+                        sum_s = zero
+                        max_r = partials[column, 8 + c]
+                        max_s = partials[column, 12 + c]
+                        for n in range(a0, a1):
+                            v = buf[_RESIDUAL + c, n]
+                            w = buf[_SCALE + c, n]
+                            sum_r += v * v
+                            sum_s += w * w
+                            max_r = abs(v) if abs(v) > max_r else max_r
+                            max_s = w if w > max_s else max_s
+                        partials[column, c] += sum_r
+                        partials[column, 4 + c] += sum_s
+                        partials[column, 8 + c] = max_r
+                        partials[column, 12 + c] = max_s
+        # NaN on the boundary layer, after the strips: in one-line-per-plane mode it overwrites
+        # the points between two rows' interiors that the strips computed.
+        for r in range(rows_per_line):
+            row = first_row + r
+            edge = ((i < radius0) | (i >= n0 - radius0) | (row < radius1)
+                    | (row >= rows - radius1))
+            low = nz if edge else radius2
+            high = nz if edge else nz - radius2
+            offset = r * nz
             for c in range(4):
-                sum_r = zero
-                sum_s = zero
-                max_r = partials[column, 8 + c]
-                max_s = partials[column, 12 + c]
-                for n in range(count):
-                    r = buf[_RESIDUAL + c, n]
-                    s = buf[_SCALE + c, n]
-                    sum_r += r * r
-                    sum_s += s * s
-                    max_r = abs(r) if abs(r) > max_r else max_r
-                    max_s = s if s > max_s else max_s
-                partials[column, c] += sum_r
-                partials[column, 4 + c] += sum_s
-                partials[column, 8 + c] = max_r
-                partials[column, 12 + c] = max_s
+                for k in range(offset, offset + low):
+                    residual[c, i, j, k] = nan
+                    scale[c, i, j, k] = nan
+                for k in range(offset + high, offset + nz):
+                    residual[c, i, j, k] = nan
+                    scale[c, i, j, k] = nan
+                if write_sources:
+                    for k in range(offset, offset + low):
+                        sources[c, i, j, k] = nan
+                    for k in range(offset + high, offset + nz):
+                        sources[c, i, j, k] = nan

@@ -34,6 +34,9 @@ derivatives, :func:`d1_d2_column` the first and second derivative along one axis
 :func:`d1_ring` differentiate rows of a strip buffer that hold first derivatives (along the row,
 and across rows that hold neighbouring grid columns), which gives mixed second derivatives with
 fewer loads than :func:`d11_column` (the constraint kernel's route).
+:func:`d1_directions_column` and :func:`divergence_column` take the array index step of each
+grid direction instead of assuming the array's axes are the grid's (strips that run through
+several columns, data stored in another axis order).
 """
 
 from __future__ import annotations
@@ -61,6 +64,8 @@ __all__ = [
     "d1_ring",
     "value_column",
     "d1_staggered",
+    "d1_directions_column",
+    "divergence_column",
 ]
 
 SUPPORTED_ORDERS = (2, 4, 6)
@@ -535,3 +540,148 @@ def d1_ring(src, first_row, row_step, period, centre, offset, count, radius, wei
             out[out_row, n] = (w1 * (src[p1, base + u(n)] - src[m1, base + u(n)])
                                + w2 * (src[p2, base + u(n)] - src[m2, base + u(n)])
                                + w3 * (src[p3, base + u(n)] - src[m3, base + u(n)]))
+def _direction_steps(offsets):
+    """(i, j, k) index steps of the m-th neighbours, m = 1..3, along one grid direction whose
+    neighbour at distance 1 is ``offsets`` = (di, dj, dk) away in the array (dk unsigned)."""
+    di, dj, dk = offsets
+    return di, dj, dk, di + di, dj + dj, dk + dk, 3 * di, 3 * dj, dk + dk + dk
+
+
+@point_function
+def d1_directions_column(f, c, i, j, k0, count, radius, offsets_x, offsets_y, offsets_z, weights,
+                         inv_hx, inv_hy, inv_hz, out, row_x, row_y, row_z):
+    """out[row_a, n] = d f[c] / d x^a at array point (i, j, k0 + n), n = 0..count-1, a = x, y, z,
+    with the neighbours along each grid direction given as array index steps.
+
+    The centred sums of :func:`d1_axes_column`, in one loop, for an array whose axes need not be
+    the grid's: ``offsets_a`` = (di, dj, dk) is the array index step to the next point along grid
+    direction a (dk unsigned), e.g. (1, 0, 0), (0, 1, 0), (0, 0, 1) for an (ncomp, nx, ny, nz)
+    array; (1, 0, 0), (0, 0, nz), (0, 0, 1) for the same C-ordered array seen as
+    (ncomp, nx, 1, ny * nz), whose last axis then runs through all the columns of an x-plane
+    (strips longer than a column); (0, 0, 1), (0, 1, 0), (1, 0, 0) for data stored z, y, x; and
+    (0, 0, 0) for a direction without extent, whose differences f - f are then 0. The caller
+    keeps every stencil inside the array; the same rules as :func:`d1_column` (unsigned index
+    along the loop). ``radius`` 1 to 3.
+    """
+    u = np.uint64
+    base = u(k0)
+    xi1, xj1, xk1, xi2, xj2, xk2, xi3, xj3, xk3 = _direction_steps(offsets_x)
+    yi1, yj1, yk1, yi2, yj2, yk2, yi3, yj3, yk3 = _direction_steps(offsets_y)
+    zi1, zj1, zk1, zi2, zj2, zk2, zi3, zj3, zk3 = _direction_steps(offsets_z)
+    wx1 = weights[0] * inv_hx
+    wy1 = weights[0] * inv_hy
+    wz1 = weights[0] * inv_hz
+    if radius == 1:
+        for n in range(count):
+            k = base + u(n)
+            out[row_x, n] = wx1 * (f[c, i + xi1, j + xj1, k + xk1]
+                                      - f[c, i - xi1, j - xj1, k - xk1])
+            out[row_y, n] = wy1 * (f[c, i + yi1, j + yj1, k + yk1]
+                                      - f[c, i - yi1, j - yj1, k - yk1])
+            out[row_z, n] = wz1 * (f[c, i + zi1, j + zj1, k + zk1]
+                                      - f[c, i - zi1, j - zj1, k - zk1])
+    elif radius == 2:
+        wx2 = weights[1] * inv_hx
+        wy2 = weights[1] * inv_hy
+        wz2 = weights[1] * inv_hz
+        for n in range(count):
+            k = base + u(n)
+            out[row_x, n] = (
+                wx1 * (f[c, i + xi1, j + xj1, k + xk1] - f[c, i - xi1, j - xj1, k - xk1])
+                + wx2 * (f[c, i + xi2, j + xj2, k + xk2] - f[c, i - xi2, j - xj2, k - xk2]))
+            out[row_y, n] = (
+                wy1 * (f[c, i + yi1, j + yj1, k + yk1] - f[c, i - yi1, j - yj1, k - yk1])
+                + wy2 * (f[c, i + yi2, j + yj2, k + yk2] - f[c, i - yi2, j - yj2, k - yk2]))
+            out[row_z, n] = (
+                wz1 * (f[c, i + zi1, j + zj1, k + zk1] - f[c, i - zi1, j - zj1, k - zk1])
+                + wz2 * (f[c, i + zi2, j + zj2, k + zk2] - f[c, i - zi2, j - zj2, k - zk2]))
+    else:
+        wx2 = weights[1] * inv_hx
+        wy2 = weights[1] * inv_hy
+        wz2 = weights[1] * inv_hz
+        wx3 = weights[2] * inv_hx
+        wy3 = weights[2] * inv_hy
+        wz3 = weights[2] * inv_hz
+        for n in range(count):
+            k = base + u(n)
+            out[row_x, n] = (
+                wx1 * (f[c, i + xi1, j + xj1, k + xk1] - f[c, i - xi1, j - xj1, k - xk1])
+                + wx2 * (f[c, i + xi2, j + xj2, k + xk2] - f[c, i - xi2, j - xj2, k - xk2])
+                + wx3 * (f[c, i + xi3, j + xj3, k + xk3] - f[c, i - xi3, j - xj3, k - xk3]))
+            out[row_y, n] = (
+                wy1 * (f[c, i + yi1, j + yj1, k + yk1] - f[c, i - yi1, j - yj1, k - yk1])
+                + wy2 * (f[c, i + yi2, j + yj2, k + yk2] - f[c, i - yi2, j - yj2, k - yk2])
+                + wy3 * (f[c, i + yi3, j + yj3, k + yk3] - f[c, i - yi3, j - yj3, k - yk3]))
+            out[row_z, n] = (
+                wz1 * (f[c, i + zi1, j + zj1, k + zk1] - f[c, i - zi1, j - zj1, k - zk1])
+                + wz2 * (f[c, i + zi2, j + zj2, k + zk2] - f[c, i - zi2, j - zj2, k - zk2])
+                + wz3 * (f[c, i + zi3, j + zj3, k + zk3] - f[c, i - zi3, j - zj3, k - zk3]))
+
+
+@point_function
+def _largest_magnitude(a, b, c):
+    m = abs(a) if abs(a) > abs(b) else abs(b)
+    return m if m > abs(c) else abs(c)
+
+
+@point_function
+def divergence_column(f, cx, cy, cz, i, j, k0, count, radius, offsets_x, offsets_y, offsets_z,
+                      weights, inv_hx, inv_hy, inv_hz, out, row_div, row_big):
+    """out[row_div, n] = d_x f[cx] + d_y f[cy] + d_z f[cz] (the divergence of the vector whose
+    a-th component is f[ca]) and out[row_big, n] = the largest |d_a f[ca]| of the three, at array
+    point (i, j, k0 + n), n = 0..count-1, in one loop.
+
+    The centred sums and the direction offsets of :func:`d1_directions_column` (the same caller
+    rules), one component per direction, so that a conservation law's flux divergence takes one
+    loop and two buffer rows instead of three loops and three rows; the sum is (d_x + d_y) + d_z.
+    """
+    u = np.uint64
+    base = u(k0)
+    xi1, xj1, xk1, xi2, xj2, xk2, xi3, xj3, xk3 = _direction_steps(offsets_x)
+    yi1, yj1, yk1, yi2, yj2, yk2, yi3, yj3, yk3 = _direction_steps(offsets_y)
+    zi1, zj1, zk1, zi2, zj2, zk2, zi3, zj3, zk3 = _direction_steps(offsets_z)
+    wx1 = weights[0] * inv_hx
+    wy1 = weights[0] * inv_hy
+    wz1 = weights[0] * inv_hz
+    if radius == 1:
+        for n in range(count):
+            k = base + u(n)
+            ax = wx1 * (f[cx, i + xi1, j + xj1, k + xk1] - f[cx, i - xi1, j - xj1, k - xk1])
+            ay = wy1 * (f[cy, i + yi1, j + yj1, k + yk1] - f[cy, i - yi1, j - yj1, k - yk1])
+            az = wz1 * (f[cz, i + zi1, j + zj1, k + zk1] - f[cz, i - zi1, j - zj1, k - zk1])
+            out[row_div, n] = ax + ay + az
+            out[row_big, n] = _largest_magnitude(ax, ay, az)
+    elif radius == 2:
+        wx2 = weights[1] * inv_hx
+        wy2 = weights[1] * inv_hy
+        wz2 = weights[1] * inv_hz
+        for n in range(count):
+            k = base + u(n)
+            ax = (wx1 * (f[cx, i + xi1, j + xj1, k + xk1] - f[cx, i - xi1, j - xj1, k - xk1])
+                  + wx2 * (f[cx, i + xi2, j + xj2, k + xk2] - f[cx, i - xi2, j - xj2, k - xk2]))
+            ay = (wy1 * (f[cy, i + yi1, j + yj1, k + yk1] - f[cy, i - yi1, j - yj1, k - yk1])
+                  + wy2 * (f[cy, i + yi2, j + yj2, k + yk2] - f[cy, i - yi2, j - yj2, k - yk2]))
+            az = (wz1 * (f[cz, i + zi1, j + zj1, k + zk1] - f[cz, i - zi1, j - zj1, k - zk1])
+                  + wz2 * (f[cz, i + zi2, j + zj2, k + zk2] - f[cz, i - zi2, j - zj2, k - zk2]))
+            out[row_div, n] = ax + ay + az
+            out[row_big, n] = _largest_magnitude(ax, ay, az)
+    else:
+        wx2 = weights[1] * inv_hx
+        wy2 = weights[1] * inv_hy
+        wz2 = weights[1] * inv_hz
+        wx3 = weights[2] * inv_hx
+        wy3 = weights[2] * inv_hy
+        wz3 = weights[2] * inv_hz
+        for n in range(count):
+            k = base + u(n)
+            ax = (wx1 * (f[cx, i + xi1, j + xj1, k + xk1] - f[cx, i - xi1, j - xj1, k - xk1])
+                  + wx2 * (f[cx, i + xi2, j + xj2, k + xk2] - f[cx, i - xi2, j - xj2, k - xk2])
+                  + wx3 * (f[cx, i + xi3, j + xj3, k + xk3] - f[cx, i - xi3, j - xj3, k - xk3]))
+            ay = (wy1 * (f[cy, i + yi1, j + yj1, k + yk1] - f[cy, i - yi1, j - yj1, k - yk1])
+                  + wy2 * (f[cy, i + yi2, j + yj2, k + yk2] - f[cy, i - yi2, j - yj2, k - yk2])
+                  + wy3 * (f[cy, i + yi3, j + yj3, k + yk3] - f[cy, i - yi3, j - yj3, k - yk3]))
+            az = (wz1 * (f[cz, i + zi1, j + zj1, k + zk1] - f[cz, i - zi1, j - zj1, k - zk1])
+                  + wz2 * (f[cz, i + zi2, j + zj2, k + zk2] - f[cz, i - zi2, j - zj2, k - zk2])
+                  + wz3 * (f[cz, i + zi3, j + zj3, k + zk3] - f[cz, i - zi3, j - zj3, k - zk3]))
+            out[row_div, n] = ax + ay + az
+            out[row_big, n] = _largest_magnitude(ax, ay, az)

@@ -278,3 +278,74 @@ def test_mixed_derivatives_as_derivatives_of_first_derivatives(rng, order):
             assert abs(columns[4, n] - first[1]) <= 1e-13
             assert columns[5, n] == columns[4, n]
             assert abs(columns[6, n] - _second_point(f[1:], w1, w2, inv_h, i, j, k, 1, 2)) <= 1e-11
+
+
+@search_kernel
+def _direction_columns(f, c, i, j, k0, count, radius, step_x, step_y, step_z, weights, inv_h):
+    """Rows 0..2 of a stack strip buffer: d1_directions_column along x, y, z; copied out."""
+    buf = strip_buffer(3, 256, f)
+    stencils.d1_directions_column(f, c, i, j, k0, count, radius, step_x, step_y, step_z, weights,
+                                  inv_h[0], inv_h[1], inv_h[2], buf, 0, 1, 2)
+    out = np.empty((3, count))
+    for row in range(3):
+        for n in range(count):
+            out[row, n] = buf[row, n]
+    return out
+
+
+@search_kernel
+def _divergence_columns(f, i, j, k0, count, radius, step_x, step_y, step_z, weights, inv_h):
+    """divergence_column of the vector (f[0], f[1], f[2]): its sum and largest term, copied out."""
+    buf = strip_buffer(2, 256, f)
+    stencils.divergence_column(f, 0, 1, 2, i, j, k0, count, radius, step_x, step_y, step_z,
+                               weights, inv_h[0], inv_h[1], inv_h[2], buf, 0, 1)
+    out = np.empty((2, count))
+    for row in range(2):
+        for n in range(count):
+            out[row, n] = buf[row, n]
+    return out
+
+
+@pytest.mark.parametrize("order", stencils.SUPPORTED_ORDERS)
+def test_direction_columns_equal_point_derivatives(rng, order):
+    # d1_directions_column and divergence_column (the conservation kernel's stencils) against
+    # the point function d1 (checked against sympy above), on two arrangements of the same
+    # values: an x-plane of a C-ordered (3, nx, ny, nz) array seen as one line (3, nx, 1,
+    # ny * nz), whose strip runs through every interior column of the plane (y-neighbours nz
+    # apart), and the values stored z, y, x (array axes reversed). Same terms, same order, so
+    # they agree to the last rounding FMA contraction may move: 1e-13 on values of order
+    # |f| sum|w| / h <= 4 * 1.8 / 0.2 (as above), 3e-13 for the sum of three.
+    nx, ny, nz = 9, 10, 16
+    f = rng.standard_normal((3, nx, ny, nz))
+    w = stencils.first_derivative_weights(order)
+    r = order // 2
+    inv_h = np.array([1 / 0.2, 1 / 0.25, 1 / 0.3])
+    i = 4
+    u = np.uint64
+    expected = np.array([[[[stencils.d1(f, c, i, j, k, a, w, inv_h[a]) for k in range(nz)]
+                           for j in range(ny)] for a in range(3)] for c in range(3)])
+    plane_line = f.reshape(3, nx, 1, ny * nz)
+    start, stop = r * nz + r, (ny - r) * nz - r
+    steps = ((1, 0, u(0)), (0, 0, u(nz)), (0, 0, u(1)))
+    lines = _direction_columns(plane_line, 1, i, 0, start, stop - start, r, *steps, w, inv_h)
+    div = _divergence_columns(plane_line, i, 0, start, stop - start, r, *steps, w, inv_h)
+    interior = [(j, k) for j in range(r, ny - r) for k in range(r, nz - r)]
+    at = [j * nz + k - start for j, k in interior]
+    got = lines[:, at]
+    want = np.array([[expected[1, a, j, k] for j, k in interior] for a in range(3)])
+    np.testing.assert_allclose(got, want, rtol=0, atol=1e-13)
+    terms = np.array([[expected[a, a, j, k] for j, k in interior] for a in range(3)])
+    np.testing.assert_allclose(div[0, at], terms.sum(axis=0), rtol=0, atol=3e-13)
+    np.testing.assert_allclose(div[1, at], np.abs(terms).max(axis=0), rtol=0, atol=1e-13)
+    # Stored z, y, x: array axes (c, z, y, x), the line along x; z's step is the first axis.
+    stored = np.ascontiguousarray(np.moveaxis(f, (1, 3), (3, 1)))
+    zyx_steps = ((0, 0, u(1)), (0, 1, 0 * u(1)), (1, 0, u(0)))
+    for k in range(r, nz - r):
+        for j in range(r, ny - r):
+            column = _direction_columns(stored, 1, k, j, r, nx - 2 * r, r, *zyx_steps, w, inv_h)
+            np.testing.assert_allclose(column[:, i - r], expected[1, :, j, k], rtol=0, atol=1e-13)
+    # A direction without extent (step 0, as a length-1 axis of a 2D grid) gives exactly 0.
+    flat = _direction_columns(plane_line, 1, i, 0, start, stop - start, r, steps[0],
+                              (0, 0, u(0)), steps[2], w, inv_h)
+    assert np.all(flat[1] == 0.0)
+    np.testing.assert_array_equal(flat[[0, 2]], lines[[0, 2]])
