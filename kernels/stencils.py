@@ -540,6 +540,9 @@ def d1_ring(src, first_row, row_step, period, centre, offset, count, radius, wei
             out[out_row, n] = (w1 * (src[p1, base + u(n)] - src[m1, base + u(n)])
                                + w2 * (src[p2, base + u(n)] - src[m2, base + u(n)])
                                + w3 * (src[p3, base + u(n)] - src[m3, base + u(n)]))
+
+
+@point_function
 def _direction_steps(offsets):
     """(i, j, k) index steps of the m-th neighbours, m = 1..3, along one grid direction whose
     neighbour at distance 1 is ``offsets`` = (di, dj, dk) away in the array (dk unsigned)."""
