@@ -37,13 +37,8 @@ __all__ = ["STRIP_POINTS", "SHORTEST_STRIP", "SMALL_GRID_STRIPS", "window_column
            "packed_rows", "strip_length", "strip_count", "strip_range",
            "count_flag"]
 
-#: Points per strip of a flat loop on a large grid: float32 counts per strip stay exact (below
-#: 2^24). 8192 rather than 1024: on contiguous 128^3 float64 data called back to back (the
-#: arrays partly still in the last-level cache, as in an evolution loop), the contravariant
-#: source loop took 0.96 of the C reference's time with strips of 4096-65536 points against
-#: 1.00-1.02 with 1024-2048 (paired medians of 15-21 interleaved runs, load 0.9-1.0); after a
-#: cache-flushing triad (``bench_sources.py``) both lengths run within the noise of each other.
-STRIP_POINTS = 8192
+#: Points per strip of a flat loop on a large grid: float32 counts per strip stay exact.
+STRIP_POINTS = 1024
 #: Shortest strip, and the number of strips a small grid is cut into: on a small grid the strips
 #: shrink (to a multiple of 16 points, not below 64) so that the threads share it (an 8^3 grid in
 #: one strip took 5.5 us in the kernel on one thread, against 4.6 us shared by two, measured in
