@@ -56,6 +56,17 @@ def test_every_form_has_a_reference_converter():
     assert set(REFERENCE_CONVERTERS) == set(FORMS)
 
 
+def test_every_form_has_its_vectorised_drivers():
+    # One compiled loop per form, with the form a constant in it (kernels/sources.py): a form
+    # added to the table without its drivers would fail at its first call.
+    from emsource.kernels import sources
+    codes = {form.code for form in FORMS.values()}
+    assert set(sources.INPUT_FORMS) == codes
+    assert set(sources.ADM_SOURCES_FLAT) == codes and set(sources.ADM_SOURCES_WINDOW) == codes
+    pairs = {(code, upper) for code in codes for upper in (False, True)}
+    assert set(sources.STRESS_ENERGY_FLAT) == pairs and set(sources.STRESS_ENERGY_WINDOW) == pairs
+
+
 def test_table_names_are_the_field_index_choices():
     assert tuple(FORMS) == _arguments.FIELD_INDICES
     for name, form in FORMS.items():

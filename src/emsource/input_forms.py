@@ -7,7 +7,9 @@ the stored components into E^i, E_i, B^i, B_i at every grid point inside the ker
 whole-grid conversion, no copy).
 
 To add a form: a code and a branch with its point function in
-:func:`emsource.kernels.electromagnetic.fields_both_indices`, a row here, and a test that
+:func:`emsource.kernels.electromagnetic.fields_both_indices`, the code in
+``emsource.kernels.sources.INPUT_FORMS`` (one vectorised driver per form), a row here, and a
+test that
 compares the sources from the new form with those from :data:`CONTRAVARIANT` data converted
 by a plain-NumPy reference (``tests/test_input_forms.py``).
 """
