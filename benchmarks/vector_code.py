@@ -64,14 +64,19 @@ def measure():
                                   layout="component_last")
     forms = {sources.FORM_CONTRAVARIANT: "E^i", sources.FORM_COVARIANT: "E_i",
              sources.FORM_DENSITIZED: "dens."}
-    drivers = ([(f"{d.py_func.__name__} {forms[f]}", d) for f, d in sources.ADM_SOURCES_FLAT.items()]
-               + [(f"{d.py_func.__name__} {forms[f]}", d)
-                  for f, d in sources.ADM_SOURCES_WINDOW.items()]
+
+    def labelled(table):
+        """(label, driver) of a table of per-form drivers (keys: form, or (form, upper))."""
+        pairs = []
+        for key, driver in table.items():
+            form, upper = key if isinstance(key, tuple) else (key, False)
+            pairs.append((f"{driver.py_func.__name__} {forms[form]}{' up' if upper else ''}",
+                          driver))
+        return pairs
+
+    drivers = (labelled(sources.ADM_SOURCES_FLAT) + labelled(sources.ADM_SOURCES_WINDOW)
                + [("adm_sources_grid", sources.adm_sources_grid)]
-               + [(f"{d.py_func.__name__} {forms[f]}{' up' if u else ''}", d)
-                  for (f, u), d in sources.STRESS_ENERGY_FLAT.items()]
-               + [(f"{d.py_func.__name__} {forms[f]}{' up' if u else ''}", d)
-                  for (f, u), d in sources.STRESS_ENERGY_WINDOW.items()]
+               + labelled(sources.STRESS_ENERGY_FLAT) + labelled(sources.STRESS_ENERGY_WINDOW)
                + [("stress_energy_grid", sources.stress_energy_grid)])
     print(f"{'driver':30s} {'first argument':34s} {'xmm':>5s} {'ymm':>5s} {'zmm':>5s} "
           f"{'scalar':>7s}")

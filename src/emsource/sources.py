@@ -395,7 +395,6 @@ def stress_energy_4d(alpha, beta, gamma, E, B, *, units="gaussian", index="lower
     constants = arg.kernel_constants(form, dtype, prefactor) + (upper,)
     physics = constants[1:-1]  # the vectorised drivers: one per (form, upper)
     with kernel_call():
-        arguments = (a, be, g, gidx, ev, bv, t, *constants, bool(check))
         spans = None if flat else arg.unit_stride_spans([a, be, g, ev, bv, t])
         if flat:
             counts = kernels.STRESS_ENERGY_FLAT[form, upper](a, be, g, gidx, ev, bv, t, *physics,
@@ -406,8 +405,10 @@ def stress_energy_4d(alpha, beta, gamma, E, B, *, units="gaussian", index="lower
                 kernels.STRESS_ENERGY_WINDOW[form, upper],
                 (a1, be1, g1, gidx, e1, b1, t1, steps, window, *physics, bool(check)),
                 (0, 1, 2, 4, 5))
-        else:
-            counts = call_sharing_layouts(kernels.stress_energy_grid, arguments, (0, 1, 2, 4, 5))
+        else:  # every mix of strided inputs shares one specialisation of the column loop
+            counts = call_sharing_layouts(
+                kernels.stress_energy_grid,
+                (a, be, g, gidx, ev, bv, t, *constants, bool(check)), (0, 1, 2, 4, 5))
         if counts[0] or counts[1]:
             views = arg.as_grid_views([a, be, g, ev, bv, t], flat, grid)
             raise_for_counts(function, counts, grid, dtype, kernels.first_failing_stress_energy,
