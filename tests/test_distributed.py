@@ -32,7 +32,7 @@ from emsource.distributed.balance import balance_series, global_balance_series  
 from emsource.distributed.constraints import constraint_norms, constraint_residuals  # noqa: E402
 from emsource.distributed.integrals import integrate_series, level_partials  # noqa: E402
 from emsource.distributed.radiation import radiation_series  # noqa: E402
-from emsource.distributed.series import open_series  # noqa: E402
+from emsource.distributed.series import choose_in_series, open_series  # noqa: E402
 from emsource.distributed.sources import compute_sources_dask  # noqa: E402
 from emsource.exact import TimeLevelFields  # noqa: E402
 from emsource.grid import UniformGrid  # noqa: E402
@@ -367,6 +367,22 @@ def test_series_ordered_by_time(series_directory):
         "b_early.h5", "c_middle.hdf5", "c_middle.hdf5", "a_late.h5"]
     same = open_series(str(series_directory / "*.h*5"))
     assert [(s.path, s.index) for s in same] == [(s.path, s.index) for s in series]
+
+
+def test_levels_of_one_file_are_the_file_indices_as_without_a_cluster(tmp_path):
+    # A file whose levels are not stored in time order: --levels picks the same levels with and
+    # without a cluster (the file's own indices); a series of files counts positions in time.
+    levels = full_levels(np.random.default_rng(8), (0.0, 0.1, 0.2))
+    path = tmp_path / "unordered.h5"
+    write_snapshot(path, [levels[2], levels[0], levels[1]])
+    with open_snapshot(path) as snap:
+        single = [level.time for level in snap.select([0, 2])]
+    assert single == [0.2, 0.1]
+    assert [level.time for level in open_series(str(path), levels=[0, 2])] == single
+    assert [level.time for level in choose_in_series(open_series(str(path)), [0, 2])] == single
+    assert [level.time for level in open_series(str(path))] == [0.0, 0.1, 0.2]
+    write_snapshot(tmp_path / "later.h5", [full_levels(np.random.default_rng(9), (0.3,))[0]])
+    assert [level.time for level in open_series(str(tmp_path), levels=[0, 2])] == [0.0, 0.2]
 
 
 def test_series_integrals_equal_per_file_integrals(series_directory):

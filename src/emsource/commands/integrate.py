@@ -74,12 +74,11 @@ def _integrate_on_cluster(args):
     import json
 
     from ..distributed.integrals import integrate_series
-    from ..distributed.series import open_series
+    from ..distributed.series import choose_in_series, open_series
     from ..snapshot import open_snapshot, provenance_attributes
-    from ..snapshot.levels import choose_levels
 
     series = open_series(args.snapshot, args.mapping)
-    chosen = choose_levels(series, args.levels, args.snapshot)
+    chosen = choose_in_series(series, args.levels, args.snapshot)
     results = integrate_series(
         args.snapshot, mapping=args.mapping, radii=args.radius, theta_points=args.theta_points,
         interpolation_points=args.interpolation_points, levels=args.levels,

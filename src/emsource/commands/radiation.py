@@ -69,12 +69,11 @@ def _on_cluster(args, order, outputs):
     import json
 
     from ..distributed.radiation import radiation_series
-    from ..distributed.series import open_series
+    from ..distributed.series import choose_in_series, open_series
     from ..snapshot import open_snapshot, provenance_attributes
-    from ..snapshot.levels import choose_levels
 
     series = open_series(args.snapshot, args.mapping)
-    chosen = choose_levels(series, args.levels, args.snapshot)
+    chosen = choose_in_series(series, args.levels, args.snapshot)
     files = sorted({level.path for level in chosen})
     inputs = tuple(files) + ((series[0].mapping,) if series[0].mapping else ())
     with open_snapshot(series[0].path, series[0].mapping) as snap:  # one mapping for all

@@ -25,7 +25,7 @@ from ..grid import UniformGrid
 from ..snapshot import SnapshotError, TimeLevel, open_snapshot
 from ..snapshot.levels import choose_levels
 
-__all__ = ["SeriesLevel", "open_series", "snapshot_files", "SNAPSHOT_SUFFIXES"]
+__all__ = ["choose_in_series", "SeriesLevel", "open_series", "snapshot_files", "SNAPSHOT_SUFFIXES"]
 
 #: File name endings taken from a directory (other files there are left alone).
 SNAPSHOT_SUFFIXES = (".h5", ".hdf5", ".he5")
@@ -166,7 +166,10 @@ def open_series(spec, mapping=None, levels=None) -> list:
     mapping : str or path-like, optional
         A layout mapping that every file follows.
     levels : sequence of int, optional
-        Positions in the time-ordered series to keep (default all), each at most once.
+        Levels to keep (default all), each at most once: positions in the time-ordered series,
+        or, when ``spec`` comes down to one file, the indices of that file's own levels (as on the
+        single-process path, :meth:`emsource.snapshot.SnapshotFile.select`; the two differ for
+        a file whose levels are not stored in time order).
 
     Returns
     -------
@@ -202,5 +205,15 @@ def open_series(spec, mapping=None, levels=None) -> list:
             raise SnapshotError(f"{level.where}, time level {level.label!r} is in {level.units!r} "
                                 f"units; the series began in {first.units!r} ({first.where}, "
                                 f"time level {first.label!r})")
-    where = spec if isinstance(spec, str) else "snapshot series"
-    return choose_levels(found, levels, where)
+    return choose_in_series(found, levels, spec if isinstance(spec, str) else "snapshot series")
+
+
+def choose_in_series(series, levels, where="snapshot series") -> list:
+    """The levels of ``series`` (time-ordered, from :func:`open_series`) that ``levels`` names,
+    each at most once: positions in time order, or, when every level comes from one file, the
+    indices of that file's levels (what ``levels`` means without a cluster; the two differ for a
+    file whose levels are not stored in time order)."""
+    if levels is not None and len({level.path for level in series}) == 1:
+        # One file: --levels means what it means without a cluster (the file's own indices).
+        series = sorted(series, key=lambda level: level.index)
+    return choose_levels(series, levels, where)
