@@ -6,7 +6,7 @@ import math
 
 from ._compile import point_function
 
-__all__ = ["is_finite"]
+__all__ = ["is_finite", "is_nan"]
 
 
 @point_function
@@ -19,3 +19,10 @@ def is_finite(x):
     "ninf" is set, which ``_compile.FASTMATH_FLAGS`` never does. Use this in every kernel.
     """
     return abs(x) < math.inf
+
+
+@point_function
+def is_nan(x):
+    """True for NaN only, also under fast-math (a comparison, as in :func:`is_finite`: NaN is
+    the one value not ordered against infinity)."""
+    return not (abs(x) <= math.inf)
