@@ -339,7 +339,7 @@ def small_call_breakdown(calls):
     stages = {
         "public call, out given (plan stored)": lambda: emsource.adm_sources(*small, out=out),
         "public call, full validation (no plan)": full_path,
-        "public call, padded grid functions (no plan)": lambda: emsource.adm_sources(
+        "public call, padded grid functions (plan stored)": lambda: emsource.adm_sources(
             *padded, out=padded_out),
         "  signature (shapes, dtypes, layout), look-up": lambda: sources._ADM_PLANS.get(
             _call_plans.signature(arrays, options)),

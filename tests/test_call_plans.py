@@ -8,11 +8,14 @@ outputs hold afterwards) must be equal. Each hostile case first asserts that it 
 the stored plan's look-up (same key), so that it tests the cached path and not a key miss.
 """
 
+import gc
+
 import numpy as np
 import pytest
 
 import emsource
-from emsource import _call_plans, sources
+from emsource import _call_plans, grid_arrays, sources
+from emsource.grid_arrays import empty_grid_function, grid_function_like
 from conftest import random_curved_data
 
 GRID = (4, 3, 5)
@@ -216,7 +219,11 @@ def test_plan_never_takes_other_memory_layouts(data, view_case):
         else:
             e = E.view(type("Subclass", (np.ndarray,), {}))
         arrays = (g, e, b) + tuple(out)
-        assert _call_plans.signature(arrays, OPTIONS) is None
+        # Not the key of the good call (strides are part of a non-contiguous array's key; a
+        # subclass has none), so these never meet its plan.
+        key = _call_plans.signature(arrays, OPTIONS)
+        assert key is None or key != _call_plans.signature((gamma, E, B) + tuple(fresh_out()),
+                                                           OPTIONS)
         return (lambda: emsource.adm_sources(g, e, b, out=out)), list(out)
 
     def warm_up():
@@ -319,3 +326,91 @@ def test_plan_of_allocating_calls_never_meets_a_bad_out(data, out_case):
 
     result = uncached_and_cached(make_call, warm_up)
     assert result[0] == "error" and result[1] is TypeError and "out" in result[2]
+
+
+# ------------------------------------------------ padded grid functions (emsource.grid_arrays)
+
+def padded_copy(a):
+    p = grid_function_like(a)
+    p[...] = a
+    return p
+
+
+def padded_out():
+    return emsource.AdmSources(*(padded_copy(a) for a in fresh_out()))
+
+
+def test_padded_grid_functions_take_a_plan_and_give_the_same_bits(data):
+    gamma, E, B = (padded_copy(a) for a in data)
+    assert not gamma.flags.c_contiguous  # rows apart: the case under test
+    expected = emsource.adm_sources(*data)
+    sources._ADM_PLANS.clear()
+    emsource.adm_sources(gamma, E, B, out=padded_out())  # full path, stores the plan
+    plan = plan_for((gamma, E, B) + padded_out())
+    assert plan is not None and _call_plans.PADDED_ROWS in plan.view_shapes
+    out = padded_out()
+    assert emsource.adm_sources(gamma, E, B, out=out) is out  # planned path
+    for a, b in zip(out, expected):
+        np.testing.assert_array_equal(a, b)  # the flat loop on both: the same bits
+
+
+@pytest.mark.parametrize("case", ["views of padded inputs", "views of padded outputs"])
+def test_padded_views_the_allocator_did_not_make_take_the_full_path(data, case):
+    """Arrays with the shapes and strides of padded grid functions, but views made by the
+    caller: the key of the stored plan, no block from the allocator, so the full path (whose
+    answer is the reference)."""
+    gamma, E, B = (padded_copy(a) for a in data)
+
+    def make_call():
+        g, e, b = gamma, E, B
+        out = padded_out()
+        if case == "views of padded inputs":
+            g, e, b = gamma[...], E[:], B[:, :]
+        else:
+            out = emsource.AdmSources(*(a[...] for a in out))
+        assert grid_arrays.rows_of(g if case != "views of padded outputs"
+                                                else out.S_i) is None
+        return (lambda: emsource.adm_sources(g, e, b, out=out)), list(out)
+
+    def warm_up():
+        emsource.adm_sources(gamma, E, B, out=padded_out())
+        call, arrays = make_call()
+        assert plan_for([gamma, E, B] + arrays) is not None  # the same key as the good call
+
+    result = uncached_and_cached(make_call, warm_up)
+    assert result[0] == "ok"
+    for a, b in zip(result[1], emsource.adm_sources(*data)):
+        np.testing.assert_array_equal(a, b)
+
+
+@pytest.mark.parametrize("alias", ["S_ij is gamma", "S_i is E", "S_i is a view of E"])
+def test_plan_of_padded_arrays_never_accepts_an_aliased_out(data, alias):
+    gamma, E, B = (padded_copy(a) for a in data)
+
+    def make_call():
+        out = padded_out()
+        if alias == "S_ij is gamma":
+            out = out._replace(S_ij=gamma)
+        elif alias == "S_i is E":
+            out = out._replace(S_i=E)
+        else:
+            out = out._replace(S_i=E[...])
+        return (lambda: emsource.adm_sources(gamma, E, B, out=out)), [gamma, E, B]
+
+    def warm_up():
+        emsource.adm_sources(gamma, E, B, out=padded_out())
+
+    before = [a.copy() for a in (gamma, E, B)]
+    result = uncached_and_cached(make_call, warm_up)
+    assert result[0] == "error" and result[1] is ValueError and "overlaps" in result[2]
+    for a, b in zip((gamma, E, B), before):
+        np.testing.assert_array_equal(a, b)
+
+
+def test_the_allocator_forgets_an_array_when_it_dies():
+    a = empty_grid_function((3, 5, 6, 7))
+    key = id(a)
+    assert grid_arrays.rows_of(a) is not None and key in grid_arrays._ROWS
+    del a
+    gc.collect()
+    assert key not in grid_arrays._ROWS

@@ -77,6 +77,8 @@ def test_padded_arrays_take_the_flat_path_and_agree_bit_for_bit(rng):
         np.testing.assert_array_equal(a, b)
     # A padded full (3, 3) metric and padded inputs with contiguous outputs.
     full = padded_copy(unpack_symmetric(gamma))
+    views, flat = arg.kernel_views([full] + padded[1:], GRID)  # rows 1/3 of the first stride apart
+    assert flat and views[0].shape == (9, full.strides[1] // full.itemsize)
     for a, b in zip(emsource.adm_sources(full, *padded[1:]), reference):
         np.testing.assert_array_equal(a, b)
     T = emsource.stress_energy_4d(alpha, beta, gamma, E, B)

@@ -12,6 +12,7 @@ import math
 import numpy as np
 
 from .errors import GridPointError
+from .grid_arrays import rows_of
 from .input_forms import FORMS
 
 #: Flat indices, into a full (3, 3) block seen as 9, of the packed (xx, xy, xz, yy, yz, zz).
@@ -328,9 +329,13 @@ def _row_block(a: np.ndarray, ncomp_axes: int, ncomp: int, npoints: int):
     (measured, ``benchmarks/bench_sources.py`` history in DEVELOPERS.md "Grid functions").
     """
     itemsize = a.itemsize
-    step = a.strides[0] if ncomp > 1 else npoints * itemsize
+    # Rows are spaced by the stride of the last component axis ((3, 3, ...) metrics have two).
+    step = a.strides[ncomp_axes - 1] if ncomp > 1 else npoints * itemsize
     if step < npoints * itemsize or step % itemsize:
         return None
+    rows = rows_of(a)  # an array of the allocator: its block is known (no address lookups)
+    if rows is not None and rows.shape == (ncomp, step // itemsize) and rows.dtype == a.dtype:
+        return rows
     for axis in range(1, ncomp_axes):  # further component axes, as (3, 3): evenly spaced too
         if a.strides[axis] * a.shape[axis] != a.strides[axis - 1]:
             return None

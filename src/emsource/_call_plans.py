@@ -11,20 +11,26 @@ signature every step, so the first call validates in full and stores what it der
 What a plan never holds: anything that depends on which memory an array holds or on its
 values. Writeability, overlap of outputs with inputs or with one another
 (:func:`emsource._arguments.output_memory`) and the point checks run on every call, plan or
-not. Arrays are never keyed by ``id()`` (an id is reused by a later array). A signature whose
-derivation also looked at memory (padded rows, whose view over the gaps needs the owner's
-extent) is not stored: such calls take the full path every time.
+not. Arrays are never keyed by ``id()`` (an id is reused by a later array). The padded grid
+functions of :mod:`emsource.grid_arrays` are the one memory-dependent case: the kernel sees
+each as its (ncomp, stride) block including the gaps, which must belong to the same allocation.
+A plan records that such an array was one the allocator made (shape and strides in the key);
+each call asks the allocator for that array's block again (:func:`emsource.grid_arrays.rows_of`,
+an identity lookup), and takes the full path when it has none (a view the caller made).
 
-Where a plan applies: every array exactly an ``ndarray`` (subclasses take the full path),
-C-contiguous (so each kernel view is a reshape, which for the same shape and strides is always a
-view, never a copy) and the options plain ``str``. Everything else validates in full.
+Where a plan applies: every array exactly an ``ndarray`` (subclasses take the full path), of one
+dtype, either C-contiguous (so each kernel view is a reshape, which for the same shape and
+strides is always a view, never a copy) or an allocator's padded array, and the options plain
+``str``. Everything else validates in full.
 """
 
 from __future__ import annotations
 
 import numpy as np
 
-__all__ = ["FlatPlan", "PlanCache", "signature"]
+from .grid_arrays import rows_of
+
+__all__ = ["FlatPlan", "PlanCache", "signature", "PADDED_ROWS"]
 
 _NDARRAY = np.ndarray
 
@@ -48,15 +54,20 @@ def signature(arrays: tuple, options: tuple):
     dtype = first.dtype
     key = [dtype]  # float32 and float64 calls of one shape do not displace each other
     for a in arrays:
-        if type(a) is _NDARRAY and a.dtype is dtype and a.flags.c_contiguous:
-            key.append(a.shape)
-        else:
+        if type(a) is not _NDARRAY or a.dtype is not dtype:
             return None
+        # Not C-contiguous: a padded grid function, perhaps (the plan knows; the strides are
+        # then part of the key, a tuple of tuples where a C-contiguous array has its shape).
+        key.append(a.shape if a.flags.c_contiguous else (a.shape, a.strides))
     for option in options:
         if type(option) is not str:
             return None
         key.append(option)
     return tuple(key)
+
+
+#: The entry of :attr:`FlatPlan.view_shapes` for a padded grid function's block.
+PADDED_ROWS = "padded rows"
 
 
 class FlatPlan:
@@ -98,8 +109,14 @@ class FlatPlan:
         """
         shapes = []
         for a, v in zip(arrays, views):
-            if not (type(a) is _NDARRAY and a.dtype is dtype and a.flags.c_contiguous
-                    and v.flags.c_contiguous and v.size == a.size
+            if not (type(a) is _NDARRAY and a.dtype is dtype):
+                return None
+            if not a.flags.c_contiguous:
+                if rows_of(a) is not v:  # padded, but not an array the allocator made
+                    return None
+                shapes.append(PADDED_ROWS)
+                continue
+            if not (v.flags.c_contiguous and v.size == a.size
                     and (v is a or v.base is a or (a.base is not None and v.base is a.base))):
                 return None
             shapes.append(None if v.ndim == 1 else v.shape)
@@ -108,11 +125,21 @@ class FlatPlan:
 
     def views(self, arrays):
         """The kernel views of ``arrays`` (which match the plan's signature): reshapes of
-        C-contiguous arrays, so views that share their memory; or the arrays themselves."""
+        C-contiguous arrays, so views that share their memory; the allocator's blocks of padded
+        arrays; or the arrays themselves. None if a padded array has no block (then the call
+        takes the full path)."""
         if self.view_shapes is None:
             return arrays
-        return [a.ravel() if shape is None else a.reshape(shape)
-                for a, shape in zip(arrays, self.view_shapes)]
+        views = []
+        for a, shape in zip(arrays, self.view_shapes):
+            if shape is PADDED_ROWS:
+                block = rows_of(a)
+                if block is None:
+                    return None
+                views.append(block)
+            else:
+                views.append(a.ravel() if shape is None else a.reshape(shape))
+        return views
 
 
 class PlanCache:

@@ -247,7 +247,9 @@ def adm_sources(gamma, E, B, *, units="gaussian", field_index="upper",
         key = None
     plan = _ADM_PLANS.get(key)
     if plan is not None:
-        return _planned_adm_sources(plan, gamma, E, B, out, check)
+        result = _planned_adm_sources(plan, gamma, E, B, out, check)
+        if result is not None:
+            return result
     grid, metric, gidx, e, b, prefactor, form = _common_inputs(
         function, gamma, E, B, units, field_index, layout)
     dtype = arg.common_dtype(function, ("gamma", "E", "B"), (gamma, E, B))
@@ -286,7 +288,8 @@ _ADM_PLANS = PlanCache()
 
 def _planned_adm_sources(plan, gamma, E, B, out, check):
     """:func:`adm_sources` for a signature validated before: the layout comes from ``plan``;
-    the checks that depend on memory (writeable and apart outputs) and the point checks run."""
+    the checks that depend on memory (writeable and apart outputs) and the point checks run.
+    None (nothing done) where a padded array is not one the allocator made: the full path."""
     inputs = (gamma, E, B)
     if out is None:
         grid, dtype = plan.grid, plan.dtype
@@ -294,10 +297,13 @@ def _planned_adm_sources(plan, gamma, E, B, out, check):
                             np.empty((6,) + grid, dtype), np.empty(grid, dtype))
     else:
         result = out if type(out) is AdmSources else AdmSources(*out)
+    views = plan.views(inputs + result)
+    if views is None:
+        return None
+    if out is not None:
         arg.output_memory("adm_sources", AdmSources._fields, result, _INPUT_NAMES, inputs)
     gidx, constants = plan.extra
-    _run_adm_kernel(plan.grid, plan.dtype, gidx, constants, plan.views(inputs + result), True,
-                    check)
+    _run_adm_kernel(plan.grid, plan.dtype, gidx, constants, views, True, check)
     return result
 
 
