@@ -11,9 +11,12 @@ import math
 
 import numpy as np
 
+from ._threading import kernel_call
 from .errors import GridPointError
 from .grid_arrays import rows_of
 from .input_forms import FORMS
+from .kernels import input_checks
+from .kernels._compile import call_sharing_layouts
 
 #: Flat indices, into a full (3, 3) block seen as 9, of the packed (xx, xy, xz, yy, yz, zz).
 FULL_METRIC_INDEX = (0, 1, 2, 4, 5, 8)
@@ -518,6 +521,39 @@ def metric_pivots(g):
     return d1, d2, d3
 
 
+def _suspect_points(grid, named: dict, where, lapse, metric) -> int:
+    """Counts of :mod:`emsource.kernels.input_checks`, summed: zero means that
+    :func:`check_points` would find no bad point (the kernels flag at least what it rejects)."""
+    three_d = grid + (1,) * (3 - len(grid))
+    valid = np.asarray(where, dtype=bool).reshape(three_d).view(np.uint8)
+    total = 0
+    for name, a in named.items():
+        if a is None:
+            continue
+        a = np.asarray(a)
+        if a.dtype.kind != "f":
+            return 1  # not a float array: let the NumPy test decide
+        values = a.reshape((-1,) + three_d)
+        with kernel_call():
+            total += call_sharing_layouts(input_checks.nonfinite_points, (values, valid), (0, 1))
+            if name == lapse:
+                total += call_sharing_layouts(input_checks.nonpositive_points, (values, valid),
+                                              (0, 1))
+    if metric is not None:
+        _, m, index = metric
+        m = np.asarray(m)
+        if m.dtype.kind != "f":
+            return 1
+        values = m.reshape((-1,) + three_d)
+        eps = np.finfo(values.dtype).eps
+        margin = values.dtype.type(2 * pivot_floor(values.dtype) + 64 * eps)
+        with kernel_call():
+            total += call_sharing_layouts(input_checks.suspect_metric_points,
+                                          (values, np.asarray(index, np.int64), valid, margin),
+                                          (0, 2))
+    return total
+
+
 def check_points(function: str, grid, named: dict, *, valid=None, lapse=None, metric=None):
     """Raise :class:`emsource.GridPointError` at the first bad valid point, else return.
 
@@ -531,6 +567,8 @@ def check_points(function: str, grid, named: dict, *, valid=None, lapse=None, me
 
     grid = tuple(grid)
     where = np.ones(grid, bool) if valid is None else valid
+    if not _suspect_points(grid, named, where, lapse, metric):
+        return  # the counting kernels found nothing the NumPy test below could reject
     bad = np.zeros(grid, bool)
     views = {}
     for name, a in named.items():
