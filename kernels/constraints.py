@@ -61,28 +61,25 @@ from .stencils import d1_axes_column, d1_d2_column, d1_ring, d1_row, value_colum
 #: sees the buffer's row stride as a constant and can prove that rows do not overlap.
 _STRIP = 64
 
-# Rows of the per-column buffer (module docstring). Inputs of the algebra:
+# Rows of the per-column buffer (module docstring).
 _G = 0      # gamma_p                                   6 rows
 _KL = 6     # K_p                                       6
 _DG = 12    # d_q gamma_p at 12 + 6 q + p               18
 _DK = 30    # d_q K_p at 30 + 6 q + p                   18
-_DDG = 48   # d_q d_s gamma_p at 48 + 6 pair(q, s) + p  36
-_RHO = 84   # rho                                       1
-_SRC = 85   # S_i                                       3
-# Its intermediate results:
-_GI = 88    # gamma^p                                   6
-_G1 = 94    # Gamma_{c (ab)} at 94 + 6 c + pair(a, b)   18
-_G2 = 112   # Gamma^m_(ab) at 112 + 6 m + pair(a, b)    18
-_T = 130    # T^d_{mb} = gamma^dc Gamma_mcb at 130 + 9 m + 3 d + b: 27
-_V = 157    # V_m = gamma^cd Gamma_mcd                  3
-_W = 160    # W^m = gamma^cd Gamma^m_cd                 3
-_KM = 163   # K_a^b = K_ac gamma^cb at 163 + 3 a + b    9
-_RIC = 172  # R_p                                       6
-_OUT = 178  # H, H scale, M_x, M_y, M_z, their three scales: 8
-_ROWS = 186
+_DD = 48    # d_q d_s gamma_p of ONE p at 48 + pair(q, s): 6 (rewritten for each p)
+_RHO = 54   # rho                                       1
+_SRC = 55   # S_i                                       3
+_GI = 58    # gamma^p                                   6
+_ROWS = 64
 #: Row stride of the buffer in doubles: a strip and one cache line, so that rows do not lie a
 #: power of two apart (see the measurement in DEVELOPERS.md, "Strip kernels").
 _ROW_LENGTH = _STRIP + 8
+
+# Rows of the second, small buffer (a stack slot of its own, so that LLVM knows that the
+# contraction's stores into it overlap none of the rows it reads from the first one):
+_R2 = 0     # the second-derivative part of R, summed over the components p   1
+_OUT = 1    # H, H scale, M_x, M_y, M_z, their three scales                  8
+_SUM_ROWS = 9
 
 #: Columns along y per parallel task (one x index and a band of y): the task walks them in
 #: order, so each column's d_x g is computed once and kept for the mixed derivatives.
@@ -91,10 +88,11 @@ _BAND = 64
 _SPAN = 72
 # Rows of the ring buffer: slot s (grid column j = s mod (2 r + 1)) holds d_x g_p at
 # _RING_STEP s + p and d_xx g_p at _RING_STEP s + 6 + p, on the strip widened by r in z;
-# after the 7 slots of order 6, d_y g_p at _SIDE + p and d_yy g_p at _SIDE + 6 + p (column j).
+# after the 7 slots of order 6, d_y g_p at _SIDE and d_yy g_p at _SIDE + 1 (column j, the
+# component p being worked on).
 _RING_STEP = 12
 _SIDE = 7 * _RING_STEP
-_RING_ROWS = _SIDE + 12
+_RING_ROWS = _SIDE + 2
 
 
 @point_function
@@ -106,14 +104,6 @@ def _pair(a, b):
     lo = min(a, b)
     hi = max(a, b)
     return lo * (5 - lo) // 2 + hi
-
-
-@point_function
-def _sym_contraction(buf, n, s, t, two):
-    """s^ab t_ab for two packed symmetric tensors at rows s..s+5 and t..t+5."""
-    return (buf[s, n] * buf[t, n] + buf[s + 3, n] * buf[t + 3, n] + buf[s + 5, n] * buf[t + 5, n]
-            + two * (buf[s + 1, n] * buf[t + 1, n] + buf[s + 2, n] * buf[t + 2, n]
-                     + buf[s + 4, n] * buf[t + 4, n]))
 
 
 @point_function
@@ -133,121 +123,182 @@ def _inverse_metric_rows(buf, count, one):
 
 
 @point_function
-def _christoffel_rows(buf, count, half):
-    """Gamma_cab = 1/2 (d_a g_cb + d_b g_ca - d_c g_ab) for the 18 (c, pair(a, b)), rows _G1."""
+def _second_derivative_contraction(buf, sums, count, p, two):
+    """sums[_R2] += m_kl (gamma^kq gamma^ls - gamma^kl gamma^qs) d_q d_s g_kl, summed over
+    q, s, for the component p = (k, l) whose six second derivatives are in rows _DD
+    (m_kl = 1 for k = l, else 2: the packed component stands for g_kl and g_lk).
+
+    Summed over p this is the second-derivative part of R (module docstring), written as
+    m_kl (a . (D b) - gamma^kl tr(gamma^-1 D)) with D the 3x3 matrix d_q d_s g_kl,
+    a_q = gamma^kq, b_s = gamma^ls. The rows of a, b and gamma^kl depend on p (a run-time
+    index): they are resolved once, outside the loop over the strip."""
+    k = 0 if p < 3 else (1 if p < 5 else 2)
+    l = p - k * (5 - k) // 2
+    mult = 1.0 if k == l else two
+    ka = _GI + _pair(k, 0)
+    kb = _GI + _pair(k, 1)
+    kc = _GI + _pair(k, 2)
+    la = _GI + _pair(l, 0)
+    lb = _GI + _pair(l, 1)
+    lc = _GI + _pair(l, 2)
+    kl = _GI + p
     for n in range(count):
-        for c in range(3):
-            for a in range(3):
-                for b in range(a, 3):
-                    buf[_G1 + 6 * c + _pair(a, b), n] = half * (
-                        buf[_DG + 6 * a + _pair(c, b), n] + buf[_DG + 6 * b + _pair(c, a), n]
-                        - buf[_DG + 6 * c + _pair(a, b), n])
+        dxx = buf[_DD, n]
+        dxy = buf[_DD + 1, n]
+        dxz = buf[_DD + 2, n]
+        dyy = buf[_DD + 3, n]
+        dyz = buf[_DD + 4, n]
+        dzz = buf[_DD + 5, n]
+        b0 = buf[la, n]
+        b1 = buf[lb, n]
+        b2 = buf[lc, n]
+        along = (buf[ka, n] * (dxx * b0 + dxy * b1 + dxz * b2)
+                 + buf[kb, n] * (dxy * b0 + dyy * b1 + dyz * b2)
+                 + buf[kc, n] * (dxz * b0 + dyz * b1 + dzz * b2))
+        trace = (buf[_GI, n] * dxx + buf[_GI + 3, n] * dyy + buf[_GI + 5, n] * dzz
+                 + two * (buf[_GI + 1, n] * dxy + buf[_GI + 2, n] * dxz
+                          + buf[_GI + 4, n] * dyz))
+        sums[_R2, n] += mult * (along - buf[kl, n] * trace)
 
 
 @point_function
-def _raised_christoffel_rows(buf, count):
-    """Gamma^m_ab = gamma^mc Gamma_cab for the 18 (m, pair(a, b)), rows _G2."""
-    for n in range(count):
-        for m in range(3):
-            for a in range(3):
-                for b in range(a, 3):
-                    buf[_G2 + 6 * m + _pair(a, b), n] = (
-                        buf[_GI + _pair(m, 0), n] * buf[_G1 + _pair(a, b), n]
-                        + buf[_GI + _pair(m, 1), n] * buf[_G1 + 6 + _pair(a, b), n]
-                        + buf[_GI + _pair(m, 2), n] * buf[_G1 + 12 + _pair(a, b), n])
+def _christoffel_times_inverse(buf, n, m, half):
+    """X_m = Gamma_m gamma^-1 at point n, as 9 values (X_m)_a^b = Gamma_mac gamma^cb in the
+    order (a, b) = (0, 0), (0, 1), ..., (2, 2), with the lowered Christoffel symbols
+    Gamma_mac = 1/2 (d_a g_mc + d_c g_ma - d_m g_ac) of the first index ``m`` (a literal)."""
+    c00 = buf[_DG + _pair(m, 0), n] - half * buf[_DG + 6 * m, n]
+    c11 = buf[_DG + 6 + _pair(m, 1), n] - half * buf[_DG + 6 * m + 3, n]
+    c22 = buf[_DG + 12 + _pair(m, 2), n] - half * buf[_DG + 6 * m + 5, n]
+    c01 = half * (buf[_DG + _pair(m, 1), n] + buf[_DG + 6 + _pair(m, 0), n]
+                  - buf[_DG + 6 * m + 1, n])
+    c02 = half * (buf[_DG + _pair(m, 2), n] + buf[_DG + 12 + _pair(m, 0), n]
+                  - buf[_DG + 6 * m + 2, n])
+    c12 = half * (buf[_DG + 6 + _pair(m, 2), n] + buf[_DG + 12 + _pair(m, 1), n]
+                  - buf[_DG + 6 * m + 4, n])
+    i00 = buf[_GI, n]
+    i01 = buf[_GI + 1, n]
+    i02 = buf[_GI + 2, n]
+    i11 = buf[_GI + 3, n]
+    i12 = buf[_GI + 4, n]
+    i22 = buf[_GI + 5, n]
+    return (c00 * i00 + c01 * i01 + c02 * i02,
+            c00 * i01 + c01 * i11 + c02 * i12,
+            c00 * i02 + c01 * i12 + c02 * i22,
+            c01 * i00 + c11 * i01 + c12 * i02,
+            c01 * i01 + c11 * i11 + c12 * i12,
+            c01 * i02 + c11 * i12 + c12 * i22,
+            c02 * i00 + c12 * i01 + c22 * i02,
+            c02 * i01 + c12 * i11 + c22 * i12,
+            c02 * i02 + c12 * i12 + c22 * i22)
 
 
 @point_function
-def _christoffel_contractions(buf, count, two):
-    """T^d_mb = gamma^dc Gamma_mcb (rows _T), V_m = gamma^cd Gamma_mcd, W^m = gamma^cd
-    Gamma^m_cd (rows _V, _W)."""
-    for n in range(count):
-        for m in range(3):
-            for d in range(3):
-                for b in range(3):
-                    buf[_T + 9 * m + 3 * d + b, n] = (
-                        buf[_GI + _pair(d, 0), n] * buf[_G1 + 6 * m + _pair(0, b), n]
-                        + buf[_GI + _pair(d, 1), n] * buf[_G1 + 6 * m + _pair(1, b), n]
-                        + buf[_GI + _pair(d, 2), n] * buf[_G1 + 6 * m + _pair(2, b), n])
-    for n in range(count):
-        for m in range(3):
-            buf[_V + m, n] = _sym_contraction(buf, n, _GI, _G1 + 6 * m, two)
-            buf[_W + m, n] = _sym_contraction(buf, n, _GI, _G2 + 6 * m, two)
+def _trace_of_product(x, y):
+    """tr(X Y) = X_a^b Y_b^a for two 3x3 matrices given as 9 values in row order."""
+    return (x[0] * y[0] + x[1] * y[3] + x[2] * y[6]
+            + x[3] * y[1] + x[4] * y[4] + x[5] * y[7]
+            + x[6] * y[2] + x[7] * y[5] + x[8] * y[8])
 
 
 @point_function
-def _mixed_curvature_rows(buf, count):
-    """K_m^b = K_mc gamma^cb, rows _KM + 3 m + b."""
-    for n in range(count):
-        for m in range(3):
-            for b in range(3):
-                buf[_KM + 3 * m + b, n] = (
-                    buf[_KL + _pair(m, 0), n] * buf[_GI + _pair(0, b), n]
-                    + buf[_KL + _pair(m, 1), n] * buf[_GI + _pair(1, b), n]
-                    + buf[_KL + _pair(m, 2), n] * buf[_GI + _pair(2, b), n])
+def _raised_curvature(buf, n):
+    """Y = gamma^-1 K at point n: Y^m_c = gamma^ma K_ac, 9 values in the order (m, c)."""
+    i00 = buf[_GI, n]
+    i01 = buf[_GI + 1, n]
+    i02 = buf[_GI + 2, n]
+    i11 = buf[_GI + 3, n]
+    i12 = buf[_GI + 4, n]
+    i22 = buf[_GI + 5, n]
+    k00 = buf[_KL, n]
+    k01 = buf[_KL + 1, n]
+    k02 = buf[_KL + 2, n]
+    k11 = buf[_KL + 3, n]
+    k12 = buf[_KL + 4, n]
+    k22 = buf[_KL + 5, n]
+    return (i00 * k00 + i01 * k01 + i02 * k02,
+            i00 * k01 + i01 * k11 + i02 * k12,
+            i00 * k02 + i01 * k12 + i02 * k22,
+            i01 * k00 + i11 * k01 + i12 * k02,
+            i01 * k01 + i11 * k11 + i12 * k12,
+            i01 * k02 + i11 * k12 + i12 * k22,
+            i02 * k00 + i12 * k01 + i22 * k02,
+            i02 * k01 + i12 * k11 + i22 * k12,
+            i02 * k02 + i12 * k12 + i22 * k22)
 
 
 @point_function
-def _ricci_row(buf, count, a, b, half):
-    """R_ab = gamma^cd [1/2 (d_c d_b g_ad + d_a d_d g_cb - d_c d_d g_ab - d_a d_b g_cd)
-    + Gamma^m_ad Gamma_mcb - Gamma^m_ab Gamma_mcd]  (module docstring)
-    = 1/2 gamma^cd (...) + Gamma^m_ad T^d_mb - Gamma^m_ab V_m, row _RIC + pair(a, b)."""
-    for n in range(count):
-        second = 0.0
-        for c in range(3):
-            for d in range(3):
-                second += buf[_GI + _pair(c, d), n] * (
-                    buf[_DDG + 6 * _pair(c, b) + _pair(a, d), n]
-                    + buf[_DDG + 6 * _pair(a, d) + _pair(c, b), n]
-                    - buf[_DDG + 6 * _pair(c, d) + _pair(a, b), n]
-                    - buf[_DDG + 6 * _pair(a, b) + _pair(c, d), n])
-        quad = 0.0
-        for m in range(3):
-            quad += (buf[_G2 + 6 * m + _pair(a, 0), n] * buf[_T + 9 * m + b, n]
-                     + buf[_G2 + 6 * m + _pair(a, 1), n] * buf[_T + 9 * m + 3 + b, n]
-                     + buf[_G2 + 6 * m + _pair(a, 2), n] * buf[_T + 9 * m + 6 + b, n]
-                     - buf[_G2 + 6 * m + _pair(a, b), n] * buf[_V + m, n])
-        buf[_RIC + _pair(a, b), n] = half * second + quad
+def _momentum_terms(buf, n, a, x0, x1, x2, v0, v1, v2, y, two):
+    """(gamma^bc D_b K_ca, gamma^bc D_a K_bc) at point n for the literal index ``a``.
+
+    With D_c K_ab = d_c K_ab - Gamma^m_ca K_mb - Gamma^m_cb K_am, V_m = tr X_m,
+    Y = gamma^-1 K and Z_a = Gamma^m_ab K_m^b = (X_m)_a^c Y^m_c (X_m of
+    :func:`_christoffel_times_inverse`):
+    gamma^bc D_b K_ca = gamma^bc d_b K_ca - V_m Y^m_a - Z_a and
+    gamma^bc D_a K_bc = gamma^bc d_a K_bc - 2 Z_a."""
+    z = (x0[3 * a] * y[0] + x0[3 * a + 1] * y[1] + x0[3 * a + 2] * y[2]
+         + x1[3 * a] * y[3] + x1[3 * a + 1] * y[4] + x1[3 * a + 2] * y[5]
+         + x2[3 * a] * y[6] + x2[3 * a + 1] * y[7] + x2[3 * a + 2] * y[8])
+    i00 = buf[_GI, n]
+    i01 = buf[_GI + 1, n]
+    i02 = buf[_GI + 2, n]
+    i11 = buf[_GI + 3, n]
+    i12 = buf[_GI + 4, n]
+    i22 = buf[_GI + 5, n]
+    div_k = (i00 * buf[_DK + _pair(0, a), n] + i01 * buf[_DK + _pair(1, a), n]
+             + i02 * buf[_DK + _pair(2, a), n]
+             + i01 * buf[_DK + 6 + _pair(0, a), n] + i11 * buf[_DK + 6 + _pair(1, a), n]
+             + i12 * buf[_DK + 6 + _pair(2, a), n]
+             + i02 * buf[_DK + 12 + _pair(0, a), n] + i12 * buf[_DK + 12 + _pair(1, a), n]
+             + i22 * buf[_DK + 12 + _pair(2, a), n]
+             - (v0 * y[a] + v1 * y[3 + a] + v2 * y[6 + a]) - z)
+    grad_k = (i00 * buf[_DK + 6 * a, n] + i11 * buf[_DK + 6 * a + 3, n]
+              + i22 * buf[_DK + 6 * a + 5, n]
+              + two * (i01 * buf[_DK + 6 * a + 1, n] + i02 * buf[_DK + 6 * a + 2, n]
+                       + i12 * buf[_DK + 6 * a + 4, n] - z))
+    return div_k, grad_k
 
 
 @point_function
-def _hamiltonian_rows(buf, count, sixteen_pi, two):
-    """H = R + K^2 - K_ij K^ij - 16 pi rho and its largest term, rows _OUT, _OUT + 1, with
-    K = K_a^a and K_ij K^ij = K_a^b K_b^a."""
+def _constraint_rows(buf, sums, count, sixteen_pi, eight_pi, half, two):
+    """H, M_a and their largest terms into rows _OUT.._OUT + 7 of ``sums``, one loop along the
+    strip (module docstring):
+
+        R = R_2 + sum_mn gamma^mn (tr(X_m X_n) - tr X_m tr X_n),   X_m = Gamma_m gamma^-1,
+        K = tr Y,  K_ij K^ij = tr(Y Y),  Y = gamma^-1 K,
+
+    with R_2 (row _R2 of ``sums``) summed by :func:`_second_derivative_contraction`."""
     for n in range(count):
-        ricci = _sym_contraction(buf, n, _GI, _RIC, two)
-        trace_k = buf[_KM, n] + buf[_KM + 4, n] + buf[_KM + 8, n]
-        k_sq = (buf[_KM, n] * buf[_KM, n] + buf[_KM + 4, n] * buf[_KM + 4, n]
-                + buf[_KM + 8, n] * buf[_KM + 8, n]
-                + two * (buf[_KM + 1, n] * buf[_KM + 3, n] + buf[_KM + 2, n] * buf[_KM + 6, n]
-                         + buf[_KM + 5, n] * buf[_KM + 7, n]))
+        x0 = _christoffel_times_inverse(buf, n, 0, half)
+        x1 = _christoffel_times_inverse(buf, n, 1, half)
+        x2 = _christoffel_times_inverse(buf, n, 2, half)
+        v0 = x0[0] + x0[4] + x0[8]
+        v1 = x1[0] + x1[4] + x1[8]
+        v2 = x2[0] + x2[4] + x2[8]
+        quad = (buf[_GI, n] * (_trace_of_product(x0, x0) - v0 * v0)
+                + buf[_GI + 3, n] * (_trace_of_product(x1, x1) - v1 * v1)
+                + buf[_GI + 5, n] * (_trace_of_product(x2, x2) - v2 * v2)
+                + two * (buf[_GI + 1, n] * (_trace_of_product(x0, x1) - v0 * v1)
+                         + buf[_GI + 2, n] * (_trace_of_product(x0, x2) - v0 * v2)
+                         + buf[_GI + 4, n] * (_trace_of_product(x1, x2) - v1 * v2)))
+        ricci = sums[_R2, n] + quad
+        y = _raised_curvature(buf, n)
+        trace_k = y[0] + y[4] + y[8]
+        k_sq = _trace_of_product(y, y)
         matter = sixteen_pi * buf[_RHO, n]
-        buf[_OUT, n] = ricci + trace_k * trace_k - k_sq - matter
-        buf[_OUT + 1, n] = max(max(abs(ricci), trace_k * trace_k), max(k_sq, abs(matter)))
-
-
-@point_function
-def _momentum_rows(buf, count, a, eight_pi, two):
-    """M_a = gamma^bc (D_b K_ca - D_a K_bc) - 8 pi S_a and its largest term, rows _OUT + 2 + a
-    and _OUT + 5 + a. With D_c K_ab = d_c K_ab - Gamma^m_ca K_mb - Gamma^m_cb K_am and
-    X_a = Gamma^m_ab K_m^b:  gamma^bc D_b K_ca = gamma^bc d_b K_ca - W^m K_ma - X_a and
-    gamma^bc D_a K_bc = gamma^bc d_a K_bc - 2 X_a."""
-    for n in range(count):
-        x_a = 0.0
-        div_k = 0.0
-        for m in range(3):
-            x_a += (buf[_G2 + 6 * m + _pair(a, 0), n] * buf[_KM + 3 * m, n]
-                    + buf[_G2 + 6 * m + _pair(a, 1), n] * buf[_KM + 3 * m + 1, n]
-                    + buf[_G2 + 6 * m + _pair(a, 2), n] * buf[_KM + 3 * m + 2, n])
-            div_k += (buf[_GI + _pair(m, 0), n] * buf[_DK + 6 * m + _pair(0, a), n]
-                      + buf[_GI + _pair(m, 1), n] * buf[_DK + 6 * m + _pair(1, a), n]
-                      + buf[_GI + _pair(m, 2), n] * buf[_DK + 6 * m + _pair(2, a), n]
-                      - buf[_W + m, n] * buf[_KL + _pair(m, a), n])
-        div_k -= x_a
-        grad_k = _sym_contraction(buf, n, _GI, _DK + 6 * a, two) - two * x_a
-        source = eight_pi * buf[_SRC + a, n]
-        buf[_OUT + 2 + a, n] = div_k - grad_k - source
-        buf[_OUT + 5 + a, n] = max(max(abs(div_k), abs(grad_k)), abs(source))
+        sums[_OUT, n] = ricci + trace_k * trace_k - k_sq - matter
+        sums[_OUT + 1, n] = max(max(abs(ricci), trace_k * trace_k), max(k_sq, abs(matter)))
+        div_x, grad_x = _momentum_terms(buf, n, 0, x0, x1, x2, v0, v1, v2, y, two)
+        div_y, grad_y = _momentum_terms(buf, n, 1, x0, x1, x2, v0, v1, v2, y, two)
+        div_z, grad_z = _momentum_terms(buf, n, 2, x0, x1, x2, v0, v1, v2, y, two)
+        source_x = eight_pi * buf[_SRC, n]
+        source_y = eight_pi * buf[_SRC + 1, n]
+        source_z = eight_pi * buf[_SRC + 2, n]
+        sums[_OUT + 2, n] = div_x - grad_x - source_x
+        sums[_OUT + 3, n] = div_y - grad_y - source_y
+        sums[_OUT + 4, n] = div_z - grad_z - source_z
+        sums[_OUT + 5, n] = max(max(abs(div_x), abs(grad_x)), abs(source_x))
+        sums[_OUT + 6, n] = max(max(abs(div_y), abs(grad_y)), abs(source_y))
+        sums[_OUT + 7, n] = max(max(abs(div_z), abs(grad_z)), abs(source_z))
 
 
 @point_function
@@ -261,35 +312,41 @@ def _enter_ring(gamma, i, column, start, span, r, w1, w2, inv_hx, ring, slot):
 
 @point_function
 def _strip_inputs(gamma, K, rho, S, i, j, start, count, span, r, w1, w2, inv_h, ring, centre,
-                  period, buf):
-    """The 72 derivatives and 16 values of the strip (i, j, start..start + count - 1) into the
-    rows _G.._SRC of ``buf``, with d_x g and d_xx g from ring slot ``centre`` (= j mod
-    ``period``) and the slots of columns j +- 1..r beside it."""
+                  period, buf, sums, one, two):
+    """The values, gamma^ij, the 36 first derivatives of gamma and K of the strip (i, j,
+    start..start + count - 1) into the rows _G.._GI of ``buf``, and the second-derivative part
+    of R into row _R2 of ``sums``: for each component p its six second derivatives go to the
+    rows _DD and are contracted at once (:func:`_second_derivative_contraction`), with d_x g
+    and d_xx g from ring slot ``centre`` (= j mod ``period``) and the slots of columns
+    j +- 1..r beside it."""
     u = np.uint64
     base = u(start)
     for p in range(6):
         value_column(gamma, p, i, j, start, count, buf, _G + p)
         value_column(K, p, i, j, start, count, buf, _KL + p)
-        d1_d2_column(gamma, p, i, j, start, count, 2, r, w1, w2, inv_h[2], buf,
-                     _DG + 12 + p, _DDG + 6 * _pair(2, 2) + p)
-        d1_d2_column(gamma, p, i, j, start - r, span, 1, r, w1, w2, inv_h[1], ring,
-                     _SIDE + p, _SIDE + 6 + p)
-        # d_x g, d_xx g and d_xz g = d_z (d_x g) from the ring's centre slot.
-        d1_row(ring, _RING_STEP * centre + p, _RING_STEP * centre + 6 + p, r, count,
-               r, w1, inv_h[2], buf, _DG + p, _DDG + 6 * _pair(0, 0) + p,
-               _DDG + 6 * _pair(0, 2) + p)
-        # d_y g, d_yy g and d_yz g = d_z (d_y g).
-        d1_row(ring, _SIDE + p, _SIDE + 6 + p, r, count, r, w1, inv_h[2], buf,
-               _DG + 6 + p, _DDG + 6 * _pair(1, 1) + p, _DDG + 6 * _pair(1, 2) + p)
-        # d_xy g = d_y (d_x g) across the ring's slots.
-        d1_ring(ring, p, _RING_STEP, period, centre, r, count, r, w1, inv_h[1], buf,
-                _DDG + 6 * _pair(0, 1) + p)
-        d1_axes_column(K, p, i, j, start, count, r, 1, 1, 1, w1, inv_h[0], inv_h[1],
-                       inv_h[2], buf, _DK + p, _DK + 6 + p, _DK + 12 + p)
     for n in range(count):
         buf[_RHO, n] = rho[i, j, base + u(n)]
     for a in range(3):
         value_column(S, a, i, j, start, count, buf, _SRC + a)
+    _inverse_metric_rows(buf, count, one)
+    for n in range(count):
+        sums[_R2, n] = 0.0
+    for p in range(6):
+        d1_d2_column(gamma, p, i, j, start, count, 2, r, w1, w2, inv_h[2], buf,
+                     _DG + 12 + p, _DD + 5)
+        d1_d2_column(gamma, p, i, j, start - r, span, 1, r, w1, w2, inv_h[1], ring,
+                     _SIDE, _SIDE + 1)
+        # d_x g, d_xx g and d_xz g = d_z (d_x g) from the ring's centre slot.
+        d1_row(ring, _RING_STEP * centre + p, _RING_STEP * centre + 6 + p, r, count,
+               r, w1, inv_h[2], buf, _DG + p, _DD, _DD + 2)
+        # d_y g, d_yy g and d_yz g = d_z (d_y g).
+        d1_row(ring, _SIDE, _SIDE + 1, r, count, r, w1, inv_h[2], buf,
+               _DG + 6 + p, _DD + 3, _DD + 4)
+        # d_xy g = d_y (d_x g) across the ring's slots.
+        d1_ring(ring, p, _RING_STEP, period, centre, r, count, r, w1, inv_h[1], buf, _DD + 1)
+        _second_derivative_contraction(buf, sums, count, p, two)
+        d1_axes_column(K, p, i, j, start, count, r, 1, 1, 1, w1, inv_h[0], inv_h[1],
+                       inv_h[2], buf, _DK + p, _DK + 6 + p, _DK + 12 + p)
 
 
 @grid_kernel
@@ -340,6 +397,7 @@ def adm_constraints_grid(gamma, K, rho, S, interior, w1, w2, inv_h, sixteen_pi, 
         # On the thread's stack (see strip_buffers: no run-time overlap checks).
         buf = strip_buffer(_ROWS, _ROW_LENGTH, H)
         ring = strip_buffer(_RING_ROWS, _SPAN, H)
+        sums = strip_buffer(_SUM_ROWS, _ROW_LENGTH, H)
         for start in range(r, nz - r, _STRIP):
             count = min(_STRIP, nz - r - start)
             span = count + 2 * r
@@ -353,31 +411,16 @@ def adm_constraints_grid(gamma, K, rho, S, interior, w1, w2, inv_h, sixteen_pi, 
                 if j < first:
                     continue
                 _strip_inputs(gamma, K, rho, S, i, j, start, count, span, r, w1, w2, inv_h,
-                              ring, j % period, period, buf)
-                # The algebra, one loop along the strip per call; literal indices (docstring).
-                _inverse_metric_rows(buf, count, half + half)
-                _christoffel_rows(buf, count, half)
-                _raised_christoffel_rows(buf, count)
-                _christoffel_contractions(buf, count, two)
-                _mixed_curvature_rows(buf, count)
-                _ricci_row(buf, count, 0, 0, half)
-                _ricci_row(buf, count, 0, 1, half)
-                _ricci_row(buf, count, 0, 2, half)
-                _ricci_row(buf, count, 1, 1, half)
-                _ricci_row(buf, count, 1, 2, half)
-                _ricci_row(buf, count, 2, 2, half)
-                _hamiltonian_rows(buf, count, sixteen_pi, two)
-                _momentum_rows(buf, count, 0, eight_pi, two)
-                _momentum_rows(buf, count, 1, eight_pi, two)
-                _momentum_rows(buf, count, 2, eight_pi, two)
+                              ring, j % period, period, buf, sums, half + half, two)
+                _constraint_rows(buf, sums, count, sixteen_pi, eight_pi, half, two)
                 for n in range(count):
                     k = base + u(n)
                     inside = interior[i, j, k] != 0
-                    H[i, j, k] = buf[_OUT, n] if inside else nan
-                    H_scale[i, j, k] = buf[_OUT + 1, n] if inside else nan
+                    H[i, j, k] = sums[_OUT, n] if inside else nan
+                    H_scale[i, j, k] = sums[_OUT + 1, n] if inside else nan
                 for a in range(3):
                     for n in range(count):
                         k = base + u(n)
                         inside = interior[i, j, k] != 0
-                        M[a, i, j, k] = buf[_OUT + 2 + a, n] if inside else nan
-                        M_scale[a, i, j, k] = buf[_OUT + 5 + a, n] if inside else nan
+                        M[a, i, j, k] = sums[_OUT + 2 + a, n] if inside else nan
+                        M_scale[a, i, j, k] = sums[_OUT + 5 + a, n] if inside else nan
