@@ -55,22 +55,18 @@ from numba import prange
 from ._compile import grid_kernel, point_function
 from .strip_buffers import strip_buffer
 from .metric import inverse_metric, metric_factors
-from .stencils import d1_axes_column, d1_d2_column, d1_ring, d1_row, value_column
+from .stencils import d1_axes_column, d1_d2_column, d1_ring, d1_row
 
 #: Points along z per strip (the row length of the per-column buffer). A literal, so that LLVM
 #: sees the buffer's row stride as a constant and can prove that rows do not overlap.
 _STRIP = 64
 
 # Rows of the per-column buffer (module docstring).
-_G = 0      # gamma_p                                   6 rows
-_KL = 6     # K_p                                       6
-_DG = 12    # d_q gamma_p at 12 + 6 q + p               18
-_DK = 30    # d_q K_p at 30 + 6 q + p                   18
-_DD = 48    # d_q d_s gamma_p of ONE p at 48 + pair(q, s): 6 (rewritten for each p)
-_RHO = 54   # rho                                       1
-_SRC = 55   # S_i                                       3
-_GI = 58    # gamma^p                                   6
-_ROWS = 64
+_DG = 0     # d_q gamma_p at 6 q + p                    18 rows
+_DK = 18    # d_q K_p at 18 + 6 q + p                   18
+_DD = 36    # d_q d_s gamma_p of ONE p at 36 + pair(q, s): 6 (rewritten for each p)
+_GI = 42    # gamma^p                                   6
+_ROWS = 48
 #: Row stride of the buffer in doubles: a strip and one cache line, so that rows do not lie a
 #: power of two apart (see the measurement in DEVELOPERS.md, "Strip kernels").
 _ROW_LENGTH = _STRIP + 8
@@ -83,7 +79,7 @@ _SUM_ROWS = 9
 
 #: Columns along y per parallel task (one x index and a band of y): the task walks them in
 #: order, so each column's d_x g is computed once and kept for the mixed derivatives.
-_BAND = 64
+_BAND = 32
 #: Row length of the ring buffer: a strip widened by the largest stencil radius (3) at each end.
 _SPAN = 72
 # Rows of the ring buffer: slot s (grid column j = s mod (2 r + 1)) holds d_x g_p at
@@ -107,12 +103,16 @@ def _pair(a, b):
 
 
 @point_function
-def _inverse_metric_rows(buf, count, one):
-    """gamma^ij from gamma_ij (rows _G) into rows _GI, by the factorisation of metric.py."""
+def _inverse_metric_rows(gamma, i, j, start, count, buf, one):
+    """gamma^ij of the strip (i, j, start..start + count - 1) into rows _GI, read from the grid
+    and inverted by the factorisation of metric.py."""
+    u = np.uint64
+    base = u(start)
     for n in range(count):
-        d1, d2, d3, l21, l31, l32 = metric_factors(buf[_G, n], buf[_G + 1, n], buf[_G + 2, n],
-                                                   buf[_G + 3, n], buf[_G + 4, n],
-                                                   buf[_G + 5, n], one)
+        k = base + u(n)
+        d1, d2, d3, l21, l31, l32 = metric_factors(gamma[0, i, j, k], gamma[1, i, j, k],
+                                                   gamma[2, i, j, k], gamma[3, i, j, k],
+                                                   gamma[4, i, j, k], gamma[5, i, j, k], one)
         ixx, ixy, ixz, iyy, iyz, izz = inverse_metric(d1, d2, d3, l21, l31, l32, one)
         buf[_GI, n] = ixx
         buf[_GI + 1, n] = ixy
@@ -201,20 +201,21 @@ def _trace_of_product(x, y):
 
 
 @point_function
-def _raised_curvature(buf, n):
-    """Y = gamma^-1 K at point n: Y^m_c = gamma^ma K_ac, 9 values in the order (m, c)."""
+def _raised_curvature(buf, n, K, i, j, k):
+    """Y = gamma^-1 K at point n of the strip (grid point (i, j, k)): Y^m_c = gamma^ma K_ac,
+    9 values in the order (m, c)."""
     i00 = buf[_GI, n]
     i01 = buf[_GI + 1, n]
     i02 = buf[_GI + 2, n]
     i11 = buf[_GI + 3, n]
     i12 = buf[_GI + 4, n]
     i22 = buf[_GI + 5, n]
-    k00 = buf[_KL, n]
-    k01 = buf[_KL + 1, n]
-    k02 = buf[_KL + 2, n]
-    k11 = buf[_KL + 3, n]
-    k12 = buf[_KL + 4, n]
-    k22 = buf[_KL + 5, n]
+    k00 = K[0, i, j, k]
+    k01 = K[1, i, j, k]
+    k02 = K[2, i, j, k]
+    k11 = K[3, i, j, k]
+    k12 = K[4, i, j, k]
+    k22 = K[5, i, j, k]
     return (i00 * k00 + i01 * k01 + i02 * k02,
             i00 * k01 + i01 * k11 + i02 * k12,
             i00 * k02 + i01 * k12 + i02 * k22,
@@ -259,15 +260,19 @@ def _momentum_terms(buf, n, a, x0, x1, x2, v0, v1, v2, y, two):
 
 
 @point_function
-def _constraint_rows(buf, sums, count, sixteen_pi, eight_pi, half, two):
+def _constraint_rows(K, rho, S, i, j, start, buf, sums, count, sixteen_pi, eight_pi, half, two):
     """H, M_a and their largest terms into rows _OUT.._OUT + 7 of ``sums``, one loop along the
     strip (module docstring):
 
         R = R_2 + sum_mn gamma^mn (tr(X_m X_n) - tr X_m tr X_n),   X_m = Gamma_m gamma^-1,
         K = tr Y,  K_ij K^ij = tr(Y Y),  Y = gamma^-1 K,
 
-    with R_2 (row _R2 of ``sums``) summed by :func:`_second_derivative_contraction`."""
+    with R_2 (row _R2 of ``sums``) summed by :func:`_second_derivative_contraction`; K_ij,
+    rho and S_i are read from the grid (the strip (i, j, start..start + count - 1))."""
+    u = np.uint64
+    base = u(start)
     for n in range(count):
+        k = base + u(n)
         x0 = _christoffel_times_inverse(buf, n, 0, half)
         x1 = _christoffel_times_inverse(buf, n, 1, half)
         x2 = _christoffel_times_inverse(buf, n, 2, half)
@@ -281,18 +286,18 @@ def _constraint_rows(buf, sums, count, sixteen_pi, eight_pi, half, two):
                          + buf[_GI + 2, n] * (_trace_of_product(x0, x2) - v0 * v2)
                          + buf[_GI + 4, n] * (_trace_of_product(x1, x2) - v1 * v2)))
         ricci = sums[_R2, n] + quad
-        y = _raised_curvature(buf, n)
+        y = _raised_curvature(buf, n, K, i, j, k)
         trace_k = y[0] + y[4] + y[8]
         k_sq = _trace_of_product(y, y)
-        matter = sixteen_pi * buf[_RHO, n]
+        matter = sixteen_pi * rho[i, j, k]
         sums[_OUT, n] = ricci + trace_k * trace_k - k_sq - matter
         sums[_OUT + 1, n] = max(max(abs(ricci), trace_k * trace_k), max(k_sq, abs(matter)))
         div_x, grad_x = _momentum_terms(buf, n, 0, x0, x1, x2, v0, v1, v2, y, two)
         div_y, grad_y = _momentum_terms(buf, n, 1, x0, x1, x2, v0, v1, v2, y, two)
         div_z, grad_z = _momentum_terms(buf, n, 2, x0, x1, x2, v0, v1, v2, y, two)
-        source_x = eight_pi * buf[_SRC, n]
-        source_y = eight_pi * buf[_SRC + 1, n]
-        source_z = eight_pi * buf[_SRC + 2, n]
+        source_x = eight_pi * S[0, i, j, k]
+        source_y = eight_pi * S[1, i, j, k]
+        source_z = eight_pi * S[2, i, j, k]
         sums[_OUT + 2, n] = div_x - grad_x - source_x
         sums[_OUT + 3, n] = div_y - grad_y - source_y
         sums[_OUT + 4, n] = div_z - grad_z - source_z
@@ -311,24 +316,15 @@ def _enter_ring(gamma, i, column, start, span, r, w1, w2, inv_hx, ring, slot):
 
 
 @point_function
-def _strip_inputs(gamma, K, rho, S, i, j, start, count, span, r, w1, w2, inv_h, ring, centre,
-                  period, buf, sums, one, two):
+def _strip_inputs(gamma, K, i, j, start, count, span, r, w1, w2, inv_h, ring, centre, period,
+                  buf, sums, one, two):
     """The values, gamma^ij, the 36 first derivatives of gamma and K of the strip (i, j,
     start..start + count - 1) into the rows _G.._GI of ``buf``, and the second-derivative part
     of R into row _R2 of ``sums``: for each component p its six second derivatives go to the
     rows _DD and are contracted at once (:func:`_second_derivative_contraction`), with d_x g
     and d_xx g from ring slot ``centre`` (= j mod ``period``) and the slots of columns
     j +- 1..r beside it."""
-    u = np.uint64
-    base = u(start)
-    for p in range(6):
-        value_column(gamma, p, i, j, start, count, buf, _G + p)
-        value_column(K, p, i, j, start, count, buf, _KL + p)
-    for n in range(count):
-        buf[_RHO, n] = rho[i, j, base + u(n)]
-    for a in range(3):
-        value_column(S, a, i, j, start, count, buf, _SRC + a)
-    _inverse_metric_rows(buf, count, one)
+    _inverse_metric_rows(gamma, i, j, start, count, buf, one)
     for n in range(count):
         sums[_R2, n] = 0.0
     for p in range(6):
@@ -376,8 +372,8 @@ def adm_constraints_grid(gamma, K, rho, S, interior, w1, w2, inv_h, sixteen_pi, 
     period = 2 * r + 1  # ring slots: the columns j - r..j + r
     bands = (ny + _BAND - 1) // _BAND
     for task in prange(nx * bands):
-        i = task // bands
-        band = task - i * bands
+        band = task // nx
+        i = task - band * nx
         low = band * _BAND
         high = min(ny, low + _BAND)
         edge_i = (i < r) | (i >= nx - r)
@@ -410,9 +406,10 @@ def adm_constraints_grid(gamma, K, rho, S, interior, w1, w2, inv_h, sixteen_pi, 
                 j = entering - r
                 if j < first:
                     continue
-                _strip_inputs(gamma, K, rho, S, i, j, start, count, span, r, w1, w2, inv_h,
-                              ring, j % period, period, buf, sums, half + half, two)
-                _constraint_rows(buf, sums, count, sixteen_pi, eight_pi, half, two)
+                _strip_inputs(gamma, K, i, j, start, count, span, r, w1, w2, inv_h, ring,
+                              j % period, period, buf, sums, half + half, two)
+                _constraint_rows(K, rho, S, i, j, start, buf, sums, count, sixteen_pi,
+                                 eight_pi, half, two)
                 for n in range(count):
                     k = base + u(n)
                     inside = interior[i, j, k] != 0
