@@ -55,7 +55,7 @@ from numba import prange
 from ._compile import grid_kernel, point_function
 from .strip_buffers import strip_buffer
 from .metric import inverse_metric, metric_factors
-from .stencils import d1_axes_column, d1_d2_column, d1_ring, d1_row
+from .stencils import d1_axes_column, d1_d2_column
 
 #: Points along z per strip (the row length of the per-column buffer). A literal, so that LLVM
 #: sees the buffer's row stride as a constant and can prove that rows do not overlap.
@@ -64,9 +64,9 @@ _STRIP = 64
 # Rows of the per-column buffer (module docstring).
 _DG = 0     # d_q gamma_p at 6 q + p                    18 rows
 _DK = 18    # d_q K_p at 18 + 6 q + p                   18
-_DD = 36    # d_q d_s gamma_p of ONE p at 36 + pair(q, s): 6 (rewritten for each p)
-_GI = 42    # gamma^p                                   6
-_ROWS = 48
+_DZZ = 36   # d_z d_z gamma_p of ONE p (rewritten for each p)  1
+_GI = 37    # gamma^p                                   6
+_ROWS = 43
 #: Row stride of the buffer in doubles: a strip and one cache line, so that rows do not lie a
 #: power of two apart (see the measurement in DEVELOPERS.md, "Strip kernels").
 _ROW_LENGTH = _STRIP + 8
@@ -123,15 +123,39 @@ def _inverse_metric_rows(gamma, i, j, start, count, buf, one):
 
 
 @point_function
-def _second_derivative_contraction(buf, sums, count, p, two):
-    """sums[_R2] += m_kl (gamma^kq gamma^ls - gamma^kl gamma^qs) d_q d_s g_kl, summed over
-    q, s, for the component p = (k, l) whose six second derivatives are in rows _DD
-    (m_kl = 1 for k = l, else 2: the packed component stands for g_kl and g_lk).
+def _contracted_second_derivatives(buf, sums, n, ka, kb, kc, la, lb, lc, kl, mult, dxx, dxy,
+                                   dxz, dyy, dyz, dzz, two):
+    """sums[_R2, n] += m_kl (gamma^kq gamma^ls - gamma^kl gamma^qs) d_q d_s g_kl, summed over
+    q, s, for one component p = (k, l) with the six second derivatives d_q d_s g_kl given
+    (m_kl = ``mult`` = 1 for k = l, else 2: the packed component stands for g_kl and g_lk).
 
     Summed over p this is the second-derivative part of R (module docstring), written as
-    m_kl (a . (D b) - gamma^kl tr(gamma^-1 D)) with D the 3x3 matrix d_q d_s g_kl,
-    a_q = gamma^kq, b_s = gamma^ls. The rows of a, b and gamma^kl depend on p (a run-time
-    index): they are resolved once, outside the loop over the strip."""
+    m_kl (a . (D b) - gamma^kl tr(gamma^-1 D)) with D the 3x3 matrix d_q d_s g_kl and
+    a_q = gamma^kq, b_s = gamma^ls at rows ``ka``, ``kb``, ``kc`` and ``la``, ``lb``,
+    ``lc``, gamma^kl at row ``kl``."""
+    b0 = buf[la, n]
+    b1 = buf[lb, n]
+    b2 = buf[lc, n]
+    along = (buf[ka, n] * (dxx * b0 + dxy * b1 + dxz * b2)
+             + buf[kb, n] * (dxy * b0 + dyy * b1 + dyz * b2)
+             + buf[kc, n] * (dxz * b0 + dyz * b1 + dzz * b2))
+    trace = (buf[_GI, n] * dxx + buf[_GI + 3, n] * dyy + buf[_GI + 5, n] * dzz
+             + two * (buf[_GI + 1, n] * dxy + buf[_GI + 2, n] * dxz + buf[_GI + 4, n] * dyz))
+    sums[_R2, n] += mult * (along - buf[kl, n] * trace)
+
+
+@point_function
+def _mixed_derivatives_contracted(ring, p, centre, period, r, count, w1, inv_hy, inv_hz, buf,
+                                  sums, two):
+    """For the component p = (k, l), in one loop along the strip: copy d_x g_p and d_y g_p
+    (ring slot ``centre`` and the side rows, on the strip widened by r) to rows _DG + p and
+    _DG + 6 + p, form d_xz g = d_z (d_x g), d_yz g = d_z (d_y g) and d_xy g = d_y (d_x g)
+    (across the ring's slots; the stencils of :func:`emsource.kernels.stencils.d1_row` and
+    :func:`emsource.kernels.stencils.d1_ring`, term by term) and contract them at once with
+    d_xx g, d_yy g (ring) and d_zz g (row _DZZ) into row _R2 of ``sums``
+    (:func:`_contracted_second_derivatives`): the six second derivatives never reach a buffer
+    row of their own. Rows resolved once, outside the loop; ``radius`` 1 to 3."""
+    u = np.uint64
     k = 0 if p < 3 else (1 if p < 5 else 2)
     l = p - k * (5 - k) // 2
     mult = 1.0 if k == l else two
@@ -142,23 +166,71 @@ def _second_derivative_contraction(buf, sums, count, p, two):
     lb = _GI + _pair(l, 1)
     lc = _GI + _pair(l, 2)
     kl = _GI + p
-    for n in range(count):
-        dxx = buf[_DD, n]
-        dxy = buf[_DD + 1, n]
-        dxz = buf[_DD + 2, n]
-        dyy = buf[_DD + 3, n]
-        dyz = buf[_DD + 4, n]
-        dzz = buf[_DD + 5, n]
-        b0 = buf[la, n]
-        b1 = buf[lb, n]
-        b2 = buf[lc, n]
-        along = (buf[ka, n] * (dxx * b0 + dxy * b1 + dxz * b2)
-                 + buf[kb, n] * (dxy * b0 + dyy * b1 + dyz * b2)
-                 + buf[kc, n] * (dxz * b0 + dyz * b1 + dzz * b2))
-        trace = (buf[_GI, n] * dxx + buf[_GI + 3, n] * dyy + buf[_GI + 5, n] * dzz
-                 + two * (buf[_GI + 1, n] * dxy + buf[_GI + 2, n] * dxz
-                          + buf[_GI + 4, n] * dyz))
-        sums[_R2, n] += mult * (along - buf[kl, n] * trace)
+    cx = _RING_STEP * centre + p
+    cxx = cx + 6
+    base = u(r)
+    z1 = w1[0] * inv_hz
+    y1 = w1[0] * inv_hy
+    p1 = p + _RING_STEP * ((centre + 1) % period)
+    m1 = p + _RING_STEP * ((centre + period - 1) % period)
+    if r == 1:
+        for n in range(count):
+            q = base + u(n)
+            dx = ring[cx, q]
+            dy = ring[_SIDE, q]
+            buf[_DG + p, n] = dx
+            buf[_DG + 6 + p, n] = dy
+            dxz = z1 * (ring[cx, q + u(1)] - ring[cx, q - u(1)])
+            dyz = z1 * (ring[_SIDE, q + u(1)] - ring[_SIDE, q - u(1)])
+            dxy = y1 * (ring[p1, q] - ring[m1, q])
+            _contracted_second_derivatives(buf, sums, n, ka, kb, kc, la, lb, lc, kl, mult,
+                                           ring[cxx, q], dxy, dxz, ring[_SIDE + 1, q], dyz,
+                                           buf[_DZZ, n], two)
+    elif r == 2:
+        z2 = w1[1] * inv_hz
+        y2 = w1[1] * inv_hy
+        p2 = p + _RING_STEP * ((centre + 2) % period)
+        m2 = p + _RING_STEP * ((centre + period - 2) % period)
+        for n in range(count):
+            q = base + u(n)
+            dx = ring[cx, q]
+            dy = ring[_SIDE, q]
+            buf[_DG + p, n] = dx
+            buf[_DG + 6 + p, n] = dy
+            dxz = (z1 * (ring[cx, q + u(1)] - ring[cx, q - u(1)])
+                   + z2 * (ring[cx, q + u(2)] - ring[cx, q - u(2)]))
+            dyz = (z1 * (ring[_SIDE, q + u(1)] - ring[_SIDE, q - u(1)])
+                   + z2 * (ring[_SIDE, q + u(2)] - ring[_SIDE, q - u(2)]))
+            dxy = y1 * (ring[p1, q] - ring[m1, q]) + y2 * (ring[p2, q] - ring[m2, q])
+            _contracted_second_derivatives(buf, sums, n, ka, kb, kc, la, lb, lc, kl, mult,
+                                           ring[cxx, q], dxy, dxz, ring[_SIDE + 1, q], dyz,
+                                           buf[_DZZ, n], two)
+    else:
+        z2 = w1[1] * inv_hz
+        y2 = w1[1] * inv_hy
+        z3 = w1[2] * inv_hz
+        y3 = w1[2] * inv_hy
+        p2 = p + _RING_STEP * ((centre + 2) % period)
+        m2 = p + _RING_STEP * ((centre + period - 2) % period)
+        p3 = p + _RING_STEP * ((centre + 3) % period)
+        m3 = p + _RING_STEP * ((centre + period - 3) % period)
+        for n in range(count):
+            q = base + u(n)
+            dx = ring[cx, q]
+            dy = ring[_SIDE, q]
+            buf[_DG + p, n] = dx
+            buf[_DG + 6 + p, n] = dy
+            dxz = (z1 * (ring[cx, q + u(1)] - ring[cx, q - u(1)])
+                   + z2 * (ring[cx, q + u(2)] - ring[cx, q - u(2)])
+                   + z3 * (ring[cx, q + u(3)] - ring[cx, q - u(3)]))
+            dyz = (z1 * (ring[_SIDE, q + u(1)] - ring[_SIDE, q - u(1)])
+                   + z2 * (ring[_SIDE, q + u(2)] - ring[_SIDE, q - u(2)])
+                   + z3 * (ring[_SIDE, q + u(3)] - ring[_SIDE, q - u(3)]))
+            dxy = (y1 * (ring[p1, q] - ring[m1, q]) + y2 * (ring[p2, q] - ring[m2, q])
+                   + y3 * (ring[p3, q] - ring[m3, q]))
+            _contracted_second_derivatives(buf, sums, n, ka, kb, kc, la, lb, lc, kl, mult,
+                                           ring[cxx, q], dxy, dxz, ring[_SIDE + 1, q], dyz,
+                                           buf[_DZZ, n], two)
 
 
 @point_function
@@ -329,18 +401,11 @@ def _strip_inputs(gamma, K, i, j, start, count, span, r, w1, w2, inv_h, ring, ce
         sums[_R2, n] = 0.0
     for p in range(6):
         d1_d2_column(gamma, p, i, j, start, count, 2, r, w1, w2, inv_h[2], buf,
-                     _DG + 12 + p, _DD + 5)
+                     _DG + 12 + p, _DZZ)
         d1_d2_column(gamma, p, i, j, start - r, span, 1, r, w1, w2, inv_h[1], ring,
                      _SIDE, _SIDE + 1)
-        # d_x g, d_xx g and d_xz g = d_z (d_x g) from the ring's centre slot.
-        d1_row(ring, _RING_STEP * centre + p, _RING_STEP * centre + 6 + p, r, count,
-               r, w1, inv_h[2], buf, _DG + p, _DD, _DD + 2)
-        # d_y g, d_yy g and d_yz g = d_z (d_y g).
-        d1_row(ring, _SIDE, _SIDE + 1, r, count, r, w1, inv_h[2], buf,
-               _DG + 6 + p, _DD + 3, _DD + 4)
-        # d_xy g = d_y (d_x g) across the ring's slots.
-        d1_ring(ring, p, _RING_STEP, period, centre, r, count, r, w1, inv_h[1], buf, _DD + 1)
-        _second_derivative_contraction(buf, sums, count, p, two)
+        _mixed_derivatives_contracted(ring, p, centre, period, r, count, w1, inv_h[1],
+                                      inv_h[2], buf, sums, two)
         d1_axes_column(K, p, i, j, start, count, r, 1, 1, 1, w1, inv_h[0], inv_h[1],
                        inv_h[2], buf, _DK + p, _DK + 6 + p, _DK + 12 + p)
 
