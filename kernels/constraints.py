@@ -71,11 +71,11 @@ _ROWS = 43
 #: power of two apart (see the measurement in DEVELOPERS.md, "Strip kernels").
 _ROW_LENGTH = _STRIP + 8
 
-# Rows of the second, small buffer (a stack slot of its own, so that LLVM knows that the
-# contraction's stores into it overlap none of the rows it reads from the first one):
-_R2 = 0     # the second-derivative part of R, summed over the components p   1
-_OUT = 1    # H, H scale, M_x, M_y, M_z, their three scales                  8
-_SUM_ROWS = 9
+# The second, one-row buffer (a stack slot of its own, so that LLVM knows that the
+# contraction's stores into it overlap none of the rows it reads from the first one and from
+# the ring): the second-derivative part of R, summed over the components p.
+_R2 = 0
+_SUM_ROWS = 1
 
 #: Columns along y per parallel task (one x index and a band of y): the task walks them in
 #: order, so each column's d_x g is computed once and kept for the mixed derivatives.
@@ -332,7 +332,8 @@ def _momentum_terms(buf, n, a, x0, x1, x2, v0, v1, v2, y, two):
 
 
 @point_function
-def _constraint_rows(K, rho, S, i, j, start, buf, sums, count, sixteen_pi, eight_pi, half, two):
+def _constraint_rows(K, rho, S, interior, i, j, start, buf, sums, count, sixteen_pi, eight_pi,
+                     half, two, H, M, H_scale, M_scale):
     """H, M_a and their largest terms into rows _OUT.._OUT + 7 of ``sums``, one loop along the
     strip (module docstring):
 
@@ -343,8 +344,10 @@ def _constraint_rows(K, rho, S, i, j, start, buf, sums, count, sixteen_pi, eight
     rho and S_i are read from the grid (the strip (i, j, start..start + count - 1))."""
     u = np.uint64
     base = u(start)
+    nan = np.nan
     for n in range(count):
         k = base + u(n)
+        inside = interior[i, j, k] != 0
         x0 = _christoffel_times_inverse(buf, n, 0, half)
         x1 = _christoffel_times_inverse(buf, n, 1, half)
         x2 = _christoffel_times_inverse(buf, n, 2, half)
@@ -362,20 +365,21 @@ def _constraint_rows(K, rho, S, i, j, start, buf, sums, count, sixteen_pi, eight
         trace_k = y[0] + y[4] + y[8]
         k_sq = _trace_of_product(y, y)
         matter = sixteen_pi * rho[i, j, k]
-        sums[_OUT, n] = ricci + trace_k * trace_k - k_sq - matter
-        sums[_OUT + 1, n] = max(max(abs(ricci), trace_k * trace_k), max(k_sq, abs(matter)))
+        H[i, j, k] = ricci + trace_k * trace_k - k_sq - matter if inside else nan
+        H_scale[i, j, k] = (max(max(abs(ricci), trace_k * trace_k), max(k_sq, abs(matter)))
+                            if inside else nan)
         div_x, grad_x = _momentum_terms(buf, n, 0, x0, x1, x2, v0, v1, v2, y, two)
         div_y, grad_y = _momentum_terms(buf, n, 1, x0, x1, x2, v0, v1, v2, y, two)
         div_z, grad_z = _momentum_terms(buf, n, 2, x0, x1, x2, v0, v1, v2, y, two)
         source_x = eight_pi * S[0, i, j, k]
         source_y = eight_pi * S[1, i, j, k]
         source_z = eight_pi * S[2, i, j, k]
-        sums[_OUT + 2, n] = div_x - grad_x - source_x
-        sums[_OUT + 3, n] = div_y - grad_y - source_y
-        sums[_OUT + 4, n] = div_z - grad_z - source_z
-        sums[_OUT + 5, n] = max(max(abs(div_x), abs(grad_x)), abs(source_x))
-        sums[_OUT + 6, n] = max(max(abs(div_y), abs(grad_y)), abs(source_y))
-        sums[_OUT + 7, n] = max(max(abs(div_z), abs(grad_z)), abs(source_z))
+        M[0, i, j, k] = div_x - grad_x - source_x if inside else nan
+        M[1, i, j, k] = div_y - grad_y - source_y if inside else nan
+        M[2, i, j, k] = div_z - grad_z - source_z if inside else nan
+        M_scale[0, i, j, k] = max(max(abs(div_x), abs(grad_x)), abs(source_x)) if inside else nan
+        M_scale[1, i, j, k] = max(max(abs(div_y), abs(grad_y)), abs(source_y)) if inside else nan
+        M_scale[2, i, j, k] = max(max(abs(div_z), abs(grad_z)), abs(source_z)) if inside else nan
 
 
 @point_function
@@ -473,16 +477,5 @@ def adm_constraints_grid(gamma, K, rho, S, interior, w1, w2, inv_h, sixteen_pi, 
                     continue
                 _strip_inputs(gamma, K, i, j, start, count, span, r, w1, w2, inv_h, ring,
                               j % period, period, buf, sums, half + half, two)
-                _constraint_rows(K, rho, S, i, j, start, buf, sums, count, sixteen_pi,
-                                 eight_pi, half, two)
-                for n in range(count):
-                    k = base + u(n)
-                    inside = interior[i, j, k] != 0
-                    H[i, j, k] = sums[_OUT, n] if inside else nan
-                    H_scale[i, j, k] = sums[_OUT + 1, n] if inside else nan
-                for a in range(3):
-                    for n in range(count):
-                        k = base + u(n)
-                        inside = interior[i, j, k] != 0
-                        M[a, i, j, k] = sums[_OUT + 2 + a, n] if inside else nan
-                        M_scale[a, i, j, k] = sums[_OUT + 5 + a, n] if inside else nan
+                _constraint_rows(K, rho, S, interior, i, j, start, buf, sums, count, sixteen_pi,
+                                 eight_pi, half, two, H, M, H_scale, M_scale)
