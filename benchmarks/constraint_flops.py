@@ -34,7 +34,7 @@ SHORT, LONG = 1, 9
 
 #: Revisions of kernels/constraints.py counted beside the current kernel: main's strip kernel
 #: before the ring of first derivatives, and the last point-at-a-time kernel.
-BEFORE = "51d4f41"
+BEFORE = "186142a"
 POINT_AT_A_TIME = "3ae0157"
 
 #: Packed component of the index pair (a, b) of a symmetric 3x3 tensor (the point-at-a-time

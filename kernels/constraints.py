@@ -65,8 +65,12 @@ _STRIP = 64
 _DG = 0     # d_q gamma_p at 6 q + p                    18 rows
 _DK = 18    # d_q K_p at 18 + 6 q + p                   18
 _DZZ = 36   # d_z d_z gamma_p of ONE p (rewritten for each p)  1
-_GI = 37    # gamma^p                                   6
-_ROWS = 43
+_ROWS = 37
+# Rows of the buffer of the inverse metric (a stack slot of its own: the loops that read
+# gamma^ij at rows chosen at run time (by p) write rows of the first buffer chosen at run time
+# too, and LLVM could not prove those apart; in two slots it knows they are).
+_GI = 0     # gamma^p                                   6
+_INV_ROWS = 6
 #: Row stride of the buffer in doubles: a strip and one cache line, so that rows do not lie a
 #: power of two apart (see the measurement in DEVELOPERS.md, "Strip kernels").
 _ROW_LENGTH = _STRIP + 8
@@ -146,7 +150,7 @@ def _contracted_second_derivatives(buf, sums, n, ka, kb, kc, la, lb, lc, kl, mul
 
 @point_function
 def _mixed_derivatives_contracted(ring, p, centre, period, r, count, w1, inv_hy, inv_hz, buf,
-                                  sums, two):
+                                  inv, sums, two):
     """For the component p = (k, l), in one loop along the strip: copy d_x g_p and d_y g_p
     (ring slot ``centre`` and the side rows, on the strip widened by r) to rows _DG + p and
     _DG + 6 + p, form d_xz g = d_z (d_x g), d_yz g = d_z (d_y g) and d_xy g = d_y (d_x g)
@@ -183,7 +187,7 @@ def _mixed_derivatives_contracted(ring, p, centre, period, r, count, w1, inv_hy,
             dxz = z1 * (ring[cx, q + u(1)] - ring[cx, q - u(1)])
             dyz = z1 * (ring[_SIDE, q + u(1)] - ring[_SIDE, q - u(1)])
             dxy = y1 * (ring[p1, q] - ring[m1, q])
-            _contracted_second_derivatives(buf, sums, n, ka, kb, kc, la, lb, lc, kl, mult,
+            _contracted_second_derivatives(inv, sums, n, ka, kb, kc, la, lb, lc, kl, mult,
                                            ring[cxx, q], dxy, dxz, ring[_SIDE + 1, q], dyz,
                                            buf[_DZZ, n], two)
     elif r == 2:
@@ -202,7 +206,7 @@ def _mixed_derivatives_contracted(ring, p, centre, period, r, count, w1, inv_hy,
             dyz = (z1 * (ring[_SIDE, q + u(1)] - ring[_SIDE, q - u(1)])
                    + z2 * (ring[_SIDE, q + u(2)] - ring[_SIDE, q - u(2)]))
             dxy = y1 * (ring[p1, q] - ring[m1, q]) + y2 * (ring[p2, q] - ring[m2, q])
-            _contracted_second_derivatives(buf, sums, n, ka, kb, kc, la, lb, lc, kl, mult,
+            _contracted_second_derivatives(inv, sums, n, ka, kb, kc, la, lb, lc, kl, mult,
                                            ring[cxx, q], dxy, dxz, ring[_SIDE + 1, q], dyz,
                                            buf[_DZZ, n], two)
     else:
@@ -228,13 +232,13 @@ def _mixed_derivatives_contracted(ring, p, centre, period, r, count, w1, inv_hy,
                    + z3 * (ring[_SIDE, q + u(3)] - ring[_SIDE, q - u(3)]))
             dxy = (y1 * (ring[p1, q] - ring[m1, q]) + y2 * (ring[p2, q] - ring[m2, q])
                    + y3 * (ring[p3, q] - ring[m3, q]))
-            _contracted_second_derivatives(buf, sums, n, ka, kb, kc, la, lb, lc, kl, mult,
+            _contracted_second_derivatives(inv, sums, n, ka, kb, kc, la, lb, lc, kl, mult,
                                            ring[cxx, q], dxy, dxz, ring[_SIDE + 1, q], dyz,
                                            buf[_DZZ, n], two)
 
 
 @point_function
-def _christoffel_times_inverse(buf, n, m, half):
+def _christoffel_times_inverse(buf, inv, n, m, half):
     """X_m = Gamma_m gamma^-1 at point n, as 9 values (X_m)_a^b = Gamma_mac gamma^cb in the
     order (a, b) = (0, 0), (0, 1), ..., (2, 2), with the lowered Christoffel symbols
     Gamma_mac = 1/2 (d_a g_mc + d_c g_ma - d_m g_ac) of the first index ``m`` (a literal)."""
@@ -247,12 +251,12 @@ def _christoffel_times_inverse(buf, n, m, half):
                   - buf[_DG + 6 * m + 2, n])
     c12 = half * (buf[_DG + 6 + _pair(m, 2), n] + buf[_DG + 12 + _pair(m, 1), n]
                   - buf[_DG + 6 * m + 4, n])
-    i00 = buf[_GI, n]
-    i01 = buf[_GI + 1, n]
-    i02 = buf[_GI + 2, n]
-    i11 = buf[_GI + 3, n]
-    i12 = buf[_GI + 4, n]
-    i22 = buf[_GI + 5, n]
+    i00 = inv[_GI, n]
+    i01 = inv[_GI + 1, n]
+    i02 = inv[_GI + 2, n]
+    i11 = inv[_GI + 3, n]
+    i12 = inv[_GI + 4, n]
+    i22 = inv[_GI + 5, n]
     return (c00 * i00 + c01 * i01 + c02 * i02,
             c00 * i01 + c01 * i11 + c02 * i12,
             c00 * i02 + c01 * i12 + c02 * i22,
@@ -300,7 +304,7 @@ def _raised_curvature(buf, n, K, i, j, k):
 
 
 @point_function
-def _momentum_terms(buf, n, a, x0, x1, x2, v0, v1, v2, y, two):
+def _momentum_terms(buf, inv, n, a, x0, x1, x2, v0, v1, v2, y, two):
     """(gamma^bc D_b K_ca, gamma^bc D_a K_bc) at point n for the literal index ``a``.
 
     With D_c K_ab = d_c K_ab - Gamma^m_ca K_mb - Gamma^m_cb K_am, V_m = tr X_m,
@@ -311,12 +315,12 @@ def _momentum_terms(buf, n, a, x0, x1, x2, v0, v1, v2, y, two):
     z = (x0[3 * a] * y[0] + x0[3 * a + 1] * y[1] + x0[3 * a + 2] * y[2]
          + x1[3 * a] * y[3] + x1[3 * a + 1] * y[4] + x1[3 * a + 2] * y[5]
          + x2[3 * a] * y[6] + x2[3 * a + 1] * y[7] + x2[3 * a + 2] * y[8])
-    i00 = buf[_GI, n]
-    i01 = buf[_GI + 1, n]
-    i02 = buf[_GI + 2, n]
-    i11 = buf[_GI + 3, n]
-    i12 = buf[_GI + 4, n]
-    i22 = buf[_GI + 5, n]
+    i00 = inv[_GI, n]
+    i01 = inv[_GI + 1, n]
+    i02 = inv[_GI + 2, n]
+    i11 = inv[_GI + 3, n]
+    i12 = inv[_GI + 4, n]
+    i22 = inv[_GI + 5, n]
     div_k = (i00 * buf[_DK + _pair(0, a), n] + i01 * buf[_DK + _pair(1, a), n]
              + i02 * buf[_DK + _pair(2, a), n]
              + i01 * buf[_DK + 6 + _pair(0, a), n] + i11 * buf[_DK + 6 + _pair(1, a), n]
@@ -332,7 +336,7 @@ def _momentum_terms(buf, n, a, x0, x1, x2, v0, v1, v2, y, two):
 
 
 @point_function
-def _constraint_rows(K, rho, S, interior, i, j, start, buf, sums, count, sixteen_pi, eight_pi,
+def _constraint_rows(K, rho, S, interior, i, j, start, buf, inv, sums, count, sixteen_pi, eight_pi,
                      half, two, H, M, H_scale, M_scale):
     """H, M_a and their largest terms into rows _OUT.._OUT + 7 of ``sums``, one loop along the
     strip (module docstring):
@@ -348,29 +352,29 @@ def _constraint_rows(K, rho, S, interior, i, j, start, buf, sums, count, sixteen
     for n in range(count):
         k = base + u(n)
         inside = interior[i, j, k] != 0
-        x0 = _christoffel_times_inverse(buf, n, 0, half)
-        x1 = _christoffel_times_inverse(buf, n, 1, half)
-        x2 = _christoffel_times_inverse(buf, n, 2, half)
+        x0 = _christoffel_times_inverse(buf, inv, n, 0, half)
+        x1 = _christoffel_times_inverse(buf, inv, n, 1, half)
+        x2 = _christoffel_times_inverse(buf, inv, n, 2, half)
         v0 = x0[0] + x0[4] + x0[8]
         v1 = x1[0] + x1[4] + x1[8]
         v2 = x2[0] + x2[4] + x2[8]
-        quad = (buf[_GI, n] * (_trace_of_product(x0, x0) - v0 * v0)
-                + buf[_GI + 3, n] * (_trace_of_product(x1, x1) - v1 * v1)
-                + buf[_GI + 5, n] * (_trace_of_product(x2, x2) - v2 * v2)
-                + two * (buf[_GI + 1, n] * (_trace_of_product(x0, x1) - v0 * v1)
-                         + buf[_GI + 2, n] * (_trace_of_product(x0, x2) - v0 * v2)
-                         + buf[_GI + 4, n] * (_trace_of_product(x1, x2) - v1 * v2)))
+        quad = (inv[_GI, n] * (_trace_of_product(x0, x0) - v0 * v0)
+                + inv[_GI + 3, n] * (_trace_of_product(x1, x1) - v1 * v1)
+                + inv[_GI + 5, n] * (_trace_of_product(x2, x2) - v2 * v2)
+                + two * (inv[_GI + 1, n] * (_trace_of_product(x0, x1) - v0 * v1)
+                         + inv[_GI + 2, n] * (_trace_of_product(x0, x2) - v0 * v2)
+                         + inv[_GI + 4, n] * (_trace_of_product(x1, x2) - v1 * v2)))
         ricci = sums[_R2, n] + quad
-        y = _raised_curvature(buf, n, K, i, j, k)
+        y = _raised_curvature(inv, n, K, i, j, k)
         trace_k = y[0] + y[4] + y[8]
         k_sq = _trace_of_product(y, y)
         matter = sixteen_pi * rho[i, j, k]
         H[i, j, k] = ricci + trace_k * trace_k - k_sq - matter if inside else nan
         H_scale[i, j, k] = (max(max(abs(ricci), trace_k * trace_k), max(k_sq, abs(matter)))
                             if inside else nan)
-        div_x, grad_x = _momentum_terms(buf, n, 0, x0, x1, x2, v0, v1, v2, y, two)
-        div_y, grad_y = _momentum_terms(buf, n, 1, x0, x1, x2, v0, v1, v2, y, two)
-        div_z, grad_z = _momentum_terms(buf, n, 2, x0, x1, x2, v0, v1, v2, y, two)
+        div_x, grad_x = _momentum_terms(buf, inv, n, 0, x0, x1, x2, v0, v1, v2, y, two)
+        div_y, grad_y = _momentum_terms(buf, inv, n, 1, x0, x1, x2, v0, v1, v2, y, two)
+        div_z, grad_z = _momentum_terms(buf, inv, n, 2, x0, x1, x2, v0, v1, v2, y, two)
         source_x = eight_pi * S[0, i, j, k]
         source_y = eight_pi * S[1, i, j, k]
         source_z = eight_pi * S[2, i, j, k]
@@ -393,14 +397,14 @@ def _enter_ring(gamma, i, column, start, span, r, w1, w2, inv_hx, ring, slot):
 
 @point_function
 def _strip_inputs(gamma, K, i, j, start, count, span, r, w1, w2, inv_h, ring, centre, period,
-                  buf, sums, one, two):
+                  buf, inv, sums, one, two):
     """The values, gamma^ij, the 36 first derivatives of gamma and K of the strip (i, j,
     start..start + count - 1) into the rows _G.._GI of ``buf``, and the second-derivative part
     of R into row _R2 of ``sums``: for each component p its six second derivatives go to the
     rows _DD and are contracted at once (:func:`_second_derivative_contraction`), with d_x g
     and d_xx g from ring slot ``centre`` (= j mod ``period``) and the slots of columns
     j +- 1..r beside it."""
-    _inverse_metric_rows(gamma, i, j, start, count, buf, one)
+    _inverse_metric_rows(gamma, i, j, start, count, inv, one)
     for n in range(count):
         sums[_R2, n] = 0.0
     for p in range(6):
@@ -409,7 +413,7 @@ def _strip_inputs(gamma, K, i, j, start, count, span, r, w1, w2, inv_h, ring, ce
         d1_d2_column(gamma, p, i, j, start - r, span, 1, r, w1, w2, inv_h[1], ring,
                      _SIDE, _SIDE + 1)
         _mixed_derivatives_contracted(ring, p, centre, period, r, count, w1, inv_h[1],
-                                      inv_h[2], buf, sums, two)
+                                      inv_h[2], buf, inv, sums, two)
         d1_axes_column(K, p, i, j, start, count, r, 1, 1, 1, w1, inv_h[0], inv_h[1],
                        inv_h[2], buf, _DK + p, _DK + 6 + p, _DK + 12 + p)
 
@@ -462,6 +466,7 @@ def adm_constraints_grid(gamma, K, rho, S, interior, w1, w2, inv_h, sixteen_pi, 
         # On the thread's stack (see strip_buffers: no run-time overlap checks).
         buf = strip_buffer(_ROWS, _ROW_LENGTH, H)
         ring = strip_buffer(_RING_ROWS, _SPAN, H)
+        inv = strip_buffer(_INV_ROWS, _ROW_LENGTH, H)
         sums = strip_buffer(_SUM_ROWS, _ROW_LENGTH, H)
         for start in range(r, nz - r, _STRIP):
             count = min(_STRIP, nz - r - start)
@@ -476,6 +481,6 @@ def adm_constraints_grid(gamma, K, rho, S, interior, w1, w2, inv_h, sixteen_pi, 
                 if j < first:
                     continue
                 _strip_inputs(gamma, K, i, j, start, count, span, r, w1, w2, inv_h, ring,
-                              j % period, period, buf, sums, half + half, two)
-                _constraint_rows(K, rho, S, interior, i, j, start, buf, sums, count, sixteen_pi,
+                              j % period, period, buf, inv, sums, half + half, two)
+                _constraint_rows(K, rho, S, interior, i, j, start, buf, inv, sums, count, sixteen_pi,
                                  eight_pi, half, two, H, M, H_scale, M_scale)
