@@ -33,7 +33,8 @@ from emsource.kernels.stencils import first_derivative_weights, second_derivativ
 SHORT, LONG = 1, 9
 
 #: Revisions of kernels/constraints.py counted beside the current kernel: main's strip kernel
-#: before the ring of first derivatives, and the last point-at-a-time kernel.
+#: before the contracted scalar curvature (it built the six rows of R_ij from 36 rows of second
+#: derivatives), and the last point-at-a-time kernel.
 BEFORE = "186142a"
 POINT_AT_A_TIME = "3ae0157"
 

@@ -17,6 +17,26 @@ References: E. Gourgoulhon, 3+1 Formalism in General Relativity (2012), ch. 4 (c
 T. W. Baumgarte and S. L. Shapiro, Numerical Relativity (2010), ch. 2 (constraints, from memory; the Ricci
 formula above is quoted from memory, and ``tests/test_constraints.py`` checks it against sympy).
 
+H needs only the scalar R = gamma^ij R_ij, so the kernel never forms R_ij. Contracted (the
+first two and the last two second-derivative terms are equal after renaming indices;
+``tests/test_constraint_strips.py`` checks every identity below exactly in rational arithmetic
+with sympy, and the kernel against a long-double R_ij route):
+
+    R   = R_2 + R_G,
+    R_2 = sum_(k,l) sum_(q,s) (gamma^kq gamma^ls - gamma^kl gamma^qs) d_q d_s g_kl
+        = sum_p m_p [a_p . (D_p b_p) - gamma^p tr(gamma^-1 D_p)],
+    R_G = Gamma_kij Gamma^kij - V_m V^m = sum_mn gamma^mn [tr(X_m X_n) - tr X_m tr X_n],
+
+with p = (k, l) packed, m_p = 1 for k = l and 2 otherwise, D_p the 3x3 matrix d_q d_s g_kl,
+(a_p)_q = gamma^kq, (b_p)_s = gamma^ls, X_m = Gamma_m gamma^-1 (the 3x3 matrix
+(X_m)_a^b = Gamma_mac gamma^cb) and V_m = gamma^ij Gamma_mij = tr X_m. The momentum
+constraint, with Y = gamma^-1 K (Y^m_c = gamma^ma K_ac) and Z_a = Gamma^m_ab K_m^b
+= (X_m)_a^c Y^m_c:
+
+    gamma^bc D_b K_ca = gamma^bc d_b K_ca - V_m Y^m_a - Z_a,
+    gamma^bc D_a K_bc = gamma^bc d_a K_bc - 2 Z_a,
+    K = tr Y,   K_ij K^ij = tr(Y Y).
+
 Every derivative goes through :mod:`emsource.kernels.stencils` (centred, order 2, 4 or 6 as
 the weights say). Arrays are float64: ``gamma`` and ``K`` (6, nx, ny, nz) packed
 (xx, xy, xz, yy, yz, zz), ``rho`` (nx, ny, nz), ``S`` (3, nx, ny, nz) covariant, ``interior``
@@ -25,25 +45,35 @@ stays ``radius`` points away from the faces). Outputs are written at every point
 and the absolute value of their largest term (R, K^2, K_ij K^ij, 16 pi rho for H; D_j K^j_i,
 D_i K, 8 pi S_i for M_i) where ``interior`` is 1, NaN elsewhere.
 
-How the kernel is laid out (why: see :func:`adm_constraints_grid`). Each grid column (i, j) is
-done in strips of up to ``_STRIP`` points along z, with one (``_ROWS``, ``_ROW_LENGTH``) buffer
-per thread on its stack (:func:`emsource.kernels.strip_buffers.strip_buffer`): first the 72
-derivatives and 16 point values the equations need are written to rows of the buffer (one
-stencil loop along the strip per few rows), then every step of the algebra is one
-loop along the strip that reads rows and writes rows, so that LLVM vectorises it across points.
-The buffer rows are listed at ``_ROWS`` below (p: packed component (xx, xy, xz, yy, yz, zz);
-q, s: derivative axes; ``_pair(a, b)``: the packed index of a symmetric pair).
+How the kernel is laid out (why: see :func:`adm_constraints_grid`; measurements in
+DEVELOPERS.md, "Strip kernels"). A parallel task is one x index and a band of ``_BAND``
+columns along y; the tasks are ordered band by band, so a thread walks every x index of one
+band and the 2 r + 1 x-planes its stencils read stay in L2. Each grid column (i, j) is done in
+strips of up to ``_STRIP`` points along z, with small buffers per thread on its stack
+(:func:`emsource.kernels.strip_buffers.strip_buffer`): gamma^ij of the strip (``_INV_ROWS``
+rows, read from the grid and inverted first), the 36 first derivatives of gamma and K
+(``_ROWS`` rows) and one accumulator row of R_2 (``_SUM_ROWS``). The 36 second derivatives of
+the metric are never stored: each component's six are contracted into R_2 in the loop that
+forms its mixed ones (:func:`_mixed_derivatives_contracted`; only d_zz g passes through one
+row). Then one loop along the strip (:func:`_constraint_rows`) does all the algebra, reading K,
+rho and S_i from the grid, and writes H, M_i and their scales to the grid. Every loop runs
+along the strip with rows fixed outside it, so that LLVM vectorises it across points; the rows
+are listed at ``_ROWS`` below (p: packed component (xx, xy, xz, yy, yz, zz); q, s: derivative
+axes; ``_pair(a, b)``: the packed index of a symmetric pair).
 
 The mixed second derivatives of the metric are derivatives of first derivatives (the
-tensor-product stencil is the product of the 1-D ones, so only rounding differs): a parallel
-task takes one x index and a band of ``_BAND`` columns along y and walks them in order; a ring
-buffer (``_RING_ROWS``, ``_SPAN``, on the stack too) keeps d_x g and d_xx g of the columns
-j - r..j + r on the strip widened by r points at each end in z, each column entering it once;
-then d_xz g = d_z (d_x g) and d_xy g = d_y (d_x g) come from the ring, d_yz g = d_z (d_y g)
-from d_y g on the widened strip (:func:`emsource.kernels.stencils.d1_row`,
-:func:`emsource.kernels.stencils.d1_ring`). Per metric component that is 16 loads from the
-grid and 16 from the stack buffers per point at order 4 instead of 63 from the grid, and 9
-grid columns touched instead of 25.
+tensor-product stencil is the product of the 1-D ones, so only rounding differs): a task walks
+its band's columns in order; a ring buffer (``_RING_ROWS``, ``_SPAN``, on the stack too) keeps
+d_x g and d_xx g of the columns j - r..j + r on the strip widened by r points at each end in
+z, each column entering it once; then d_xz g = d_z (d_x g) and d_xy g = d_y (d_x g) come from
+the ring, d_yz g = d_z (d_y g) from d_y g on the widened strip (the stencils of
+:func:`emsource.kernels.stencils.d1_row` and :func:`emsource.kernels.stencils.d1_ring`, term
+by term). Per metric component that is 16 loads from the grid and 16 from the stack buffers
+per point at order 4 instead of 63 from the grid, and 9 grid columns touched instead of 25.
+
+Measured (``benchmarks/bench_constraints.py``, README "Speed"): see DEVELOPERS.md, "Strip
+kernels", for the time against main's kernel that built R_ij, what bounds it and what was
+tried and not kept.
 """
 
 
@@ -338,13 +368,13 @@ def _momentum_terms(buf, inv, n, a, x0, x1, x2, v0, v1, v2, y, two):
 @point_function
 def _constraint_rows(K, rho, S, interior, i, j, start, buf, inv, sums, count, sixteen_pi, eight_pi,
                      half, two, H, M, H_scale, M_scale):
-    """H, M_a and their largest terms into rows _OUT.._OUT + 7 of ``sums``, one loop along the
-    strip (module docstring):
+    """H, M_a and their largest terms into ``H``, ``M``, ``H_scale``, ``M_scale`` (NaN where
+    ``interior`` is 0), one loop along the strip (module docstring):
 
         R = R_2 + sum_mn gamma^mn (tr(X_m X_n) - tr X_m tr X_n),   X_m = Gamma_m gamma^-1,
         K = tr Y,  K_ij K^ij = tr(Y Y),  Y = gamma^-1 K,
 
-    with R_2 (row _R2 of ``sums``) summed by :func:`_second_derivative_contraction`; K_ij,
+    with R_2 (row _R2 of ``sums``) summed by :func:`_mixed_derivatives_contracted`; K_ij,
     rho and S_i are read from the grid (the strip (i, j, start..start + count - 1))."""
     u = np.uint64
     base = u(start)
@@ -398,12 +428,11 @@ def _enter_ring(gamma, i, column, start, span, r, w1, w2, inv_hx, ring, slot):
 @point_function
 def _strip_inputs(gamma, K, i, j, start, count, span, r, w1, w2, inv_h, ring, centre, period,
                   buf, inv, sums, one, two):
-    """The values, gamma^ij, the 36 first derivatives of gamma and K of the strip (i, j,
-    start..start + count - 1) into the rows _G.._GI of ``buf``, and the second-derivative part
-    of R into row _R2 of ``sums``: for each component p its six second derivatives go to the
-    rows _DD and are contracted at once (:func:`_second_derivative_contraction`), with d_x g
-    and d_xx g from ring slot ``centre`` (= j mod ``period``) and the slots of columns
-    j +- 1..r beside it."""
+    """gamma^ij of the strip (i, j, start..start + count - 1) into ``inv``, the 36 first
+    derivatives of gamma and K into rows _DG, _DK of ``buf``, and the second-derivative part R_2
+    of R into row _R2 of ``sums``: each component's six second derivatives are contracted as
+    they are formed (:func:`_mixed_derivatives_contracted`), with d_x g and d_xx g from ring
+    slot ``centre`` (= j mod ``period``) and the slots of columns j +- 1..r beside it."""
     _inverse_metric_rows(gamma, i, j, start, count, inv, one)
     for n in range(count):
         sums[_R2, n] = 0.0
@@ -428,10 +457,10 @@ def adm_constraints_grid(gamma, K, rho, S, interior, w1, w2, inv_h, sixteen_pi, 
 
     Why strips (measured, bench_constraints.py): the point-at-a-time form of this kernel, with
     per-point 3x3 scratch arrays, compiled to scalar code only. Here every loop along a strip
-    touches one buffer whose row stride is a compile-time constant and whose rows are
-    compile-time constants (the algebra's point functions are called with literal indices),
-    so LLVM can prove that its stores do not overlap its loads and vectorises it. The stencil
-    loops copy from one grid array (or the ring buffer) into the buffer, as in
+    touches stack buffers whose row strides are compile-time constants, and the gamma^ij rows a
+    loop picks at run time (by the component p) lie in a buffer it does not write, so LLVM can
+    prove that its stores do not overlap its loads and vectorises it. The stencil loops copy
+    from one grid array (or the ring buffer) into the buffer, as in
     :func:`emsource.kernels.stencils.d1_column`. Why the ring of first derivatives: the
     tensor-product stencils of the mixed derivatives were most of the loads of the kernel
     (DEVELOPERS.md, "Strip kernels").
@@ -482,5 +511,5 @@ def adm_constraints_grid(gamma, K, rho, S, interior, w1, w2, inv_h, sixteen_pi, 
                     continue
                 _strip_inputs(gamma, K, i, j, start, count, span, r, w1, w2, inv_h, ring,
                               j % period, period, buf, inv, sums, half + half, two)
-                _constraint_rows(K, rho, S, interior, i, j, start, buf, inv, sums, count, sixteen_pi,
-                                 eight_pi, half, two, H, M, H_scale, M_scale)
+                _constraint_rows(K, rho, S, interior, i, j, start, buf, inv, sums, count,
+                                 sixteen_pi, eight_pi, half, two, H, M, H_scale, M_scale)
