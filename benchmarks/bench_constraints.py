@@ -2,10 +2,14 @@
 
 Prints medians of repeated runs on a Kerr-Newman box for orders 2, 4, 6:
 - points per second of the compiled strip kernel (the public call, EM sources included, and
-  the bare kernel call), of main's kernel before the ring of first derivatives (``--rev``,
-  default :data:`constraint_flops.BEFORE`) and of the point-at-a-time kernel of
+  the bare kernel call), of main's kernel before the contracted scalar curvature (``--rev``,
+  default :data:`constraint_flops.BEFORE`; it built the six rows of R_ij) and of the
+  point-at-a-time kernel of
   :data:`constraint_flops.POINT_AT_A_TIME`, both read from git by
   ``kernel_revision.revision_module`` and timed interleaved with the current kernel in this run;
+- the same-traffic probe: the kernel's loop nest, stack buffers and stencil stage (ring of d_x g,
+  gamma^ij, first derivatives, contracted second derivatives) with the algebra loop replaced by
+  the same number of output stores, as a share of the kernel's time;
 - the same constraints written in plain NumPy (slices for the order-4 differences, einsum for
   the contractions), and the ratio;
 - a STREAM-style triad a = b + s c measured in the same run, and the kernel's effective
@@ -44,8 +48,9 @@ from emsource.kernels.stencils import first_derivative_weights, second_derivativ
 from numba import prange
 
 #: The strip kernel's buffer shapes, as module constants (literal sizes for strip_buffer).
-_ROWS, _STRIP = strips._ROWS, strips._STRIP
+_ROWS, _ROW_LENGTH = strips._ROWS, strips._ROW_LENGTH
 _RING_ROWS, _SPAN = strips._RING_ROWS, strips._SPAN
+_INV_ROWS, _SUM_ROWS = strips._INV_ROWS, strips._SUM_ROWS
 
 
 @grid_kernel
@@ -177,24 +182,27 @@ def derived_peak(threads):
 @grid_kernel
 def _stencil_probe(gamma, K, rho, S, interior, w1, w2, inv_h, H, M, H_scale, M_scale):
     """The strip kernel's memory traffic and stencils without its algebra: the same loop nest as
-    ``adm_constraints_grid`` and the same calls for the ring of d_x g and the 72 derivatives and
-    16 values of each strip (``_enter_ring``, ``_strip_inputs``), then 8 of the buffer's rows to
-    the outputs (edges of the grid are not written)."""
+    ``adm_constraints_grid``, the same stack buffers and the same calls for the ring of d_x g,
+    gamma^ij, the first derivatives and the contracted second derivatives of each strip
+    (``_enter_ring``, ``_strip_inputs``), then 8 of the buffers' rows to the outputs through the
+    interior mask (the stores the algebra loop makes; edges of the grid are not written)."""
     u = np.uint64
     nx, ny, nz = rho.shape
     r = w1.shape[0]
     period = 2 * r + 1
     bands = (ny + strips._BAND - 1) // strips._BAND
     for task in prange(nx * bands):
-        i = task // bands
-        band = task - i * bands
+        band = task // nx
+        i = task - band * nx
         low = band * strips._BAND
         first = max(low, r)
         last = min(min(ny, low + strips._BAND), ny - r)
         if (i < r) | (i >= nx - r) | (first >= last):
             continue
-        buf = strip_buffer(_ROWS, _STRIP, rho)
+        buf = strip_buffer(_ROWS, _ROW_LENGTH, rho)
         ring = strip_buffer(_RING_ROWS, _SPAN, rho)
+        inv = strip_buffer(_INV_ROWS, _ROW_LENGTH, rho)
+        sums = strip_buffer(_SUM_ROWS, _ROW_LENGTH, rho)
         for start in range(r, nz - r, strips._STRIP):
             count = min(strips._STRIP, nz - r - start)
             span = count + 2 * r
@@ -205,19 +213,19 @@ def _stencil_probe(gamma, K, rho, S, interior, w1, w2, inv_h, H, M, H_scale, M_s
                 j = entering - r
                 if j < first:
                     continue
-                strips._strip_inputs(gamma, K, rho, S, i, j, start, count, span, r, w1, w2,
-                                     inv_h, ring, j % period, period, buf)
+                strips._strip_inputs(gamma, K, i, j, start, count, span, r, w1, w2, inv_h,
+                                     ring, j % period, period, buf, inv, sums, 1.0, 2.0)
                 for n in range(count):
                     k = base + u(n)
                     inside = interior[i, j, k] != 0
-                    H[i, j, k] = buf[12, n] if inside else np.nan
-                    H_scale[i, j, k] = buf[48, n] if inside else np.nan
-                for a in range(3):
-                    for n in range(count):
-                        k = base + u(n)
-                        inside = interior[i, j, k] != 0
-                        M[a, i, j, k] = buf[30 + a, n] if inside else np.nan
-                        M_scale[a, i, j, k] = buf[66 + a, n] if inside else np.nan
+                    H[i, j, k] = sums[strips._R2, n] if inside else np.nan
+                    H_scale[i, j, k] = inv[strips._GI, n] if inside else np.nan
+                    M[0, i, j, k] = buf[strips._DG, n] if inside else np.nan
+                    M[1, i, j, k] = buf[strips._DG + 7, n] if inside else np.nan
+                    M[2, i, j, k] = buf[strips._DG + 14, n] if inside else np.nan
+                    M_scale[0, i, j, k] = buf[strips._DK, n] if inside else np.nan
+                    M_scale[1, i, j, k] = buf[strips._DK + 7, n] if inside else np.nan
+                    M_scale[2, i, j, k] = buf[strips._DK + 14, n] if inside else np.nan
 
 
 def interleaved_medians(functions, repeats):

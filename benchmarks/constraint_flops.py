@@ -33,8 +33,9 @@ from emsource.kernels.stencils import first_derivative_weights, second_derivativ
 SHORT, LONG = 1, 9
 
 #: Revisions of kernels/constraints.py counted beside the current kernel: main's strip kernel
-#: before the ring of first derivatives, and the last point-at-a-time kernel.
-BEFORE = "51d4f41"
+#: before the contracted scalar curvature (it built the six rows of R_ij from 36 rows of second
+#: derivatives), and the last point-at-a-time kernel.
+BEFORE = "186142a"
 POINT_AT_A_TIME = "3ae0157"
 
 #: Packed component of the index pair (a, b) of a symmetric 3x3 tensor (the point-at-a-time

@@ -1,7 +1,8 @@
 """The strip form of the constraint kernel against a slow reference written here, point by point.
 
-The kernel (``emsource.kernels.constraints``) computes every derivative of a z-strip into a
-buffer and regroups the algebra (contracted Christoffel symbols, mixed K_a^b) so that it
+The kernel (``emsource.kernels.constraints``) computes the first derivatives of a z-strip into a
+buffer, contracts the second derivatives into the scalar curvature as it forms them, and
+evaluates the rest in contracted forms (X_m = Gamma_m gamma^-1, Y = gamma^-1 K) so that it
 vectorises. This file recomputes H, M_i and their scales from the textbook formulas with an
 independent route: stencil weights from sympy's ``finite_diff_weights`` (B. Fornberg, "Generation
 of finite difference formulas on arbitrarily spaced grids", Math. Comp. 51, 699 (1988), the
@@ -15,12 +16,17 @@ and Christoffel symbols; rounding in any order of summation and association of t
 moves it by at most gamma_N = N eps / (1 - N eps) times the same sum with every term replaced by
 its absolute value (N. J. Higham, Accuracy and Stability of Numerical Algorithms, 2nd ed. (2002),
 sec. 3.1 and 4.2, from memory). The reference computes that sum of absolute values too
-(``magnitude=True``). The longest chain of roundings is a mixed derivative of order 6 (36 terms;
-the kernel takes it as d_z (d_x g), d_y (d_x g), d_z (d_y g), two nested sums of 6 terms over
-the same products of weights and values as the tensor-product stencil summed here, so fewer
-roundings per term than one sum of 36)
-feeding the Ricci tensor (9 x 4 second-derivative terms plus 9 x 3 x 2 products, contracted
-with 9 inverse-metric entries) and H (about 10 more): N <= 256 covers it, so the check is
+(``magnitude=True``). The kernel evaluates contracted forms of the same sums (R without R_ij,
+see its module docstring; the identities are checked exactly at the end of this file), which
+expand into the same products of weights, values, inverse-metric entries and Christoffel
+symbols as the reference's R_ij route, so the same sum of absolute values bounds both. The
+longest chain of roundings any one product sees: a mixed derivative of order 6 (two nested sums
+of 6 terms, d_z (d_x g), d_y (d_x g), d_z (d_y g), about 14 roundings with the weights), then
+D_p b_p and a_p . (D_p b_p) (6), the trace term and the factor m_p (3), the accumulation over
+the six components p (6) and H (about 4): about 35; the Gamma-Gamma part (Christoffel symbol
+3, X_m 3, tr(X_m X_n) 9, the 6 weighted pairs 8, H 4) and the momentum sums are shorter.
+N <= 256 covers it with a wide margin (fast-math lets LLVM reassociate and fuse the sums,
+which changes the order but not the products), so the check is
 |kernel - reference| <= 256 eps * magnitude. A wrong index or sign gives an error of the size
 of the terms themselves (relative 1), far above it.
 """
@@ -202,3 +208,83 @@ def test_bands_of_columns_along_y_match_the_reference(rng, order):
                                                   expected, bounds):
         error = np.abs(value - reference.astype(np.float64))
         assert np.all(error <= 256 * EPS * magnitude.astype(np.float64)), name
+
+
+def test_contracted_forms_of_the_kernel_equal_the_textbook_ones_exactly():
+    # The kernel never forms R_ij, Gamma^m_ij or D_c K_ab: it evaluates the contracted forms of
+    # its module docstring. Here both sides are computed in exact rational arithmetic (sympy)
+    # from random rational gamma_ij (positive definite), d_k g_ij, d_q d_s g_kl, K_ij and
+    # d_c K_ij with the symmetries of the true quantities, so any wrong index or factor in the
+    # contraction shows as a non-zero rational difference (no tolerance needed). Textbook side:
+    # R_ij and D_c K_ab as in the module docstring (E. Gourgoulhon, 3+1 Formalism in General
+    # Relativity (2012), ch. 4, from memory; checked against sympy in test_constraints.py).
+    rng = np.random.default_rng(7)
+
+    def rational(scale=1):
+        return sp.Rational(int(rng.integers(-9, 10)) * scale, 10)
+
+    r3 = range(3)
+    g = sp.Matrix(3, 3, lambda a, b: 0)
+    for a in r3:
+        for b in range(a, 3):
+            g[a, b] = g[b, a] = (2 if a == b else 0) + rational()
+    assert all(g[:k, :k].det() > 0 for k in (1, 2, 3))  # positive definite (Sylvester)
+    gi = g.inv()
+    A = [[[None] * 3 for _ in r3] for _ in r3]  # A[k][i][j] = d_k g_ij
+    dK = [[[None] * 3 for _ in r3] for _ in r3]  # dK[c][a][b] = d_c K_ab
+    for k in r3:
+        for i in r3:
+            for j in range(i, 3):
+                A[k][i][j] = A[k][j][i] = rational()
+                dK[k][i][j] = dK[k][j][i] = rational()
+    Kl = sp.Matrix(3, 3, lambda a, b: 0)
+    for a in r3:
+        for b in range(a, 3):
+            Kl[a, b] = Kl[b, a] = rational()
+    D = {}  # D[q, s, k, l] = d_q d_s g_kl
+    for q in r3:
+        for s in range(q, 3):
+            for k in r3:
+                for l in range(k, 3):
+                    value = rational()
+                    for key in ((q, s, k, l), (s, q, k, l), (q, s, l, k), (s, q, l, k)):
+                        D[key] = value
+
+    # Textbook side.
+    low = [[[sp.Rational(1, 2) * (A[i][k][j] + A[j][k][i] - A[k][i][j]) for j in r3]
+            for i in r3] for k in r3]  # low[k][i][j] = Gamma_kij
+    up = [[[sum(gi[m, k] * low[k][i][j] for k in r3) for j in r3] for i in r3] for m in r3]
+    ricci = sp.Matrix(3, 3, lambda a, b: sum(
+        gi[c, d] * (sp.Rational(1, 2) * (D[c, b, a, d] + D[a, d, c, b] - D[c, d, a, b]
+                                         - D[a, b, c, d])
+                    + sum(up[m][a][d] * low[m][c][b] - up[m][a][b] * low[m][c][d] for m in r3))
+        for c in r3 for d in r3))
+    scalar = sum(gi[a, b] * ricci[a, b] for a in r3 for b in r3)
+    cov_dk = [[[dK[c][a][b] - sum(up[m][c][a] * Kl[m, b] + up[m][c][b] * Kl[a, m] for m in r3)
+                for b in r3] for a in r3] for c in r3]  # cov_dk[c][a][b] = D_c K_ab
+    div_k = [sum(gi[b, c] * cov_dk[b][c][a] for b in r3 for c in r3) for a in r3]
+    grad_k = [sum(gi[b, c] * cov_dk[a][b][c] for b in r3 for c in r3) for a in r3]
+    trace_k = sum(gi[a, b] * Kl[a, b] for a in r3 for b in r3)
+    k_sq = sum(gi[a, c] * gi[b, d] * Kl[c, d] * Kl[a, b] for a in r3 for b in r3 for c in r3
+               for d in r3)
+
+    # The kernel's contracted forms (module docstring of kernels/constraints.py).
+    packed = [(0, 0), (0, 1), (0, 2), (1, 1), (1, 2), (2, 2)]
+    r_2 = 0
+    for k, l in packed:
+        Dp = sp.Matrix(3, 3, lambda q, s: D[q, s, k, l])
+        along = (gi[k, :] * Dp * gi[:, l])[0, 0]
+        r_2 += (1 if k == l else 2) * (along - gi[k, l] * (gi * Dp).trace())
+    X = [sp.Matrix(3, 3, lambda a, c: low[m][a][c]) * gi for m in r3]
+    V = [x.trace() for x in X]
+    r_g = sum(gi[m, n] * ((X[m] * X[n]).trace() - V[m] * V[n]) for m in r3 for n in r3)
+    Y = gi * Kl
+    Z = [sum(X[m][a, c] * Y[m, c] for m in r3 for c in r3) for a in r3]
+    div_new = [sum(gi[b, c] * dK[b][c][a] for b in r3 for c in r3)
+               - sum(V[m] * Y[m, a] for m in r3) - Z[a] for a in r3]
+    grad_new = [sum(gi[b, c] * dK[a][b][c] for b in r3 for c in r3) - 2 * Z[a] for a in r3]
+
+    assert scalar != 0 and r_2 != 0 and r_g != 0  # the check is not trivially 0 = 0
+    assert r_2 + r_g == scalar
+    assert div_new == div_k and grad_new == grad_k
+    assert Y.trace() == trace_k and (Y * Y).trace() == k_sq
