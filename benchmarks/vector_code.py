@@ -2,6 +2,8 @@
 
 Run:  python benchmarks/vector_code.py
 
+The conformal-source drivers (``emsource.kernels.conformal``) are counted too.
+
 Numba does not show the machine code of kernels loaded from its disk cache, so this script
 re-runs itself with ``NUMBA_CACHE_DIR`` set to an empty temporary directory, calls the public
 functions on contiguous arrays, padded grid functions, ghost-zone views and component-last data
@@ -35,7 +37,9 @@ def measure():
 
     import emsource
     from emsource.grid_arrays import grid_function_like
-    from emsource.kernels import sources
+    from emsource.conformal import conformal_sources
+    from emsource.kernels import conformal, sources
+    from emsource.metric_forms import DECOMPOSITIONS
     from emsource.kernels._compile import _SHARED_BY_SIGNATURE
 
     for dtype in (np.float64, np.float32):
@@ -62,6 +66,16 @@ def measure():
         emsource.stress_energy_4d(alpha[ghost[1:]], beta[ghost], gamma[ghost], E[ghost], B[ghost])
         emsource.stress_energy_4d(alpha, *(np.moveaxis(a, 0, -1) for a in (beta, gamma, E, B)),
                                   layout="component_last")
+        # The conformal sources: the drivers over spans (line and window) of every
+        # decomposition for E^i, and the column loop (E with x fastest: no unit stride along z).
+        chi = rng.uniform(0.5, 1.5, grid).astype(dtype)
+        for name in DECOMPOSITIONS:
+            conformal_sources(chi, gamma, E, B, decomposition=name)
+            conformal_sources(chi[ghost[1:]], gamma[ghost], E[ghost], B[ghost],
+                              decomposition=name)
+        x_fastest = np.ascontiguousarray(E.transpose(0, 3, 2, 1)).transpose(0, 3, 2, 1)
+        conformal_sources(chi, gamma, x_fastest, B, decomposition="chi")
+    names = {d.code: d.name for d in DECOMPOSITIONS.values()}
     forms = {sources.FORM_CONTRAVARIANT: "E^i", sources.FORM_COVARIANT: "E_i",
              sources.FORM_DENSITIZED: "dens."}
 
@@ -69,6 +83,10 @@ def measure():
         """(label, driver) of a table of per-form drivers (keys: form, or (form, upper))."""
         pairs = []
         for key, driver in table.items():
+            if table is conformal.CONFORMAL_SOURCES:  # keys (decomposition, form)
+                decomposition, form = key
+                pairs.append((f"conformal {names[decomposition]} {forms[form]}", driver))
+                continue
             form, upper = key if isinstance(key, tuple) else (key, False)
             pairs.append((f"{driver.py_func.__name__} {forms[form]}{' up' if upper else ''}",
                           driver))
@@ -77,7 +95,9 @@ def measure():
     drivers = (labelled(sources.ADM_SOURCES_FLAT) + labelled(sources.ADM_SOURCES_WINDOW)
                + [("adm_sources_grid", sources.adm_sources_grid)]
                + labelled(sources.STRESS_ENERGY_FLAT) + labelled(sources.STRESS_ENERGY_WINDOW)
-               + [("stress_energy_grid", sources.stress_energy_grid)])
+               + [("stress_energy_grid", sources.stress_energy_grid)]
+               + labelled(conformal.CONFORMAL_SOURCES)
+               + [("conformal_sources_grid", conformal.conformal_sources_grid)])
     print(f"{'driver':30s} {'first argument':34s} {'xmm':>5s} {'ymm':>5s} {'zmm':>5s} "
           f"{'scalar':>7s}")
     for label, driver in drivers:

@@ -19,8 +19,7 @@ from ._compile import grid_kernel, point_function
 from .electromagnetic import fields_both_indices, point_is_valid, projections, sqrt_determinant
 from .metric import metric_at, metric_factors
 from .sources import INPUT_FORMS, _span_metric_fields
-from .vector_loops import (count_flag, packed_rows, span_start, strip_count, strip_length,
-                           strip_range, window_column)
+from .vector_loops import count_flag, packed_rows, span_start, window_column
 
 DECOMPOSITION_CHI = 0
 DECOMPOSITION_W = 1
@@ -99,9 +98,9 @@ def conformal_sources_grid(factor, tgamma, gidx, E, B, rho, S_i, S, A, decomposi
     strided (ncomp, nx, ny, nz) arrays; returns the count of bad points (conformal factor,
     metric not positive definite, non-finite input or output).
 
-    The column loop (scalar code, run-time ``decomposition`` and ``form``): component-last and
-    other strided layouts. Contiguous data and ghost-zone windows take the vectorised drivers
-    :data:`CONFORMAL_SOURCES_FLAT` and :data:`CONFORMAL_SOURCES_WINDOW`.
+    The column loop (scalar code, run-time ``decomposition`` and ``form``): layouts without a
+    unit stride along z. Contiguous data, padded rows and ghost-zone windows take the
+    vectorised drivers :data:`CONFORMAL_SOURCES`.
     """
     nx, ny, nz = rho.shape
     bad = 0
@@ -134,75 +133,11 @@ def conformal_sources_grid(factor, tgamma, gidx, E, B, rho, S_i, S, A, decomposi
 
 
 @point_function
-def _conformal_strip(start, stop, factor, tgamma, gidx, E, B, rho, S_i, S, A, decomposition,
-                     form, coef, half, third, pivot_floor):
-    """Points ``start`` to ``stop`` (uint64) of (ncomp, npoints) arrays; returns the strip's
-    count of bad points in the data's dtype (:func:`~.vector_loops.count_flag`)."""
-    zero = half - half
-    one = half + half
-    bad = zero
-    for n in range(start, stop):
-        r, sx, sy, sz, a0, a1, a2, a3, a4, a5, status = _conformal_values(
-            factor[n], tgamma[gidx[0], n], tgamma[gidx[1], n], tgamma[gidx[2], n],
-            tgamma[gidx[3], n], tgamma[gidx[4], n], tgamma[gidx[5], n],
-            E[0, n], E[1, n], E[2, n], B[0, n], B[1, n], B[2, n],
-            decomposition, form, coef, half, third, pivot_floor)
-        rho[n] = r
-        S[n] = r
-        S_i[0, n] = sx
-        S_i[1, n] = sy
-        S_i[2, n] = sz
-        A[0, n] = a0
-        A[1, n] = a1
-        A[2, n] = a2
-        A[3, n] = a3
-        A[4, n] = a4
-        A[5, n] = a5
-        bad += count_flag(status, one, zero)
-    return bad
-
-
-def _conformal_sources_flat_for(decomposition, form):
-    """The flat conformal-source driver of one (decomposition, input form), both constants in
-    its loop."""
-
-    @grid_kernel
-    def conformal_sources_flat(factor, tgamma, gidx, E, B, rho, S_i, S, A, coef, pivot_floor,
-                               one, check):
-        """rho, S_i, S, A_ij over arrays of shape (ncomp, row length) and (npoints,), or over
-        C-contiguous (ncomp, *grid) and grid-shaped arrays, seen as those (as the flat source
-        driver of :mod:`~emsource.kernels.sources`); returns the count of bad points (0 with
-        ``check`` False). The loop count is the size of ``rho``: rows may be longer (padded)."""
-        npoints = rho.size
-        factor = factor.reshape(npoints)
-        tgamma = tgamma.reshape((tgamma.shape[0], tgamma.size // tgamma.shape[0]))
-        E = E.reshape((E.shape[0], E.size // E.shape[0]))
-        B = B.reshape((B.shape[0], B.size // B.shape[0]))
-        rho = rho.reshape(npoints)
-        S_i = S_i.reshape((S_i.shape[0], S_i.size // S_i.shape[0]))
-        S = S.reshape(npoints)
-        A = A.reshape((A.shape[0], A.size // A.shape[0]))
-        third = one / (one + one + one)
-        half = one / (one + one)
-        bad_count = 0
-        length = strip_length(npoints)
-        for strip in prange(strip_count(npoints, length)):
-            start, stop = strip_range(strip, length, npoints)
-            bad = _conformal_strip(start, stop, factor, tgamma, gidx, E, B, rho, S_i, S, A,
-                                   decomposition, form, coef, half, third, pivot_floor)
-            if check:
-                bad_count += int(bad)
-        return bad_count
-
-    return conformal_sources_flat
-
-
-@point_function
 def _conformal_window_column(factor, tgamma, metric_rows, E, e1, B, b1, rho, S_i, v1, S, A, a1,
                              steps, i, j, nz, decomposition, form, coef, half, third,
                              pivot_floor):
-    """Column (i, j) of windows given as spans, as :func:`conformal_sources_window`; returns
-    the column's count of bad points in the data's dtype."""
+    """Column (i, j), ``nz`` points, of arrays given as spans (the drivers of
+    :data:`CONFORMAL_SOURCES`); returns the column's count of bad points in the data's dtype."""
     zero = half - half
     one = half + half
     at_f = span_start(steps, 0, i, j)
@@ -238,19 +173,31 @@ def _conformal_window_column(factor, tgamma, metric_rows, E, e1, B, b1, rho, S_i
     return bad
 
 
-def _conformal_sources_window_for(decomposition, form):
-    """The windowed conformal-source driver of one (decomposition, input form), both constants
-    in its loop."""
+def _conformal_sources_for(decomposition, form):
+    """The conformal-source driver of one (decomposition, input form), both constants in its
+    loop: one compiled loop for contiguous data, padded rows and ghost-zone windows alike."""
 
     @grid_kernel
-    def conformal_sources_window(factor, tgamma, gidx, E, B, rho, S_i, S, A, steps, shape, coef,
-                                 pivot_floor, one, check):
-        """rho, S_i, S, A_ij over windows of larger arrays (ghost zones sliced off), each array
-        a 1-D span of its memory (factor, tilde-gamma, E, B, rho, S_i, S, A: rows of ``steps``
-        in this order; :func:`emsource._arguments.unit_stride_spans`), the loop along z over
-        unit-stride rows as in the windowed source driver; returns the count of bad points."""
+    def conformal_sources_spans(factor, tgamma, gidx, E, B, rho, S_i, S, A, steps, shape, last,
+                                coef, pivot_floor, one, check):
+        """rho, S_i, S, A_ij over arrays given as 1-D spans of their memory (factor,
+        tilde-gamma, E, B, rho, S_i, S, A: rows of ``steps`` in this order); returns the count
+        of bad points (0 with ``check`` False).
+
+        Array a holds component c of point (i, j, k) at c steps[a, 0] + i steps[a, 1]
+        + j steps[a, 2] + k (uint64 element steps), for (i, j) the columns of ``shape`` =
+        (nx, ny, nz) and k below nz, or below ``last`` in the last column. A window (ghost zones
+        sliced off, :func:`emsource._arguments.unit_stride_spans`) has last = nz; a contiguous
+        line of npoints (C-contiguous arrays, padded rows) is cut into strips as the columns of
+        (1, strips, strip length) with steps (row stride, 0, strip length) and the last strip's
+        length (:func:`~.vector_loops.line_as_strips`). Either way the loop along k reads and
+        writes unit-stride rows and vectorises (:mod:`~emsource.kernels.vector_loops`), and one
+        compiled driver serves both routes (half the first compilation of a flat and a
+        windowed driver apiece).
+        """
         ny = np.uint64(shape[1])
         nz = np.uint64(shape[2])
+        final = shape[0] * shape[1] - 1
         metric_rows = packed_rows(gidx, steps[1, 0])
         e1 = steps[2, 0]
         b1 = steps[3, 0]
@@ -261,14 +208,15 @@ def _conformal_sources_window_for(decomposition, form):
         bad_count = 0
         for column in prange(shape[0] * shape[1]):
             i, j = window_column(column, ny)
+            length = nz if column != final else np.uint64(last)
             bad = _conformal_window_column(factor, tgamma, metric_rows, E, e1, B, b1, rho, S_i,
-                                           v1, S, A, a1, steps, i, j, nz, decomposition, form,
-                                           coef, half, third, pivot_floor)
+                                           v1, S, A, a1, steps, i, j, length, decomposition,
+                                           form, coef, half, third, pivot_floor)
             if check:
                 bad_count += int(bad)
         return bad_count
 
-    return conformal_sources_window
+    return conformal_sources_spans
 
 
 # ------------------------------------------------------------------ one driver per (decomposition, form)
@@ -276,9 +224,6 @@ def _conformal_sources_window_for(decomposition, form):
 # input form in kernels/sources.py: LLVM does not unswitch a run-time branch of the point
 # physics). The dispatchers are made here; each compiles on first use only.
 DECOMPOSITIONS = (DECOMPOSITION_CHI, DECOMPOSITION_W, DECOMPOSITION_PHI)
-#: The flat conformal-source driver of each (decomposition, input form).
-CONFORMAL_SOURCES_FLAT = {(d, form): _conformal_sources_flat_for(d, form)
-                          for d in DECOMPOSITIONS for form in INPUT_FORMS}
-#: The windowed conformal-source driver of each (decomposition, input form).
-CONFORMAL_SOURCES_WINDOW = {(d, form): _conformal_sources_window_for(d, form)
-                            for d in DECOMPOSITIONS for form in INPUT_FORMS}
+#: The conformal-source driver of each (decomposition, input form) over spans.
+CONFORMAL_SOURCES = {(d, form): _conformal_sources_for(d, form)
+                     for d in DECOMPOSITIONS for form in INPUT_FORMS}

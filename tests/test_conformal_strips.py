@@ -1,11 +1,13 @@
-"""The vectorised conformal-source drivers (one flat and one windowed loop per decomposition and
-input form, ``kernels/conformal.py``) against the column loop they replace on contiguous data and
-ghost-zone windows, and against the physical route.
+"""The vectorised conformal-source drivers (one loop over spans per decomposition and input form,
+``kernels/conformal.py: CONFORMAL_SOURCES``, serving contiguous data as strips of a line and
+ghost-zone windows as columns) against the column loop they replace, and against the physical
+route.
 
 References:
-- the column loop ``conformal_sources_grid`` (run-time decomposition and form, scalar code),
-  which ``tests/test_conformal.py`` checked against ``adm_sources`` on the physical metric
-  before the drivers existed; the column loop and every driver inline one point function, so a
+- the column loop ``conformal_sources_grid`` (run-time decomposition and form, scalar code,
+  taken by the public call for layouts without a unit stride along z), which
+  ``tests/test_conformal.py`` checked against ``adm_sources`` on the physical metric before the
+  drivers existed; the column loop and every driver inline one point function, so a
   difference can only come from the loop: a wrong row, step, offset or constant gives errors of
   order one, a different fusion of multiply-adds (fast-math "contract") at most ~16 eps of the
   largest value (``conftest.assert_same_arithmetic``, which derives that bound);
@@ -15,9 +17,9 @@ References:
 - NumPy's own finiteness and positivity tests for the count of bad points.
 
 Compile time: each (decomposition, form) driver compiles on first use (about 3 s per driver and
-dtype). Every one of the 18 drivers runs here in float64; float32 runs one pair per
-decomposition on each route (the flat float32 drivers of "upper" are compiled by
-``tests/test_conformal.py`` already).
+dtype). Every one of the 9 drivers runs here in float64 on both routes; float32 runs one pair
+per decomposition, each input form once (chi/upper is compiled by ``tests/test_conformal.py``
+too).
 """
 
 import numpy as np
@@ -29,13 +31,14 @@ from emsource.conformal import ConformalSources, conformal_sources
 from emsource.grid_arrays import grid_function_like
 from emsource.kernels import conformal as kernels
 from emsource.kernels._compile import call_sharing_layouts
+from emsource.kernels.vector_loops import line_as_strips
 from emsource.kernels.electromagnetic import FORM_CONTRAVARIANT, FORM_COVARIANT, FORM_DENSITIZED
 from emsource.metric_forms import DECOMPOSITIONS
 from conftest import (assert_computed_in_float32, assert_same_arithmetic, random_curved_data,
                       unpack_symmetric)
 
 FORMS = {"upper": FORM_CONTRAVARIANT, "lower": FORM_COVARIANT, "densitized": FORM_DENSITIZED}
-#: Every (decomposition, field_index) pair: one flat and one windowed driver each.
+#: Every (decomposition, field_index) pair: one driver each.
 PAIRS = [(d, f) for d in DECOMPOSITIONS for f in FORMS]
 #: One pair per decomposition, each form once: the float32 cases.
 DIAGONAL = [("chi", "upper"), ("w", "lower"), ("phi", "densitized")]
@@ -89,18 +92,33 @@ def _assert_same_loop_arithmetic(got, reference, field_index, kappa):
                                        atol=16 * kappa * np.finfo(b.dtype).eps * scale)
 
 
-def _column_loop(factor, gt, E, B, decomposition, field_index, prefactor=1 / (4 * np.pi)):
-    """The column loop on C-contiguous copies of the inputs: (outputs, count of bad points)."""
-    dtype = factor.dtype
+def _x_fastest(a):
+    """The values of ``a`` stored with x fastest: no unit stride along z, so that the public
+    call takes the column loop."""
+    return np.ascontiguousarray(a.transpose(0, 3, 2, 1)).transpose(0, 3, 2, 1)
+
+
+def _column_loop(factor, gt, E, B, decomposition, field_index):
+    """The column loop's outputs for these inputs, through the public call (E stored with x
+    fastest: the one specialisation every strided layout shares)."""
+    E = _x_fastest(E)
     grid = factor.shape
-    out = ConformalSources(np.empty(grid, dtype), np.empty((3,) + grid, dtype),
-                           np.empty(grid, dtype), np.empty((6,) + grid, dtype))
-    inputs = [np.ascontiguousarray(a) for a in (factor, gt, E, B)]
-    count = kernels.conformal_sources_grid(
-        inputs[0], inputs[1], PACKED, inputs[2], inputs[3], *out,
-        DECOMPOSITIONS[decomposition].code, FORMS[field_index], dtype.type(prefactor),
-        dtype.type(emsource._arguments.pivot_floor(dtype)), dtype.type(1))
-    return out, count
+    assert emsource._arguments.unit_stride_spans(
+        emsource._arguments.three_axis_views([factor, gt, E, B], grid)) is None
+    return conformal_sources(factor, gt, E, B, decomposition=decomposition,
+                             field_index=field_index)
+
+
+def _column_count(factor, gt, E, B, decomposition):
+    """The column loop's count of bad points (contravariant fields), called as the public call
+    calls it."""
+    grid = factor.shape
+    out = [np.empty(grid), np.empty((3,) + grid), np.empty(grid), np.empty((6,) + grid)]
+    return call_sharing_layouts(
+        kernels.conformal_sources_grid,
+        (factor, gt, PACKED, _x_fastest(E), B, *out, DECOMPOSITIONS[decomposition].code,
+         FORM_CONTRAVARIANT, 1 / (4 * np.pi), float(emsource._arguments.pivot_floor(np.float64)),
+         1.0), (0, 1, 3, 4))
 
 
 def _windows(arrays):
@@ -114,11 +132,10 @@ def _windows(arrays):
 
 
 @pytest.mark.parametrize("decomposition, field_index", PAIRS)
-def test_flat_and_windowed_drivers_equal_the_column_loop(rng, decomposition, field_index):
+def test_line_and_window_routes_equal_the_column_loop(rng, decomposition, field_index):
     grid = tuple(n - 2 * GHOST for n in FULL)
     inputs = _data(rng, grid, decomposition, field_index)
-    reference, count = _column_loop(*inputs, decomposition, field_index)
-    assert count == 0
+    reference = _column_loop(*inputs, decomposition, field_index)
     flat = conformal_sources(*inputs, decomposition=decomposition, field_index=field_index)
     windows = _windows(inputs)
     assert not windows[2].flags.c_contiguous
@@ -177,7 +194,7 @@ def test_float32_drivers(rng, decomposition, field_index):
     inputs64 = [a.astype(np.float64) for a in inputs32]
     options = dict(decomposition=decomposition, field_index=field_index)
     double = conformal_sources(*inputs64, **options)
-    reference, _ = _column_loop(*inputs32, decomposition, field_index)
+    reference = _column_loop(*inputs32, decomposition, field_index)
     kappa = _condition_number(inputs32[1])
     for single in (conformal_sources(*inputs32, **options),
                    conformal_sources(*_windows(inputs32), **options)):
@@ -187,8 +204,8 @@ def test_float32_drivers(rng, decomposition, field_index):
 
 
 def test_padded_grid_functions_take_the_flat_driver(rng):
-    """Padded rows (emsource.grid_arrays) in and out: the flat driver over (ncomp, row) blocks,
-    the same bits as on contiguous arrays (same loop, same point code)."""
+    """Padded rows (emsource.grid_arrays) in and out: the line route with the rows' stride as
+    component step, the same bits as on contiguous arrays (same strips, same point code)."""
     grid = (9, 10, 11)
     inputs = _data(rng, grid, "chi", "upper")
     padded = [grid_function_like(a) for a in inputs]
@@ -227,25 +244,34 @@ def test_bad_points_counted_exactly_on_every_route(rng, decomposition):
     if decomposition == "phi":
         factor[points[0]] = np.inf
     expected = len(points)
-    _, column = _column_loop(factor, gt, E, B, decomposition, "upper")
-    assert column == expected
-    code = DECOMPOSITIONS[decomposition].code
-    views = [factor, gt, E, B] + [np.empty((n,) + grid) for n in (1, 3, 1, 6)]
-    views[4] = views[4][0]
-    views[6] = views[6][0]
+    assert _column_count(factor, gt, E, B, decomposition) == expected
+    driver = kernels.CONFORMAL_SOURCES[DECOMPOSITIONS[decomposition].code, FORM_CONTRAVARIANT]
     physics = (1 / (4 * np.pi), float(emsource._arguments.pivot_floor(np.float64)), 1.0)
-    flat = kernels.CONFORMAL_SOURCES_FLAT[code, FORM_CONTRAVARIANT](
-        views[0], views[1], PACKED, *views[2:], *physics, True)
-    assert flat == expected
-    assert kernels.CONFORMAL_SOURCES_FLAT[code, FORM_CONTRAVARIANT](
-        views[0], views[1], PACKED, *views[2:], *physics, False) == 0
-    windows = _windows_of(views, grid)
-    spans, steps, shape = emsource._arguments.unit_stride_spans(windows)
-    # As the public call makes it (inputs typed read-only: the signature compiled there).
-    window = call_sharing_layouts(
-        kernels.CONFORMAL_SOURCES_WINDOW[code, FORM_CONTRAVARIANT],
-        (spans[0], spans[1], PACKED, *spans[2:], steps, shape, *physics, True), (0, 1, 3, 4))
-    assert window == expected
+    arrays = [factor, gt, E, B, np.empty(grid), np.empty((3,) + grid), np.empty(grid),
+              np.empty((6,) + grid)]
+
+    def count(spans, steps, shape, last, check=True):
+        # As the public call makes it (inputs typed read-only: the signature compiled there).
+        return call_sharing_layouts(
+            driver, (spans[0], spans[1], PACKED, *spans[2:], steps, shape, last, *physics, check),
+            (0, 1, 3, 4))
+
+    # The line of 4096 points as 8 strips of 512 (vector_loops.line_as_strips).
+    line = [a.reshape(-1) for a in arrays]
+    shape, last = line_as_strips(factor.size)
+    assert shape == (1, 8, 512) and last == 512
+    steps = np.zeros((8, 3), np.uint64)
+    steps[:, 2] = shape[2]
+    steps[[1, 2, 3, 5, 7], 0] = factor.size
+    assert count(line, steps, shape, last) == expected
+    assert count(line, steps, shape, last, check=False) == 0
+    # Strips of 500 points, the last one 96: the count of a short last strip is exact too.
+    steps[:, 2] = 500
+    assert count(line, steps, (1, 9, 500), 96) == expected
+    # The window of one ghost point a side: 256 columns.
+    spans, steps, shape = emsource._arguments.unit_stride_spans(
+        emsource._arguments.three_axis_views(_windows_of(arrays, grid), grid))
+    assert count(spans, steps, shape, shape[2]) == expected
 
 
 def _windows_of(arrays, grid):
@@ -280,8 +306,7 @@ def test_bad_point_errors_name_the_same_index_on_every_route(rng, route):
         if route == "window":
             arrays = _windows_of(arrays, grid)
         elif route == "column":
-            arrays[2] = np.ascontiguousarray(arrays[2].transpose(0, 3, 2, 1)).transpose(0, 3, 2, 1)
-            assert arrays[2].strides[1] == arrays[2].itemsize
+            arrays[2] = _x_fastest(arrays[2])
         copies = [a.copy() for a in arrays]
         with pytest.raises(GridPointError, match=expected[drop_first]):
             conformal_sources(*arrays, decomposition="w")

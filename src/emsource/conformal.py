@@ -48,6 +48,7 @@ from ._threading import kernel_call
 from .faraday import raise_for_bad_points
 from .input_forms import input_form
 from .kernels._compile import call_sharing_layouts
+from .kernels.vector_loops import line_as_strips
 from .kernels import conformal as kernels
 from .metric_forms import decomposition as find_decomposition
 from .unit_systems import stress_energy_prefactor
@@ -91,27 +92,52 @@ def _conformal_inputs(function, factor, gamma_tilde, grid, decomposition):
 
 def _run_conformal_kernel(decomposition, form, gidx, arrays, grid, dtype, prefactor, check):
     """One call of the conformal-source driver on ``arrays`` (factor, tilde-gamma, E, B, rho,
-    S_i, S, A_ij, checked and component-first): the flat loop for C-contiguous data and padded
-    rows, the windowed loop for views contiguous along z (ghost zones sliced off), both built
-    per (decomposition, form); the column loop for everything else. Returns the count of bad
-    points (0 with ``check`` False on the vectorised routes)."""
-    views, flat = arg.kernel_views(arrays, grid, whole_grids=True)
+    S_i, S, A_ij, checked and component-first); returns the count of bad points.
+
+    C-contiguous data and padded rows are one line of points, cut into strips; views
+    contiguous along z (ghost zones sliced off) are windows: both go to the vectorised driver of
+    (decomposition, form) over spans (:data:`emsource.kernels.conformal.CONFORMAL_SOURCES`).
+    Everything else (no unit stride along z, negative strides) takes the column loop.
+    """
+    views, flat = arg.kernel_views(arrays, grid)
     physics = (dtype.type(prefactor), dtype.type(arg.pivot_floor(dtype)), dtype.type(1))
     with kernel_call():
-        spans = None if flat else arg.unit_stride_spans(views)
         if flat:
-            f, metric, e, b, *outputs = views
-            return kernels.CONFORMAL_SOURCES_FLAT[decomposition, form](
-                f, metric, gidx, e, b, *outputs, *physics, bool(check))
-        if spans is not None:  # windows contiguous along z (ghost zones sliced off)
-            (f, metric, e, b, *outputs), steps, shape = spans
-            return call_sharing_layouts(
-                kernels.CONFORMAL_SOURCES_WINDOW[decomposition, form],
-                (f, metric, gidx, e, b, *outputs, steps, shape, *physics, bool(check)),
-                (0, 1, 3, 4))
-        f, metric, e, b, *outputs = views
-        return kernels.conformal_sources_grid(f, metric, gidx, e, b, *outputs, decomposition,
-                                              form, *physics)
+            spans, steps, shape, last = _line_spans(views, grid)
+        else:
+            found = arg.unit_stride_spans(views)
+            if found is None:  # the column loop, run-time decomposition and form; every
+                # mix of strided inputs shares one specialisation
+                f, metric, e, b, *outputs = views
+                return call_sharing_layouts(
+                    kernels.conformal_sources_grid,
+                    (f, metric, gidx, e, b, *outputs, decomposition, form, *physics),
+                    (0, 1, 3, 4))
+            spans, steps, shape = found
+            last = shape[2]
+        f, metric, e, b, *outputs = spans
+        return call_sharing_layouts(
+            kernels.CONFORMAL_SOURCES[decomposition, form],
+            (f, metric, gidx, e, b, *outputs, steps, shape, last, *physics, bool(check)),
+            (0, 1, 3, 4))
+
+
+def _line_spans(views, grid):
+    """The flat kernel views (``(ncomp, row stride)`` or ``(npoints,)``, C-contiguous) as 1-D
+    spans with the steps, window shape and last strip length of
+    :func:`emsource.kernels.vector_loops.line_as_strips`."""
+    npoints = 1
+    for n in grid:
+        npoints *= n
+    shape, last = line_as_strips(npoints)
+    steps = np.zeros((len(views), 3), np.uint64)
+    steps[:, 2] = shape[2]
+    spans = []
+    for position, view in enumerate(views):
+        if view.ndim == 2:
+            steps[position, 0] = view.shape[1]
+        spans.append(view.reshape(-1))
+    return spans, steps, shape, last
 
 
 def _bad_factor_reason(decomposition, factor):
