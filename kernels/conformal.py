@@ -6,6 +6,13 @@ Decompositions (codes of :mod:`emsource.metric_forms`), with tilde-gamma_ij the 
     DECOMPOSITION_CHI: gamma_ij = tilde-gamma_ij / chi,        rescale = chi
     DECOMPOSITION_W:   gamma_ij = tilde-gamma_ij / W^2,        rescale = W^2    (W = sqrt(chi))
     DECOMPOSITION_PHI: gamma_ij = e^{4 phi} tilde-gamma_ij,    rescale = e^{-4 phi}
+
+Loops. :data:`CONFORMAL_SOURCES` holds one vectorised driver per (decomposition, input form),
+both constants in its loop (built here, compiled on first use), over arrays given as 1-D spans:
+contiguous data and padded rows as a line cut into strips, ghost-zone windows as columns (see
+:func:`_conformal_sources_for` and DEVELOPERS.md "Vectorised point loops").
+:func:`conformal_sources_grid` is the column loop over strided views, with the decomposition and
+form as run-time arguments, for every other layout. Both inline :func:`_conformal_values`.
 """
 
 from __future__ import annotations

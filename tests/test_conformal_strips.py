@@ -158,6 +158,19 @@ def test_line_and_window_routes_equal_the_column_loop(rng, decomposition, field_
         np.testing.assert_array_equal(a, b)
 
 
+def test_full_metric_on_both_routes(rng):
+    """tilde-gamma given as a full (3, 3, *grid) array: its six rows picked by the metric index
+    on the line and in the window (the same values as packed storage)."""
+    grid = tuple(n - 2 * GHOST for n in FULL)
+    factor, gt, E, B = _data(rng, grid, "chi", "upper")
+    full = np.ascontiguousarray(unpack_symmetric(gt))
+    packed = conformal_sources(factor, gt, E, B, decomposition="chi")
+    for arrays in ((factor, full, E, B), _windows((factor, full, E, B))):
+        got = conformal_sources(*arrays, decomposition="chi")
+        for a, b in zip(got, packed):
+            assert_same_arithmetic(a, b)
+
+
 @pytest.mark.parametrize("decomposition, field_index", DIAGONAL)
 def test_drivers_equal_the_physical_route(rng, decomposition, field_index):
     """Independent route (module docstring): physical metric in NumPy, adm_sources, A_ij in
