@@ -2,7 +2,7 @@
 beside the physical source kernel, measured in the same run.
 
 Run:  python benchmarks/bench_forms.py [--points N] [--repeat N]
-      python benchmarks/bench_forms.py --conformal [--points N] [--repeat N]
+      python benchmarks/bench_forms.py --conformal [--ideal-mhd] [--points N] [--repeat N]
 
 For a float64 grid of N^3 points (default 96) it prints, as medians of interleaved runs (each
 kernel timing right after a STREAM-style triad, read as a share of it; the machine is shared):
@@ -19,7 +19,9 @@ the same-traffic copy kernels of both calls (12 + 11 and 13 + 11 rows, no physic
 loop that served every layout before the vectorised drivers, and plain NumPy (float64,
 contiguous). Each row is timed right after a triad, the rows of a group interleaved; the
 machine's load averages (``os.getloadavg``, what ``uptime`` prints) are printed beside each
-group. Read ratios within one group.
+group. Read ratios within one group. ``--ideal-mhd`` does the same for ideal_mhd_fields
+(Eulerian velocity, into ``out``; contiguous and ghost-zone window) beside adm_sources and its
+column loop.
 """
 
 from __future__ import annotations
@@ -42,6 +44,7 @@ from bench_sources import (Triad, _same_traffic_copy, flat_space_fields, interle
 from emsource import _arguments as arg  # noqa: E402
 from emsource.conformal import ConformalSources  # noqa: E402
 from emsource.kernels import conformal as conformal_kernels  # noqa: E402
+from emsource.kernels import ideal_mhd as ideal_mhd_kernels  # noqa: E402
 from emsource.conformal import conformal_sources  # noqa: E402
 from emsource.faraday import faraday_tensor  # noqa: E402
 from emsource.ideal_mhd import ideal_mhd_fields  # noqa: E402
@@ -125,6 +128,59 @@ def _conformal_group(n, dtype, layout):
     return cases
 
 
+IDEAL_MHD_ROWS = 1 + 3 + 6 + 3 + 3 + 3 + 4 + 4  # alpha, beta, gamma, B, v in; E, u, b out
+
+
+def _ideal_mhd_group(n, dtype, layout):
+    """{name: (call, bytes moved)}: ideal_mhd_fields (Eulerian v^i, into ``out``) beside
+    adm_sources and the column loop on the same grid, ``layout`` "contiguous" or "ghost"."""
+    itemsize = np.dtype(dtype).itemsize
+    full = (n + 6,) * 3 if layout == "ghost" else (n,) * 3
+    gamma, E, B = flat_space_fields(full, dtype)
+    rng = np.random.default_rng(4)
+    alpha = rng.uniform(0.8, 1.2, full).astype(dtype)
+    beta = (0.1 * rng.standard_normal((3,) + full)).astype(dtype)
+    velocity = (0.1 * rng.standard_normal((3,) + full)).astype(dtype)
+    arrays = [alpha, beta, gamma, E, B, velocity]
+    if layout == "ghost":
+        inner = (slice(3, -3),) * 3
+        arrays = [a[inner] if a.ndim == 3 else a[(slice(None),) + inner] for a in arrays]
+    alpha, beta, gamma, E, B, velocity = arrays
+    adm_out = emsource.adm_sources(gamma, E, B)
+    mhd_out = ideal_mhd_fields(alpha, beta, gamma, B, velocity)
+    grid = (n,) * 3
+    column = arg.three_axis_views([alpha, beta, gamma, B, velocity, *mhd_out], grid)
+    return {
+        "adm_sources": (lambda: emsource.adm_sources(gamma, E, B, out=adm_out),
+                        ADM_ROWS * itemsize * n ** 3),
+        "ideal_mhd_fields": (lambda: ideal_mhd_fields(alpha, beta, gamma, B, velocity,
+                                                      out=mhd_out),
+                             IDEAL_MHD_ROWS * itemsize * n ** 3),
+        "column loop (before)": (lambda: ideal_mhd_kernels.ideal_mhd_grid(
+            *column[:3], np.arange(6), *column[3:], 0, ideal_mhd_kernels.VELOCITY_EULERIAN,
+            dtype(arg.pivot_floor(dtype)), dtype(1)), IDEAL_MHD_ROWS * itemsize * n ** 3),
+    }
+
+
+def ideal_mhd_section(n, repeat):
+    """ideal_mhd_fields against adm_sources and its column loop, per dtype and layout."""
+    print(f"\nideal MHD, {n}^3, medians of {repeat}; rows moved: ideal MHD {IDEAL_MHD_ROWS}, "
+          f"adm_sources {ADM_ROWS} (ratio {IDEAL_MHD_ROWS / ADM_ROWS:.3f})")
+    triad = Triad()
+    for dtype in (np.float64, np.float32):
+        for layout in ("contiguous", "ghost"):
+            cases = _ideal_mhd_group(n, dtype, layout)
+            before = _load()
+            measured = interleaved(cases, triad, repeat)
+            print(f"\n{np.dtype(dtype).name}, {layout} ({before} before, {_load()} after)")
+            print(f"{'call':30s} {'Mpoints/s':>10s} {'% triad':>8s} {'time / adm':>11s}")
+            adm = measured["adm_sources"][0]
+            for name, (seconds, share) in measured.items():
+                print(f"{name:30s} {n ** 3 / statistics.median(seconds) / 1e6:10.1f} "
+                      f"{100 * share:7.0f}% {paired_ratio(seconds, adm):11.3f}")
+            del cases, measured
+
+
 def conformal_section(n, repeat):
     """conformal_sources against adm_sources and the yardsticks, per dtype and layout."""
     print(f"emsource {emsource.__version__}, {numba.get_num_threads()} threads, {n}^3 "
@@ -168,9 +224,14 @@ def main(argv=None):
     parser.add_argument("--repeat", type=int, default=7)
     parser.add_argument("--conformal", action="store_true",
                         help="conformal_sources against adm_sources and the yardsticks")
+    parser.add_argument("--ideal-mhd", action="store_true",
+                        help="ideal_mhd_fields against adm_sources and its column loop")
     args = parser.parse_args(argv)
-    if args.conformal:
-        conformal_section(args.points or 128, args.repeat)
+    if args.conformal or args.ideal_mhd:
+        if args.conformal:
+            conformal_section(args.points or 128, args.repeat)
+        if args.ideal_mhd:
+            ideal_mhd_section(args.points or 128, args.repeat)
         return
     args.points = args.points or 96
     shape = (args.points,) * 3

@@ -48,7 +48,6 @@ from ._threading import kernel_call
 from .faraday import raise_for_bad_points
 from .input_forms import input_form
 from .kernels._compile import call_sharing_layouts
-from .kernels.vector_loops import line_as_strips
 from .kernels import conformal as kernels
 from .metric_forms import decomposition as find_decomposition
 from .unit_systems import stress_energy_prefactor
@@ -96,48 +95,25 @@ def _run_conformal_kernel(decomposition, form, gidx, arrays, grid, dtype, prefac
 
     C-contiguous data and padded rows are one line of points, cut into strips; views
     contiguous along z (ghost zones sliced off) are windows: both go to the vectorised driver of
-    (decomposition, form) over spans (:data:`emsource.kernels.conformal.CONFORMAL_SOURCES`).
-    Everything else (no unit stride along z, negative strides) takes the column loop.
+    (decomposition, form) over spans (:data:`emsource.kernels.conformal.CONFORMAL_SOURCES`,
+    :func:`emsource._arguments.driver_spans`). Everything else (no unit stride along z,
+    negative strides) takes the column loop.
     """
     views, flat = arg.kernel_views(arrays, grid)
     physics = (dtype.type(prefactor), dtype.type(arg.pivot_floor(dtype)), dtype.type(1))
     with kernel_call():
-        if flat:
-            spans, steps, shape, last = _line_spans(views, grid)
-        else:
-            found = arg.unit_stride_spans(views)
-            if found is None:  # the column loop, run-time decomposition and form; every
-                # mix of strided inputs shares one specialisation
-                f, metric, e, b, *outputs = views
-                return call_sharing_layouts(
-                    kernels.conformal_sources_grid,
-                    (f, metric, gidx, e, b, *outputs, decomposition, form, *physics),
-                    (0, 1, 3, 4))
-            spans, steps, shape = found
-            last = shape[2]
-        f, metric, e, b, *outputs = spans
+        found = arg.driver_spans(views, grid, flat)
+        if found is None:  # the column loop, run-time decomposition and form; every mix of
+            # strided inputs shares one specialisation
+            f, metric, e, b, *outputs = views
+            return call_sharing_layouts(
+                kernels.conformal_sources_grid,
+                (f, metric, gidx, e, b, *outputs, decomposition, form, *physics), (0, 1, 3, 4))
+        (f, metric, e, b, *outputs), steps, shape, last = found
         return call_sharing_layouts(
             kernels.CONFORMAL_SOURCES[decomposition, form],
             (f, metric, gidx, e, b, *outputs, steps, shape, last, *physics, bool(check)),
             (0, 1, 3, 4))
-
-
-def _line_spans(views, grid):
-    """The flat kernel views (``(ncomp, row stride)`` or ``(npoints,)``, C-contiguous) as 1-D
-    spans with the steps, window shape and last strip length of
-    :func:`emsource.kernels.vector_loops.line_as_strips`."""
-    npoints = 1
-    for n in grid:
-        npoints *= n
-    shape, last = line_as_strips(npoints)
-    steps = np.zeros((len(views), 3), np.uint64)
-    steps[:, 2] = shape[2]
-    spans = []
-    for position, view in enumerate(views):
-        if view.ndim == 2:
-            steps[position, 0] = view.shape[1]
-        spans.append(view.reshape(-1))
-    return spans, steps, shape, last
 
 
 def _bad_factor_reason(decomposition, factor):
