@@ -2,7 +2,8 @@
 
 Run:  python benchmarks/vector_code.py
 
-The conformal-source drivers (``emsource.kernels.conformal``) are counted too.
+The conformal-source and ideal-MHD drivers (``emsource.kernels.conformal``,
+``emsource.kernels.ideal_mhd``) are counted too.
 
 Numba does not show the machine code of kernels loaded from its disk cache, so this script
 re-runs itself with ``NUMBA_CACHE_DIR`` set to an empty temporary directory, calls the public
@@ -38,7 +39,8 @@ def measure():
     import emsource
     from emsource.grid_arrays import grid_function_like
     from emsource.conformal import conformal_sources
-    from emsource.kernels import conformal, sources
+    from emsource.ideal_mhd import VELOCITY_KINDS, ideal_mhd_fields
+    from emsource.kernels import conformal, ideal_mhd, sources
     from emsource.metric_forms import DECOMPOSITIONS
     from emsource.kernels._compile import _SHARED_BY_SIGNATURE
 
@@ -75,7 +77,15 @@ def measure():
                               decomposition=name)
         x_fastest = np.ascontiguousarray(E.transpose(0, 3, 2, 1)).transpose(0, 3, 2, 1)
         conformal_sources(chi, gamma, x_fastest, B, decomposition="chi")
+        # Ideal MHD (Eulerian v^i and the spatial part of u^a): line, window, column loop.
+        velocity = (0.1 * E).astype(dtype)
+        for kind in ("eulerian", "four_velocity"):
+            ideal_mhd_fields(alpha, beta, gamma, B, velocity, velocity_kind=kind)
+            ideal_mhd_fields(alpha[ghost[1:]], beta[ghost], gamma[ghost], B[ghost],
+                             velocity[ghost], velocity_kind=kind)
+        ideal_mhd_fields(alpha, beta, gamma, B, x_fastest * dtype(0.1))
     names = {d.code: d.name for d in DECOMPOSITIONS.values()}
+    kinds = {code: name for name, code in VELOCITY_KINDS.items()}
     forms = {sources.FORM_CONTRAVARIANT: "E^i", sources.FORM_COVARIANT: "E_i",
              sources.FORM_DENSITIZED: "dens."}
 
@@ -87,6 +97,10 @@ def measure():
                 decomposition, form = key
                 pairs.append((f"conformal {names[decomposition]} {forms[form]}", driver))
                 continue
+            if table is ideal_mhd.IDEAL_MHD:  # keys (form, velocity kind)
+                form, kind = key
+                pairs.append((f"ideal MHD {forms[form]} {kinds[kind]}", driver))
+                continue
             form, upper = key if isinstance(key, tuple) else (key, False)
             pairs.append((f"{driver.py_func.__name__} {forms[form]}{' up' if upper else ''}",
                           driver))
@@ -97,7 +111,9 @@ def measure():
                + labelled(sources.STRESS_ENERGY_FLAT) + labelled(sources.STRESS_ENERGY_WINDOW)
                + [("stress_energy_grid", sources.stress_energy_grid)]
                + labelled(conformal.CONFORMAL_SOURCES)
-               + [("conformal_sources_grid", conformal.conformal_sources_grid)])
+               + [("conformal_sources_grid", conformal.conformal_sources_grid)]
+               + labelled(ideal_mhd.IDEAL_MHD)
+               + [("ideal_mhd_grid", ideal_mhd.ideal_mhd_grid)])
     print(f"{'driver':30s} {'first argument':34s} {'xmm':>5s} {'ymm':>5s} {'zmm':>5s} "
           f"{'scalar':>7s}")
     for label, driver in drivers:
