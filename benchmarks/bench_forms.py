@@ -51,7 +51,8 @@ from emsource.ideal_mhd import ideal_mhd_fields  # noqa: E402
 
 
 def numpy_conformal(chi, gamma_tilde, E, B):
-    """The conformal outputs in plain NumPy: physical metric, sources, c S_ij - tilde-gamma S / 3."""
+    """The conformal outputs in plain NumPy: physical metric, sources,
+    c S_ij - tilde-gamma S / 3."""
     rho, S_i, S_ij, S = numpy_sources(gamma_tilde / chi, E, B)
     return rho, S_i, S, chi * S_ij - gamma_tilde * S / 3
 
@@ -252,7 +253,8 @@ def main(argv=None):
     cases = [
         ("adm_sources, E^i B^i (reference)", ADM_ROWS,
          lambda: emsource.adm_sources(gamma, E, B, out=out)),
-        ("adm_sources, allocating its outputs", ADM_ROWS, lambda: emsource.adm_sources(gamma, E, B)),
+        ("adm_sources, allocating its outputs", ADM_ROWS,
+         lambda: emsource.adm_sources(gamma, E, B)),
         ("adm_sources, densitized", ADM_ROWS,
          lambda: emsource.adm_sources(gamma, dE, dB, out=out, field_index="densitized")),
         ("conformal_sources (chi), out=", CONFORMAL_ROWS,

@@ -8,7 +8,8 @@ The column loop was checked against the brute-force 4D route in ``tests/test_ide
 another fusion of multiply-adds moves a result by a few roundings: the bound of
 ``conftest.assert_same_arithmetic`` (16 eps of the largest value) for B^i, 16 eps kappa for the
 forms that raise an index or divide by sqrt(gamma) through the pivots of gamma = L D L^T (derived
-in ``tests/test_conformal_strips.py``), both widened for the Lorentz factor (``_assert_close``). The counts of bad points are compared with the points
+in ``tests/test_conformal_strips.py``), both widened for the Lorentz factor (``_assert_close``).
+The counts of bad points are compared with the points
 spoiled here.
 
 Compile time: 6 drivers (3 forms x 2 kinds), about 3 s each, all in float64 here; float32 for two
@@ -160,8 +161,11 @@ def test_bad_points_counted_exactly_and_named(rng):
                  last, pivot, 1.0, check), (0, 1, 2, 4, 5))
             assert count == expected
         copies = [a.copy() for a in arrays]
+        # The message counts the points with bad inputs (4; the check in NumPy on the error
+        # path), the kernel also the one too fast (5, above).
         with pytest.raises(GridPointError, match=r"4 of 4096 grid points have invalid input; "
-                                                 r"the first is grid index \(0, 0, 5\): lapse alpha = 0.0 is not positive"):
+                                                 r"the first is grid index \(0, 0, 5\): "
+                                                 r"lapse alpha = 0.0 is not positive"):
             ideal_mhd_fields(*arrays)
         for a, b in zip(arrays, copies):  # inputs left as they were
             np.testing.assert_array_equal(a, b)
