@@ -226,7 +226,7 @@ def _conformal_sources_for(decomposition, form):
     return conformal_sources_spans
 
 
-# ------------------------------------------------------------------ one driver per (decomposition, form)
+# ------------------------------------------------ one driver per (decomposition, form)
 # The decomposition and the input form are constants in each of these drivers' loops (as the
 # input form in kernels/sources.py: LLVM does not unswitch a run-time branch of the point
 # physics). The dispatchers are made here; each compiles on first use only.
