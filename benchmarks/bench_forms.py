@@ -2,14 +2,26 @@
 beside the physical source kernel, measured in the same run.
 
 Run:  python benchmarks/bench_forms.py [--points N] [--repeat N]
+      python benchmarks/bench_forms.py --conformal [--ideal-mhd] [--points N] [--repeat N]
 
-For a float64 grid of N^3 points (default 96) it prints, as medians of paired runs (each kernel
-timing right after a STREAM-style triad, read as a share of it; the machine is shared):
+For a float64 grid of N^3 points (default 96) it prints, as medians of interleaved runs (each
+kernel timing right after a STREAM-style triad, read as a share of it; the machine is shared):
   - emsource.adm_sources on E^i, B^i (the reference pipeline) and on densitized fields,
   - emsource.conformal.conformal_sources (chi), the same outputs plus A_ij,
   - a plain-NumPy route to the conformal outputs (gamma = tilde-gamma / chi, then the formulas),
   - emsource.faraday.faraday_tensor and emsource.ideal_mhd.ideal_mhd_fields,
 with bandwidth counted once per array read or written.
+
+``--conformal`` measures instead the conformal sources against ``adm_sources`` on the same grid
+(default 128^3; each call into preallocated ``out``, checks on), float64 and float32: contiguous
+arrays, padded grid functions and the ghost-zone window of an (N + 6)^3 grid, with the triad,
+the same-traffic copy kernels of both calls (12 + 11 and 13 + 11 rows, no physics), the column
+loop that served every layout before the vectorised drivers, and plain NumPy (float64,
+contiguous). Each row is timed right after a triad, the rows of a group interleaved; the
+machine's load averages (``os.getloadavg``, what ``uptime`` prints) are printed beside each
+group. Read ratios within one group. ``--ideal-mhd`` does the same for ideal_mhd_fields
+(Eulerian velocity, into ``out``; contiguous and ghost-zone window) beside adm_sources and its
+column loop.
 """
 
 from __future__ import annotations
@@ -19,29 +31,210 @@ import math
 import os
 import statistics
 import sys
+import time
 
 import numpy as np
 
 sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
 
 import emsource  # noqa: E402
-from bench_sources import Triad, flat_space_fields, numpy_sources, paired_rates  # noqa: E402
+import numba  # noqa: E402
+from bench_sources import (Triad, _same_traffic_copy, flat_space_fields, interleaved,  # noqa: E402
+                           numpy_sources, padded_copy, paired_ratio)
+from emsource import _arguments as arg  # noqa: E402
+from emsource.conformal import ConformalSources  # noqa: E402
+from emsource.kernels import conformal as conformal_kernels  # noqa: E402
+from emsource.kernels import ideal_mhd as ideal_mhd_kernels  # noqa: E402
 from emsource.conformal import conformal_sources  # noqa: E402
 from emsource.faraday import faraday_tensor  # noqa: E402
 from emsource.ideal_mhd import ideal_mhd_fields  # noqa: E402
 
 
 def numpy_conformal(chi, gamma_tilde, E, B):
-    """The conformal outputs in plain NumPy: physical metric, sources, c S_ij - tilde-gamma S / 3."""
+    """The conformal outputs in plain NumPy: physical metric, sources,
+    c S_ij - tilde-gamma S / 3."""
     rho, S_i, S_ij, S = numpy_sources(gamma_tilde / chi, E, B)
     return rho, S_i, S, chi * S_ij - gamma_tilde * S / 3
 
 
+#: Rows moved per point: adm_sources reads gamma 6, E 3, B 3 and writes rho, S_i 3, S_ij 6, S;
+#: conformal_sources reads the factor too and writes A_ij 6 in place of S_ij.
+ADM_ROWS = 12 + 11
+CONFORMAL_ROWS = 13 + 11
+
+
+@numba.njit(parallel=True, cache=True)
+def _conformal_traffic_copy(factor, gamma_tilde, E, B, rho, S_i, S, A):
+    """Reads the conformal call's 13 input rows and writes its 11 output rows, no physics."""
+    for n in numba.prange(rho.shape[0]):
+        a = (factor[n] + gamma_tilde[0, n] + gamma_tilde[1, n] + gamma_tilde[2, n]
+             + gamma_tilde[3, n] + gamma_tilde[4, n] + gamma_tilde[5, n])
+        b = E[0, n] + E[1, n] + E[2, n] + B[0, n] + B[1, n] + B[2, n]
+        rho[n] = a
+        S[n] = b
+        for c in range(3):
+            S_i[c, n] = a
+        for c in range(6):
+            A[c, n] = b
+
+
+def _load():
+    return "load {:.2f} {:.2f} {:.2f}".format(*os.getloadavg())
+
+
+def _conformal_group(n, dtype, layout):
+    """{name: (call, bytes moved)} for one grid size, dtype and layout ("contiguous",
+    "padded", "ghost"), all on the same data."""
+    itemsize = np.dtype(dtype).itemsize
+    full = (n + 6,) * 3 if layout == "ghost" else (n,) * 3
+    gamma, E, B = flat_space_fields(full, dtype)
+    chi = np.random.default_rng(3).uniform(0.5, 1.5, full).astype(dtype)
+    gamma_tilde = (gamma * chi).astype(dtype)
+    phi = (-np.log(chi) / 4).astype(dtype)  # the same metric: e^{-4 phi} = chi
+    arrays = [chi, phi, gamma_tilde, gamma, E, B]
+    if layout == "padded":
+        arrays = [padded_copy(a) for a in arrays]
+    if layout == "ghost":
+        inner = (slice(3, -3),) * 3
+        arrays = [a[inner] if a.ndim == 3 else a[(slice(None),) + inner] for a in arrays]
+    chi, phi, gamma_tilde, gamma, E, B = arrays
+    adm_out = emsource.adm_sources(gamma, E, B)
+    conformal_out = conformal_sources(chi, gamma_tilde, E, B, decomposition="chi")
+    if layout == "padded":
+        adm_out = emsource.AdmSources(*(padded_copy(a) for a in adm_out))
+        conformal_out = ConformalSources(*(padded_copy(a) for a in conformal_out))
+    grid = (n,) * 3
+    adm_bytes, conformal_bytes = (rows * itemsize * n ** 3 for rows in (ADM_ROWS, CONFORMAL_ROWS))
+    cases = {
+        "adm_sources": (lambda: emsource.adm_sources(gamma, E, B, out=adm_out), adm_bytes),
+        "conformal_sources chi": (lambda: conformal_sources(
+            chi, gamma_tilde, E, B, decomposition="chi", out=conformal_out), conformal_bytes),
+        "conformal_sources phi": (lambda: conformal_sources(
+            phi, gamma_tilde, E, B, decomposition="phi",
+            out=conformal_out), conformal_bytes),
+    }
+    # The column loop that served every layout before (run-time decomposition and form).
+    column = arg.three_axis_views([chi, gamma_tilde, E, B, *conformal_out], grid)
+    one = dtype(1)
+    cases["column loop (before), chi"] = (lambda: conformal_kernels.conformal_sources_grid(
+        column[0], column[1], np.arange(6), *column[2:], conformal_kernels.DECOMPOSITION_CHI, 0,
+        dtype(1 / (4 * math.pi)), dtype(arg.pivot_floor(dtype)), one), conformal_bytes)
+    if layout != "ghost":
+        adm_views, flat = arg.kernel_views([gamma, E, B, *adm_out], grid)
+        conformal_views, flat2 = arg.kernel_views([chi, gamma_tilde, E, B, *conformal_out], grid)
+        assert flat and flat2
+        cases["copy, adm traffic"] = (lambda: _same_traffic_copy(*adm_views), adm_bytes)
+        cases["copy, conformal traffic"] = (
+            lambda: _conformal_traffic_copy(*conformal_views), conformal_bytes)
+    return cases
+
+
+IDEAL_MHD_ROWS = 1 + 3 + 6 + 3 + 3 + 3 + 4 + 4  # alpha, beta, gamma, B, v in; E, u, b out
+
+
+def _ideal_mhd_group(n, dtype, layout):
+    """{name: (call, bytes moved)}: ideal_mhd_fields (Eulerian v^i, into ``out``) beside
+    adm_sources and the column loop on the same grid, ``layout`` "contiguous" or "ghost"."""
+    itemsize = np.dtype(dtype).itemsize
+    full = (n + 6,) * 3 if layout == "ghost" else (n,) * 3
+    gamma, E, B = flat_space_fields(full, dtype)
+    rng = np.random.default_rng(4)
+    alpha = rng.uniform(0.8, 1.2, full).astype(dtype)
+    beta = (0.1 * rng.standard_normal((3,) + full)).astype(dtype)
+    velocity = (0.1 * rng.standard_normal((3,) + full)).astype(dtype)
+    arrays = [alpha, beta, gamma, E, B, velocity]
+    if layout == "ghost":
+        inner = (slice(3, -3),) * 3
+        arrays = [a[inner] if a.ndim == 3 else a[(slice(None),) + inner] for a in arrays]
+    alpha, beta, gamma, E, B, velocity = arrays
+    adm_out = emsource.adm_sources(gamma, E, B)
+    mhd_out = ideal_mhd_fields(alpha, beta, gamma, B, velocity)
+    grid = (n,) * 3
+    column = arg.three_axis_views([alpha, beta, gamma, B, velocity, *mhd_out], grid)
+    return {
+        "adm_sources": (lambda: emsource.adm_sources(gamma, E, B, out=adm_out),
+                        ADM_ROWS * itemsize * n ** 3),
+        "ideal_mhd_fields": (lambda: ideal_mhd_fields(alpha, beta, gamma, B, velocity,
+                                                      out=mhd_out),
+                             IDEAL_MHD_ROWS * itemsize * n ** 3),
+        "column loop (before)": (lambda: ideal_mhd_kernels.ideal_mhd_grid(
+            *column[:3], np.arange(6), *column[3:], 0, ideal_mhd_kernels.VELOCITY_EULERIAN,
+            dtype(arg.pivot_floor(dtype)), dtype(1)), IDEAL_MHD_ROWS * itemsize * n ** 3),
+    }
+
+
+def ideal_mhd_section(n, repeat):
+    """ideal_mhd_fields against adm_sources and its column loop, per dtype and layout."""
+    print(f"\nideal MHD, {n}^3, medians of {repeat}; rows moved: ideal MHD {IDEAL_MHD_ROWS}, "
+          f"adm_sources {ADM_ROWS} (ratio {IDEAL_MHD_ROWS / ADM_ROWS:.3f})")
+    triad = Triad()
+    for dtype in (np.float64, np.float32):
+        for layout in ("contiguous", "ghost"):
+            cases = _ideal_mhd_group(n, dtype, layout)
+            before = _load()
+            measured = interleaved(cases, triad, repeat)
+            print(f"\n{np.dtype(dtype).name}, {layout} ({before} before, {_load()} after)")
+            print(f"{'call':30s} {'Mpoints/s':>10s} {'% triad':>8s} {'time / adm':>11s}")
+            adm = measured["adm_sources"][0]
+            for name, (seconds, share) in measured.items():
+                print(f"{name:30s} {n ** 3 / statistics.median(seconds) / 1e6:10.1f} "
+                      f"{100 * share:7.0f}% {paired_ratio(seconds, adm):11.3f}")
+            del cases, measured
+
+
+def conformal_section(n, repeat):
+    """conformal_sources against adm_sources and the yardsticks, per dtype and layout."""
+    print(f"emsource {emsource.__version__}, {numba.get_num_threads()} threads, {n}^3 "
+          f"(ghost: the interior {n}^3 of ({n} + 6)^3), medians of {repeat}, each run right "
+          "after a triad; time ratios paired within a group")
+    print(f"traffic ratio conformal / adm: {CONFORMAL_ROWS} / {ADM_ROWS} rows = "
+          f"{CONFORMAL_ROWS / ADM_ROWS:.3f}")
+    triad = Triad()
+    for dtype in (np.float64, np.float32):
+        for layout in ("contiguous", "padded", "ghost"):
+            cases = _conformal_group(n, dtype, layout)
+            before = _load()
+            measured = interleaved(cases, triad, repeat)
+            print(f"\n{np.dtype(dtype).name}, {layout} ({before} before, {_load()} after)")
+            print(f"{'call':30s} {'Mpoints/s':>10s} {'% triad':>8s} {'time / adm':>11s}")
+            adm = measured["adm_sources"][0]
+            for name, (seconds, share) in measured.items():
+                print(f"{name:30s} {n ** 3 / statistics.median(seconds) / 1e6:10.1f} "
+                      f"{100 * share:7.0f}% {paired_ratio(seconds, adm):11.3f}")
+            del cases, measured
+    gamma, E, B = flat_space_fields((n,) * 3, np.float64)
+    chi = np.random.default_rng(3).uniform(0.5, 1.5, (n,) * 3)
+    gamma_tilde = gamma * chi
+    out = conformal_sources(chi, gamma_tilde, E, B, decomposition="chi")
+    ratios = []
+    for _ in range(3):
+        start = time.perf_counter()
+        numpy_conformal(chi, gamma_tilde, E, B)
+        numpy_seconds = time.perf_counter() - start
+        start = time.perf_counter()
+        conformal_sources(chi, gamma_tilde, E, B, decomposition="chi", out=out)
+        ratios.append(numpy_seconds / (time.perf_counter() - start))
+    print(f"\nplain NumPy, conformal outputs, float64 contiguous: conformal_sources is "
+          f"{statistics.median(ratios):.0f}x faster (median of 3 paired runs; {_load()})")
+
+
 def main(argv=None):
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    parser.add_argument("--points", type=int, default=96)
+    parser.add_argument("--points", type=int, default=None,
+                        help="grid size N (default 96, 128 with --conformal)")
     parser.add_argument("--repeat", type=int, default=7)
+    parser.add_argument("--conformal", action="store_true",
+                        help="conformal_sources against adm_sources and the yardsticks")
+    parser.add_argument("--ideal-mhd", action="store_true",
+                        help="ideal_mhd_fields against adm_sources and its column loop")
     args = parser.parse_args(argv)
+    if args.conformal or args.ideal_mhd:
+        if args.conformal:
+            conformal_section(args.points or 128, args.repeat)
+        if args.ideal_mhd:
+            ideal_mhd_section(args.points or 128, args.repeat)
+        return
+    args.points = args.points or 96
     shape = (args.points,) * 3
     points = math.prod(shape)
     gamma, E, B = flat_space_fields(shape, np.float64)
@@ -55,29 +248,37 @@ def main(argv=None):
                                            (-2, -1))))
     dE, dB = sg * E, sg * B
     out = emsource.adm_sources(gamma, E, B)
+    conformal_out = conformal_sources(chi, gamma_tilde, E, B, decomposition="chi")
     triad = Triad()
     cases = [
-        ("adm_sources, E^i B^i (reference)", 23, lambda: emsource.adm_sources(gamma, E, B, out=out)),
-        ("adm_sources, allocating its outputs", 23, lambda: emsource.adm_sources(gamma, E, B)),
-        ("adm_sources, densitized", 23,
+        ("adm_sources, E^i B^i (reference)", ADM_ROWS,
+         lambda: emsource.adm_sources(gamma, E, B, out=out)),
+        ("adm_sources, allocating its outputs", ADM_ROWS,
+         lambda: emsource.adm_sources(gamma, E, B)),
+        ("adm_sources, densitized", ADM_ROWS,
          lambda: emsource.adm_sources(gamma, dE, dB, out=out, field_index="densitized")),
-        ("conformal_sources (chi)", 1 + 6 + 3 + 3 + 1 + 3 + 1 + 6,
+        ("conformal_sources (chi), out=", CONFORMAL_ROWS,
+         lambda: conformal_sources(chi, gamma_tilde, E, B, decomposition="chi",
+                                   out=conformal_out)),
+        ("conformal_sources (chi), allocating", CONFORMAL_ROWS,
          lambda: conformal_sources(chi, gamma_tilde, E, B, decomposition="chi")),
-        ("plain NumPy, conformal outputs", 24,
+        ("plain NumPy, conformal outputs", CONFORMAL_ROWS,
          lambda: numpy_conformal(chi, gamma_tilde, E, B)),
         ("faraday_tensor (lower)", 1 + 3 + 6 + 6 + 6,
          lambda: faraday_tensor(alpha, beta, gamma, E, B)),
         ("ideal_mhd_fields (eulerian)", 1 + 3 + 6 + 3 + 3 + 3 + 4 + 4,
          lambda: ideal_mhd_fields(alpha, beta, gamma, B, velocity)),
     ]
-    print(f"emsource {emsource.__version__}, {args.points}^3 float64, medians of {args.repeat}")
+    print(f"emsource {emsource.__version__}, {args.points}^3 float64, medians of {args.repeat} "
+          f"({_load()})")
     print(f"{'kernel':36s} {'Mpoints/s':>10s} {'% triad':>8s} {'time / reference':>17s}")
-    reference = None
-    for name, arrays, function in cases:
-        rate, _, share = paired_rates(function, points, arrays * 8 * points, triad, args.repeat)
-        reference = reference or rate
-        print(f"{name:36s} {rate / 1e6:10.1f} {100 * share:7.0f}% {reference / rate:17.2f}")
-
+    measured = interleaved({name: (function, rows * 8 * points)
+                            for name, rows, function in cases}, triad, args.repeat)
+    reference = measured[cases[0][0]][0]
+    for name, (seconds, share) in measured.items():
+        print(f"{name:36s} {points / statistics.median(seconds) / 1e6:10.1f} "
+              f"{100 * share:7.0f}% {paired_ratio(seconds, reference):17.2f}")
+    print(_load())
 
 if __name__ == "__main__":
     main()

@@ -2,6 +2,9 @@
 
 Run:  python benchmarks/vector_code.py
 
+The conformal-source and ideal-MHD drivers (``emsource.kernels.conformal``,
+``emsource.kernels.ideal_mhd``) are counted too.
+
 Numba does not show the machine code of kernels loaded from its disk cache, so this script
 re-runs itself with ``NUMBA_CACHE_DIR`` set to an empty temporary directory, calls the public
 functions on contiguous arrays, padded grid functions, ghost-zone views and component-last data
@@ -35,7 +38,10 @@ def measure():
 
     import emsource
     from emsource.grid_arrays import grid_function_like
-    from emsource.kernels import sources
+    from emsource.conformal import conformal_sources
+    from emsource.ideal_mhd import VELOCITY_KINDS, ideal_mhd_fields
+    from emsource.kernels import conformal, ideal_mhd, sources
+    from emsource.metric_forms import DECOMPOSITIONS
     from emsource.kernels._compile import _SHARED_BY_SIGNATURE
 
     for dtype in (np.float64, np.float32):
@@ -62,6 +68,24 @@ def measure():
         emsource.stress_energy_4d(alpha[ghost[1:]], beta[ghost], gamma[ghost], E[ghost], B[ghost])
         emsource.stress_energy_4d(alpha, *(np.moveaxis(a, 0, -1) for a in (beta, gamma, E, B)),
                                   layout="component_last")
+        # The conformal sources: the drivers over spans (line and window) of every
+        # decomposition for E^i, and the column loop (E with x fastest: no unit stride along z).
+        chi = rng.uniform(0.5, 1.5, grid).astype(dtype)
+        for name in DECOMPOSITIONS:
+            conformal_sources(chi, gamma, E, B, decomposition=name)
+            conformal_sources(chi[ghost[1:]], gamma[ghost], E[ghost], B[ghost],
+                              decomposition=name)
+        x_fastest = np.ascontiguousarray(E.transpose(0, 3, 2, 1)).transpose(0, 3, 2, 1)
+        conformal_sources(chi, gamma, x_fastest, B, decomposition="chi")
+        # Ideal MHD (Eulerian v^i and the spatial part of u^a): line, window, column loop.
+        velocity = (0.1 * E).astype(dtype)
+        for kind in ("eulerian", "four_velocity"):
+            ideal_mhd_fields(alpha, beta, gamma, B, velocity, velocity_kind=kind)
+            ideal_mhd_fields(alpha[ghost[1:]], beta[ghost], gamma[ghost], B[ghost],
+                             velocity[ghost], velocity_kind=kind)
+        ideal_mhd_fields(alpha, beta, gamma, B, x_fastest * dtype(0.1))
+    names = {d.code: d.name for d in DECOMPOSITIONS.values()}
+    kinds = {code: name for name, code in VELOCITY_KINDS.items()}
     forms = {sources.FORM_CONTRAVARIANT: "E^i", sources.FORM_COVARIANT: "E_i",
              sources.FORM_DENSITIZED: "dens."}
 
@@ -69,6 +93,14 @@ def measure():
         """(label, driver) of a table of per-form drivers (keys: form, or (form, upper))."""
         pairs = []
         for key, driver in table.items():
+            if table is conformal.CONFORMAL_SOURCES:  # keys (decomposition, form)
+                decomposition, form = key
+                pairs.append((f"conformal {names[decomposition]} {forms[form]}", driver))
+                continue
+            if table is ideal_mhd.IDEAL_MHD:  # keys (form, velocity kind)
+                form, kind = key
+                pairs.append((f"ideal MHD {forms[form]} {kinds[kind]}", driver))
+                continue
             form, upper = key if isinstance(key, tuple) else (key, False)
             pairs.append((f"{driver.py_func.__name__} {forms[form]}{' up' if upper else ''}",
                           driver))
@@ -77,7 +109,11 @@ def measure():
     drivers = (labelled(sources.ADM_SOURCES_FLAT) + labelled(sources.ADM_SOURCES_WINDOW)
                + [("adm_sources_grid", sources.adm_sources_grid)]
                + labelled(sources.STRESS_ENERGY_FLAT) + labelled(sources.STRESS_ENERGY_WINDOW)
-               + [("stress_energy_grid", sources.stress_energy_grid)])
+               + [("stress_energy_grid", sources.stress_energy_grid)]
+               + labelled(conformal.CONFORMAL_SOURCES)
+               + [("conformal_sources_grid", conformal.conformal_sources_grid)]
+               + labelled(ideal_mhd.IDEAL_MHD)
+               + [("ideal_mhd_grid", ideal_mhd.ideal_mhd_grid)])
     print(f"{'driver':30s} {'first argument':34s} {'xmm':>5s} {'ymm':>5s} {'zmm':>5s} "
           f"{'scalar':>7s}")
     for label, driver in drivers:

@@ -6,17 +6,27 @@ Decompositions (codes of :mod:`emsource.metric_forms`), with tilde-gamma_ij the 
     DECOMPOSITION_CHI: gamma_ij = tilde-gamma_ij / chi,        rescale = chi
     DECOMPOSITION_W:   gamma_ij = tilde-gamma_ij / W^2,        rescale = W^2    (W = sqrt(chi))
     DECOMPOSITION_PHI: gamma_ij = e^{4 phi} tilde-gamma_ij,    rescale = e^{-4 phi}
+
+Loops. :data:`CONFORMAL_SOURCES` holds one vectorised driver per (decomposition, input form),
+both constants in its loop (built here, compiled on first use), over arrays given as 1-D spans:
+contiguous data and padded rows as a line cut into strips, ghost-zone windows as columns (see
+:func:`_conformal_sources_for` and DEVELOPERS.md "Vectorised point loops").
+:func:`conformal_sources_grid` is the column loop over strided views, with the decomposition and
+form as run-time arguments, for every other layout. Both inline :func:`_conformal_values`.
 """
 
 from __future__ import annotations
 
 import math
 
+import numpy as np
 from numba import prange
 
 from ._compile import grid_kernel, point_function
 from .electromagnetic import fields_both_indices, point_is_valid, projections, sqrt_determinant
 from .metric import metric_at, metric_factors
+from .sources import INPUT_FORMS, _span_metric_fields
+from .vector_loops import count_flag, packed_rows, span_start, window_column
 
 DECOMPOSITION_CHI = 0
 DECOMPOSITION_W = 1
@@ -54,12 +64,51 @@ def physical_metric_grid(factor, tgamma, gidx, gamma, decomposition, one):
                 gamma[c, i, j, k] = tgamma[gidx[c], i, j, k] * ic
 
 
+@point_function
+def _conformal_values(factor, txx, txy, txz, tyy, tyz, tzz, f1, f2, f3, f4, f5, f6,
+                      decomposition, form, coef, half, third, pivot_floor):
+    """rho, S_x, S_y, S_z and the packed A_ij at one point from its conformal factor, conformal
+    metric and stored field components, and the check as an integer: 1 if the point fails
+    (conformal factor, metric not positive definite, non-finite input or output), else 0.
+
+    An integer, not a boolean, for the reason :func:`emsource.kernels.sources._adm_values`
+    gives (a boolean returned from a large inlined function stopped LLVM vectorising there).
+    """
+    one = half + half
+    c = conformal_rescale(decomposition, factor, one)
+    ic = one / c
+    gxx, gxy, gxz = txx * ic, txy * ic, txz * ic
+    gyy, gyz, gzz = tyy * ic, tyz * ic, tzz * ic
+    d1, d2, d3, l21, l31, l32 = metric_factors(gxx, gxy, gxz, gyy, gyz, gzz, one)
+    sg = sqrt_determinant(d1, d2, d3)
+    fields = fields_both_indices(form, gxx, gxy, gxz, gyy, gyz, gzz, d1, d2, d3, l21, l31, l32,
+                                 f1, f2, f3, f4, f5, f6, one)
+    r, sx, sy, sz, sxx, sxy, sxz, syy, syz, szz, _e2 = projections(
+        gxx, gxy, gxz, gyy, gyz, gzz, sg, fields, coef, half)
+    trace = third * r
+    a0 = c * sxx - trace * txx
+    a1 = c * sxy - trace * txy
+    a2 = c * sxz - trace * txz
+    a3 = c * syy - trace * tyy
+    a4 = c * syz - trace * tyz
+    a5 = c * szz - trace * tzz
+    # c (NaN for a factor that is not positive) and S_x join rho's bound of the outputs.
+    ok = point_is_valid(d1, d2, d3, pivot_floor * (gxx + gyy + gzz),
+                        r * (one + gxx + gyy + gzz) + c + sx)
+    return r, sx, sy, sz, a0, a1, a2, a3, a4, a5, 0 if ok else 1
+
+
 @grid_kernel
 def conformal_sources_grid(factor, tgamma, gidx, E, B, rho, S_i, S, A, decomposition, form,
                            coef, pivot_floor, one):
     """rho, S_i, S and A_ij = c (S_ij - gamma_ij S / 3) = c S_ij - tilde-gamma_ij S / 3 over
     strided (ncomp, nx, ny, nz) arrays; returns the count of bad points (conformal factor,
-    metric not positive definite, non-finite input or output)."""
+    metric not positive definite, non-finite input or output).
+
+    The column loop (scalar code, run-time ``decomposition`` and ``form``): layouts without a
+    unit stride along z. Contiguous data, padded rows and ghost-zone windows take the
+    vectorised drivers :data:`CONFORMAL_SOURCES`.
+    """
     nx, ny, nz = rho.shape
     bad = 0
     third = one / (one + one + one)
@@ -69,33 +118,119 @@ def conformal_sources_grid(factor, tgamma, gidx, E, B, rho, S_i, S, A, decomposi
         j = column - i * ny
         count = 0
         for k in range(nz):
-            c = conformal_rescale(decomposition, factor[i, j, k], one)
-            ic = one / c
             txx, txy, txz, tyy, tyz, tzz = metric_at(tgamma, gidx, i, j, k)
-            gxx, gxy, gxz = txx * ic, txy * ic, txz * ic
-            gyy, gyz, gzz = tyy * ic, tyz * ic, tzz * ic
-            d1, d2, d3, l21, l31, l32 = metric_factors(gxx, gxy, gxz, gyy, gyz, gzz, one)
-            sg = sqrt_determinant(d1, d2, d3)
-            fields = fields_both_indices(form, gxx, gxy, gxz, gyy, gyz, gzz, d1, d2, d3,
-                                         l21, l31, l32, E[0, i, j, k], E[1, i, j, k],
-                                         E[2, i, j, k], B[0, i, j, k], B[1, i, j, k],
-                                         B[2, i, j, k], one)
-            r, sx, sy, sz, sxx, sxy, sxz, syy, syz, szz, _e2 = projections(
-                gxx, gxy, gxz, gyy, gyz, gzz, sg, fields, coef, half)
+            r, sx, sy, sz, a0, a1, a2, a3, a4, a5, status = _conformal_values(
+                factor[i, j, k], txx, txy, txz, tyy, tyz, tzz, E[0, i, j, k], E[1, i, j, k],
+                E[2, i, j, k], B[0, i, j, k], B[1, i, j, k], B[2, i, j, k], decomposition, form,
+                coef, half, third, pivot_floor)
             rho[i, j, k] = r
             S[i, j, k] = r  # the electromagnetic stress-energy is traceless: S = rho
             S_i[0, i, j, k] = sx
             S_i[1, i, j, k] = sy
             S_i[2, i, j, k] = sz
-            trace = third * r
-            A[0, i, j, k] = c * sxx - trace * txx
-            A[1, i, j, k] = c * sxy - trace * txy
-            A[2, i, j, k] = c * sxz - trace * txz
-            A[3, i, j, k] = c * syy - trace * tyy
-            A[4, i, j, k] = c * syz - trace * tyz
-            A[5, i, j, k] = c * szz - trace * tzz
-            ok = point_is_valid(d1, d2, d3, pivot_floor * (gxx + gyy + gzz),
-                                r * (one + gxx + gyy + gzz) + c + sx)
-            count += 0 if ok else 1
+            A[0, i, j, k] = a0
+            A[1, i, j, k] = a1
+            A[2, i, j, k] = a2
+            A[3, i, j, k] = a3
+            A[4, i, j, k] = a4
+            A[5, i, j, k] = a5
+            count += status
         bad += count
     return bad
+
+
+@point_function
+def _conformal_window_column(factor, tgamma, metric_rows, E, e1, B, b1, rho, S_i, v1, S, A, a1,
+                             steps, i, j, nz, decomposition, form, coef, half, third,
+                             pivot_floor):
+    """Column (i, j), ``nz`` points, of arrays given as spans (the drivers of
+    :data:`CONFORMAL_SOURCES`); returns the column's count of bad points in the data's dtype."""
+    zero = half - half
+    one = half + half
+    at_f = span_start(steps, 0, i, j)
+    at_g = span_start(steps, 1, i, j)
+    at_e = span_start(steps, 2, i, j)
+    at_b = span_start(steps, 3, i, j)
+    at_rho = span_start(steps, 4, i, j)
+    at_v = span_start(steps, 5, i, j)
+    at_s = span_start(steps, 6, i, j)
+    at_a = span_start(steps, 7, i, j)
+    bad = zero
+    for k in range(nz):
+        (txx, txy, txz, tyy, tyz, tzz, f1, f2, f3, f4, f5, f6) = _span_metric_fields(
+            tgamma, metric_rows, at_g + k, E, e1, at_e + k, B, b1, at_b + k)
+        r, sx, sy, sz, c0, c1, c2, c3, c4, c5, status = _conformal_values(
+            factor[at_f + k], txx, txy, txz, tyy, tyz, tzz, f1, f2, f3, f4, f5, f6,
+            decomposition, form, coef, half, third, pivot_floor)
+        rho[at_rho + k] = r
+        S[at_s + k] = r
+        v = at_v + k
+        S_i[v] = sx
+        S_i[v1 + v] = sy
+        S_i[v1 + v1 + v] = sz
+        t = at_a + k
+        A[t] = c0
+        A[a1 + t] = c1
+        A[a1 + a1 + t] = c2
+        t = a1 + a1 + a1 + t
+        A[t] = c3
+        A[a1 + t] = c4
+        A[a1 + a1 + t] = c5
+        bad += count_flag(status, one, zero)
+    return bad
+
+
+def _conformal_sources_for(decomposition, form):
+    """The conformal-source driver of one (decomposition, input form), both constants in its
+    loop: one compiled loop for contiguous data, padded rows and ghost-zone windows alike."""
+
+    @grid_kernel
+    def conformal_sources_spans(factor, tgamma, gidx, E, B, rho, S_i, S, A, steps, shape, last,
+                                coef, pivot_floor, one, check):
+        """rho, S_i, S, A_ij over arrays given as 1-D spans of their memory (factor,
+        tilde-gamma, E, B, rho, S_i, S, A: rows of ``steps`` in this order); returns the count
+        of bad points (0 with ``check`` False).
+
+        Array a holds component c of point (i, j, k) at c steps[a, 0] + i steps[a, 1]
+        + j steps[a, 2] + k (uint64 element steps), for (i, j) the columns of ``shape`` =
+        (nx, ny, nz) and k below nz, or below ``last`` in the last column. A window (ghost zones
+        sliced off, :func:`emsource._arguments.unit_stride_spans`) has last = nz; a contiguous
+        line of npoints (C-contiguous arrays, padded rows) is cut into strips as the columns of
+        (1, strips, strip length) with steps (row stride, 0, strip length) and the last strip's
+        length (:func:`~.vector_loops.line_as_strips`). Either way the loop along k reads and
+        writes unit-stride rows and vectorises (:mod:`~emsource.kernels.vector_loops`), and one
+        compiled driver serves both routes (half the first compilation of a flat and a
+        windowed driver apiece).
+        """
+        ny = np.uint64(shape[1])
+        nz = np.uint64(shape[2])
+        final = shape[0] * shape[1] - 1
+        metric_rows = packed_rows(gidx, steps[1, 0])
+        e1 = steps[2, 0]
+        b1 = steps[3, 0]
+        v1 = steps[5, 0]
+        a1 = steps[7, 0]
+        third = one / (one + one + one)
+        half = one / (one + one)
+        bad_count = 0
+        for column in prange(shape[0] * shape[1]):
+            i, j = window_column(column, ny)
+            length = nz if column != final else np.uint64(last)
+            bad = _conformal_window_column(factor, tgamma, metric_rows, E, e1, B, b1, rho, S_i,
+                                           v1, S, A, a1, steps, i, j, length, decomposition,
+                                           form, coef, half, third, pivot_floor)
+            if check:
+                bad_count += int(bad)
+        return bad_count
+
+    return conformal_sources_spans
+
+
+# ------------------------------------------------ one driver per (decomposition, form)
+# The decomposition and the input form are constants in each of these drivers' loops (as the
+# input form in kernels/sources.py: LLVM does not unswitch a run-time branch of the point
+# physics). The dispatchers are made here; each compiles on first use only.
+DECOMPOSITIONS = (DECOMPOSITION_CHI, DECOMPOSITION_W, DECOMPOSITION_PHI)
+#: The conformal-source driver of each (decomposition, input form) over spans.
+CONFORMAL_SOURCES = {(d, form): _conformal_sources_for(d, form)
+                     for d in DECOMPOSITIONS for form in INPUT_FORMS}

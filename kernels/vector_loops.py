@@ -35,7 +35,7 @@ from ._compile import point_function
 
 __all__ = ["STRIP_POINTS", "SHORTEST_STRIP", "SMALL_GRID_STRIPS", "window_column", "span_start",
            "packed_rows", "strip_length", "strip_count", "strip_range",
-           "count_flag"]
+           "count_flag", "line_as_strips"]
 
 #: Points per strip of a flat loop on a large grid: float32 counts per strip stay exact.
 STRIP_POINTS = 1024
@@ -102,3 +102,12 @@ def packed_rows(gidx, step):
     step is ``step``)."""
     return (np.uint64(gidx[0]) * step, np.uint64(gidx[1]) * step, np.uint64(gidx[2]) * step,
             np.uint64(gidx[3]) * step, np.uint64(gidx[4]) * step, np.uint64(gidx[5]) * step)
+
+
+def line_as_strips(npoints):
+    """A line of ``npoints`` points (C-contiguous or padded rows) cut into strips of
+    :func:`strip_length` points, described as the columns of a window for a driver over spans:
+    ((1, strips, strip length), length of the last strip). Plain Python, for the wrappers."""
+    length = strip_length.py_func(npoints)
+    count = strip_count.py_func(npoints, length)
+    return (1, count, length), npoints - (count - 1) * length

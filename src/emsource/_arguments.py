@@ -440,6 +440,38 @@ def unit_stride_spans(views):
     return spans, steps, tuple(int(n) for n in shape)
 
 
+def driver_spans(views, grid, flat: bool):
+    """``views`` (from :func:`kernel_views`, ``flat`` as it said) as the arguments of a driver
+    over spans that takes whole lines and windows alike (the conformal sources, ideal MHD):
+    ``(spans, steps, shape, last)``, or None where the views need the column loop.
+
+    A flat line of npoints (C-contiguous arrays, padded rows) becomes the window
+    (1, strips, strip length) of :func:`emsource.kernels.vector_loops.line_as_strips`, each
+    array a 1-D span with steps (row stride, 0, strip length) and ``last`` the length of the last
+    strip; other views go through :func:`unit_stride_spans` (``last`` = nz).
+    """
+    from .kernels.vector_loops import line_as_strips
+
+    if not flat:
+        found = unit_stride_spans(views)
+        if found is None:
+            return None
+        spans, steps, shape = found
+        return spans, steps, shape, shape[2]
+    npoints = 1
+    for n in grid:
+        npoints *= n
+    shape, last = line_as_strips(npoints)
+    steps = np.zeros((len(views), 3), np.uint64)
+    steps[:, 2] = shape[2]
+    spans = []
+    for position, view in enumerate(views):
+        if view.ndim == 2:
+            steps[position, 0] = view.shape[1]
+        spans.append(view.reshape(-1))
+    return spans, steps, shape, last
+
+
 def _span(view: np.ndarray, extent: int) -> np.ndarray:
     """A C-contiguous 1-D array of ``extent`` elements starting at ``view``'s first element."""
     owner = view

@@ -47,6 +47,7 @@ from . import _arguments as arg
 from ._threading import kernel_call
 from .faraday import raise_for_bad_points
 from .input_forms import input_form
+from .kernels._compile import call_sharing_layouts
 from .kernels import conformal as kernels
 from .metric_forms import decomposition as find_decomposition
 from .unit_systems import stress_energy_prefactor
@@ -88,6 +89,33 @@ def _conformal_inputs(function, factor, gamma_tilde, grid, decomposition):
     return code, f, metric, gidx
 
 
+def _run_conformal_kernel(decomposition, form, gidx, arrays, grid, dtype, prefactor, check):
+    """One call of the conformal-source driver on ``arrays`` (factor, tilde-gamma, E, B, rho,
+    S_i, S, A_ij, checked and component-first); returns the count of bad points.
+
+    C-contiguous data and padded rows are one line of points, cut into strips; views
+    contiguous along z (ghost zones sliced off) are windows: both go to the vectorised driver of
+    (decomposition, form) over spans (:data:`emsource.kernels.conformal.CONFORMAL_SOURCES`,
+    :func:`emsource._arguments.driver_spans`). Everything else (no unit stride along z,
+    negative strides) takes the column loop.
+    """
+    views, flat = arg.kernel_views(arrays, grid)
+    physics = (dtype.type(prefactor), dtype.type(arg.pivot_floor(dtype)), dtype.type(1))
+    with kernel_call():
+        found = arg.driver_spans(views, grid, flat)
+        if found is None:  # the column loop, run-time decomposition and form; every mix of
+            # strided inputs shares one specialisation
+            f, metric, e, b, *outputs = views
+            return call_sharing_layouts(
+                kernels.conformal_sources_grid,
+                (f, metric, gidx, e, b, *outputs, decomposition, form, *physics), (0, 1, 3, 4))
+        (f, metric, e, b, *outputs), steps, shape, last = found
+        return call_sharing_layouts(
+            kernels.CONFORMAL_SOURCES[decomposition, form],
+            (f, metric, gidx, e, b, *outputs, steps, shape, last, *physics, bool(check)),
+            (0, 1, 3, 4))
+
+
 def _bad_factor_reason(decomposition, factor):
     return (f"{'chi' if decomposition == 'chi' else 'W'} must be positive" if decomposition != "phi"
             else "phi overflows exp(-4 phi)")
@@ -127,7 +155,7 @@ def physical_metric(conformal_factor, gamma_tilde, *, decomposition):
 
 
 def conformal_sources(conformal_factor, gamma_tilde, E, B, *, decomposition, units="gaussian",
-                      field_index="upper", check=True) -> ConformalSources:
+                      field_index="upper", check=True, out=None) -> ConformalSources:
     r"""rho, S_i, S and the rescaled trace-free stress A_ij from conformal variables.
 
     Parameters
@@ -145,6 +173,11 @@ def conformal_sources(conformal_factor, gamma_tilde, E, B, *, decomposition, uni
     check : bool
         Raise :class:`GridPointError` at the first point with non-finite input or output, a
         chi or W that is not positive, or a physical metric that is not positive definite.
+    out : ConformalSources or tuple of 4 ndarrays, optional
+        Preallocated (rho, S_i, S, A_ij) in the shapes below and the inputs' dtype, so that a
+        right-hand side evaluated every step allocates nothing (padded grid functions of
+        :mod:`emsource.grid_arrays` are welcome). They must not overlap the inputs. After an
+        error they may hold partial results.
 
     Returns
     -------
@@ -175,16 +208,20 @@ def conformal_sources(conformal_factor, gamma_tilde, E, B, *, decomposition, uni
     b = arg.vector(function, "B", B, grid, "component_first")
     names = ("conformal_factor", "gamma_tilde", "E", "B")
     dtype = arg.common_dtype(function, names, (conformal_factor, gamma_tilde, E, B))
-    result = ConformalSources(np.empty(grid, dtype), np.empty((3,) + grid, dtype),
-                              np.empty(grid, dtype), np.empty((6,) + grid, dtype))
+    shapes = (grid, (3,) + grid, grid, (6,) + grid)
+    if out is None:
+        result = ConformalSources(*(np.empty(shape, dtype) for shape in shapes))
+    else:
+        if not isinstance(out, tuple) or len(out) != 4:
+            raise TypeError(f"{function}: out must be a ConformalSources or a tuple "
+                            f"(rho, S_i, S, A_ij), found {type(out).__name__}")
+        result = ConformalSources(*out)
+        arg.outputs(function, ConformalSources._fields, result, shapes, (0, 1, 0, 1), dtype,
+                    "component_first", names, (conformal_factor, gamma_tilde, E, B))
     if not arg.has_points(grid):
         return result
-    views = arg.three_axis_views([f, metric, e, b, *result], grid)
-    with kernel_call():
-        count = kernels.conformal_sources_grid(views[0], views[1], gidx, *views[2:], code,
-                                               form.code, dtype.type(prefactor),
-                                               dtype.type(arg.pivot_floor(dtype)),
-                                               dtype.type(1))
+    count = _run_conformal_kernel(code, form.code, gidx, [f, metric, e, b, *result], grid,
+                                  dtype, prefactor, check)
     if check and count:
         physical = physical_metric(conformal_factor, gamma_tilde, decomposition=decomposition)
         positive = f if decomposition != "phi" else np.exp(-4.0 * f.astype(float))

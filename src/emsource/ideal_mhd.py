@@ -63,6 +63,7 @@ from ._threading import kernel_call
 from .faraday import raise_for_bad_points
 from .input_forms import input_form
 from .kernels import ideal_mhd as kernels
+from .kernels._compile import call_sharing_layouts
 
 __all__ = ["VELOCITY_KINDS", "IdealMhdFields", "ideal_mhd_fields"]
 
@@ -90,7 +91,7 @@ class IdealMhdFields(NamedTuple):
 
 
 def ideal_mhd_fields(alpha, beta, gamma, B, velocity, *, velocity_kind="eulerian",
-                     field_index="upper", check=True) -> IdealMhdFields:
+                     field_index="upper", check=True, out=None) -> IdealMhdFields:
     r"""E^i from the ideal-MHD condition F_ab u^b = 0, with u^a and b^a (module docstring).
 
     Parameters
@@ -111,6 +112,9 @@ def ideal_mhd_fields(alpha, beta, gamma, B, velocity, *, velocity_kind="eulerian
         Raise :class:`GridPointError` at the first point with non-finite input or output, a
         lapse that is not positive, a metric that is not positive definite, a velocity not
         below light, or (four_velocity) a shift with |beta|_gamma >= alpha.
+    out : IdealMhdFields or tuple of 3 ndarrays, optional
+        Preallocated (E, u, b) in the shapes below and the inputs' dtype; not overlapping the
+        inputs. After an error they may hold partial results.
 
     Returns
     -------
@@ -139,17 +143,35 @@ def ideal_mhd_fields(alpha, beta, gamma, B, velocity, *, velocity_kind="eulerian
     v_in = arg.vector(function, "velocity", velocity, grid, "component_first")
     names = ("alpha", "beta", "gamma", "B", "velocity")
     dtype = arg.common_dtype(function, names, (alpha, beta, gamma, B, velocity))
-    E = np.empty((3,) + grid, dtype)
-    u = np.empty((4,) + grid, dtype)
-    b = np.empty((4,) + grid, dtype)
-    result = IdealMhdFields(E, u, b)
+    shapes = ((3,) + grid, (4,) + grid, (4,) + grid)
+    if out is None:
+        result = IdealMhdFields(*(np.empty(shape, dtype) for shape in shapes))
+    else:
+        if not isinstance(out, tuple) or len(out) != 3:
+            raise TypeError(f"{function}: out must be an IdealMhdFields or a tuple (E, u, b), "
+                            f"found {type(out).__name__}")
+        result = IdealMhdFields(*out)
+        arg.outputs(function, IdealMhdFields._fields, result, shapes, (1, 1, 1), dtype,
+                    "component_first", names, (alpha, beta, gamma, B, velocity))
+    E, u, b = result
     if not arg.has_points(grid):
         return result
-    views = arg.three_axis_views([lapse, shift, metric, b_in, v_in, E, u, b], grid)
+    views, flat = arg.kernel_views([lapse, shift, metric, b_in, v_in, E, u, b], grid)
+    kind = VELOCITY_KINDS[velocity_kind]
+    physics = (dtype.type(arg.pivot_floor(dtype)), dtype.type(1))
     with kernel_call():
-        count = kernels.ideal_mhd_grid(*views[:3], gidx, *views[3:], form.code,
-                                       VELOCITY_KINDS[velocity_kind],
-                                       dtype.type(arg.pivot_floor(dtype)), dtype.type(1))
+        found = arg.driver_spans(views, grid, flat)
+        if found is None:  # the column loop (run-time form and kind), one specialisation for
+            # every mix of strided inputs
+            count = call_sharing_layouts(
+                kernels.ideal_mhd_grid, (*views[:3], gidx, *views[3:], form.code, kind, *physics),
+                (0, 1, 2, 4, 5))
+        else:  # contiguous lines and ghost-zone windows: the vectorised driver of (form, kind)
+            spans, steps, shape, last = found
+            count = call_sharing_layouts(
+                kernels.IDEAL_MHD[form.code, kind],
+                (*spans[:3], gidx, *spans[3:], steps, shape, last, *physics, bool(check)),
+                (0, 1, 2, 4, 5))
     if check and count:  # the stacked outputs are built on the error path only
         raise_for_bad_points(
             function, count, grid, {"alpha": lapse, "beta": shift, "B": b_in, "velocity": v_in,

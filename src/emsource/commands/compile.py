@@ -5,7 +5,8 @@ run, of any command or of the Python API, loads it. This command calls every pub
 on tiny grids in the common signatures: float64 and float32, contiguous, padded grid
 functions (the sources' flat driver takes contiguous 3-D arrays whole and padded ones as rows:
 two signatures), ghost zones sliced off (the windowed drivers of the sources and T_ab; the
-column loops of the others) and component-last data (the column loops of the sources and T_ab).
+column loops of the others) and component-last data (the column loops of the sources and T_ab);
+and the conformal sources of chi and E^i in float64 (one driver for contiguous data and windows).
 With ``--diagnostics`` also the conservation and constraint kernels (float64, the difference
 orders share one signature), which take minutes.
 """
@@ -46,6 +47,7 @@ def common_signatures():
     """(name, call) pairs that together compile the sources, T_ab and flux kernels in their
     common signatures."""
     import emsource
+    from emsource.conformal import conformal_sources
     from emsource.energy_flux import energy_fluxes
     from emsource.grid_arrays import grid_function_like
 
@@ -78,6 +80,11 @@ def common_signatures():
                           layout="component_last")))
         calls.append((f"energy fluxes, {name}",
                       lambda al=alpha, be=beta, ga=gamma, e=E, b=B: energy_fluxes(al, be, ga, e, b)))
+    # The conformal sources of chi and E^i, float64: contiguous data and ghost-zone windows share
+    # one compiled driver (emsource.kernels.conformal.CONFORMAL_SOURCES).
+    _, _, gamma, E, B = _flat_space((6, 6, 6), np.float64)
+    calls.append(("conformal sources, chi, float64",
+                  lambda: conformal_sources(np.ones((6, 6, 6)), gamma, E, B, decomposition="chi")))
     return calls
 
 
