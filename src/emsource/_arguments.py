@@ -17,6 +17,7 @@ from .grid_arrays import rows_of
 from .input_forms import FORMS
 from .kernels import input_checks
 from .kernels._compile import call_sharing_layouts
+from .kernels.vector_loops import line_as_strips
 
 #: Flat indices, into a full (3, 3) block seen as 9, of the packed (xx, xy, xz, yy, yz, zz).
 FULL_METRIC_INDEX = (0, 1, 2, 4, 5, 8)
@@ -450,8 +451,6 @@ def driver_spans(views, grid, flat: bool):
     array a 1-D span with steps (row stride, 0, strip length) and ``last`` the length of the last
     strip; other views go through :func:`unit_stride_spans` (``last`` = nz).
     """
-    from .kernels.vector_loops import line_as_strips
-
     if not flat:
         found = unit_stride_spans(views)
         if found is None:
