@@ -153,6 +153,23 @@ def spatial_metric(function: str, value, grid, layout: str):
     )
 
 
+def outputs_or_new(function: str, kind, out, shapes: tuple, component_axes: tuple, dtype,
+                   input_names: tuple, inputs: tuple):
+    """The outputs of ``function`` as a ``kind`` (a NamedTuple class): new arrays of ``shapes``
+    and ``dtype`` when ``out`` is None, else ``out`` (a ``kind`` or a plain tuple of as many
+    arrays) checked by :func:`outputs` (component-first layout)."""
+    if out is None:
+        return kind(*(np.empty(shape, dtype) for shape in shapes))
+    if not isinstance(out, tuple) or len(out) != len(kind._fields):
+        article = "an" if kind.__name__[0] in "AEIOU" else "a"
+        raise TypeError(f"{function}: out must be {article} {kind.__name__} or a tuple "
+                        f"({', '.join(kind._fields)}), found {type(out).__name__}")
+    result = kind(*out)
+    outputs(function, kind._fields, result, shapes, component_axes, dtype, "component_first",
+            input_names, inputs)
+    return result
+
+
 def outputs(function: str, names: tuple, values: tuple, shapes: tuple, component_axes: tuple,
             dtype, layout: str, input_names: tuple, inputs: tuple) -> list:
     """Check caller-supplied output arrays and return their component-first views.

@@ -208,16 +208,9 @@ def conformal_sources(conformal_factor, gamma_tilde, E, B, *, decomposition, uni
     b = arg.vector(function, "B", B, grid, "component_first")
     names = ("conformal_factor", "gamma_tilde", "E", "B")
     dtype = arg.common_dtype(function, names, (conformal_factor, gamma_tilde, E, B))
-    shapes = (grid, (3,) + grid, grid, (6,) + grid)
-    if out is None:
-        result = ConformalSources(*(np.empty(shape, dtype) for shape in shapes))
-    else:
-        if not isinstance(out, tuple) or len(out) != 4:
-            raise TypeError(f"{function}: out must be a ConformalSources or a tuple "
-                            f"(rho, S_i, S, A_ij), found {type(out).__name__}")
-        result = ConformalSources(*out)
-        arg.outputs(function, ConformalSources._fields, result, shapes, (0, 1, 0, 1), dtype,
-                    "component_first", names, (conformal_factor, gamma_tilde, E, B))
+    result = arg.outputs_or_new(function, ConformalSources, out,
+                                (grid, (3,) + grid, grid, (6,) + grid), (0, 1, 0, 1), dtype,
+                                names, (conformal_factor, gamma_tilde, E, B))
     if not arg.has_points(grid):
         return result
     count = _run_conformal_kernel(code, form.code, gidx, [f, metric, e, b, *result], grid,

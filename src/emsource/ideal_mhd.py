@@ -143,16 +143,9 @@ def ideal_mhd_fields(alpha, beta, gamma, B, velocity, *, velocity_kind="eulerian
     v_in = arg.vector(function, "velocity", velocity, grid, "component_first")
     names = ("alpha", "beta", "gamma", "B", "velocity")
     dtype = arg.common_dtype(function, names, (alpha, beta, gamma, B, velocity))
-    shapes = ((3,) + grid, (4,) + grid, (4,) + grid)
-    if out is None:
-        result = IdealMhdFields(*(np.empty(shape, dtype) for shape in shapes))
-    else:
-        if not isinstance(out, tuple) or len(out) != 3:
-            raise TypeError(f"{function}: out must be an IdealMhdFields or a tuple (E, u, b), "
-                            f"found {type(out).__name__}")
-        result = IdealMhdFields(*out)
-        arg.outputs(function, IdealMhdFields._fields, result, shapes, (1, 1, 1), dtype,
-                    "component_first", names, (alpha, beta, gamma, B, velocity))
+    result = arg.outputs_or_new(function, IdealMhdFields, out,
+                                ((3,) + grid, (4,) + grid, (4,) + grid), (1, 1, 1), dtype,
+                                names, (alpha, beta, gamma, B, velocity))
     E, u, b = result
     if not arg.has_points(grid):
         return result
