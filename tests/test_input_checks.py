@@ -112,3 +112,14 @@ def test_one_and_two_dimensional_grids_and_strided_views(rng, monkeypatch):
         named["E"][(0,) + (1,) * len(grid)] = np.inf
         assert numpy_verdict(monkeypatch, named, None, grid)
         assert counted(named, None, grid) > 0
+
+
+def test_other_dtypes_go_to_the_numpy_check(rng, monkeypatch):
+    # float16 and long double are not types the kernels take: the NumPy check decides alone.
+    alpha, beta, gamma, E, B = random_curved_data(rng, GRID)
+    for dtype in (np.float16, np.longdouble):
+        named = {"alpha": alpha, "beta": beta, "gamma": gamma, "E": E.astype(dtype), "B": B}
+        assert counted(named, None) == 1
+        arg.check_points("f", GRID, named, lapse="alpha", metric=("gamma", gamma, INDEX))
+        named["E"][(0, 1, 1, 1)] = np.inf
+        assert numpy_verdict(monkeypatch, named, None)

@@ -579,8 +579,8 @@ def _suspect_points(grid, named: dict, where, lapse, metric) -> int:
         if a is None:
             continue
         a = np.asarray(a)
-        if a.dtype.kind != "f":
-            return 1  # not a float array: let the NumPy test decide
+        if a.dtype not in FLOAT_DTYPES:
+            return 1  # not float32 or float64 (the kernels' types): the NumPy test decides
         values = a.reshape((-1,) + three_d)
         with kernel_call():
             total += call_sharing_layouts(input_checks.nonfinite_points, (values, valid), (0, 1))
@@ -590,7 +590,7 @@ def _suspect_points(grid, named: dict, where, lapse, metric) -> int:
     if metric is not None:
         _, m, index = metric
         m = np.asarray(m)
-        if m.dtype.kind != "f":
+        if m.dtype not in FLOAT_DTYPES:
             return 1
         values = m.reshape((-1,) + three_d)
         eps = np.finfo(values.dtype).eps
