@@ -7,6 +7,19 @@ for compilation only on its first run on a machine; tests reuse a few dtypes and
 import numpy as np
 import pytest
 
+#: Tests that call kernels in many signatures (the compile command) or in fresh processes that
+#: each compile what is not yet on disk (MPI ranks): run last, when the other tests have put most
+#: of those kernels into Numba's disk cache, so that a cold run does not compile them twice at
+#: once in two workers. Order only; every test still runs.
+RUN_LAST = ("tests/test_compile_notice.py::test_compile_command_calls_every_common_signature",
+            "tests/test_patches_mpi.py::")
+
+
+def pytest_collection_modifyitems(config, items):
+    late = [item for item in items if item.nodeid.startswith(RUN_LAST)]
+    if late:
+        items[:] = [item for item in items if not item.nodeid.startswith(RUN_LAST)] + late
+
 
 @pytest.fixture
 def rng():
