@@ -25,8 +25,9 @@ from numba import prange
 from ._compile import grid_kernel, point_function
 from .electromagnetic import fields_both_indices, point_is_valid, projections, sqrt_determinant
 from .metric import metric_at, metric_factors
-from .sources import INPUT_FORMS, _span_metric_fields
-from .vector_loops import count_flag, packed_rows, span_start, window_column
+from .sources import INPUT_FORMS
+from .vector_loops import (count_flag, packed_rows, span_metric_fields, span_start,
+                           window_column)
 
 DECOMPOSITION_CHI = 0
 DECOMPOSITION_W = 1
@@ -157,7 +158,7 @@ def _conformal_window_column(factor, tgamma, metric_rows, E, e1, B, b1, rho, S_i
     at_a = span_start(steps, 7, i, j)
     bad = zero
     for k in range(nz):
-        (txx, txy, txz, tyy, tyz, tzz, f1, f2, f3, f4, f5, f6) = _span_metric_fields(
+        (txx, txy, txz, tyy, tyz, tzz, f1, f2, f3, f4, f5, f6) = span_metric_fields(
             tgamma, metric_rows, at_g + k, E, e1, at_e + k, B, b1, at_b + k)
         r, sx, sy, sz, c0, c1, c2, c3, c4, c5, status = _conformal_values(
             factor[at_f + k], txx, txy, txz, tyy, tyz, tzz, f1, f2, f3, f4, f5, f6,

@@ -63,8 +63,8 @@ from .electromagnetic import (
 )
 from .metric import inverse_metric, metric_factors
 from .point_checks import is_finite
-from .vector_loops import (count_flag, packed_rows, span_start, strip_count, strip_length,
-                           strip_range, window_column)
+from .vector_loops import (count_flag, packed_rows, span_metric_fields, span_start, strip_count,
+                           strip_length, strip_range, window_column)
 
 
 @point_function
@@ -293,18 +293,6 @@ def _adm_sources_flat_for(form):
 
 
 @point_function
-def _span_metric_fields(gamma, metric_rows, g, E, e_step, e, B, b_step, b):
-    """The six packed metric components and the six stored field components at one point of
-    windows given as spans (:mod:`~emsource.kernels.vector_loops`): ``g``, ``e``, ``b`` are the
-    point's offsets in the three spans, ``metric_rows`` the metric's component offsets, and
-    ``e_step``, ``b_step`` the field spans' component steps."""
-    r0, r1, r2, r3, r4, r5 = metric_rows
-    return (gamma[r0 + g], gamma[r1 + g], gamma[r2 + g], gamma[r3 + g], gamma[r4 + g],
-            gamma[r5 + g], E[e], E[e_step + e], E[e_step + e_step + e], B[b], B[b_step + b],
-            B[b_step + b_step + b])
-
-
-@point_function
 def _adm_window_column(gamma, metric_rows, E, e1, B, b1, rho, S_i, v1, S_ij, t1, S, steps, i, j,
                        nz, form, coef, half, tiny, pivot_floor):
     """Column (i, j) of windows given as spans, as :func:`adm_sources_window`; returns the
@@ -321,7 +309,7 @@ def _adm_window_column(gamma, metric_rows, E, e1, B, b1, rho, S_i, v1, S_ij, t1,
     bad = zero
     low = zero
     for k in range(nz):
-        (gxx, gxy, gxz, gyy, gyz, gzz, f1, f2, f3, f4, f5, f6) = _span_metric_fields(
+        (gxx, gxy, gxz, gyy, gyz, gzz, f1, f2, f3, f4, f5, f6) = span_metric_fields(
             gamma, metric_rows, at_g + k, E, e1, at_e + k, B, b1, at_b + k)
         r, sx, sy, sz, sxx, sxy, sxz, syy, syz, szz, status = _adm_values(
             gxx, gxy, gxz, gyy, gyz, gzz, f1, f2, f3, f4, f5, f6,
@@ -465,7 +453,7 @@ def _stress_energy_window_column(alpha, beta, s1, gamma, metric_rows, E, e1, B, 
     bad = zero
     low = zero
     for k in range(nz):
-        (gxx, gxy, gxz, gyy, gyz, gzz, f1, f2, f3, f4, f5, f6) = _span_metric_fields(
+        (gxx, gxy, gxz, gyy, gyz, gzz, f1, f2, f3, f4, f5, f6) = span_metric_fields(
             gamma, metric_rows, at_g + k, E, e1, at_e + k, B, b1, at_b + k)
         v = at_s + k
         c0, c1, c2, c3, c4, c5, c6, c7, c8, c9, status = _stress_energy_values(

@@ -35,7 +35,7 @@ from ._compile import point_function
 
 __all__ = ["STRIP_POINTS", "SHORTEST_STRIP", "SMALL_GRID_STRIPS", "window_column", "span_start",
            "packed_rows", "strip_length", "strip_count", "strip_range",
-           "count_flag", "line_as_strips"]
+           "count_flag", "line_as_strips", "span_metric_fields"]
 
 #: Points per strip of a flat loop on a large grid: float32 counts per strip stay exact.
 STRIP_POINTS = 1024
@@ -104,6 +104,19 @@ def packed_rows(gidx, step):
             np.uint64(gidx[3]) * step, np.uint64(gidx[4]) * step, np.uint64(gidx[5]) * step)
 
 
+@point_function
+def span_metric_fields(gamma, metric_rows, g, E, e_step, e, B, b_step, b):
+    """The six packed metric components and the six stored field components at one point of
+    windows given as spans: ``g``, ``e``, ``b`` are the point's offsets in the three spans,
+    ``metric_rows`` the metric's component offsets (:func:`packed_rows`), and ``e_step``,
+    ``b_step`` the field spans' component steps. Shared by the source, T_ab and conformal
+    drivers over spans."""
+    r0, r1, r2, r3, r4, r5 = metric_rows
+    return (gamma[r0 + g], gamma[r1 + g], gamma[r2 + g], gamma[r3 + g], gamma[r4 + g],
+            gamma[r5 + g], E[e], E[e_step + e], E[e_step + e_step + e], B[b], B[b_step + b],
+            B[b_step + b_step + b])
+
+
 def line_as_strips(npoints):
     """A line of ``npoints`` points (C-contiguous or padded rows) cut into strips of
     :func:`strip_length` points, described as the columns of a window for a driver over spans:
@@ -111,3 +124,4 @@ def line_as_strips(npoints):
     length = strip_length.py_func(npoints)
     count = strip_count.py_func(npoints, length)
     return (1, count, length), npoints - (count - 1) * length
+
