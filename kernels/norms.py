@@ -12,7 +12,7 @@ precision.
 Accuracy: a column's sum of squares is accumulated in float64, n_z terms of one sign, so its
 relative error is at most (n_z - 1) eps (common practice: the error bound of recursive
 summation, N. J. Higham, Accuracy and Stability of Numerical Algorithms, 2nd ed. (2002),
-section 4.2); the columns are then summed as before.
+section 4.2, section number from memory); the columns are then summed as before.
 
 A NaN among the summed values makes the maximum NaN, as ``np.max`` does (the sum of squares is
 NaN exactly then: the terms are squares, so no inf - inf arises).

@@ -29,8 +29,8 @@ def _fields(rng, grid):
 
 def _assert_same(got, want, nz):
     # Each column is summed in float64 (n_z terms of one sign: relative error <= (n_z - 1) eps,
-    # Higham, Accuracy and Stability of Numerical Algorithms, section 4.2), the reference in
-    # long double; the maxima are the same values picked in either order.
+    # Higham, Accuracy and Stability of Numerical Algorithms, section 4.2, from memory), the
+    # reference in long double; the maxima are the same values picked in either order.
     assert got.count == want.count
     eps = np.finfo(np.float64).eps
     for name in ("square_sum", "scale_square_sum"):
