@@ -20,8 +20,9 @@ Prints medians of repeated runs on a Kerr-Newman box for orders 2, 4, 6:
   process started with NUMBA_CPU_FEATURES set for that width, before and after the kernels;
   8 independent chains of 16 multiply-adds per element, both threads), the highest rate
   measured in the run (at any width) being the peak used, and beside it the derived figure
-  (cores x clock x 2 FMA ports x 8 lanes x 2, the port count from memory); the bare kernel
-  compiled for 256- and 512-bit vectors (child processes); and the roofline: operations per
+  (cores x clock x 2 FMA ports x 8 lanes x 2, the port count from memory); the kernel at
+  LLVM's default vector width (the same source with its ``prefer_512_bit_vectors()`` call left
+  out, ``kernel_revision.variant_module``; interleaved with the kernel); and the roofline: operations per
   byte moved times the triad bandwidth, the rate at which the kernel would be bound by memory
   instead.
 
@@ -36,7 +37,7 @@ import time
 import numpy as np
 
 from constraint_flops import BEFORE, PACKED_PAIR, POINT_AT_A_TIME, flops_per_point
-from kernel_revision import revision_module
+from kernel_revision import revision_module, variant_module
 from emsource.constraints import adm_constraints, interior_points
 from emsource.exact import kerr_newman
 from emsource.grid import UniformGrid
@@ -139,9 +140,9 @@ def width_of_this_process():
     return "256-bit"
 
 
-def child_figures(width, task, repeats):
-    """Run this script with ``--child TASK`` in a process whose LLVM emits ``width`` vectors;
-    returns the numbers it prints (GFLOP/s for "peak", milliseconds per order for "kernel")."""
+def child_peak(width, repeats):
+    """The multiply-add peak in GFLOP/s, measured by this script run with ``--peak-child`` in a
+    process whose LLVM emits ``width`` vectors."""
     import os
     import subprocess
     import sys
@@ -150,14 +151,13 @@ def child_figures(width, task, repeats):
     environment.pop("NUMBA_CPU_FEATURES", None)
     if WIDTHS[width]:
         environment["NUMBA_CPU_FEATURES"] = host_features() + WIDTHS[width]
-    result = subprocess.run([sys.executable, os.path.abspath(__file__), "--child", task,
-                             "--points", str(CHILD_POINTS), str(repeats)], env=environment,
+    result = subprocess.run([sys.executable, os.path.abspath(__file__), "--peak-child",
+                             "64", str(repeats)], env=environment,
                             capture_output=True, text=True, check=True)
-    return [float(x) for x in result.stdout.split()]
+    return float(result.stdout)
 
-
-#: Grid of the kernel timings in child processes (set from the command line).
-CHILD_POINTS = 64
+#: The kernel's request for 512-bit vectors, left out of its default-width variant.
+WIDTH_REQUEST = "        prefer_512_bit_vectors()\n"
 
 
 def derived_peak(threads):
@@ -339,29 +339,12 @@ def kernel_call(grid, d, rho, S, order):
     return bare, outs, (ev, w1, w2, inv_h)
 
 
-def child(task, n, repeats):
-    """What a child process of :func:`child_figures` prints."""
-    import numba
-
-    if task == "peak":
-        print(f"{measured_peak(numba.get_num_threads(), repeats):.3f}")
-        return
-    grid, d, rho, S = kernel_data(n)
-    figures = []
-    for order in (2, 4, 6):
-        bare = kernel_call(grid, d, rho, S, order)[0]
-        bare()
-        figures.append(median_time(bare, repeats) * 1e3)
-    print(" ".join(f"{x:.4f}" for x in figures))
-
-
 def main():
     import argparse
     import os
 
     import numba
 
-    global CHILD_POINTS
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("points", nargs="?", type=int, default=64, help="points per axis (64)")
     parser.add_argument("repeats", nargs="?", type=int, default=5,
@@ -369,15 +352,13 @@ def main():
     parser.add_argument("--rev", default=BEFORE,
                         help=f"git revision of kernels/constraints.py timed as the before "
                              f"(default {BEFORE})")
-    parser.add_argument("--child", choices=("peak", "kernel"), help=argparse.SUPPRESS)
-    parser.add_argument("--points", dest="child_points", type=int, help=argparse.SUPPRESS)
+    parser.add_argument("--peak-child", action="store_true", help=argparse.SUPPRESS)
     options = parser.parse_args()
-    if options.child:
-        child(options.child, options.child_points, options.repeats)
+    threads = numba.get_num_threads()
+    if options.peak_child:  # the child process of child_peak: print the peak, nothing else
+        print(f"{measured_peak(threads, options.repeats):.3f}")
         return
     n, repeats = options.points, options.repeats
-    CHILD_POINTS = n
-    threads = numba.get_num_threads()
     own_width = width_of_this_process()
 
     grid, d, src_rho, src_S = kernel_data(n)
@@ -394,7 +375,7 @@ def main():
     triad_bw = 3 * 8 * m / t_triad
     # The multiply-add peak at every width, each in a child process (LLVM's width is fixed per
     # process), before and after the kernels; the own width again beside each order.
-    width_peaks = {w: child_figures(w, "peak", repeats) for w in WIDTHS}
+    width_peaks = {w: [child_peak(w, repeats)] for w in WIDTHS}
     peaks = [measured_peak(threads, repeats)]
     print(f"triad: {triad_bw / 1e9:.2f} GB/s (3 arrays counted); multiply-add peak at the start: "
           + ", ".join(f"{w} {v[0]:.1f}" for w, v in width_peaks.items())
@@ -404,6 +385,8 @@ def main():
     bytes_per_point = 24 * 8 + 1
     before_kernel = revision_module(options.rev, "constraints").adm_constraints_grid
     point_kernel = revision_module(POINT_AT_A_TIME, "constraints").adm_constraints_grid
+    default_width_kernel = variant_module("constraints", "default_width",
+                                          [(WIDTH_REQUEST, "")]).adm_constraints_grid
     results = {}
     for order in (2, 4, 6):
         bare, outs, (ev, w1, w2, inv_h) = kernel_call(grid, d, src_rho, src_S, order)
@@ -418,15 +401,21 @@ def main():
             point_kernel(d.gamma, d.K, src_rho, src_S, ev, w1, w2, inv_h, PACKED_PAIR,
                          16 * math.pi, 8 * math.pi, *scratch)
 
+        def default_width():
+            default_width_kernel(d.gamma, d.K, src_rho, src_S, ev, w1, w2, inv_h, 16 * math.pi,
+                                 8 * math.pi, *scratch)
+
         def probe():
             _stencil_probe(d.gamma, d.K, src_rho, src_S, ev, w1, w2, inv_h, *scratch)
 
         bare()
         main_kernel()
         point_at_a_time()
+        default_width()
         probe()
         peaks.append(measured_peak(threads, repeats))
-        t_bare, t_main, t_probe = interleaved_medians((bare, main_kernel, probe), repeats)
+        t_bare, t_main, t_default, t_probe = interleaved_medians(
+            (bare, main_kernel, default_width, probe), repeats)
         peaks.append(measured_peak(threads, repeats))
         t_point = median_time(point_at_a_time, repeats)
         t_public = median_time(lambda: adm_constraints(d.gamma, d.K, d.E, d.B, spacing=h,
@@ -448,6 +437,9 @@ def main():
               f"this kernel takes {t_bare / t_main:5.3f} of its time (max |difference| of H, M "
               f"{agree:.1e}); point-at-a-time kernel at {POINT_AT_A_TIME} "
               f"{npts / t_point / 1e6:7.2f} Mpoint/s ({t_point / t_bare:4.2f}x this kernel's time)")
+        print(f"         the same kernel at LLVM's default width (interleaved) "
+              f"{t_default * 1e3:6.1f} ms: with 512-bit vectors it takes {t_bare / t_default:5.3f} "
+              f"of that time")
         print(f"         stencils and traffic alone (same buffer, no algebra): "
               f"{t_probe / t_bare:4.2f} of the kernel's time")
         print(f"         multiply-add peak beside this order ({own_width}): {peaks[-2]:.1f} and "
@@ -463,8 +455,7 @@ def main():
                   f"kernel is {t_np / t_bare:5.1f}x faster; max |difference| {diff:.1e}")
 
     for w, v in width_peaks.items():
-        v.extend(child_figures(w, "peak", repeats))
-    kernel_by_width = {w: child_figures(w, "kernel", repeats) for w in ("256-bit", "512-bit")}
+        v.append(child_peak(w, repeats))
     # The peak is the highest rate measured in this run, at any width and in any process: other
     # jobs on a shared machine only slow a measurement down, so the highest one is the closest
     # to what the machine can do (a median would lower the peak and flatter the kernel).
@@ -482,9 +473,6 @@ def main():
     print(f"peak used: the highest measured, {best:.1f} GFLOP/s ({best_width}; {own_width}: "
           f"{own:.1f}); derived: "
           + (f"{derived:.0f} GFLOP/s = {how}" if derived else how))
-    print("the bare kernel compiled for each width (child processes, ms at order 2 / 4 / 6): "
-          + "; ".join(f"{w} " + " / ".join(f"{x:.1f}" for x in v)
-                      for w, v in kernel_by_width.items()))
     for order, r in results.items():
         flops, t_bare, npts = r["flops"], r["t_bare"], r["npts"]
         rate = flops * npts / t_bare / 1e9

@@ -10,7 +10,8 @@ between runs. The module is entered in ``sys.modules`` under a name of its own p
 Numba records a cached kernel's module by name and imports it again when it loads the kernel
 from its disk cache, so a module missing there made the second run of a benchmark fail
 ("No module named '<dynamic>'"), and two revisions of one kernel must not share a name.
-Needs a git checkout of the project (benchmarks only).
+``variant_module`` loads the current file with a text edit the same way (one change of a
+kernel timed beside the kernel). Needs a git checkout of the project (benchmarks only).
 """
 
 from __future__ import annotations
@@ -24,7 +25,7 @@ import tempfile
 
 ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
 
-__all__ = ["revision_module"]
+__all__ = ["revision_module", "variant_module"]
 
 
 def revision_module(rev: str, kernel: str):
@@ -37,11 +38,33 @@ def revision_module(rev: str, kernel: str):
         return sys.modules[name]
     source = subprocess.run(["git", "show", f"{rev}:kernels/{kernel}.py"], cwd=ROOT, check=True,
                             capture_output=True, text=True).stdout
-    directory = os.path.join(tempfile.gettempdir(), f"emsource-revision-{rev}")
+    return _load(name, f"emsource-revision-{rev}", f"{kernel}_{tag}.py", source)
+
+
+def variant_module(kernel: str, tag: str, edits):
+    """The current ``kernels/<kernel>.py`` with each (old, new) text of ``edits`` replaced once,
+    as the module ``emsource.kernels._variant_<tag>_<kernel>``: the same kernel with one change
+    (a call left out, say), timed beside the current one. Raises ValueError where an old text
+    is not in the file (the kernel changed under the benchmark)."""
+    name = f"emsource.kernels._variant_{tag}_{kernel}"
+    if name in sys.modules:
+        return sys.modules[name]
+    with open(os.path.join(ROOT, "kernels", f"{kernel}.py")) as handle:
+        source = handle.read()
+    for old, new in edits:
+        if old not in source:
+            raise ValueError(f"variant {tag!r} of kernels/{kernel}.py: text not found: {old!r}")
+        source = source.replace(old, new, 1)
+    return _load(name, "emsource-variants", f"{kernel}_{tag}.py", source)
+
+
+def _load(name, folder, file_name, source):
+    """Import ``source`` as module ``name`` from ``file_name`` in a temporary ``folder``."""
+    directory = os.path.join(tempfile.gettempdir(), folder)
     os.makedirs(directory, exist_ok=True)
     # A file name of its own: cache entries written before the module had a name in sys.modules
     # (under the old file name) recorded no importable module and cannot be loaded.
-    path = os.path.join(directory, f"{kernel}_{tag}.py")
+    path = os.path.join(directory, file_name)
     try:
         with open(path) as handle:
             unchanged = handle.read() == source

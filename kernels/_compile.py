@@ -17,6 +17,9 @@ Why these options:
 - ``error_model="numpy"``: division by zero gives inf/nan like NumPy instead of raising,
   so the loop body has no Python-exception branch and can vectorise.
 - Thread count is Numba's own (``NUMBA_NUM_THREADS``, ``numba.set_num_threads``).
+- Vector width is LLVM's choice for the host (256-bit on CPUs with 512-bit vectors, where LLVM
+  prefers 256); a kernel whose loops measured faster with 512-bit vectors asks for them in its
+  parallel loop's body with :func:`prefer_512_bit_vectors` (per loop body, not per process).
 
 The disk cache and inlined point functions. Numba keys a cached kernel on the source of the
 file that defines it; a kernel inlines point functions from other files of this folder
@@ -36,8 +39,9 @@ import threading
 import numba
 import numpy as np
 from numba.core import types
+from numba.extending import intrinsic, overload
 
-__all__ = ["FASTMATH_FLAGS", "grid_kernel", "point_function", "search_kernel", "tree_stamp",
+__all__ = ["FASTMATH_FLAGS", "grid_kernel", "prefer_512_bit_vectors", "PREFERRED_WIDTH_ATTRIBUTE", "point_function", "search_kernel", "tree_stamp",
            "install_tree_stamp", "KERNEL_DIRECTORY", "call_sharing_layouts", "shared_dispatcher",
            "specialisations"]
 
@@ -103,6 +107,50 @@ def _grid_options():
 def grid_kernel(function):
     """Compile ``function`` as a parallel, disk-cached grid kernel (lazily, per signature)."""
     return numba.njit(**_grid_options())(function)
+
+
+#: The LLVM function attribute that sets a function's vector width (:func:`prefer_512_bit_vectors`).
+PREFERRED_WIDTH_ATTRIBUTE = "prefer-vector-width"
+
+
+def prefer_512_bit_vectors():
+    """Compile the function that calls this (a kernel's ``prange`` body: Numba compiles it as a
+    function of its own) for 512-bit vectors. No run-time effect; a no-op in plain Python (the
+    operation counter of ``benchmarks/constraint_flops.py`` runs kernels uncompiled).
+
+    LLVM's x86 back end takes the vector width of its loop vectoriser per function, from the
+    function attribute ``"prefer-vector-width"``; without one, a CPU with 512-bit registers gets
+    256-bit code (LLVM's tuning for these CPUs, where 512-bit instructions may lower the clock).
+    Numba sets that width once per process, for every kernel, through ``NUMBA_CPU_FEATURES``.
+    This call writes the attribute on the one function whose lowering it is part of (it is
+    inlined there), so that a kernel measured faster with wide vectors gets them and the others
+    keep the default. On a CPU without 512-bit vectors the preference is a cap that the
+    hardware does not reach and LLVM keeps its widest legal width (LLVM's X86Subtarget, from
+    memory; ``tests/test_vector_width.py`` checks it on the machine it runs on). llvmlite
+    accepts only a fixed list of attribute keywords, so the string attribute enters its
+    attribute set through ``set.add``; the same test reads it back from the compiled IR.
+    """
+
+
+_WIDTH_512 = f'"{PREFERRED_WIDTH_ATTRIBUTE}"="512"'
+
+
+@intrinsic
+def _mark_512_bit_vectors(typingctx):
+    def codegen(context, builder, signature, arguments):
+        set.add(builder.function.attributes, _WIDTH_512)
+        return context.get_dummy_value()
+
+    return types.none(), codegen
+
+
+@overload(prefer_512_bit_vectors, inline="always")
+def _prefer_512_bit_vectors_compiled():
+    # Inlined into the caller's Numba IR, so that the intrinsic is lowered into the caller.
+    def implementation():
+        _mark_512_bit_vectors()
+
+    return implementation
 
 
 # ------------------------------------------------------------------ one specialisation per layout
