@@ -158,14 +158,22 @@ class SizeCases:
 
 
 def interleaved(cases, triad, repeat):
-    """{name: (median seconds, median share of the paired triad)} of ``cases``
-    {name: (function, bytes moved)}, run in turn, each right after a triad, ``repeat`` times."""
+    """{name: (seconds of each repetition, median share of the paired triad)} of ``cases``
+    {name: (function, bytes moved)}, run in turn, each right after a triad, ``repeat`` times.
+
+    Repetition r starts at case r (mod the number of cases): with a fixed order, a case always
+    follows the same one, and a case's time depends on what ran before it (the call right after
+    the C kernel was the slowest of a round whatever it was, measured); rotating spreads that
+    over every case alike."""
     for function, _ in cases.values():
         function()  # warm-up: compilation, page faults
     seconds = {name: [] for name in cases}
     shares = {name: [] for name in cases}
-    for _ in range(repeat):
-        for name, (function, bytes_moved) in cases.items():
+    names = list(cases)
+    for repetition in range(repeat):
+        first = repetition % len(names)
+        for name in names[first:] + names[:first]:
+            function, bytes_moved = cases[name]
             reference = triad.bandwidth_once()
             start = time.perf_counter()
             function()
@@ -178,6 +186,12 @@ def interleaved(cases, triad, repeat):
 def paired_ratio(numerators, denominators):
     """Median of the ratios of timings taken in the same repetition."""
     return statistics.median(a / b for a, b in zip(numerators, denominators))
+
+
+def paired_quartiles(numerators, denominators):
+    """First and third quartiles of the same ratios (the spread a median comes from)."""
+    low, _, high = statistics.quantiles([a / b for a, b in zip(numerators, denominators)], n=4)
+    return low, high
 
 
 def ghost_cases(n, dtype):
@@ -251,7 +265,10 @@ def main(argv=None):
                     f"(speed); float32 / float64 points per second {float_ratio:.2f} "
                     "(from the triad shares)")
             if ("float64", "C", layout) in results:
-                line += f"; time emsource / C {paired_ratio(api, results[('float64', 'C', layout)]):.2f}"
+                c_time = results[("float64", "C", layout)]
+                low, high = paired_quartiles(api, c_time)
+                line += (f"; time emsource / C {paired_ratio(api, c_time):.3f} "
+                         f"(quartiles {low:.3f}-{high:.3f})")
             print(line)
         print(f"  padded / contiguous time: kernel "
               f"{paired_ratio(results[('float64', 'api', 'padded')], results[('float64', 'api', 'contiguous')]):.2f}, "
