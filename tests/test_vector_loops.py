@@ -177,7 +177,7 @@ def _driver_counts(arrays, route):
     out = [np.empty(gamma.shape[1:], dtype), np.empty((3,) + gamma.shape[1:], dtype),
            np.empty((6,) + gamma.shape[1:], dtype), np.empty(gamma.shape[1:], dtype)]
     constants = arg.kernel_constants(0, dtype, 1 / (4 * math.pi))
-    gidx = np.arange(6)
+    gidx = arg.PACKED_METRIC_INDEX  # the package's own argument type: no compilation of its own
     if route == "flat":
         return tuple(kernels.ADM_SOURCES_FLAT[0](gamma, gidx, E, B, *out, *constants[1:], True))
     # Through the route the package takes, which shares one compiled specialisation per layout.
