@@ -297,14 +297,22 @@ def kernel_constants(form: int, dtype, prefactor: float) -> tuple:
     constants = _KERNEL_CONSTANTS.get(key)
     if constants is None:
         dtype = np.dtype(dtype)
-        constants = (form, dtype.type(prefactor), dtype.type(0.5), smallest_normal(dtype),
-                     pivot_floor(dtype))
-        if dtype == np.float64:
-            # Python floats: Numba types them float64 as it does NumPy's float64 scalars (the
-            # same compiled kernel), and unboxes them about 50 ns faster each per call.
-            constants = (form,) + tuple(float(c) for c in constants[1:])
+        constants = (form,) + kernel_scalars(dtype, prefactor, 0.5, smallest_normal(dtype),
+                                             pivot_floor(dtype))
         _KERNEL_CONSTANTS[key] = constants
     return constants
+
+
+def kernel_scalars(dtype, *values) -> tuple:
+    """``values`` rounded to ``dtype``, as a kernel's scalar arguments: NumPy scalars of
+    ``dtype`` (float32 data stay float32), but Python floats for float64: Numba types them
+    float64 as it does NumPy's float64 scalars (the same compiled kernel), and unboxes them
+    about 50 ns faster each per call."""
+    dtype = np.dtype(dtype)
+    scalars = tuple([dtype.type(v) for v in values])
+    if dtype == np.float64:
+        return tuple([float(v) for v in scalars])
+    return scalars
 
 
 #: Relative floor of the metric pivots, per dtype (see :func:`pivot_floor`).
