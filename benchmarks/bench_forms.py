@@ -29,7 +29,9 @@ makes at every right-hand side (adm_sources, the reference; conformal_sources; s
 ideal_mhd_fields) on an 8^3 float64 grid, into ``out``, checks on, on one thread: C-contiguous
 arrays and padded grid functions with the stored plan of the call's signature
 (``emsource._call_plans``), and C-contiguous with every plan dropped before each call (the full
-validation). Beside them, in the same run: a one-thread triad over the same 8^3 points (a compiled
+validation, which then also makes and stores the plan: the cost of a first call); and each
+call's compiled driver alone on its plan's views (Numba's dispatch and the work on 512 points,
+no Python around it; its ratio is to adm_sources' driver). Beside them, in the same run: a one-thread triad over the same 8^3 points (a compiled
 call on this many points: the floor of any call) and plain NumPy computing the conformal outputs.
 The figure is CPU time per call (``time.process_time`` over a block of calls, divided), since the
 machine is shared: wall time would count time spent waiting for a core. Blocks of the cases run
@@ -293,12 +295,51 @@ def _small_call_cases(n=8):
             cases[f"{name}, {layout}"] = call
             if layout == "contiguous":
                 cases[f"{name}, contiguous, full validation"] = _dropping_plans(call, caches)
+        if layout == "contiguous":
+            arguments = {"adm_sources": ((gamma, E, B), adm_out),
+                         "conformal_sources (chi)": ((chi, gamma_tilde, E, B), conformal_out),
+                         "stress_energy_4d (T_ab)": ((alpha, beta, gamma, E, B), (t_out,)),
+                         "ideal_mhd_fields (eulerian)": ((alpha, beta, gamma, B, velocity),
+                                                         mhd_out)}
+            for name, call in calls.items():
+                call()  # stores the plan
+                cases[f"{name}, contiguous, its kernel alone"] = _kernel_alone(
+                    name, *arguments[name])
     a, b, c = np.zeros(n ** 3), np.ones(n ** 3), np.full(n ** 3, 2.0)
     cases["yardstick: compiled triad, 8^3 points"] = lambda: _serial_triad(a, b, c, 3.0)
     gamma, E, B, chi, gamma_tilde = contiguous[:5]
     cases["yardstick: plain NumPy, conformal outputs"] = lambda: numpy_conformal(
         chi, gamma_tilde, E, B)
     return cases
+
+
+def _kernel_alone(name, inputs, outputs):
+    """The compiled driver of a public call on the views its stored plan gives: Numba's
+    dispatch and the work on the grid's points, no Python around them (the plans' internals:
+    ``emsource._call_plans``; what each function keeps in a plan's ``extra``)."""
+    from emsource import _call_plans, conformal, ideal_mhd, sources
+
+    caches = {"adm_sources": (sources._ADM_PLANS, ("gaussian", "upper", "component_first")),
+              "conformal_sources (chi)": (conformal._CONFORMAL_PLANS,
+                                          ("chi", "gaussian", "upper")),
+              "stress_energy_4d (T_ab)": (sources._STRESS_ENERGY_PLANS,
+                                          ("gaussian", "lower", "upper", "component_first")),
+              "ideal_mhd_fields (eulerian)": (ideal_mhd._IDEAL_MHD_PLANS, ("eulerian", "upper"))}
+    cache, options = caches[name]
+    arrays = tuple(inputs) + tuple(outputs)
+    plan = cache.get(_call_plans.signature(arrays, options))
+    v = plan.views(arrays)
+    if name == "adm_sources":
+        gidx, constants = plan.extra
+        kernel = sources.kernels.ADM_SOURCES_FLAT[constants[0]]
+        return lambda: kernel(v[0], gidx, *v[1:], *constants[1:], True)
+    if name.startswith("stress_energy_4d"):
+        gidx, constants = plan.extra
+        kernel = sources.kernels.STRESS_ENERGY_FLAT[constants[0], constants[-1]]
+        return lambda: kernel(*v[:3], gidx, *v[3:], *constants[1:-1], True)
+    driver, gidx, tail = plan.extra
+    first = 2 if name.startswith("conformal") else 3  # arrays before the metric indices
+    return lambda: driver(*v[:first], gidx, *v[first:], *tail, True)
 
 
 def small_call_section(calls, rounds=15):
@@ -325,6 +366,8 @@ def small_call_section(calls, rounds=15):
     for name, values in seconds.items():
         layout = "padded" if name.endswith("padded") else "contiguous"
         reference = seconds[f"adm_sources, {layout}"]
+        if name.endswith("kernel alone"):
+            reference = seconds["adm_sources, contiguous, its kernel alone"]
         print(f"{name:58s} {1e6 * statistics.median(values):11.2f} "
               f"{paired_ratio(values, reference):14.2f}")
 

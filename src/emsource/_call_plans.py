@@ -91,7 +91,7 @@ def call_signature(inputs: tuple, out, kind, options: tuple):
     if kind is None:
         return signature(inputs + (out,), options)
     if (type(out) is kind or type(out) is tuple) and len(out) == len(kind._fields):
-        return signature(inputs + tuple(out), options)
+        return signature(inputs + out, options)  # a tuple (the sum of two tuples)
     return None
 
 
@@ -239,12 +239,9 @@ class PlanCache:
     def __init__(self, capacity: int = 64):
         self.capacity = capacity
         self._plans = {}
-
-    def get(self, key):
-        """The plan stored under ``key`` (None: no key, or not stored)."""
-        if key is None:
-            return None
-        return self._plans.get(key)
+        #: The plan stored under a key (None: no key, or not stored; None is never a key).
+        #: The dictionary's own method: a Python method around it costs 0.1-0.2 us per call.
+        self.get = self._plans.get
 
     def put(self, key, plan) -> None:
         if key is None or plan is None:
