@@ -240,7 +240,8 @@ def conformal_sources(conformal_factor, gamma_tilde, E, B, *, decomposition, uni
         return result
     count, spans, extra = _run_conformal_kernel(code, form.code, gidx, [f, metric, e, b, *result],
                                                 grid, dtype, prefactor, check)
-    if spans is not None:  # after every check passed: a plan is what a full validation derived
+    if spans is not None and key is not None:  # after every check passed: a plan is what a
+        # full validation derived
         _CONFORMAL_PLANS.put(key, FlatPlan.of(inputs + result, spans, grid, dtype, extra,
                                               outputs=4))
     if check and count:

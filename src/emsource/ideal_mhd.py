@@ -181,7 +181,8 @@ def ideal_mhd_fields(alpha, beta, gamma, B, velocity, *, velocity_kind="eulerian
         driver = shared_dispatcher(kernels.IDEAL_MHD[form.code, kind], arguments, _DRIVER_INPUTS)
         with kernel_call():
             count = driver(*arguments)
-        if flat:  # after every check passed: a plan is what a full validation derived
+        if flat and key is not None:  # after every check passed: a plan is what a full
+            # validation derived
             _IDEAL_MHD_PLANS.put(key, FlatPlan.of(inputs + result, spans, grid, dtype,
                                                   (driver, gidx, tail), outputs=3))
     if check and count:

@@ -272,7 +272,7 @@ def adm_sources(gamma, E, B, *, units="gaussian", field_index="upper",
         return result
     kernel_views, flat = arg.kernel_views([metric, e, b] + views, grid, whole_grids=True)
     constants = arg.kernel_constants(form, dtype, prefactor)
-    if layout == "component_first":
+    if layout == "component_first" and key is not None:
         # Only now, after every check passed: a plan is what a full validation derived.
         _ADM_PLANS.put(key, FlatPlan.of(inputs + result, kernel_views, grid, dtype,
                                         (gidx, constants), outputs=4))
@@ -384,7 +384,7 @@ def stress_energy_4d(alpha, beta, gamma, E, B, *, units="gaussian", index="lower
         return result
     views, flat = arg.kernel_views([lapse, shift, metric, e, b, t_view], grid)
     constants = arg.kernel_constants(form, dtype, prefactor) + (index == "upper",)
-    if layout == "component_first" and flat:
+    if layout == "component_first" and flat and key is not None:
         # Only now, after every check passed: a plan is what a full validation derived.
         _STRESS_ENERGY_PLANS.put(key, FlatPlan.of(inputs + (result,), views, grid, dtype,
                                                   (gidx, constants), outputs=1))
