@@ -19,9 +19,10 @@ each call asks the allocator for that array's block again (:func:`emsource.grid_
 an identity lookup), and takes the full path when it has none (a view the caller made).
 
 Where a plan applies: every array exactly an ``ndarray`` (subclasses take the full path), of one
-dtype, aligned, either C-contiguous (so each kernel view is a reshape, which for the same shape
-and strides is always a view, never a copy) or an allocator's padded array, and the options plain
-``str``. Everything else validates in full.
+dtype, either C-contiguous (so each kernel view is a reshape, which for the same shape and
+strides is always a view, never a copy) or an allocator's padded array, and the options plain
+``str``; unaligned arrays are keyed apart from aligned ones (compiled code is typed by
+alignment). Everything else validates in full.
 
 The steps of a public call with a plan (:func:`call_signature`, :meth:`PlanCache.get`,
 :func:`planned_outputs`; after a full validation :meth:`FlatPlan.of` and :meth:`PlanCache.put`)
