@@ -427,11 +427,10 @@ def test_the_allocator_forgets_an_array_when_it_dies():
 class PlannedCall:
     """One public call with plans: its inputs from random data, its outputs, its plan cache."""
 
-    def __init__(self, name, function, cache, kind, output_components, make_inputs,
-                 input_names, defaults, changed):
-        self.name, self.function, self.cache, self.kind = name, function, cache, kind
+    def __init__(self, function, cache, kind, output_components, make_inputs, defaults, changed):
+        self.function, self.cache, self.kind = function, cache, kind
         self.output_components = output_components  # () for a scalar output
-        self.make_inputs, self.input_names = make_inputs, input_names
+        self.make_inputs = make_inputs
         self.defaults = defaults  # the options as the key holds them (defaults made explicit)
         self.changed = changed  # {option: another valid value}
 
@@ -443,13 +442,13 @@ class PlannedCall:
         return arrays[0] if self.kind is None else self.kind(*arrays)
 
     def out_arrays(self, out):
+        """The output arrays of a result or an ``out``, as a tuple."""
         return (out,) if self.kind is None else tuple(out)
+
+    results = out_arrays
 
     def __call__(self, inputs, out=None, **options):
         return self.function(*inputs, out=out, **options)
-
-    def results(self, result):
-        return self.out_arrays(result)
 
     def plan_for(self, inputs, out=None, **options):
         """The stored plan a call with these arrays and options looks up, or None."""
@@ -474,30 +473,28 @@ def _ideal_mhd_inputs(spacetime):
     return (alpha, 0.1 * beta, gamma, B, 0.1 * E)
 
 
+def _conformal_sources(*arrays, decomposition="chi", **options):
+    return conformal.conformal_sources(*arrays, decomposition=decomposition, **options)
+
+
 CALLS = {
     "conformal_sources": PlannedCall(
-        "conformal_sources", conformal.conformal_sources, conformal._CONFORMAL_PLANS,
-        conformal.ConformalSources, [(), (3,), (), (6,)], _conformal_inputs,
-        ("conformal_factor", "gamma_tilde", "E", "B"),
+        _conformal_sources, conformal._CONFORMAL_PLANS, conformal.ConformalSources,
+        [(), (3,), (), (6,)], _conformal_inputs,
         {"decomposition": "chi", "units": "gaussian", "field_index": "upper"},
         {"decomposition": "phi", "units": "heaviside_lorentz", "field_index": "lower"}),
     "stress_energy_4d": PlannedCall(
-        "stress_energy_4d", emsource.stress_energy_4d, sources._STRESS_ENERGY_PLANS, None,
-        [(10,)], _stress_energy_inputs, ("alpha", "beta", "gamma", "E", "B"),
+        emsource.stress_energy_4d, sources._STRESS_ENERGY_PLANS, None, [(10,)],
+        _stress_energy_inputs,
         {"units": "gaussian", "index": "lower", "field_index": "upper",
          "layout": "component_first"},
         {"units": "heaviside_lorentz", "index": "upper", "field_index": "lower"}),
     "ideal_mhd_fields": PlannedCall(
-        "ideal_mhd_fields", ideal_mhd.ideal_mhd_fields, ideal_mhd._IDEAL_MHD_PLANS,
-        ideal_mhd.IdealMhdFields, [(3,), (4,), (4,)], _ideal_mhd_inputs,
-        ("alpha", "beta", "gamma", "B", "velocity"),
+        ideal_mhd.ideal_mhd_fields, ideal_mhd._IDEAL_MHD_PLANS, ideal_mhd.IdealMhdFields,
+        [(3,), (4,), (4,)], _ideal_mhd_inputs,
         {"velocity_kind": "eulerian", "field_index": "upper"},
         {"velocity_kind": "four_velocity", "field_index": "lower"}),
 }
-# conformal_sources requires its decomposition: the calls below pass it.
-CALLS["conformal_sources"].function = (
-    lambda *a, decomposition="chi", **k: conformal.conformal_sources(
-        *a, decomposition=decomposition, **k))
 
 
 @pytest.fixture
