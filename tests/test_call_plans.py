@@ -468,8 +468,9 @@ def _stress_energy_inputs(spacetime):
 
 def _ideal_mhd_inputs(spacetime):
     alpha, beta, gamma, E, B = spacetime
-    # |beta|_gamma below alpha (the four_velocity kind needs it): |beta| <= 0.05 |noise| with
-    # gamma's eigenvalues below about 3 and alpha >= 0.5; speeds of about 0.1 * sqrt(3 * 3).
+    # A shift of order 0.05 against alpha >= 0.5 (the four_velocity kind needs |beta|_gamma <
+    # alpha) and speeds of order 0.1 sqrt(3) (gamma's eigenvalues below about 3): far from both
+    # limits on the seeded data; a point beyond one would raise, and the tests would say so.
     return (alpha, 0.1 * beta, gamma, B, 0.1 * E)
 
 
