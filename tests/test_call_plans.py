@@ -672,3 +672,21 @@ def test_the_error_counts_what_the_kernel_rejected(spacetime, first):
         assert "not below the speed of light: v_i v^i = 4" in message
     else:
         assert "B[1] = nan" in message
+
+
+@pytest.mark.parametrize("name", list(CALLS))
+def test_other_calls_keep_a_plan_per_grid_and_metric_form(rng, name):
+    """1-, 2- and 3-D grids, packed and full (3, 3) metrics: each its own plan, the planned
+    call equal to the full one bit for bit."""
+    call = CALLS[name]
+    cases = []
+    for grid in [(7,), (3, 4), (2, 3, 4)]:
+        alpha, beta, gamma, E, B = random_curved_data(rng, grid)
+        full = np.ascontiguousarray(gamma[np.array([[0, 1, 2], [1, 3, 4], [2, 4, 5]])])
+        for metric in (gamma, full):
+            cases.append(call.make_inputs((alpha, beta, metric, E, B)))
+    call.cache.clear()
+    expected = [call.results(call(inputs)) for inputs in cases]  # full path; stores the plans
+    assert len(call.cache) == len(cases)
+    for inputs, reference in zip(cases, expected):
+        assert_bits(call.results(call(inputs)), reference)
