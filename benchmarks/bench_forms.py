@@ -31,11 +31,12 @@ arrays and padded grid functions with the stored plan of the call's signature
 (``emsource._call_plans``), and C-contiguous with every plan dropped before each call (the full
 validation, which then also makes and stores the plan: the cost of a first call); and each
 call's compiled driver alone on its plan's views (Numba's dispatch and the work on 512 points,
-no Python around it; its ratio is to adm_sources' driver). Beside them, in the same run: a one-thread triad over the same 8^3 points (a compiled
-call on this many points: the floor of any call) and plain NumPy computing the conformal outputs.
-The figure is CPU time per call (``time.process_time`` over a block of calls, divided), since the
-machine is shared: wall time would count time spent waiting for a core. Blocks of the cases run
-interleaved, the median over the blocks is printed, with the load averages before and after.
+no Python around it; its ratio is to adm_sources' driver). Beside them, in the same run: a
+one-thread triad over the same 8^3 points (a compiled call on this many points: the floor of any
+call) and plain NumPy computing the conformal outputs. The figure is CPU time per call
+(``time.process_time`` over a block of calls, divided), since the machine is shared: wall time
+would count time spent waiting for a core. Blocks of the cases run interleaved, the median over
+the blocks is printed, with the load averages before and after.
 """
 
 from __future__ import annotations
