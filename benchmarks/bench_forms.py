@@ -3,6 +3,7 @@ beside the physical source kernel, measured in the same run.
 
 Run:  python benchmarks/bench_forms.py [--points N] [--repeat N]
       python benchmarks/bench_forms.py --conformal [--ideal-mhd] [--points N] [--repeat N]
+      python benchmarks/bench_forms.py --small-call [--calls N]
 
 For a float64 grid of N^3 points (default 96) it prints, as medians of interleaved runs (each
 kernel timing right after a STREAM-style triad, read as a share of it; the machine is shared):
@@ -22,6 +23,20 @@ machine's load averages (``os.getloadavg``, what ``uptime`` prints) are printed 
 group. Read ratios within one group. ``--ideal-mhd`` does the same for ideal_mhd_fields
 (Eulerian velocity, into ``out``; contiguous and ghost-zone window) beside adm_sources and its
 column loop.
+
+``--small-call`` measures instead the per-call time of each public source call an evolution loop
+makes at every right-hand side (adm_sources, the reference; conformal_sources; stress_energy_4d;
+ideal_mhd_fields) on an 8^3 float64 grid, into ``out``, checks on, on one thread: C-contiguous
+arrays and padded grid functions with the stored plan of the call's signature
+(``emsource._call_plans``), and C-contiguous with every plan dropped before each call (the full
+validation, which then also makes and stores the plan: the cost of a first call); and each
+call's compiled driver alone on its plan's views (Numba's dispatch and the work on 512 points,
+no Python around it; its ratio is to adm_sources' driver). Beside them, in the same run: a
+one-thread triad over the same 8^3 points (a compiled call on this many points: the floor of any
+call) and plain NumPy computing the conformal outputs. The figure is CPU time per call
+(``time.process_time`` over a block of calls, divided), since the machine is shared: wall time
+would count time spent waiting for a core. Blocks of the cases run interleaved, the median over
+the blocks is printed, with the load averages before and after.
 """
 
 from __future__ import annotations
@@ -218,6 +233,146 @@ def conformal_section(n, repeat):
           f"{statistics.median(ratios):.0f}x faster (median of 3 paired runs; {_load()})")
 
 
+@numba.njit(cache=True)
+def _serial_triad(a, b, c, scalar):
+    for i in range(a.shape[0]):
+        a[i] = b[i] + scalar * c[i]
+
+
+def _plan_caches():
+    """Every plan cache of the public source calls (found by type: the benchmark runs on
+    revisions with and without plans per call)."""
+    from emsource import _call_plans, conformal, ideal_mhd, sources
+
+    return [value for module in (sources, conformal, ideal_mhd)
+            for value in vars(module).values() if isinstance(value, _call_plans.PlanCache)]
+
+
+def _dropping_plans(call, caches):
+    """``call`` made after emptying ``caches``, so that it validates in full."""
+    def full_validation():
+        for cache in caches:
+            cache.clear()
+        call()
+    return full_validation
+
+
+def _small_call_cases(n=8):
+    """{name: call} on an n^3 float64 grid, every call into preallocated ``out``."""
+    from emsource.conformal import ConformalSources
+    from emsource.ideal_mhd import IdealMhdFields
+
+    shape = (n,) * 3
+    gamma, E, B = flat_space_fields(shape, np.float64)
+    rng = np.random.default_rng(3)
+    chi = rng.uniform(0.5, 1.5, shape)
+    gamma_tilde = gamma * chi
+    alpha = rng.uniform(0.8, 1.2, shape)
+    beta = 0.1 * rng.standard_normal((3,) + shape)
+    velocity = 0.1 * rng.standard_normal((3,) + shape)
+    contiguous = (gamma, E, B, chi, gamma_tilde, alpha, beta, velocity)
+    padded = tuple(padded_copy(a) for a in contiguous)
+    cases = {}
+    caches = _plan_caches()
+    for layout, arrays in (("contiguous", contiguous), ("padded", padded)):
+        gamma, E, B, chi, gamma_tilde, alpha, beta, velocity = arrays
+        wrap = (lambda a: a) if layout == "contiguous" else padded_copy
+        adm_out = emsource.AdmSources(*map(wrap, emsource.adm_sources(gamma, E, B)))
+        conformal_out = ConformalSources(*map(wrap, conformal_sources(
+            chi, gamma_tilde, E, B, decomposition="chi")))
+        t_out = wrap(emsource.stress_energy_4d(alpha, beta, gamma, E, B))
+        mhd_out = IdealMhdFields(*map(wrap, ideal_mhd_fields(alpha, beta, gamma, B, velocity)))
+        calls = {
+            "adm_sources": lambda g=gamma, e=E, b=B, o=adm_out: emsource.adm_sources(
+                g, e, b, out=o),
+            "conformal_sources (chi)": lambda c=chi, g=gamma_tilde, e=E, b=B, o=conformal_out:
+                conformal_sources(c, g, e, b, decomposition="chi", out=o),
+            "stress_energy_4d (T_ab)": lambda a=alpha, s=beta, g=gamma, e=E, b=B, o=t_out:
+                emsource.stress_energy_4d(a, s, g, e, b, out=o),
+            "ideal_mhd_fields (eulerian)": lambda a=alpha, s=beta, g=gamma, b=B, v=velocity,
+                o=mhd_out: ideal_mhd_fields(a, s, g, b, v, out=o),
+        }
+        for name, call in calls.items():
+            cases[f"{name}, {layout}"] = call
+            if layout == "contiguous":
+                cases[f"{name}, contiguous, full validation"] = _dropping_plans(call, caches)
+        if layout == "contiguous":
+            arguments = {"adm_sources": ((gamma, E, B), adm_out),
+                         "conformal_sources (chi)": ((chi, gamma_tilde, E, B), conformal_out),
+                         "stress_energy_4d (T_ab)": ((alpha, beta, gamma, E, B), (t_out,)),
+                         "ideal_mhd_fields (eulerian)": ((alpha, beta, gamma, B, velocity),
+                                                         mhd_out)}
+            for name, call in calls.items():
+                call()  # stores the plan
+                cases[f"{name}, contiguous, its kernel alone"] = _kernel_alone(
+                    name, *arguments[name])
+    a, b, c = np.zeros(n ** 3), np.ones(n ** 3), np.full(n ** 3, 2.0)
+    cases["yardstick: compiled triad, 8^3 points"] = lambda: _serial_triad(a, b, c, 3.0)
+    gamma, E, B, chi, gamma_tilde = contiguous[:5]
+    cases["yardstick: plain NumPy, conformal outputs"] = lambda: numpy_conformal(
+        chi, gamma_tilde, E, B)
+    return cases
+
+
+def _kernel_alone(name, inputs, outputs):
+    """The compiled driver of a public call on the views its stored plan gives: Numba's
+    dispatch and the work on the grid's points, no Python around them (the plans' internals:
+    ``emsource._call_plans``; what each function keeps in a plan's ``extra``)."""
+    from emsource import _call_plans, conformal, ideal_mhd, sources
+
+    caches = {"adm_sources": (sources._ADM_PLANS, ("gaussian", "upper", "component_first")),
+              "conformal_sources (chi)": (conformal._CONFORMAL_PLANS,
+                                          ("chi", "gaussian", "upper")),
+              "stress_energy_4d (T_ab)": (sources._STRESS_ENERGY_PLANS,
+                                          ("gaussian", "lower", "upper", "component_first")),
+              "ideal_mhd_fields (eulerian)": (ideal_mhd._IDEAL_MHD_PLANS, ("eulerian", "upper"))}
+    cache, options = caches[name]
+    arrays = tuple(inputs) + tuple(outputs)
+    plan = cache.get(_call_plans.signature(arrays, options))
+    v = plan.views(arrays)
+    if name == "adm_sources":
+        gidx, constants = plan.extra
+        kernel = sources.kernels.ADM_SOURCES_FLAT[constants[0]]
+        return lambda: kernel(v[0], gidx, *v[1:], *constants[1:], True)
+    if name.startswith("stress_energy_4d"):
+        gidx, constants = plan.extra
+        kernel = sources.kernels.STRESS_ENERGY_FLAT[constants[0], constants[-1]]
+        return lambda: kernel(*v[:3], gidx, *v[3:], *constants[1:-1], True)
+    driver, gidx, tail = plan.extra
+    first = 2 if name.startswith("conformal") else 3  # arrays before the metric indices
+    return lambda: driver(*v[:first], gidx, *v[first:], *tail, True)
+
+
+def small_call_section(calls, rounds=15):
+    """Per-call CPU time of the public calls on 8^3 (module docstring, ``--small-call``)."""
+    numba.set_num_threads(1)
+    cases = _small_call_cases()
+    for call in cases.values():
+        for _ in range(200):  # warm-up: compilation, the plans stored
+            call()
+    block = max(1, calls // rounds)
+    before = _load()
+    seconds = {name: [] for name in cases}
+    clock = time.process_time
+    for _ in range(rounds):
+        for name, call in cases.items():
+            start = clock()
+            for _ in range(block):
+                call()
+            seconds[name].append((clock() - start) / block)
+    print(f"emsource {emsource.__version__}, numba {numba.__version__}, 8^3 float64, out given, "
+          f"checks on, {numba.get_num_threads()} thread; CPU time per call, median of {rounds} "
+          f"interleaved blocks of {block} calls ({before} before, {_load()} after)")
+    print(f"{'call':58s} {'us per call':>11s} {'/ adm_sources':>14s}")
+    for name, values in seconds.items():
+        layout = "padded" if name.endswith("padded") else "contiguous"
+        reference = seconds[f"adm_sources, {layout}"]
+        if name.endswith("kernel alone"):
+            reference = seconds["adm_sources, contiguous, its kernel alone"]
+        print(f"{name:58s} {1e6 * statistics.median(values):11.2f} "
+              f"{paired_ratio(values, reference):14.2f}")
+
+
 def main(argv=None):
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--points", type=int, default=None,
@@ -227,7 +382,14 @@ def main(argv=None):
                         help="conformal_sources against adm_sources and the yardsticks")
     parser.add_argument("--ideal-mhd", action="store_true",
                         help="ideal_mhd_fields against adm_sources and its column loop")
+    parser.add_argument("--small-call", action="store_true",
+                        help="per-call CPU time of the public source calls on 8^3, one thread")
+    parser.add_argument("--calls", type=int, default=30000,
+                        help="timed calls per case with --small-call (default 30000)")
     args = parser.parse_args(argv)
+    if args.small_call:
+        small_call_section(args.calls)
+        return
     if args.conformal or args.ideal_mhd:
         if args.conformal:
             conformal_section(args.points or 128, args.repeat)

@@ -161,9 +161,9 @@ def test_bad_points_counted_exactly_and_named(rng):
                  last, pivot, 1.0, check), (0, 1, 2, 4, 5))
             assert count == expected
         copies = [a.copy() for a in arrays]
-        # The message counts the points with bad inputs (4; the check in NumPy on the error
-        # path), the kernel also the one too fast (5, above).
-        with pytest.raises(GridPointError, match=r"4 of 4096 grid points have invalid input; "
+        # The message carries the kernel's count (5, above: the 4 bad inputs and the point
+        # too fast) and names the first of them in C order.
+        with pytest.raises(GridPointError, match=r"5 of 4096 grid points have invalid input; "
                                                  r"the first is grid index \(0, 0, 5\): "
                                                  r"lapse alpha = 0.0 is not positive"):
             ideal_mhd_fields(*arrays)

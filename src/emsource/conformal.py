@@ -44,10 +44,11 @@ from typing import NamedTuple
 import numpy as np
 
 from . import _arguments as arg
+from ._call_plans import FlatPlan, PlanCache, call_signature, planned_outputs
 from ._threading import kernel_call
 from .faraday import raise_for_bad_points
 from .input_forms import input_form
-from .kernels._compile import call_sharing_layouts
+from .kernels._compile import call_sharing_layouts, shared_dispatcher
 from .kernels import conformal as kernels
 from .metric_forms import decomposition as find_decomposition
 from .unit_systems import stress_energy_prefactor
@@ -89,9 +90,15 @@ def _conformal_inputs(function, factor, gamma_tilde, grid, decomposition):
     return code, f, metric, gidx
 
 
+#: Positions of the arrays the conformal-source drivers only read (factor, tilde-gamma, E, B).
+_DRIVER_INPUTS = (0, 1, 3, 4)
+
+
 def _run_conformal_kernel(decomposition, form, gidx, arrays, grid, dtype, prefactor, check):
     """One call of the conformal-source driver on ``arrays`` (factor, tilde-gamma, E, B, rho,
-    S_i, S, A_ij, checked and component-first); returns the count of bad points.
+    S_i, S, A_ij, checked and component-first): ``(count of bad points, spans, extra)``, where
+    the call is one line of points the spans the driver took and what else a plan keeps (the
+    driver's dispatcher, the metric indices, its arguments after the arrays), else None, None.
 
     C-contiguous data and padded rows are one line of points, cut into strips; views
     contiguous along z (ghost zones sliced off) are windows: both go to the vectorised driver of
@@ -100,20 +107,26 @@ def _run_conformal_kernel(decomposition, form, gidx, arrays, grid, dtype, prefac
     negative strides) takes the column loop.
     """
     views, flat = arg.kernel_views(arrays, grid)
-    physics = (dtype.type(prefactor), dtype.type(arg.pivot_floor(dtype)), dtype.type(1))
-    with kernel_call():
-        found = arg.driver_spans(views, grid, flat)
-        if found is None:  # the column loop, run-time decomposition and form; every mix of
-            # strided inputs shares one specialisation
-            f, metric, e, b, *outputs = views
-            return call_sharing_layouts(
+    physics = arg.kernel_scalars(dtype, prefactor, arg.pivot_floor(dtype), 1)
+    found = arg.driver_spans(views, grid, flat)
+    if found is None:  # the column loop, run-time decomposition and form; every mix of
+        # strided inputs shares one specialisation
+        f, metric, e, b, *outputs = views
+        with kernel_call():
+            count = call_sharing_layouts(
                 kernels.conformal_sources_grid,
                 (f, metric, gidx, e, b, *outputs, decomposition, form, *physics), (0, 1, 3, 4))
-        (f, metric, e, b, *outputs), steps, shape, last = found
-        return call_sharing_layouts(
-            kernels.CONFORMAL_SOURCES[decomposition, form],
-            (f, metric, gidx, e, b, *outputs, steps, shape, last, *physics, bool(check)),
-            (0, 1, 3, 4))
+        return count, None, None
+    (f, metric, e, b, *outputs), steps, shape, last = found
+    tail = (steps, shape, last, *physics)
+    arguments = (f, metric, gidx, e, b, *outputs, *tail, bool(check))
+    driver = shared_dispatcher(kernels.CONFORMAL_SOURCES[decomposition, form], arguments,
+                               _DRIVER_INPUTS)
+    with kernel_call():
+        count = driver(*arguments)
+    if not flat:
+        return count, None, None
+    return count, [f, metric, e, b, *outputs], (driver, gidx, tail)
 
 
 def _bad_factor_reason(decomposition, factor):
@@ -199,6 +212,19 @@ def conformal_sources(conformal_factor, gamma_tilde, E, B, *, decomposition, uni
     (0.5, [-0.666667, 0.0, 0.0, 0.333333, 0.0, 0.333333])
     """
     function = "conformal_sources"
+    inputs = (conformal_factor, gamma_tilde, E, B)
+    key = call_signature(inputs, out, ConformalSources, (decomposition, units, field_index))
+    plan = _CONFORMAL_PLANS.get(key)
+    if plan is not None:
+        planned = planned_outputs(plan, function, inputs, _INPUT_NAMES, out, ConformalSources)
+        if planned is not None:
+            result, spans = planned
+            driver, gidx, tail = plan.extra
+            with kernel_call():
+                count = driver(spans[0], spans[1], gidx, *spans[2:], *tail, bool(check))
+            if check and count:
+                _raise_for_bad_points(function, count, plan.grid, inputs, decomposition, result)
+            return result
     form = input_form(function, field_index)
     prefactor = stress_energy_prefactor(units)
     grid = arg.grid_of(function, "E", E, "component_first")
@@ -206,23 +232,40 @@ def conformal_sources(conformal_factor, gamma_tilde, E, B, *, decomposition, uni
                                               decomposition)
     e = arg.vector(function, "E", E, grid, "component_first")
     b = arg.vector(function, "B", B, grid, "component_first")
-    names = ("conformal_factor", "gamma_tilde", "E", "B")
-    dtype = arg.common_dtype(function, names, (conformal_factor, gamma_tilde, E, B))
+    dtype = arg.common_dtype(function, _INPUT_NAMES, inputs)
     result = arg.outputs_or_new(function, ConformalSources, out,
                                 (grid, (3,) + grid, grid, (6,) + grid), (0, 1, 0, 1), dtype,
-                                names, (conformal_factor, gamma_tilde, E, B))
+                                _INPUT_NAMES, inputs)
     if not arg.has_points(grid):
         return result
-    count = _run_conformal_kernel(code, form.code, gidx, [f, metric, e, b, *result], grid,
-                                  dtype, prefactor, check)
+    count, spans, extra = _run_conformal_kernel(code, form.code, gidx, [f, metric, e, b, *result],
+                                                grid, dtype, prefactor, check)
+    if spans is not None and key is not None:  # after every check passed: a plan is what a
+        # full validation derived
+        _CONFORMAL_PLANS.put(key, FlatPlan.of(inputs + result, spans, grid, dtype, extra,
+                                              outputs=4))
     if check and count:
-        physical = physical_metric(conformal_factor, gamma_tilde, decomposition=decomposition)
-        positive = f if decomposition != "phi" else np.exp(-4.0 * f.astype(float))
-        raise_for_bad_points(
-            function, count, grid,
-            {"conformal_factor": f, "E": e, "B": b,
-             "out": np.concatenate([result.rho[None], result.A_ij])},
-            lapse=None if decomposition == "phi" else "conformal_factor",
-            metric=("gamma (physical)", physical, arg.PACKED_METRIC_INDEX),
-            reason=None if np.all(positive > 0) else _bad_factor_reason(decomposition, f))
+        _raise_for_bad_points(function, count, grid, inputs, decomposition, result)
     return result
+
+
+_INPUT_NAMES = ("conformal_factor", "gamma_tilde", "E", "B")
+#: Validated layouts of :func:`conformal_sources` calls by signature
+#: (:mod:`emsource._call_plans`).
+_CONFORMAL_PLANS = PlanCache()
+
+
+def _raise_for_bad_points(function, count, grid, inputs, decomposition, result):
+    """:class:`GridPointError` for the ``count`` points the driver rejected (inputs as the
+    caller gave them, validated; ``result`` the outputs it wrote)."""
+    conformal_factor, gamma_tilde, E, B = inputs
+    physical = physical_metric(conformal_factor, gamma_tilde, decomposition=decomposition)
+    f = conformal_factor
+    positive = f if decomposition != "phi" else np.exp(-4.0 * f.astype(float))
+    raise_for_bad_points(
+        function, count, grid,
+        {"conformal_factor": f, "E": E, "B": B,
+         "out": np.concatenate([result.rho[None], result.A_ij])},
+        lapse=None if decomposition == "phi" else "conformal_factor",
+        metric=("gamma (physical)", physical, arg.PACKED_METRIC_INDEX),
+        reason=None if np.all(positive > 0) else _bad_factor_reason(decomposition, f))

@@ -64,26 +64,35 @@ class FieldInvariants(NamedTuple):
 
 
 def raise_for_bad_points(function, count, grid, named, *, lapse=None, metric=None, reason=None):
-    """Raise :class:`GridPointError` for ``count`` bad points found by a conversion kernel.
+    """Raise :class:`GridPointError` for the ``count`` points a conversion kernel rejected.
 
-    The first bad input point (non-finite, lapse not positive, metric not positive definite)
-    comes from :func:`emsource._arguments.check_points`; where every input passes, the outputs
-    overflowed (or ``reason`` says what else the kernel rejects: a text, or a function of the
-    first bad output point's index), and the first point is taken from the non-finite outputs
-    ``named["out"]`` if given.
+    The error carries the kernel's ``count`` (the points it rejected, for any reason) and names
+    the first of them in C order with its reason. Candidates for that point: the first bad input
+    point (non-finite, lapse not positive, metric not positive definite) from
+    :func:`emsource._arguments.check_points`, and the first point whose outputs ``named["out"]``
+    (if given) are not finite: the kernels write non-finite outputs where they reject a point for
+    something the inputs alone do not show (``reason`` says what: a text, or a function of the
+    point's index; by default the outputs overflowed). The earlier of the two is named.
     """
     if not count:
         return
     out = named.pop("out", None)
-    arg.check_points(function, grid, named, lapse=lapse, metric=metric)
-    index = None
+    npoints = int(np.prod(grid))
+    output_index = None
     if out is not None:
         bad = ~np.isfinite(np.asarray(out).reshape((-1,) + tuple(grid))).all(axis=0)
         if bad.any():
-            index = tuple(int(i) for i in np.unravel_index(int(np.argmax(bad)), grid))
+            output_index = tuple(int(i) for i in np.unravel_index(int(np.argmax(bad)), grid))
+    try:
+        arg.check_points(function, grid, named, lapse=lapse, metric=metric)
+    except GridPointError as error:  # a bad input point: named unless an output point is earlier
+        if output_index is None or error.first_index <= output_index:  # C order
+            raise GridPointError(function, int(count), npoints, error.first_index,
+                                 error.reason) from None
+    # The first rejected point has inputs that pass every input check.
     if callable(reason):
-        reason = reason(index) if index is not None else None
-    raise GridPointError(function, int(count), int(np.prod(grid)), index,
+        reason = reason(output_index) if output_index is not None else None
+    raise GridPointError(function, int(count), npoints, output_index,
                          reason or "the outputs overflow: rescale the inputs (a larger unit)")
 
 

@@ -59,11 +59,12 @@ from typing import NamedTuple
 import numpy as np
 
 from . import _arguments as arg
+from ._call_plans import FlatPlan, PlanCache, call_signature, planned_outputs
 from ._threading import kernel_call
 from .faraday import raise_for_bad_points
 from .input_forms import input_form
 from .kernels import ideal_mhd as kernels
-from .kernels._compile import call_sharing_layouts
+from .kernels._compile import call_sharing_layouts, shared_dispatcher
 
 __all__ = ["VELOCITY_KINDS", "IdealMhdFields", "ideal_mhd_fields"]
 
@@ -133,6 +134,21 @@ def ideal_mhd_fields(alpha, beta, gamma, B, velocity, *, velocity_kind="eulerian
     [0.0, 0.5, 0.0]
     """
     function = "ideal_mhd_fields"
+    inputs = (alpha, beta, gamma, B, velocity)
+    key = call_signature(inputs, out, IdealMhdFields, (velocity_kind, field_index))
+    plan = _IDEAL_MHD_PLANS.get(key)
+    if plan is not None:
+        planned = planned_outputs(plan, function, inputs, _INPUT_NAMES, out, IdealMhdFields)
+        if planned is not None:
+            result, spans = planned
+            driver, gidx, tail = plan.extra
+            with kernel_call():
+                count = driver(spans[0], spans[1], spans[2], gidx, *spans[3:], *tail, bool(check))
+            if check and count:
+                metric, gidx = arg.spatial_metric(function, gamma, plan.grid, "component_first")
+                _raise_for_bad_points(function, count, plan.grid, alpha, beta, metric, gidx, B,
+                                      velocity, result, velocity_kind)
+            return result
     arg.choice(function, "velocity_kind", velocity_kind, tuple(VELOCITY_KINDS))
     form = input_form(function, field_index)
     grid = arg.grid_of(function, "B", B, "component_first")
@@ -141,38 +157,60 @@ def ideal_mhd_fields(alpha, beta, gamma, B, velocity, *, velocity_kind="eulerian
     shift = arg.vector(function, "beta", beta, grid, "component_first")
     b_in = arg.vector(function, "B", B, grid, "component_first")
     v_in = arg.vector(function, "velocity", velocity, grid, "component_first")
-    names = ("alpha", "beta", "gamma", "B", "velocity")
-    dtype = arg.common_dtype(function, names, (alpha, beta, gamma, B, velocity))
+    dtype = arg.common_dtype(function, _INPUT_NAMES, inputs)
     result = arg.outputs_or_new(function, IdealMhdFields, out,
                                 ((3,) + grid, (4,) + grid, (4,) + grid), (1, 1, 1), dtype,
-                                names, (alpha, beta, gamma, B, velocity))
+                                _INPUT_NAMES, inputs)
     E, u, b = result
     if not arg.has_points(grid):
         return result
     views, flat = arg.kernel_views([lapse, shift, metric, b_in, v_in, E, u, b], grid)
     kind = VELOCITY_KINDS[velocity_kind]
-    physics = (dtype.type(arg.pivot_floor(dtype)), dtype.type(1))
-    with kernel_call():
-        found = arg.driver_spans(views, grid, flat)
-        if found is None:  # the column loop (run-time form and kind), one specialisation for
-            # every mix of strided inputs
+    physics = arg.kernel_scalars(dtype, arg.pivot_floor(dtype), 1)
+    found = arg.driver_spans(views, grid, flat)
+    if found is None:  # the column loop (run-time form and kind), one specialisation for
+        # every mix of strided inputs
+        with kernel_call():
             count = call_sharing_layouts(
                 kernels.ideal_mhd_grid, (*views[:3], gidx, *views[3:], form.code, kind, *physics),
-                (0, 1, 2, 4, 5))
-        else:  # contiguous lines and ghost-zone windows: the vectorised driver of (form, kind)
-            spans, steps, shape, last = found
-            count = call_sharing_layouts(
-                kernels.IDEAL_MHD[form.code, kind],
-                (*spans[:3], gidx, *spans[3:], steps, shape, last, *physics, bool(check)),
-                (0, 1, 2, 4, 5))
-    if check and count:  # the stacked outputs are built on the error path only
-        raise_for_bad_points(
-            function, count, grid, {"alpha": lapse, "beta": shift, "B": b_in, "velocity": v_in,
-                                    "out": np.concatenate([E, u, b])},
-            lapse="alpha", metric=("gamma", metric, gidx),
-            reason=lambda index: _velocity_reason(velocity_kind, lapse, shift, metric, gidx,
-                                                  v_in, index))
+                _DRIVER_INPUTS)
+    else:  # contiguous lines and ghost-zone windows: the vectorised driver of (form, kind)
+        spans, steps, shape, last = found
+        tail = (steps, shape, last, *physics)
+        arguments = (*spans[:3], gidx, *spans[3:], *tail, bool(check))
+        driver = shared_dispatcher(kernels.IDEAL_MHD[form.code, kind], arguments, _DRIVER_INPUTS)
+        with kernel_call():
+            count = driver(*arguments)
+        if flat and key is not None:  # after every check passed: a plan is what a full
+            # validation derived
+            _IDEAL_MHD_PLANS.put(key, FlatPlan.of(inputs + result, spans, grid, dtype,
+                                                  (driver, gidx, tail), outputs=3))
+    if check and count:
+        _raise_for_bad_points(function, count, grid, lapse, shift, metric, gidx, b_in, v_in,
+                              result, velocity_kind)
     return result
+
+
+_INPUT_NAMES = ("alpha", "beta", "gamma", "B", "velocity")
+#: Positions of the arrays the drivers only read (alpha, beta, gamma, B, velocity).
+_DRIVER_INPUTS = (0, 1, 2, 4, 5)
+#: Validated layouts of :func:`ideal_mhd_fields` calls by signature
+#: (:mod:`emsource._call_plans`).
+_IDEAL_MHD_PLANS = PlanCache()
+
+
+def _raise_for_bad_points(function, count, grid, lapse, shift, metric, gidx, B, velocity, result,
+                          velocity_kind):
+    """:class:`GridPointError` for the ``count`` points the driver rejected (component-first
+    inputs, ``metric`` and ``gidx`` as :func:`emsource._arguments.spatial_metric` gives them;
+    ``result`` the outputs it wrote). The stacked outputs are built on the error path only."""
+    E, u, b = result
+    raise_for_bad_points(
+        function, count, grid, {"alpha": lapse, "beta": shift, "B": B, "velocity": velocity,
+                                "out": np.concatenate([E, u, b])},
+        lapse="alpha", metric=("gamma", metric, gidx),
+        reason=lambda index: _velocity_reason(velocity_kind, lapse, shift, metric, gidx,
+                                              velocity, index))
 
 
 def _velocity_reason(kind, lapse, shift, metric, gidx, velocity, index):

@@ -15,7 +15,7 @@ from . import _arguments as arg
 from .errors import GridPointError
 from .input_forms import input_form
 from ._threading import kernel_call
-from ._call_plans import FlatPlan, PlanCache, signature
+from ._call_plans import FlatPlan, PlanCache, call_signature, planned_outputs
 from .kernels import sources as kernels
 from .kernels._compile import call_sharing_layouts
 from .unit_systems import stress_energy_prefactor
@@ -238,17 +238,15 @@ def adm_sources(gamma, E, B, *, units="gaussian", field_index="upper",
     (True, True)
     """
     function = "adm_sources"
-    # The key of a call that allocates its outputs holds three shapes, one with out seven.
-    if out is None:
-        key = signature((gamma, E, B), (units, field_index, layout))
-    elif (type(out) is AdmSources or type(out) is tuple) and len(out) == 4:
-        key = signature((gamma, E, B) + tuple(out), (units, field_index, layout))
-    else:
-        key = None
+    inputs = (gamma, E, B)
+    key = call_signature(inputs, out, AdmSources, (units, field_index, layout))
     plan = _ADM_PLANS.get(key)
     if plan is not None:
-        result = _planned_adm_sources(plan, gamma, E, B, out, check)
-        if result is not None:
+        planned = planned_outputs(plan, function, inputs, _INPUT_NAMES, out, AdmSources)
+        if planned is not None:
+            result, views = planned
+            gidx, constants = plan.extra
+            _run_adm_kernel(plan.grid, plan.dtype, gidx, constants, views, True, check)
             return result
     grid, metric, gidx, e, b, prefactor, form = _common_inputs(
         function, gamma, E, B, units, field_index, layout)
@@ -274,37 +272,16 @@ def adm_sources(gamma, E, B, *, units="gaussian", field_index="upper",
         return result
     kernel_views, flat = arg.kernel_views([metric, e, b] + views, grid, whole_grids=True)
     constants = arg.kernel_constants(form, dtype, prefactor)
-    if layout == "component_first":
+    if layout == "component_first" and key is not None:
         # Only now, after every check passed: a plan is what a full validation derived.
-        _ADM_PLANS.put(key, FlatPlan.of((gamma, E, B) + result, kernel_views, grid, dtype,
-                                        (gidx, constants)))
+        _ADM_PLANS.put(key, FlatPlan.of(inputs + result, kernel_views, grid, dtype,
+                                        (gidx, constants), outputs=4))
     _run_adm_kernel(grid, dtype, gidx, constants, kernel_views, flat, check)
     return result
 
 
 #: Validated layouts of :func:`adm_sources` calls by signature (:mod:`emsource._call_plans`).
 _ADM_PLANS = PlanCache()
-
-
-def _planned_adm_sources(plan, gamma, E, B, out, check):
-    """:func:`adm_sources` for a signature validated before: the layout comes from ``plan``;
-    the checks that depend on memory (writeable and apart outputs) and the point checks run.
-    None (nothing done) where a padded array is not one the allocator made: the full path."""
-    inputs = (gamma, E, B)
-    if out is None:
-        grid, dtype = plan.grid, plan.dtype
-        result = AdmSources(np.empty(grid, dtype), np.empty((3,) + grid, dtype),
-                            np.empty((6,) + grid, dtype), np.empty(grid, dtype))
-    else:
-        result = out if type(out) is AdmSources else AdmSources(*out)
-    views = plan.views(inputs + result)
-    if views is None:
-        return None
-    if out is not None:
-        arg.output_memory("adm_sources", AdmSources._fields, result, _INPUT_NAMES, inputs)
-    gidx, constants = plan.extra
-    _run_adm_kernel(plan.grid, plan.dtype, gidx, constants, views, True, check)
-    return result
 
 
 _INPUT_NAMES = ("gamma", "E", "B")
@@ -382,11 +359,20 @@ def stress_energy_4d(alpha, beta, gamma, E, B, *, units="gaussian", index="lower
     (n^a in terms of lapse and shift); signature and conventions in the package README.
     """
     function = "stress_energy_4d"
+    names = SPACETIME_INPUT_NAMES
+    inputs = (alpha, beta, gamma, E, B)
+    key = call_signature(inputs, out, None, (units, index, field_index, layout))
+    plan = _STRESS_ENERGY_PLANS.get(key)
+    if plan is not None:
+        planned = planned_outputs(plan, function, inputs, names, out, None)
+        if planned is not None:
+            result, views = planned
+            gidx, constants = plan.extra
+            _run_stress_energy_kernel(plan.grid, plan.dtype, gidx, constants, views, True, check)
+            return result
     arg.choice(function, "index", index, ("lower", "upper"))
     (grid, lapse, shift, metric, gidx, e, b, prefactor, form,
      dtype) = spacetime_inputs(function, alpha, beta, gamma, E, B, units, field_index, layout)
-    names = SPACETIME_INPUT_NAMES
-    inputs = (alpha, beta, gamma, E, B)
     shape = arg.shape_for(grid, (10,), layout)
     if out is None:
         result = np.empty(shape, dtype)
@@ -396,12 +382,29 @@ def stress_energy_4d(alpha, beta, gamma, E, B, *, units="gaussian", index="lower
         (t_view,) = arg.outputs(function, ("",), (out,), (shape,), (1,), dtype, layout, names, inputs)
     if not arg.has_points(grid):
         return result
-    (a, be, g, ev, bv, t), flat = arg.kernel_views([lapse, shift, metric, e, b, t_view], grid)
-    upper = index == "upper"
-    constants = arg.kernel_constants(form, dtype, prefactor) + (upper,)
+    views, flat = arg.kernel_views([lapse, shift, metric, e, b, t_view], grid)
+    constants = arg.kernel_constants(form, dtype, prefactor) + (index == "upper",)
+    if layout == "component_first" and flat and key is not None:
+        # Only now, after every check passed: a plan is what a full validation derived.
+        _STRESS_ENERGY_PLANS.put(key, FlatPlan.of(inputs + (result,), views, grid, dtype,
+                                                  (gidx, constants), outputs=1))
+    _run_stress_energy_kernel(grid, dtype, gidx, constants, views, flat, check)
+    return result
+
+
+#: Validated layouts of :func:`stress_energy_4d` calls by signature.
+_STRESS_ENERGY_PLANS = PlanCache()
+
+
+def _run_stress_energy_kernel(grid, dtype, gidx, constants, views, flat, check):
+    """One call of the T_ab (T^ab) driver on kernel views (flat loop, windowed loop or column
+    loop); on counted bad points, the search for the first one and :class:`GridPointError`."""
+    a, be, g, ev, bv, t = views
+    upper = constants[-1]
     physics = constants[1:-1]  # the vectorised drivers: one per (form, upper)
+    form = constants[0]
     with kernel_call():
-        spans = None if flat else arg.unit_stride_spans([a, be, g, ev, bv, t])
+        spans = None if flat else arg.unit_stride_spans(views)
         if flat:
             counts = kernels.STRESS_ENERGY_FLAT[form, upper](a, be, g, gidx, ev, bv, t, *physics,
                                                              bool(check))
@@ -416,8 +419,9 @@ def stress_energy_4d(alpha, beta, gamma, E, B, *, units="gaussian", index="lower
                 kernels.stress_energy_grid,
                 (a, be, g, gidx, ev, bv, t, *constants, bool(check)), (0, 1, 2, 4, 5))
         if counts[0] or counts[1]:
-            views = arg.as_grid_views([a, be, g, ev, bv, t], flat, grid)
-            raise_for_counts(function, counts, grid, dtype, kernels.first_failing_stress_energy,
-                             (views[0], views[1], views[2], gidx, views[3], views[4], views[5],
-                              *constants), names, views[:5], views[5:], gidx)
-    return result
+            grid_views = arg.as_grid_views(list(views), flat, grid)
+            raise_for_counts("stress_energy_4d", counts, grid, dtype,
+                             kernels.first_failing_stress_energy,
+                             (grid_views[0], grid_views[1], grid_views[2], gidx, grid_views[3],
+                              grid_views[4], grid_views[5], *constants),
+                             SPACETIME_INPUT_NAMES, grid_views[:5], grid_views[5:], gidx)
