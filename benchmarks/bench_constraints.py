@@ -190,13 +190,14 @@ def _stencil_probe(gamma, K, rho, S, interior, w1, w2, inv_h, H, M, H_scale, M_s
     nx, ny, nz = rho.shape
     r = w1.shape[0]
     period = 2 * r + 1
-    bands = (ny + strips._BAND - 1) // strips._BAND
+    width = strips._band_width(nz, r)
+    bands = (ny + width - 1) // width
     for task in prange(nx * bands):
         band = task // nx
         i = task - band * nx
-        low = band * strips._BAND
+        low = band * width
         first = max(low, r)
-        last = min(min(ny, low + strips._BAND), ny - r)
+        last = min(min(ny, low + width), ny - r)
         if (i < r) | (i >= nx - r) | (first >= last):
             continue
         buf = strip_buffer(_ROWS, _ROW_LENGTH, rho)

@@ -46,9 +46,10 @@ and the absolute value of their largest term (R, K^2, K_ij K^ij, 16 pi rho for H
 D_i K, 8 pi S_i for M_i) where ``interior`` is 1, NaN elsewhere.
 
 How the kernel is laid out (why: see :func:`adm_constraints_grid`; measurements in
-DEVELOPERS.md, "Strip kernels"). A parallel task is one x index and a band of ``_BAND``
-columns along y; the tasks are ordered band by band, so a thread walks every x index of one
-band and the 2 r + 1 x-planes its stencils read stay in L2. Each grid column (i, j) is done in
+DEVELOPERS.md, "Strip kernels"). A parallel task is one x index and a band of columns along
+y (:func:`_band_width`: 32, fewer for long columns along z); the tasks are ordered band by
+band, so a thread walks every x index of one band and the 2 r + 1 x-planes its stencils read
+stay in L2. Each grid column (i, j) is done in
 strips of up to ``_STRIP`` points along z, with small buffers per thread on its stack
 (:func:`emsource.kernels.strip_buffers.strip_buffer`): gamma^ij of the strip (``_INV_ROWS``
 rows, read from the grid and inverted first), the 36 first derivatives of gamma and K
@@ -111,9 +112,32 @@ _ROW_LENGTH = _STRIP + 8
 _R2 = 0
 _SUM_ROWS = 1
 
-#: Columns along y per parallel task (one x index and a band of y): the task walks them in
-#: order, so each column's d_x g is computed once and kept for the mixed derivatives.
+#: Columns along y per parallel task (one x index and a band of y), at most: the task walks them
+#: in order, so each column's d_x g is computed once and kept for the mixed derivatives.
 _BAND = 32
+#: Grid points per x-plane of a band that the 2 r + 1 x-planes of its stencils may hold, so
+#: that the planes a thread's next task (the next x index) reads again stay in a 2 MiB L2:
+#: 12 components of 8 bytes each, about 1 MiB in all (measured, see :func:`_band_width`).
+_BAND_PLANE_POINTS = 2**20 // 96
+#: Columns per band, at least: each band's walk enters 2 r columns into the ring before its own.
+_BAND_LEAST = 8
+
+
+@point_function
+def _band_width(nz, r):
+    """Columns along y per task: :data:`_BAND`, halved while the task's 2 r + 1 x-planes of the
+    band (``nz`` points per column) would hold more than :data:`_BAND_PLANE_POINTS` points;
+    :data:`_BAND` again where not even :data:`_BAND_LEAST` columns fit (the planes cannot stay
+    in L2, and the widest band enters the fewest extra columns into its ring). Powers of two, so
+    that bands divide the 2^k grids evenly (widths that leave a short band were slower,
+    measured). Measured against a fixed band of 32 at 64^3-256^3 (two threads; DEVELOPERS.md
+    "Strip kernels")."""
+    width = _BAND
+    while width * (2 * r + 1) * nz > _BAND_PLANE_POINTS:
+        if width <= _BAND_LEAST:
+            return _BAND
+        width //= 2
+    return width
 #: Row length of the ring buffer: a strip widened by the largest stencil radius (3) at each end.
 _SPAN = 72
 # Rows of the ring buffer: slot s (grid column j = s mod (2 r + 1)) holds d_x g_p at
@@ -472,15 +496,16 @@ def adm_constraints_grid(gamma, K, rho, S, interior, w1, w2, inv_h, sixteen_pi, 
     two = 2.0
     nan = np.nan
     period = 2 * r + 1  # ring slots: the columns j - r..j + r
-    bands = (ny + _BAND - 1) // _BAND
+    width = _band_width(nz, r)
+    bands = (ny + width - 1) // width
     for task in prange(nx * bands):
         # 512-bit vectors: 0.98 / 0.98 / 0.87 of the 256-bit time at orders 2 / 4 / 6 (64^3, two
         # threads, interleaved in one process; bench_constraints.py, DEVELOPERS.md "Strip kernels").
         prefer_512_bit_vectors()
         band = task // nx
         i = task - band * nx
-        low = band * _BAND
-        high = min(ny, low + _BAND)
+        low = band * width
+        high = min(ny, low + width)
         edge_i = (i < r) | (i >= nx - r)
         for j in range(low, high):
             edge = edge_i | (j < r) | (j >= ny - r)
