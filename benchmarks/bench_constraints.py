@@ -22,7 +22,8 @@ Prints medians of repeated runs on a Kerr-Newman box for orders 2, 4, 6:
   measured in the run (at any width) being the peak used, and beside it the derived figure
   (cores x clock x 2 FMA ports x 8 lanes x 2, the port count from memory); the kernel at
   LLVM's default vector width (the same source with its ``prefer_512_bit_vectors()`` call left
-  out, ``kernel_revision.variant_module``; interleaved with the kernel); and the roofline: operations per
+  out, ``kernel_revision.variant_module``) and with a fixed band of 32 y columns per task (the
+  narrowing of ``_band_width`` disabled), both interleaved with the kernel; and the roofline: operations per
   byte moved times the triad bandwidth, the rate at which the kernel would be bound by memory
   instead.
 
@@ -158,6 +159,8 @@ def child_peak(width, repeats):
 
 #: The kernel's request for 512-bit vectors, left out of its default-width variant.
 WIDTH_REQUEST = "        prefer_512_bit_vectors()\n"
+#: The loop of ``_band_width`` that narrows the band, disabled in the fixed-band variant.
+BAND_NARROWING = "    while width * (2 * r + 1) * nz > _BAND_PLANE_POINTS:\n"
 
 
 def derived_peak(threads):
@@ -388,6 +391,9 @@ def main():
     point_kernel = revision_module(POINT_AT_A_TIME, "constraints").adm_constraints_grid
     default_width_kernel = variant_module("constraints", "default_width",
                                           [(WIDTH_REQUEST, "")]).adm_constraints_grid
+    fixed_band_kernel = variant_module("constraints", "fixed_band",
+                                       [(BAND_NARROWING, "    while False:\n")]
+                                       ).adm_constraints_grid
     results = {}
     for order in (2, 4, 6):
         bare, outs, (ev, w1, w2, inv_h) = kernel_call(grid, d, src_rho, src_S, order)
@@ -406,6 +412,10 @@ def main():
             default_width_kernel(d.gamma, d.K, src_rho, src_S, ev, w1, w2, inv_h, 16 * math.pi,
                                  8 * math.pi, *scratch)
 
+        def fixed_band():
+            fixed_band_kernel(d.gamma, d.K, src_rho, src_S, ev, w1, w2, inv_h, 16 * math.pi,
+                              8 * math.pi, *scratch)
+
         def probe():
             _stencil_probe(d.gamma, d.K, src_rho, src_S, ev, w1, w2, inv_h, *scratch)
 
@@ -413,10 +423,11 @@ def main():
         main_kernel()
         point_at_a_time()
         default_width()
+        fixed_band()
         probe()
         peaks.append(measured_peak(threads, repeats))
-        t_bare, t_main, t_default, t_probe = interleaved_medians(
-            (bare, main_kernel, default_width, probe), repeats)
+        t_bare, t_main, t_default, t_fixed, t_probe = interleaved_medians(
+            (bare, main_kernel, default_width, fixed_band, probe), repeats)
         peaks.append(measured_peak(threads, repeats))
         t_point = median_time(point_at_a_time, repeats)
         t_public = median_time(lambda: adm_constraints(d.gamma, d.K, d.E, d.B, spacing=h,
@@ -440,6 +451,10 @@ def main():
               f"{npts / t_point / 1e6:7.2f} Mpoint/s ({t_point / t_bare:4.2f}x this kernel's time)")
         print(f"         the same kernel at LLVM's default width (interleaved) "
               f"{t_default * 1e3:6.1f} ms: with 512-bit vectors it takes {t_bare / t_default:5.3f} "
+              f"of that time")
+        print(f"         the same kernel with a fixed band of {strips._BAND} columns (interleaved) "
+              f"{t_fixed * 1e3:6.1f} ms: with bands of "
+              f"{strips._band_width.py_func(n, order // 2)} it takes {t_bare / t_fixed:5.3f} "
               f"of that time")
         print(f"         stencils and traffic alone (same buffer, no algebra): "
               f"{t_probe / t_bare:4.2f} of the kernel's time")
