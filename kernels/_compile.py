@@ -41,9 +41,9 @@ import numpy as np
 from numba.core import types
 from numba.extending import intrinsic, overload
 
-__all__ = ["FASTMATH_FLAGS", "grid_kernel", "prefer_512_bit_vectors", "PREFERRED_WIDTH_ATTRIBUTE", "point_function", "search_kernel", "tree_stamp",
+__all__ = ["FASTMATH_FLAGS", "grid_kernel", "point_function", "search_kernel", "tree_stamp",
            "install_tree_stamp", "KERNEL_DIRECTORY", "call_sharing_layouts", "shared_dispatcher",
-           "specialisations"]
+           "specialisations", "prefer_512_bit_vectors", "PREFERRED_WIDTH_ATTRIBUTE"]
 
 #: The folder of the kernels (installed as ``emsource.kernels``).
 KERNEL_DIRECTORY = os.path.dirname(os.path.abspath(__file__))
@@ -109,7 +109,8 @@ def grid_kernel(function):
     return numba.njit(**_grid_options())(function)
 
 
-#: The LLVM function attribute that sets a function's vector width (:func:`prefer_512_bit_vectors`).
+#: The LLVM function attribute that sets a function's vector width
+#: (:func:`prefer_512_bit_vectors`).
 PREFERRED_WIDTH_ATTRIBUTE = "prefer-vector-width"
 
 

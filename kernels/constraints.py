@@ -138,6 +138,8 @@ def _band_width(nz, r):
             return _BAND
         width //= 2
     return width
+
+
 #: Row length of the ring buffer: a strip widened by the largest stencil radius (3) at each end.
 _SPAN = 72
 # Rows of the ring buffer: slot s (grid column j = s mod (2 r + 1)) holds d_x g_p at
@@ -499,8 +501,9 @@ def adm_constraints_grid(gamma, K, rho, S, interior, w1, w2, inv_h, sixteen_pi, 
     width = _band_width(nz, r)
     bands = (ny + width - 1) // width
     for task in prange(nx * bands):
-        # 512-bit vectors: 0.98 / 0.98 / 0.87 of the 256-bit time at orders 2 / 4 / 6 (64^3, two
-        # threads, interleaved in one process; bench_constraints.py, DEVELOPERS.md "Strip kernels").
+        # 512-bit vectors: 0.92-0.98 / 0.93-1.02 / 0.86-0.97 of the 256-bit time at orders
+        # 2 / 4 / 6 (64^3 and 128^3, one and two threads, interleaved in one process;
+        # bench_constraints.py, DEVELOPERS.md "Strip kernels").
         prefer_512_bit_vectors()
         band = task // nx
         i = task - band * nx
