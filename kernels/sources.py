@@ -420,10 +420,18 @@ def _stress_energy_flat_for(form, upper):
     @grid_kernel
     def stress_energy_flat(alpha, beta, gamma, gidx, E, B, T, coef, half, tiny, pivot_floor,
                            check):
-        """Packed T_ab or T^ab over (ncomp, npoints) arrays; returns the two counts."""
+        """Packed T_ab or T^ab over arrays of shape (ncomp, row length) and (npoints,), or over
+        C-contiguous (ncomp, *grid) and grid-shaped arrays, which it sees as those (as
+        :func:`_adm_sources_flat_for`'s driver); returns the two counts."""
         bad_count = 0
         underflow_count = 0
-        npoints = alpha.shape[0]
+        npoints = alpha.size
+        alpha = alpha.reshape(npoints)
+        beta = beta.reshape((beta.shape[0], beta.size // beta.shape[0]))
+        gamma = gamma.reshape((gamma.shape[0], gamma.size // gamma.shape[0]))
+        E = E.reshape((E.shape[0], E.size // E.shape[0]))
+        B = B.reshape((B.shape[0], B.size // B.shape[0]))
+        T = T.reshape((T.shape[0], T.size // T.shape[0]))
         length = strip_length(npoints)
         for strip in prange(strip_count(npoints, length)):
             start, stop = strip_range(strip, length, npoints)

@@ -401,7 +401,7 @@ def kernel_views(arrays, grid, whole_grids=False):
     copied.
 
     ``whole_grids=True`` (for a flat driver that reshapes C-contiguous arrays itself, as
-    ``kernels.sources.ADM_SOURCES_FLAT``): C-contiguous arrays on a 3-D grid are returned as
+    ``kernels.sources.ADM_SOURCES_FLAT`` and ``STRESS_ENERGY_FLAT``): C-contiguous arrays on a 3-D grid are returned as
     they are, which spares seven reshapes (about 1 us) on a small grid's call; 1-D grids are
     passed as they are in any case, 2-D grids are reshaped (one compiled signature less).
     """

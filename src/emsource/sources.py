@@ -382,7 +382,7 @@ def stress_energy_4d(alpha, beta, gamma, E, B, *, units="gaussian", index="lower
         (t_view,) = arg.outputs(function, ("",), (out,), (shape,), (1,), dtype, layout, names, inputs)
     if not arg.has_points(grid):
         return result
-    views, flat = arg.kernel_views([lapse, shift, metric, e, b, t_view], grid)
+    views, flat = arg.kernel_views([lapse, shift, metric, e, b, t_view], grid, whole_grids=True)
     constants = arg.kernel_constants(form, dtype, prefactor) + (index == "upper",)
     if layout == "component_first" and flat and key is not None:
         # Only now, after every check passed: a plan is what a full validation derived.
