@@ -257,20 +257,25 @@ def _dropping_plans(call, caches):
     return full_validation
 
 
+def state_fields(shape):
+    """float64 (gamma, E, B, chi, tilde-gamma = chi gamma, alpha, beta, v^i) on ``shape``: the
+    inputs of every call this script times (a near-flat metric, chi in [0.5, 1.5], a lapse near
+    1, a small shift, Eulerian speeds of about 0.1 c)."""
+    gamma, E, B = flat_space_fields(shape, np.float64)
+    rng = np.random.default_rng(3)
+    chi = rng.uniform(0.5, 1.5, shape)
+    alpha = rng.uniform(0.8, 1.2, shape)
+    beta = 0.1 * rng.standard_normal((3,) + shape)
+    velocity = 0.1 * rng.standard_normal((3,) + shape)
+    return gamma, E, B, chi, gamma * chi, alpha, beta, velocity
+
+
 def _small_call_cases(n=8):
     """{name: call} on an n^3 float64 grid, every call into preallocated ``out``."""
     from emsource.conformal import ConformalSources
     from emsource.ideal_mhd import IdealMhdFields
 
-    shape = (n,) * 3
-    gamma, E, B = flat_space_fields(shape, np.float64)
-    rng = np.random.default_rng(3)
-    chi = rng.uniform(0.5, 1.5, shape)
-    gamma_tilde = gamma * chi
-    alpha = rng.uniform(0.8, 1.2, shape)
-    beta = 0.1 * rng.standard_normal((3,) + shape)
-    velocity = 0.1 * rng.standard_normal((3,) + shape)
-    contiguous = (gamma, E, B, chi, gamma_tilde, alpha, beta, velocity)
+    contiguous = state_fields((n,) * 3)
     padded = tuple(padded_copy(a) for a in contiguous)
     cases = {}
     caches = _plan_caches()
@@ -399,13 +404,7 @@ def main(argv=None):
     args.points = args.points or 96
     shape = (args.points,) * 3
     points = math.prod(shape)
-    gamma, E, B = flat_space_fields(shape, np.float64)
-    rng = np.random.default_rng(3)
-    chi = rng.uniform(0.5, 1.5, shape)
-    gamma_tilde = gamma * chi
-    alpha = rng.uniform(0.8, 1.2, shape)
-    beta = 0.1 * rng.standard_normal((3,) + shape)
-    velocity = 0.3 * rng.standard_normal((3,) + shape) / 3
+    gamma, E, B, chi, gamma_tilde, alpha, beta, velocity = state_fields(shape)
     sg = np.sqrt(np.linalg.det(np.moveaxis(gamma[[[0, 1, 2], [1, 3, 4], [2, 4, 5]]], (0, 1),
                                            (-2, -1))))
     dE, dB = sg * E, sg * B
