@@ -336,8 +336,8 @@ def _kernel_alone(name, inputs, outputs):
     plan = cache.get(_call_plans.signature(arrays, options))
     v = plan.views(arrays)
     if name == "adm_sources":
-        gidx, constants = plan.extra
-        kernel = sources.kernels.ADM_SOURCES_FLAT[constants[0]]
+        gidx, constants, drivers = plan.extra
+        kernel = drivers[constants[0]]
         return lambda: kernel(v[0], gidx, *v[1:], *constants[1:], True)
     if name.startswith("stress_energy_4d"):
         gidx, constants = plan.extra

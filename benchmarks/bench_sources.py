@@ -7,7 +7,9 @@ In one run and on the same threads it measures, per grid size (default 128^3, 13
   (a) a STREAM-style triad a = b + s c (bandwidth counted as 3 arrays moved, the usual way),
   (b) emsource.adm_sources on C-contiguous arrays and on padded grid functions
       (``emsource.grid_arrays``), the ghost-zone view of a 2^k + 6 grid (interior 2^k),
-      float32 on both layouts, and checks off;
+      float32 on both layouts, and checks off; where the call takes the line-step driver
+      (512-bit vectors on large grids whose rows share cache sets: contiguous 128^3 and 256^3),
+      the default 256-bit flat driver on the same views, timed beside it;
       the same-traffic copy kernel (12 rows read, 11 written, no physics) on both layouts, the
       ceiling of the access pattern; and a hand-written C + OpenMP kernel on the same arrays
       (``c_reference.py``, built now where a C compiler is found), with the time ratio
@@ -37,6 +39,7 @@ import numpy as np
 import emsource
 from emsource import _arguments as arg
 from emsource.grid_arrays import grid_function_like
+from emsource.kernels import sources as kernels
 
 import c_reference
 
@@ -126,7 +129,7 @@ class SizeCases:
     """The arrays of one grid size and the calls timed on them (each a function of no argument)."""
 
     def __init__(self, n, dtype, c_kernel):
-        shape = (n, n, n)
+        shape = self.shape = (n, n, n)
         self.points = n ** 3
         self.bytes = ARRAYS_MOVED * np.dtype(dtype).itemsize * self.points
         gamma, E, B = flat_space_fields(shape, dtype)
@@ -146,6 +149,25 @@ class SizeCases:
         views, flat = arg.kernel_views(list(inputs) + [a for a in out], inputs[1].shape[1:])
         assert flat, layout
         return views
+
+    def line_steps_chosen(self, layout):
+        """Whether ``adm_sources`` takes the 512-bit line-step driver on this layout."""
+        views, flat = arg.kernel_views(self.arrays(layout), self.shape, whole_grids=True)
+        return flat and emsource.sources._flat_drivers(views, self.shape) is not \
+            kernels.ADM_SOURCES_FLAT
+
+    def default_driver(self, layout):
+        """The default (256-bit) flat driver on the views ``adm_sources`` passes: timed beside
+        the public call where the call takes the line-step driver instead."""
+        views, _ = arg.kernel_views(self.arrays(layout), self.shape, whole_grids=True)
+        constants = arg.kernel_constants(0, self.dtype, 1 / (4 * math.pi))
+        driver = kernels.ADM_SOURCES_FLAT[0]
+        return lambda: driver(views[0], arg.PACKED_METRIC_INDEX, *views[1:], *constants[1:],
+                              True)
+
+    def arrays(self, layout):
+        inputs, out = self.layouts[layout]
+        return list(inputs) + list(out)
 
     def copy(self, layout):
         views = self.flat(layout)
@@ -248,6 +270,8 @@ def main(argv=None):
                     if size.c_kernel is not None:
                         cases[("C", layout)] = (size.c(layout), size.bytes)
                     cases[("api, checks off", layout)] = (size.api(layout, False), size.bytes)
+                if size.line_steps_chosen(layout):
+                    cases[("256-bit driver", layout)] = (size.default_driver(layout), size.bytes)
             measured = interleaved(cases, triad, args.repeat)
             for (what, layout), (seconds, share) in measured.items():
                 results[(np.dtype(dtype).name, what, layout)] = seconds
@@ -269,6 +293,13 @@ def main(argv=None):
                 low, high = paired_quartiles(api, c_time)
                 line += (f"; time emsource / C {paired_ratio(api, c_time):.3f} "
                          f"(quartiles {low:.3f}-{high:.3f})")
+            for dtype in ("float64", "float32"):
+                if (dtype, "256-bit driver", layout) in results:
+                    default = results[(dtype, "256-bit driver", layout)]
+                    api = results[(dtype, "api", layout)]
+                    low, high = paired_quartiles(api, default)
+                    line += (f"; {dtype} line steps / 256-bit driver {paired_ratio(api, default):.3f}"
+                             f" (quartiles {low:.3f}-{high:.3f})")
             print(line)
         print(f"  padded / contiguous time: kernel "
               f"{paired_ratio(results[('float64', 'api', 'padded')], results[('float64', 'api', 'contiguous')]):.2f}, "
@@ -334,7 +365,6 @@ def small_call_breakdown(calls):
     median over the rounds."""
     from emsource import _call_plans, sources
     from emsource._threading import kernel_call
-    from emsource.kernels import sources as kernels
 
     gamma, E, B = small = flat_space_fields((8, 8, 8), np.float64)
     out = emsource.adm_sources(*small)
@@ -342,7 +372,7 @@ def small_call_breakdown(calls):
     arrays = small + tuple(out)
     options = ("gaussian", "upper", "component_first")
     plan = sources._ADM_PLANS.get(_call_plans.signature(arrays, options))
-    gidx, constants = plan.extra
+    gidx, constants, _ = plan.extra
     views = plan.views(arrays)
     names, inputs = emsource.AdmSources._fields, ("gamma", "E", "B")
 

@@ -26,7 +26,7 @@ from ._compile import grid_kernel, point_function
 from .electromagnetic import fields_both_indices, point_is_valid, projections, sqrt_determinant
 from .metric import metric_at, metric_factors
 from .sources import INPUT_FORMS
-from .vector_loops import (count_flag, packed_rows, span_metric_fields, span_start,
+from .vector_loops import (as_spans, count_flag, packed_rows, span_metric_fields, span_start,
                            window_column)
 
 DECOMPOSITION_CHI = 0
@@ -189,8 +189,9 @@ def _conformal_sources_for(decomposition, form):
     def conformal_sources_spans(factor, tgamma, gidx, E, B, rho, S_i, S, A, steps, shape, last,
                                 coef, pivot_floor, one, check):
         """rho, S_i, S, A_ij over arrays given as 1-D spans of their memory (factor,
-        tilde-gamma, E, B, rho, S_i, S, A: rows of ``steps`` in this order); returns the count
-        of bad points (0 with ``check`` False).
+        tilde-gamma, E, B, rho, S_i, S, A: rows of ``steps`` in this order), or as whole
+        C-contiguous arrays, seen as their one line (:func:`~.vector_loops.as_spans`); returns
+        the count of bad points (0 with ``check`` False).
 
         Array a holds component c of point (i, j, k) at c steps[a, 0] + i steps[a, 1]
         + j steps[a, 2] + k (uint64 element steps), for (i, j) the columns of ``shape`` =
@@ -203,6 +204,8 @@ def _conformal_sources_for(decomposition, form):
         compiled driver serves both routes (half the first compilation of a flat and a
         windowed driver apiece).
         """
+        factor, tgamma, E, B = as_spans(factor), as_spans(tgamma), as_spans(E), as_spans(B)
+        rho, S_i, S, A = as_spans(rho), as_spans(S_i), as_spans(S), as_spans(A)
         ny = np.uint64(shape[1])
         nz = np.uint64(shape[2])
         final = shape[0] * shape[1] - 1

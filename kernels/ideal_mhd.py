@@ -21,7 +21,7 @@ from ._compile import grid_kernel, point_function
 from .electromagnetic import fields_both_indices, point_is_valid, sqrt_determinant
 from .metric import contract_index, metric_at, metric_factors
 from .sources import INPUT_FORMS
-from .vector_loops import count_flag, packed_rows, span_start, window_column
+from .vector_loops import as_spans, count_flag, packed_rows, span_start, window_column
 
 VELOCITY_EULERIAN = 0
 VELOCITY_FOUR = 1
@@ -181,10 +181,13 @@ def _ideal_mhd_for(form, kind):
     @grid_kernel
     def ideal_mhd_spans(alpha, beta, gamma, gidx, B, V, E, U, b, steps, shape, last,
                         pivot_floor, one, check):
-        """E^i, u^a, b^a over arrays given as 1-D spans (alpha, beta, gamma, B, V, E, U, b:
-        rows of ``steps`` in this order), the columns of ``shape`` with ``last`` points in the
+        """E^i, u^a, b^a over arrays given as 1-D spans or whole C-contiguous arrays (alpha,
+        beta, gamma, B, V, E, U, b: rows of ``steps`` in this order), the columns of ``shape`` with ``last`` points in the
         last one (:func:`emsource._arguments.driver_spans`); returns the count of bad points
         (0 with ``check`` False)."""
+        alpha, beta, gamma, B, V = (as_spans(alpha), as_spans(beta), as_spans(gamma),
+                                    as_spans(B), as_spans(V))
+        E, U, b = as_spans(E), as_spans(U), as_spans(b)
         ny = np.uint64(shape[1])
         nz = np.uint64(shape[2])
         final = shape[0] * shape[1] - 1

@@ -47,7 +47,7 @@ from __future__ import annotations
 import numpy as np
 from numba import prange
 
-from ._compile import grid_kernel, point_function, search_kernel
+from ._compile import grid_kernel, point_function, prefer_512_bit_vectors, search_kernel
 from .electromagnetic import (
     FORM_CONTRAVARIANT,
     FORM_COVARIANT,
@@ -258,8 +258,9 @@ def _adm_strip(start, stop, gamma, gidx, E, B, rho, S_i, S_ij, S, form, coef, ha
     return bad, low
 
 
-def _adm_sources_flat_for(form):
-    """The flat source driver of input form ``form`` (a constant in its loop)."""
+def _adm_sources_flat_for(form, line_steps=False):
+    """The flat source driver of input form ``form`` (a constant in its loop); with
+    ``line_steps``, compiled for 512-bit vectors (:data:`ADM_SOURCES_FLAT_LINE_STEPS`)."""
 
     @grid_kernel
     def adm_sources_flat(gamma, gidx, E, B, rho, S_i, S_ij, S, coef, half, tiny, pivot_floor,
@@ -281,6 +282,8 @@ def _adm_sources_flat_for(form):
         underflow_count = 0
         length = strip_length(npoints)
         for strip in prange(strip_count(npoints, length)):
+            if line_steps:  # a constant: the branch is pruned where it is False
+                prefer_512_bit_vectors()
             start, stop = strip_range(strip, length, npoints)
             bad, low = _adm_strip(start, stop, gamma, gidx, E, B, rho, S_i, S_ij, S, form, coef,
                                   half, tiny, pivot_floor)
@@ -532,6 +535,24 @@ def _stress_energy_window_for(form, upper):
 INPUT_FORMS = (FORM_CONTRAVARIANT, FORM_COVARIANT, FORM_DENSITIZED)
 #: The flat source driver of each input form.
 ADM_SOURCES_FLAT = {form: _adm_sources_flat_for(form) for form in INPUT_FORMS}
+#: The same drivers compiled for 512-bit vectors: each step of the loop reads and writes a whole
+#: 64-byte cache line of every row (8 float64 or 16 float32 values) instead of half of one. For
+#: large grids whose rows lie a multiple of :data:`ALIASING_BYTES` apart (see
+#: :data:`LINE_STEP_POINTS`): there the 23 rows of a point compete for one set of the first-level
+#: cache (a 4 KiB way, so 12 ways for 23 lines here), a line can be evicted between the two
+#: 256-bit steps that use it, and taking all of it at once was 0.90-0.97 of the 256-bit time at
+#: 128^3-256^3 (float64 and float32, two threads, interleaved in one process,
+#: ``benchmarks/bench_sources.py``). Compiled on first use like the others.
+ADM_SOURCES_FLAT_LINE_STEPS = {form: _adm_sources_flat_for(form, line_steps=True)
+                               for form in INPUT_FORMS}
+#: Row distances (bytes) at which rows share first-level cache sets: the size of one way of that
+#: cache (48 KiB, 12 ways on the machine measured; 32 KiB, 8 ways is the same 4 KiB on older
+#: x86 parts, from memory). Common practice: a multiple of the page size aliases.
+ALIASING_BYTES = 4096
+#: Fewest points for :data:`ADM_SOURCES_FLAT_LINE_STEPS`: below 128^3 the 512-bit loop lost
+#: (96^3 and 112^3 1.00-1.07 of the 256-bit time; 64^3 within the spread), where the 23 rows still
+#: fit in the last-level cache.
+LINE_STEP_POINTS = 2 ** 21
 #: The windowed source driver of each input form.
 ADM_SOURCES_WINDOW = {form: _adm_sources_window_for(form) for form in INPUT_FORMS}
 #: The flat T_ab / T^ab driver of each (input form, upper).

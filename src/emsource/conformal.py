@@ -106,7 +106,7 @@ def _run_conformal_kernel(decomposition, form, gidx, arrays, grid, dtype, prefac
     :func:`emsource._arguments.driver_spans`). Everything else (no unit stride along z,
     negative strides) takes the column loop.
     """
-    views, flat = arg.kernel_views(arrays, grid)
+    views, flat = arg.kernel_views(arrays, grid, whole_grids=True)
     physics = arg.kernel_scalars(dtype, prefactor, arg.pivot_floor(dtype), 1)
     found = arg.driver_spans(views, grid, flat)
     if found is None:  # the column loop, run-time decomposition and form; every mix of

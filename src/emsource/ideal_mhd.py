@@ -164,7 +164,8 @@ def ideal_mhd_fields(alpha, beta, gamma, B, velocity, *, velocity_kind="eulerian
     E, u, b = result
     if not arg.has_points(grid):
         return result
-    views, flat = arg.kernel_views([lapse, shift, metric, b_in, v_in, E, u, b], grid)
+    views, flat = arg.kernel_views([lapse, shift, metric, b_in, v_in, E, u, b], grid,
+                                   whole_grids=True)
     kind = VELOCITY_KINDS[velocity_kind]
     physics = arg.kernel_scalars(dtype, arg.pivot_floor(dtype), 1)
     found = arg.driver_spans(views, grid, flat)

@@ -245,8 +245,8 @@ def adm_sources(gamma, E, B, *, units="gaussian", field_index="upper",
         planned = planned_outputs(plan, function, inputs, _INPUT_NAMES, out, AdmSources)
         if planned is not None:
             result, views = planned
-            gidx, constants = plan.extra
-            _run_adm_kernel(plan.grid, plan.dtype, gidx, constants, views, True, check)
+            gidx, constants, drivers = plan.extra
+            _run_adm_kernel(plan.grid, plan.dtype, gidx, constants, views, drivers, check)
             return result
     grid, metric, gidx, e, b, prefactor, form = _common_inputs(
         function, gamma, E, B, units, field_index, layout)
@@ -272,11 +272,12 @@ def adm_sources(gamma, E, B, *, units="gaussian", field_index="upper",
         return result
     kernel_views, flat = arg.kernel_views([metric, e, b] + views, grid, whole_grids=True)
     constants = arg.kernel_constants(form, dtype, prefactor)
+    drivers = _flat_drivers(kernel_views, grid) if flat else None
     if layout == "component_first" and key is not None:
         # Only now, after every check passed: a plan is what a full validation derived.
         _ADM_PLANS.put(key, FlatPlan.of(inputs + result, kernel_views, grid, dtype,
-                                        (gidx, constants), outputs=4))
-    _run_adm_kernel(grid, dtype, gidx, constants, kernel_views, flat, check)
+                                        (gidx, constants, drivers), outputs=4))
+    _run_adm_kernel(grid, dtype, gidx, constants, kernel_views, drivers, check)
     return result
 
 
@@ -287,16 +288,31 @@ _ADM_PLANS = PlanCache()
 _INPUT_NAMES = ("gamma", "E", "B")
 
 
-def _run_adm_kernel(grid, dtype, gidx, constants, views, flat, check):
-    """One call of the source driver on kernel views (flat loop, windowed loop or column loop);
-    on counted bad points, the search for the first one and :class:`GridPointError`."""
+def _flat_drivers(views, grid):
+    """The table of flat source drivers for flat kernel ``views`` on ``grid``: the one that
+    steps a whole cache line at a time on a large grid whose component rows share cache sets
+    (:data:`~emsource.kernels.sources.ADM_SOURCES_FLAT_LINE_STEPS`), else the default."""
+    npoints = 1
+    for n in grid:
+        npoints *= n
+    if (npoints >= kernels.LINE_STEP_POINTS
+            and arg.rows_share_cache_sets(views, kernels.ALIASING_BYTES)):
+        return kernels.ADM_SOURCES_FLAT_LINE_STEPS
+    return kernels.ADM_SOURCES_FLAT
+
+
+def _run_adm_kernel(grid, dtype, gidx, constants, views, flat_drivers, check):
+    """One call of the source driver on kernel views: the flat loop (a table of drivers by form
+    from :func:`_flat_drivers`; None for the other views), windowed loop or column loop; on
+    counted bad points, the search for the first one and :class:`GridPointError`."""
     g, ev, bv, rho, s_i, s_ij, s = views
     form, physics = constants[0], constants[1:]  # the vectorised drivers: one per form
+    flat = flat_drivers is not None
     with kernel_call():
         spans = None if flat else arg.unit_stride_spans(views)
         if flat:
-            counts = kernels.ADM_SOURCES_FLAT[form](g, gidx, ev, bv, rho, s_i, s_ij, s, *physics,
-                                                    bool(check))
+            counts = flat_drivers[form](g, gidx, ev, bv, rho, s_i, s_ij, s, *physics,
+                                        bool(check))
         elif spans is not None:  # windows contiguous along z (ghost zones sliced off)
             (g1, e1, b1, *outputs), steps, shape = spans
             counts = call_sharing_layouts(
