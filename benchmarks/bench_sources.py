@@ -8,7 +8,8 @@ In one run and on the same threads it measures, per grid size (default 128^3, 13
   (b) emsource.adm_sources on C-contiguous arrays and on padded grid functions
       (``emsource.grid_arrays``), the ghost-zone view of a 2^k + 6 grid (interior 2^k),
       float32 on both layouts, and checks off; where the call takes the line-step driver
-      (512-bit vectors on large grids whose rows share cache sets: contiguous 128^3 and 256^3),
+      (512-bit vectors on large grids whose rows share cache sets: contiguous float64 at 128^3
+      and 256^3, float32 at 256^3),
       the default 256-bit flat driver on the same views, timed beside it;
       the same-traffic copy kernel (12 rows read, 11 written, no physics) on both layouts, the
       ceiling of the access pattern; and a hand-written C + OpenMP kernel on the same arrays

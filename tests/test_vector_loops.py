@@ -261,9 +261,10 @@ def test_line_step_driver_equals_the_default_driver_and_counts_alike(rng, dtype)
 
 def test_line_steps_exactly_on_large_grids_whose_rows_share_cache_sets():
     """The choice of flat driver, from kernel views (arrays allocated, never touched): rows
-    a multiple of 4 KiB apart (common practice: one way of the first-level cache) on 128^3
-    points or more get the line-step driver; a grid of 8^3 (rows 4 KiB apart, small), 127^3
-    (rows not aliased), the allocator's padded grid functions and float32 at 96^3 the default."""
+    a multiple of 4 KiB apart (common practice: one way of the first-level cache) and 16 MiB
+    long or more get the line-step driver; a grid of 8^3 (rows 4 KiB apart, short), 127^3
+    (rows not aliased), the allocator's padded grid functions and float32 at 128^3 (8 MiB
+    rows) the default."""
     def table(shape, dtype=np.float64, padded=False):
         make = emsource.grid_arrays.empty_grid_function if padded else np.empty
         arrays = [make((6,) + shape, dtype) if padded else np.empty((6,) + shape, dtype),
@@ -275,9 +276,10 @@ def test_line_steps_exactly_on_large_grids_whose_rows_share_cache_sets():
         return emsource.sources._flat_drivers(views, shape)
 
     assert table((128, 128, 128)) is kernels.ADM_SOURCES_FLAT_LINE_STEPS
-    assert table((128, 128, 128), np.float32) is kernels.ADM_SOURCES_FLAT_LINE_STEPS
+    assert table((256, 128, 128), np.float32) is kernels.ADM_SOURCES_FLAT_LINE_STEPS
     assert table((256, 128, 64)) is kernels.ADM_SOURCES_FLAT_LINE_STEPS
     assert table((8, 8, 8)) is kernels.ADM_SOURCES_FLAT
-    assert table((96, 96, 96), np.float32) is kernels.ADM_SOURCES_FLAT
+    assert table((128, 128, 128), np.float32) is kernels.ADM_SOURCES_FLAT
+    assert table((120, 120, 120)) is kernels.ADM_SOURCES_FLAT
     assert table((127, 127, 127)) is kernels.ADM_SOURCES_FLAT
     assert table((128, 128, 128), padded=True) is kernels.ADM_SOURCES_FLAT

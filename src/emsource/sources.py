@@ -295,7 +295,7 @@ def _flat_drivers(views, grid):
     npoints = 1
     for n in grid:
         npoints *= n
-    if (npoints >= kernels.LINE_STEP_POINTS
+    if (npoints * views[0].itemsize >= kernels.LINE_STEP_ROW_BYTES
             and arg.rows_share_cache_sets(views, kernels.ALIASING_BYTES)):
         return kernels.ADM_SOURCES_FLAT_LINE_STEPS
     return kernels.ADM_SOURCES_FLAT
