@@ -4,6 +4,7 @@ beside the physical source kernel, measured in the same run.
 Run:  python benchmarks/bench_forms.py [--points N] [--repeat N]
       python benchmarks/bench_forms.py --conformal [--ideal-mhd] [--points N] [--repeat N]
       python benchmarks/bench_forms.py --small-call [--calls N]
+      python benchmarks/bench_forms.py --line-steps [--points N] [--repeat N]
 
 For a float64 grid of N^3 points (default 96) it prints, as medians of interleaved runs (each
 kernel timing right after a STREAM-style triad, read as a share of it; the machine is shared):
@@ -23,6 +24,11 @@ machine's load averages (``os.getloadavg``, what ``uptime`` prints) are printed 
 group. Read ratios within one group. ``--ideal-mhd`` does the same for ideal_mhd_fields
 (Eulerian velocity, into ``out``; contiguous and ghost-zone window) beside adm_sources and its
 column loop.
+
+``--line-steps`` measures instead, at 128^3 and 256^3 (or N^3), the flat drivers of adm_sources,
+stress_energy_4d (T_ab) and conformal_sources (chi) that a call on large C-contiguous float64
+grids takes (compiled for 512-bit vectors, ``emsource._arguments.takes_line_steps``) against the
+default 256-bit drivers on the same views, interleaved, each right after a triad.
 
 ``--small-call`` measures instead the per-call time of each public source call an evolution loop
 makes at every right-hand side (adm_sources, the reference; conformal_sources; stress_energy_4d;
@@ -55,7 +61,7 @@ sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
 import emsource  # noqa: E402
 import numba  # noqa: E402
 from bench_sources import (Triad, _same_traffic_copy, flat_space_fields, interleaved,  # noqa: E402
-                           numpy_sources, padded_copy, paired_ratio)
+                           numpy_sources, padded_copy, paired_quartiles, paired_ratio)
 from emsource import _arguments as arg  # noqa: E402
 from emsource.conformal import ConformalSources  # noqa: E402
 from emsource.kernels import conformal as conformal_kernels  # noqa: E402
@@ -319,11 +325,13 @@ def _small_call_cases(n=8):
     return cases
 
 
-def _kernel_alone(name, inputs, outputs):
+def _kernel_alone(name, inputs, outputs, default_width=False):
     """The compiled driver of a public call on the views its stored plan gives: Numba's
     dispatch and the work on the grid's points, no Python around them (the plans' internals:
-    ``emsource._call_plans``; what each function keeps in a plan's ``extra``)."""
+    ``emsource._call_plans``; what each function keeps in a plan's ``extra``). With
+    ``default_width``, the default (256-bit) driver where the plan holds a line-step one."""
     from emsource import _call_plans, conformal, ideal_mhd, sources
+    from emsource.kernels._compile import shared_dispatcher
 
     caches = {"adm_sources": (sources._ADM_PLANS, ("gaussian", "upper", "component_first")),
               "conformal_sources (chi)": (conformal._CONFORMAL_PLANS,
@@ -337,15 +345,70 @@ def _kernel_alone(name, inputs, outputs):
     v = plan.views(arrays)
     if name == "adm_sources":
         gidx, constants, drivers = plan.extra
-        kernel = drivers[constants[0]]
+        kernel = (sources.kernels.ADM_SOURCES_FLAT if default_width else drivers)[constants[0]]
         return lambda: kernel(v[0], gidx, *v[1:], *constants[1:], True)
     if name.startswith("stress_energy_4d"):
-        gidx, constants = plan.extra
-        kernel = sources.kernels.STRESS_ENERGY_FLAT[constants[0], constants[-1]]
+        gidx, constants, drivers = plan.extra
+        drivers = sources.kernels.STRESS_ENERGY_FLAT if default_width else drivers
+        kernel = drivers[constants[0], constants[-1]]
         return lambda: kernel(*v[:3], gidx, *v[3:], *constants[1:-1], True)
     driver, gidx, tail = plan.extra
     first = 2 if name.startswith("conformal") else 3  # arrays before the metric indices
-    return lambda: driver(*v[:first], gidx, *v[first:], *tail, True)
+    arguments = (*v[:first], gidx, *v[first:], *tail, True)
+    if default_width and name.startswith("conformal"):
+        for key, line_steps in conformal_kernels.CONFORMAL_SOURCES_LINE_STEPS.items():
+            if line_steps.py_func is driver.py_func:
+                driver = shared_dispatcher(conformal_kernels.CONFORMAL_SOURCES[key], arguments,
+                                           conformal._DRIVER_INPUTS)
+    return lambda: driver(*arguments)
+
+
+def line_steps_section(sizes, repeat):
+    """The flat drivers in their line-step form (512-bit vectors on large grids whose rows share
+    cache sets) against their default form, on the views of the same public call's plan:
+    adm_sources, stress_energy_4d (T_ab), conformal_sources (chi); float64, contiguous."""
+    print(f"emsource {emsource.__version__}, {numba.get_num_threads()} threads, float64, "
+          f"contiguous arrays, medians of {repeat}, each run right after a triad; time ratios "
+          "paired within a group")
+    triad = Triad()
+    rows = {"adm_sources": ADM_ROWS, "stress_energy_4d (T_ab)": 16 + 10,
+            "conformal_sources (chi)": CONFORMAL_ROWS}
+    for n in sizes:
+        shape = (n,) * 3
+        gamma, E, B, chi, gamma_tilde, alpha, beta, _ = state_fields(shape)
+        adm_out = emsource.adm_sources(gamma, E, B)
+        t_out = emsource.stress_energy_4d(alpha, beta, gamma, E, B)
+        conformal_out = conformal_sources(chi, gamma_tilde, E, B, decomposition="chi")
+        calls = {
+            "adm_sources": ((gamma, E, B), adm_out,
+                            lambda: emsource.adm_sources(gamma, E, B, out=adm_out)),
+            "stress_energy_4d (T_ab)": ((alpha, beta, gamma, E, B), (t_out,),
+                                        lambda: emsource.stress_energy_4d(
+                                            alpha, beta, gamma, E, B, out=t_out)),
+            "conformal_sources (chi)": ((chi, gamma_tilde, E, B), conformal_out,
+                                        lambda: conformal_sources(chi, gamma_tilde, E, B,
+                                                                  decomposition="chi",
+                                                                  out=conformal_out)),
+        }
+        print(f"\n{n}^3 ({_load()} before)")
+        print(f"{'call':30s} {'line steps':>10s} {'% triad':>8s} {'256-bit':>8s} "
+              f"{'% triad':>8s} {'time line / 256':>16s} {'quartiles':>12s}")
+        for name, (inputs, outputs, call) in calls.items():
+            call()  # stores the plan
+            nbytes = rows[name] * 8 * n ** 3
+            cases = {"lines": (_kernel_alone(name, inputs, outputs), nbytes),
+                     "256-bit": (_kernel_alone(name, inputs, outputs, default_width=True),
+                                 nbytes)}
+            measured = interleaved(cases, triad, repeat)
+            lines, default = measured["lines"][0], measured["256-bit"][0]
+            low, high = paired_quartiles(lines, default)
+            print(f"{name:30s} {n ** 3 / statistics.median(lines) / 1e6:10.1f} "
+                  f"{100 * measured['lines'][1]:7.0f}% "
+                  f"{n ** 3 / statistics.median(default) / 1e6:8.1f} "
+                  f"{100 * measured['256-bit'][1]:7.0f}% {paired_ratio(lines, default):16.3f} "
+                  f"{low:5.3f}-{high:5.3f}")
+        print(f"({_load()} after)")
+        del gamma, E, B, chi, gamma_tilde, alpha, beta, adm_out, t_out, conformal_out, calls
 
 
 def small_call_section(calls, rounds=15):
@@ -391,9 +454,14 @@ def main(argv=None):
                         help="per-call CPU time of the public source calls on 8^3, one thread")
     parser.add_argument("--calls", type=int, default=30000,
                         help="timed calls per case with --small-call (default 30000)")
+    parser.add_argument("--line-steps", action="store_true",
+                        help="line-step against default drivers at 128^3 and 256^3 (or N^3)")
     args = parser.parse_args(argv)
     if args.small_call:
         small_call_section(args.calls)
+        return
+    if args.line_steps:
+        line_steps_section((args.points,) if args.points else (128, 256), args.repeat)
         return
     if args.conformal or args.ideal_mhd:
         if args.conformal:

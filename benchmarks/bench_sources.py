@@ -154,8 +154,7 @@ class SizeCases:
     def line_steps_chosen(self, layout):
         """Whether ``adm_sources`` takes the 512-bit line-step driver on this layout."""
         views, flat = arg.kernel_views(self.arrays(layout), self.shape, whole_grids=True)
-        return flat and emsource.sources._flat_drivers(views, self.shape) is not \
-            kernels.ADM_SOURCES_FLAT
+        return flat and arg.takes_line_steps(views, self.shape)
 
     def default_driver(self, layout):
         """The default (256-bit) flat driver on the views ``adm_sources`` passes: timed beside

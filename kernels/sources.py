@@ -416,9 +416,10 @@ def _stress_energy_strip(start, stop, alpha, beta, gamma, gidx, E, B, T, form, c
     return bad, low
 
 
-def _stress_energy_flat_for(form, upper):
+def _stress_energy_flat_for(form, upper, line_steps=False):
     """The flat T_ab (``upper`` False) or T^ab driver of input form ``form`` (both constants
-    in its loop)."""
+    in its loop); with ``line_steps``, compiled for 512-bit vectors
+    (:data:`STRESS_ENERGY_FLAT_LINE_STEPS`)."""
 
     @grid_kernel
     def stress_energy_flat(alpha, beta, gamma, gidx, E, B, T, coef, half, tiny, pivot_floor,
@@ -437,6 +438,8 @@ def _stress_energy_flat_for(form, upper):
         T = T.reshape((T.shape[0], T.size // T.shape[0]))
         length = strip_length(npoints)
         for strip in prange(strip_count(npoints, length)):
+            if line_steps:  # a constant: the branch is pruned where it is False
+                prefer_512_bit_vectors()
             start, stop = strip_range(strip, length, npoints)
             bad, low = _stress_energy_strip(start, stop, alpha, beta, gamma, gidx, E, B, T, form,
                                             coef, half, tiny, pivot_floor, upper)
@@ -535,31 +538,23 @@ def _stress_energy_window_for(form, upper):
 INPUT_FORMS = (FORM_CONTRAVARIANT, FORM_COVARIANT, FORM_DENSITIZED)
 #: The flat source driver of each input form.
 ADM_SOURCES_FLAT = {form: _adm_sources_flat_for(form) for form in INPUT_FORMS}
-#: The same drivers compiled for 512-bit vectors: each step of the loop reads and writes a whole
-#: 64-byte cache line of every row (8 float64 or 16 float32 values) instead of half of one. For
-#: large grids whose rows lie a multiple of :data:`ALIASING_BYTES` apart (see
-#: :data:`LINE_STEP_ROW_BYTES`): there the 23 rows of a point compete for one set of the
-#: first-level cache (one 4 KiB way; 12 ways here for 23 lines), a line can be evicted between
-#: the two 256-bit steps that use it, and taking all of it at once was 0.92-0.95 of the 256-bit
-#: time at 128^3 and 256^3 float64, 0.93-0.97 at 256^3 float32 (two threads, interleaved in one
-#: process, ``benchmarks/bench_sources.py``). Compiled on first use like the others.
+#: The same drivers compiled for 512-bit vectors, for large grids whose component rows share
+#: cache sets (:data:`~.vector_loops.LINE_STEP_ROW_BYTES`): each step of the loop reads and
+#: writes a whole 64-byte cache line of every row. 0.92-0.98 of the 256-bit time at 128^3 and
+#: 256^3 float64, 0.93-0.97 at 256^3 float32 (two threads, interleaved in one process,
+#: ``benchmarks/bench_sources.py``). Compiled on first use like the others.
 ADM_SOURCES_FLAT_LINE_STEPS = {form: _adm_sources_flat_for(form, line_steps=True)
                                for form in INPUT_FORMS}
-#: Row distances (bytes) at which rows share first-level cache sets: the size of one way of that
-#: cache (48 KiB, 12 ways on the machine measured; 32 KiB, 8 ways is the same 4 KiB on older
-#: x86 parts, from memory). Common practice: a multiple of the page size aliases.
-ALIASING_BYTES = 4096
-#: Shortest rows (bytes) for :data:`ADM_SOURCES_FLAT_LINE_STEPS`. Measured per size (float64 /
-#: float32, time line steps / 256-bit driver, interleaved probes and two benchmark runs):
-#: 96^3 1.02-1.05 / 1.05, 112^3 1.00 / 1.07, 120^3 0.98, 128^3 0.92-0.97 (16 MiB rows) /
-#: 0.96-1.08 (8 MiB rows), 160^3 0.93-0.95 / 0.95, 192^3 0.92 / 0.90, 256^3 0.92-0.93 /
-#: 0.91-0.97: a gain from rows of about 16 MiB on, in either dtype.
-LINE_STEP_ROW_BYTES = 2 ** 24
 #: The windowed source driver of each input form.
 ADM_SOURCES_WINDOW = {form: _adm_sources_window_for(form) for form in INPUT_FORMS}
 #: The flat T_ab / T^ab driver of each (input form, upper).
 STRESS_ENERGY_FLAT = {(form, upper): _stress_energy_flat_for(form, upper)
                       for form in INPUT_FORMS for upper in (False, True)}
+#: The flat T_ab / T^ab drivers compiled for 512-bit vectors (as
+#: :data:`ADM_SOURCES_FLAT_LINE_STEPS`): 0.90 / 0.88 of the 256-bit time at 128^3 / 256^3
+#: float64 (T_ab, two threads, interleaved in one process).
+STRESS_ENERGY_FLAT_LINE_STEPS = {(form, upper): _stress_energy_flat_for(form, upper, True)
+                                 for form in INPUT_FORMS for upper in (False, True)}
 #: The windowed T_ab / T^ab driver of each (input form, upper).
 STRESS_ENERGY_WINDOW = {(form, upper): _stress_energy_window_for(form, upper)
                         for form in INPUT_FORMS for upper in (False, True)}

@@ -33,7 +33,8 @@ import numpy as np
 
 from ._compile import point_function
 
-__all__ = ["STRIP_POINTS", "SHORTEST_STRIP", "SMALL_GRID_STRIPS", "window_column", "span_start",
+__all__ = ["STRIP_POINTS", "SHORTEST_STRIP", "SMALL_GRID_STRIPS", "ALIASING_BYTES",
+           "LINE_STEP_ROW_BYTES", "window_column", "span_start",
            "packed_rows", "strip_length", "strip_count", "strip_range", "as_spans",
            "count_flag", "line_as_strips", "span_metric_fields"]
 
@@ -46,6 +47,24 @@ STRIP_POINTS = 1024
 #: calls ``numba.get_num_threads`` cannot be cached on disk.
 SHORTEST_STRIP = 64
 SMALL_GRID_STRIPS = 8
+
+
+#: Row distances (bytes) at which rows share first-level cache sets: the size of one way of that
+#: cache (48 KiB, 12 ways on the machine measured; 32 KiB, 8 ways is the same 4 KiB on older
+#: x86 parts, from memory). Common practice: a multiple of the page size aliases.
+ALIASING_BYTES = 4096
+#: Shortest component rows (bytes) on which a flat driver takes its line-step form (compiled for
+#: 512-bit vectors: each loop step uses a whole 64-byte line of every row instead of half of
+#: one) where the rows lie a multiple of :data:`ALIASING_BYTES` apart. Then the rows of a point
+#: (23 for the sources) fall into one first-level cache set (12 ways here), and a line can be
+#: evicted between the two 256-bit steps that use its halves. Measured for the source driver per
+#: size (float64 / float32, time line steps / 256-bit driver, interleaved probes and three
+#: benchmark runs): 96^3 1.02-1.05 / 1.05, 112^3 1.00 / 1.07, 120^3 0.98, 128^3 0.92-0.98
+#: (16 MiB rows) / 0.96-1.08 (8 MiB rows), 160^3 0.93-0.95 / 0.95, 192^3 0.92 / 0.90, 256^3
+#: 0.92-0.94 / 0.91-0.97: a gain from rows of about 16 MiB on, in either dtype; padded rows
+#: (no aliasing) 1.00-1.04 at every size. T_ab 0.90 / 0.88 and the conformal sources (chi)
+#: 0.94 / 0.87 at 128^3 / 256^3 float64; ideal MHD 1.00 (not given a line-step form).
+LINE_STEP_ROW_BYTES = 2 ** 24
 
 
 @point_function

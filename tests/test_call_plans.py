@@ -16,7 +16,7 @@ import pytest
 import emsource
 from emsource import _arguments, _call_plans, conformal, grid_arrays, ideal_mhd, sources
 from emsource.grid_arrays import empty_grid_function, grid_function_like
-from conftest import random_curved_data
+from conftest import assert_same_arithmetic, random_curved_data
 
 GRID = (4, 3, 5)
 OPTIONS = ("gaussian", "upper", "component_first")
@@ -564,7 +564,14 @@ def test_padded_views_the_caller_made_take_the_full_path_for_every_call(spacetim
 
     result = uncached_and_cached(make_call, warm_up, call.cache)
     assert result[0] == "ok"
-    assert_bits(result[1], expected)
+    # The full path hands the kernel (ncomp, stride) blocks; ``expected`` came from whole
+    # C-contiguous grids: two compiled specialisations, whose roundings may differ by
+    # contraction (seen once in the full suite, T_ab: 1 ulp at 28 of 600 values, while the test
+    # alone gave equal bits; so what else the process had compiled mattered). A plan's stale
+    # block would be off by order one.
+    for got, want in zip(result[1], expected):
+        assert got.dtype == want.dtype and got.shape == want.shape
+        assert_same_arithmetic(got, want)
 
 
 def _hostile_outs(name, inputs, out):

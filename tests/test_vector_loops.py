@@ -16,6 +16,7 @@ import numpy as np
 import pytest
 
 import emsource
+import emsource.conformal
 import emsource.grid_arrays
 import emsource.sources
 from emsource import _arguments as arg
@@ -259,27 +260,69 @@ def test_line_step_driver_equals_the_default_driver_and_counts_alike(rng, dtype)
                                        atol=256 * np.finfo(float).eps * np.abs(reference).max())
 
 
-def test_line_steps_exactly_on_large_grids_whose_rows_share_cache_sets():
-    """The choice of flat driver, from kernel views (arrays allocated, never touched): rows
-    a multiple of 4 KiB apart (common practice: one way of the first-level cache) and 16 MiB
-    long or more get the line-step driver; a grid of 8^3 (rows 4 KiB apart, short), 127^3
-    (rows not aliased), the allocator's padded grid functions and float32 at 128^3 (8 MiB
-    rows) the default."""
-    def table(shape, dtype=np.float64, padded=False):
+def test_line_steps_exactly_on_long_rows_that_share_cache_sets():
+    """The choice of the line-step form, from kernel views (arrays allocated, never touched):
+    rows a multiple of 4 KiB apart (common practice: one way of the first-level cache) and
+    16 MiB long or more take it; a grid of 8^3 (rows 4 KiB apart, short), 120^3 float64
+    (13.8 MB), 127^3 (rows not aliased), the allocator's padded grid functions and float32 at
+    128^3 (8 MiB rows) do not."""
+    def line_steps(shape, dtype=np.float64, padded=False):
         make = emsource.grid_arrays.empty_grid_function if padded else np.empty
-        arrays = [make((6,) + shape, dtype) if padded else np.empty((6,) + shape, dtype),
-                  np.empty((3,) + shape, dtype), np.empty((3,) + shape, dtype),
-                  np.empty(shape, dtype), np.empty((3,) + shape, dtype),
-                  np.empty((6,) + shape, dtype), np.empty(shape, dtype)]
+        arrays = [make((6,) + shape, dtype), np.empty((3,) + shape, dtype),
+                  np.empty((3,) + shape, dtype), np.empty(shape, dtype),
+                  np.empty((3,) + shape, dtype), np.empty((6,) + shape, dtype),
+                  np.empty(shape, dtype)]
         views, flat = arg.kernel_views(arrays, shape, whole_grids=True)
         assert flat
-        return emsource.sources._flat_drivers(views, shape)
+        return arg.takes_line_steps(views, shape)
 
-    assert table((128, 128, 128)) is kernels.ADM_SOURCES_FLAT_LINE_STEPS
-    assert table((256, 128, 128), np.float32) is kernels.ADM_SOURCES_FLAT_LINE_STEPS
-    assert table((256, 128, 64)) is kernels.ADM_SOURCES_FLAT_LINE_STEPS
-    assert table((8, 8, 8)) is kernels.ADM_SOURCES_FLAT
-    assert table((128, 128, 128), np.float32) is kernels.ADM_SOURCES_FLAT
-    assert table((120, 120, 120)) is kernels.ADM_SOURCES_FLAT
-    assert table((127, 127, 127)) is kernels.ADM_SOURCES_FLAT
-    assert table((128, 128, 128), padded=True) is kernels.ADM_SOURCES_FLAT
+    assert line_steps((128, 128, 128))
+    assert line_steps((256, 128, 128), np.float32)
+    assert line_steps((256, 128, 64))
+    assert not line_steps((8, 8, 8))
+    assert not line_steps((128, 128, 128), np.float32)
+    assert not line_steps((120, 120, 120))
+    assert not line_steps((127, 127, 127))
+    assert not line_steps((128, 128, 128), padded=True)
+    # Scalars on a whole grid are 3-D arrays whose first stride (ny nz itemsize) need not be
+    # a multiple of 4 KiB: they are not rows.
+    assert line_steps((2048, 96, 96))
+
+
+def test_public_calls_take_and_plan_the_line_step_drivers(rng, monkeypatch):
+    """With the row threshold lowered to 4 KiB, a 16^3 grid takes the line-step drivers of
+    adm_sources, stress_energy_4d and conformal_sources (their plans keep the line-step table
+    or dispatcher) and gives the default drivers' results up to contraction; a planned second
+    call the same bits as the first."""
+    shape = (16, 16, 16)
+    alpha, beta, gamma, E, B = random_curved_data(rng, shape)
+    chi = rng.uniform(0.5, 1.5, shape)
+    calls = {
+        "adm": (lambda **kw: emsource.adm_sources(gamma, E, B, **kw), emsource.sources._ADM_PLANS),
+        "T": (lambda **kw: emsource.stress_energy_4d(alpha, beta, gamma, E, B, **kw),
+              emsource.sources._STRESS_ENERGY_PLANS),
+        "conformal": (lambda **kw: emsource.conformal.conformal_sources(
+            chi, gamma, E, B, decomposition="chi", **kw), emsource.conformal._CONFORMAL_PLANS),
+    }
+    default = {name: call() for name, (call, _) in calls.items()}
+    monkeypatch.setattr(arg, "LINE_STEP_ROW_BYTES", 4096)
+    line_tables = (kernels.ADM_SOURCES_FLAT_LINE_STEPS, kernels.STRESS_ENERGY_FLAT_LINE_STEPS)
+    conformal_lines = emsource.kernels.conformal.CONFORMAL_SOURCES_LINE_STEPS[
+        emsource.kernels.conformal.DECOMPOSITION_CHI, kernels.FORM_CONTRAVARIANT]
+    for name, (call, plans) in calls.items():
+        plans.clear()  # the calls above stored plans with the default drivers
+        first = call()
+        plans.clear()
+        out = tuple(np.empty_like(a) for a in first) if name != "T" else np.empty_like(first)
+        call(out=out)  # the full path stores the plan
+        call(out=out)  # and this call runs it
+        (plan,) = plans._plans.values()
+        if name == "conformal":
+            assert plan.extra[0].py_func is conformal_lines.py_func
+        else:
+            assert plan.extra[2] in line_tables
+        as_tuple = (lambda r: (r,)) if name == "T" else tuple
+        for a, b, c in zip(as_tuple(first), as_tuple(out), as_tuple(default[name])):
+            np.testing.assert_array_equal(a, b)
+            assert_same_arithmetic(a, c)
+        plans.clear()

@@ -69,3 +69,27 @@ def test_512_bit_registers_exactly_where_asked_and_the_host_has_them():
     if not numba.config.CPU_FEATURES:  # LLVM's own tuning for the host: at most 256 bits
         assert "zmm" not in default_asm
     assert ("zmm" in wide_asm) == _host_has_512_bit_vectors()
+
+
+def _guarded(wide):
+    """The drivers' pattern (kernels/sources.py ``_adm_sources_flat_for(form, line_steps)``):
+    the request behind a closure constant."""
+    @numba.njit(**_OPTIONS)
+    def kernel(a, b, c):
+        for i in prange(a.shape[0]):
+            if wide:
+                prefer_512_bit_vectors()
+            for k in range(a.shape[1]):
+                a[i, k] = b[i, k] * c[i, k] + b[i, k]
+
+    return kernel
+
+
+def test_a_request_behind_a_false_closure_constant_leaves_no_attribute():
+    """Numba prunes the branch on a constant, so the default drivers of a factory that guards
+    the request with its ``line_steps`` argument carry no width attribute."""
+    attribute = f'"{PREFERRED_WIDTH_ATTRIBUTE}"="512"'
+    wide_ir, _ = _compiled(_guarded(True))
+    default_ir, _ = _compiled(_guarded(False))
+    assert attribute in wide_ir
+    assert PREFERRED_WIDTH_ATTRIBUTE not in default_ir

@@ -17,7 +17,7 @@ from .grid_arrays import rows_of
 from .input_forms import FORMS
 from .kernels import input_checks
 from .kernels._compile import call_sharing_layouts
-from .kernels.vector_loops import line_as_strips
+from .kernels.vector_loops import ALIASING_BYTES, LINE_STEP_ROW_BYTES, line_as_strips
 
 #: Flat indices, into a full (3, 3) block seen as 9, of the packed (xx, xy, xz, yy, yz, zz).
 FULL_METRIC_INDEX = (0, 1, 2, 4, 5, 8)
@@ -433,15 +433,23 @@ def kernel_views(arrays, grid, whole_grids=False):
     return views, True
 
 
-def rows_share_cache_sets(views, aliasing_bytes: int) -> bool:
-    """Whether the component rows of every flat kernel view with more than one row (from
-    :func:`kernel_views`: (ncomp, stride) blocks or whole C-contiguous arrays) lie a multiple of
-    ``aliasing_bytes`` apart, so that the rows of one point fall into the same cache set. True
-    of the C-contiguous arrays of most grids whose point count is a multiple of 512 (8^3,
-    128^3, 96^3 in float64), never of the padded grid functions of
-    :mod:`emsource.grid_arrays` (padded to avoid exactly this)."""
-    for view in views:
-        if view.ndim > 1 and view.shape[0] > 1 and view.strides[0] % aliasing_bytes:
+def takes_line_steps(views, grid) -> bool:
+    """Whether a flat driver should take its line-step form (512-bit vectors, a whole cache
+    line of every row per step) for the flat kernel ``views`` on ``grid`` (from
+    :func:`kernel_views`: (ncomp, stride) blocks or whole C-contiguous arrays): rows of at
+    least :data:`~emsource.kernels.vector_loops.LINE_STEP_ROW_BYTES`, and the component rows of
+    every view with more than one row a multiple of
+    :data:`~emsource.kernels.vector_loops.ALIASING_BYTES` apart, so that the rows of one point
+    fall into the same cache set. Never true of the padded grid functions of
+    :mod:`emsource.grid_arrays` (padded to avoid exactly this). A function of shapes and strides
+    only: a call plan keeps its answer."""
+    npoints = 1
+    for n in grid:
+        npoints *= n
+    if npoints * views[0].itemsize < LINE_STEP_ROW_BYTES:
+        return False
+    for view in views:  # the arrays with a component axis (first) hold more than npoints
+        if view.size > npoints and view.strides[0] % ALIASING_BYTES:
             return False
     return True
 

@@ -120,8 +120,9 @@ def _run_conformal_kernel(decomposition, form, gidx, arrays, grid, dtype, prefac
     (f, metric, e, b, *outputs), steps, shape, last = found
     tail = (steps, shape, last, *physics)
     arguments = (f, metric, gidx, e, b, *outputs, *tail, bool(check))
-    driver = shared_dispatcher(kernels.CONFORMAL_SOURCES[decomposition, form], arguments,
-                               _DRIVER_INPUTS)
+    drivers = (kernels.CONFORMAL_SOURCES_LINE_STEPS if flat and arg.takes_line_steps(views, grid)
+               else kernels.CONFORMAL_SOURCES)
+    driver = shared_dispatcher(drivers[decomposition, form], arguments, _DRIVER_INPUTS)
     with kernel_call():
         count = driver(*arguments)
     if not flat:

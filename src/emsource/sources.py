@@ -272,7 +272,9 @@ def adm_sources(gamma, E, B, *, units="gaussian", field_index="upper",
         return result
     kernel_views, flat = arg.kernel_views([metric, e, b] + views, grid, whole_grids=True)
     constants = arg.kernel_constants(form, dtype, prefactor)
-    drivers = _flat_drivers(kernel_views, grid) if flat else None
+    drivers = None if not flat else (kernels.ADM_SOURCES_FLAT_LINE_STEPS
+                                     if arg.takes_line_steps(kernel_views, grid)
+                                     else kernels.ADM_SOURCES_FLAT)
     if layout == "component_first" and key is not None:
         # Only now, after every check passed: a plan is what a full validation derived.
         _ADM_PLANS.put(key, FlatPlan.of(inputs + result, kernel_views, grid, dtype,
@@ -288,23 +290,11 @@ _ADM_PLANS = PlanCache()
 _INPUT_NAMES = ("gamma", "E", "B")
 
 
-def _flat_drivers(views, grid):
-    """The table of flat source drivers for flat kernel ``views`` on ``grid``: the one that
-    steps a whole cache line at a time on a large grid whose component rows share cache sets
-    (:data:`~emsource.kernels.sources.ADM_SOURCES_FLAT_LINE_STEPS`), else the default."""
-    npoints = 1
-    for n in grid:
-        npoints *= n
-    if (npoints * views[0].itemsize >= kernels.LINE_STEP_ROW_BYTES
-            and arg.rows_share_cache_sets(views, kernels.ALIASING_BYTES)):
-        return kernels.ADM_SOURCES_FLAT_LINE_STEPS
-    return kernels.ADM_SOURCES_FLAT
-
-
 def _run_adm_kernel(grid, dtype, gidx, constants, views, flat_drivers, check):
-    """One call of the source driver on kernel views: the flat loop (a table of drivers by form
-    from :func:`_flat_drivers`; None for the other views), windowed loop or column loop; on
-    counted bad points, the search for the first one and :class:`GridPointError`."""
+    """One call of the source driver on kernel views: the flat loop (``flat_drivers`` the table
+    of flat drivers by form, default or line steps (:func:`emsource._arguments.takes_line_steps`);
+    None for the other views), windowed loop or column loop; on counted bad points, the search
+    for the first one and :class:`GridPointError`."""
     g, ev, bv, rho, s_i, s_ij, s = views
     form, physics = constants[0], constants[1:]  # the vectorised drivers: one per form
     flat = flat_drivers is not None
@@ -383,8 +373,9 @@ def stress_energy_4d(alpha, beta, gamma, E, B, *, units="gaussian", index="lower
         planned = planned_outputs(plan, function, inputs, names, out, None)
         if planned is not None:
             result, views = planned
-            gidx, constants = plan.extra
-            _run_stress_energy_kernel(plan.grid, plan.dtype, gidx, constants, views, True, check)
+            gidx, constants, drivers = plan.extra
+            _run_stress_energy_kernel(plan.grid, plan.dtype, gidx, constants, views, drivers,
+                                      check)
             return result
     arg.choice(function, "index", index, ("lower", "upper"))
     (grid, lapse, shift, metric, gidx, e, b, prefactor, form,
@@ -400,11 +391,14 @@ def stress_energy_4d(alpha, beta, gamma, E, B, *, units="gaussian", index="lower
         return result
     views, flat = arg.kernel_views([lapse, shift, metric, e, b, t_view], grid, whole_grids=True)
     constants = arg.kernel_constants(form, dtype, prefactor) + (index == "upper",)
+    drivers = None if not flat else (kernels.STRESS_ENERGY_FLAT_LINE_STEPS
+                                     if arg.takes_line_steps(views, grid)
+                                     else kernels.STRESS_ENERGY_FLAT)
     if layout == "component_first" and flat and key is not None:
         # Only now, after every check passed: a plan is what a full validation derived.
         _STRESS_ENERGY_PLANS.put(key, FlatPlan.of(inputs + (result,), views, grid, dtype,
-                                                  (gidx, constants), outputs=1))
-    _run_stress_energy_kernel(grid, dtype, gidx, constants, views, flat, check)
+                                                  (gidx, constants, drivers), outputs=1))
+    _run_stress_energy_kernel(grid, dtype, gidx, constants, views, drivers, check)
     return result
 
 
@@ -412,18 +406,19 @@ def stress_energy_4d(alpha, beta, gamma, E, B, *, units="gaussian", index="lower
 _STRESS_ENERGY_PLANS = PlanCache()
 
 
-def _run_stress_energy_kernel(grid, dtype, gidx, constants, views, flat, check):
-    """One call of the T_ab (T^ab) driver on kernel views (flat loop, windowed loop or column
-    loop); on counted bad points, the search for the first one and :class:`GridPointError`."""
+def _run_stress_energy_kernel(grid, dtype, gidx, constants, views, flat_drivers, check):
+    """One call of the T_ab (T^ab) driver on kernel views: the flat loop (``flat_drivers`` its
+    table, as in :func:`_run_adm_kernel`; None for the other views), windowed loop or column
+    loop; on counted bad points, the search for the first one and :class:`GridPointError`."""
     a, be, g, ev, bv, t = views
     upper = constants[-1]
     physics = constants[1:-1]  # the vectorised drivers: one per (form, upper)
     form = constants[0]
+    flat = flat_drivers is not None
     with kernel_call():
         spans = None if flat else arg.unit_stride_spans(views)
         if flat:
-            counts = kernels.STRESS_ENERGY_FLAT[form, upper](a, be, g, gidx, ev, bv, t, *physics,
-                                                             bool(check))
+            counts = flat_drivers[form, upper](a, be, g, gidx, ev, bv, t, *physics, bool(check))
         elif spans is not None:  # windows contiguous along z (ghost zones sliced off)
             (a1, be1, g1, e1, b1, t1), steps, window = spans
             counts = call_sharing_layouts(
