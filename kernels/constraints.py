@@ -443,6 +443,17 @@ def _constraint_rows(K, rho, S, interior, i, j, start, buf, inv, sums, count, si
 
 
 @point_function
+def _fill_nan(H, M, H_scale, M_scale, i, j, k0, k1, nan):
+    """NaN into every output at the points (i, j, k0..k1 - 1)."""
+    for k in range(k0, k1):
+        H[i, j, k] = nan
+        H_scale[i, j, k] = nan
+        for a in range(3):
+            M[a, i, j, k] = nan
+            M_scale[a, i, j, k] = nan
+
+
+@point_function
 def _enter_ring(gamma, i, column, start, span, r, w1, w2, inv_hx, ring, slot):
     """d_x g_p and d_xx g_p of grid column (i, ``column``) on the strip start - r..start + span
     - r - 1 (the strip widened by r in z) into ring slot ``slot`` (rows at _RING_STEP slot)."""
@@ -511,14 +522,15 @@ def adm_constraints_grid(gamma, K, rho, S, interior, w1, w2, inv_h, sixteen_pi, 
         high = min(ny, low + width)
         edge_i = (i < r) | (i >= nx - r)
         for j in range(low, high):
-            edge = edge_i | (j < r) | (j >= ny - r)
-            for k in range(nz):
-                if edge | (k < r) | (k >= nz - r):
-                    H[i, j, k] = nan
-                    H_scale[i, j, k] = nan
-                    for a in range(3):
-                        M[a, i, j, k] = nan
-                        M_scale[a, i, j, k] = nan
+            # NaN within r of a face: whole columns at the x and y faces, r points at each end
+            # of the others, instead of a test at every point of the band (same bits; time
+            # 0.96-1.00 / 0.97-0.98 / 0.99-1.02 at orders 2 / 4 / 6, 64^3 and 128^3, one and
+            # two threads, interleaved).
+            if edge_i | (j < r) | (j >= ny - r):
+                _fill_nan(H, M, H_scale, M_scale, i, j, 0, nz, nan)
+            else:
+                _fill_nan(H, M, H_scale, M_scale, i, j, 0, r, nan)
+                _fill_nan(H, M, H_scale, M_scale, i, j, nz - r, nz, nan)
         first = max(low, r)
         last = min(high, ny - r)
         if edge_i | (first >= last):
