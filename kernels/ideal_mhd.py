@@ -182,9 +182,9 @@ def _ideal_mhd_for(form, kind):
     def ideal_mhd_spans(alpha, beta, gamma, gidx, B, V, E, U, b, steps, shape, last,
                         pivot_floor, one, check):
         """E^i, u^a, b^a over arrays given as 1-D spans or whole C-contiguous arrays (alpha,
-        beta, gamma, B, V, E, U, b: rows of ``steps`` in this order), the columns of ``shape`` with ``last`` points in the
-        last one (:func:`emsource._arguments.driver_spans`); returns the count of bad points
-        (0 with ``check`` False)."""
+        beta, gamma, B, V, E, U, b: rows of ``steps`` in this order), the columns of ``shape``
+        with ``last`` points in the last one (:func:`emsource._arguments.driver_spans`); returns
+        the count of bad points (0 with ``check`` False)."""
         alpha, beta, gamma, B, V = (as_spans(alpha), as_spans(beta), as_spans(gamma),
                                     as_spans(B), as_spans(V))
         E, U, b = as_spans(E), as_spans(U), as_spans(b)
