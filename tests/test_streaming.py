@@ -36,6 +36,50 @@ def test_results_do_not_depend_on_the_slab_size(tmp_path, rng, axis_order):
                 assert np.array_equal(a[q], b[q]), (rows, q)
 
 
+def test_levels_that_reuse_the_slab_buffers_match_the_in_memory_call(tmp_path, rng):
+    """Three levels of one grid share their slab buffers (``SlabBuffers.reused``); the last slab
+    of each level is short (9 planes in slabs of 4), so a level's buffers hold the previous
+    level's values beyond it: every level's outputs equal ``adm_sources`` on that level alone."""
+    path = tmp_path / "snap.h5"
+    levels = curved_levels(rng, shape=(9, 8, 7), times=(0.0, 0.5, 1.0))
+    snapshot.write_snapshot(path, levels)
+    out = tmp_path / "out.h5"
+    compute_sources(path, out, rows=4)
+    for index, level in enumerate(levels):
+        expected = emsource.adm_sources(level["spatial_metric"], level["electric_field"],
+                                        level["magnetic_field"])
+        got = snapshot.read_level(out, index)
+        for q, want in zip(OUTPUTS, expected):
+            np.testing.assert_array_equal(got[q], want)
+
+
+def test_slab_buffers_are_reused_exactly_where_they_fit(tmp_path, rng):
+    from emsource.snapshot.slabs import SlabBuffers
+
+    path = tmp_path / "snap.h5"
+    small, large = (curved_levels(rng, shape=shape, times=(0.0,))[0]
+                    for shape in ((6, 5, 4), (6, 5, 6)))
+    large["time"] = 1.0
+    large["grid"] = emsource.grid.UniformGrid((6, 5, 6), (0.0, 0.0, 0.0), (0.1, 0.1, 0.1))
+    snapshot.write_snapshot(path, [small, large])
+    with snapshot.open_snapshot(path) as snap:
+        first, second = snap.levels
+        names = ("spatial_metric", "electric_field")
+        buffers = SlabBuffers(first, names, 4, np.float64)
+        assert SlabBuffers.reused(buffers, first, names, 3, np.float64) is buffers
+        assert SlabBuffers.reused(buffers, first, names, 5, np.float64) is not buffers  # rows
+        # planes of 20 points (first) and 30 (second): room for 4 x 20 = 80 points per component
+        assert SlabBuffers.reused(buffers, second, names, 3, np.float64) is not buffers  # 90
+        assert SlabBuffers.reused(buffers, second, names, 2, np.float64) is buffers  # 60
+        assert SlabBuffers.reused(buffers, first, names[:1], 4, np.float64) is not buffers
+        assert SlabBuffers.reused(buffers, first, names, 4, np.float32) is not buffers
+        assert SlabBuffers.reused(None, first, names, 4, np.float64).level is first
+        reused = SlabBuffers.reused(buffers, second, names, 2, np.float64)
+        assert reused.level is second
+        np.testing.assert_array_equal(reused.read("spatial_metric", 0, 2),
+                                      large["spatial_metric"][:, 0:2])
+
+
 def _write_big_snapshot(path, shape, rng):
     """A float64 snapshot written plane by plane (the test process never holds it whole)."""
     with h5py.File(path, "w") as f:

@@ -230,9 +230,10 @@ def compute_sources(input_file, output_file, *, mapping=None, memory_limit=DEFAU
                         ChunkWriter() as writer, BackgroundFlush(temporary) as flush:
                     write_root_attributes(out, attributes)
                     group = out.create_group(LEVELS_GROUP)
+                    buffers = {}  # reused from level to level where they fit
                     for level, dtype, n in plans:
                         _level_sources(level, dtype, n, group, compression, check, outputs,
-                                       report, bar, writer, flush)
+                                       report, bar, writer, flush, buffers)
                         report.times.append(level.time)
                     last_slab_done = _time.perf_counter()
                     flush.finish()
@@ -249,7 +250,9 @@ def compute_sources(input_file, output_file, *, mapping=None, memory_limit=DEFAU
 
 
 def _level_sources(level, dtype, rows, group, compression, check, written, report, bar, writer,
-                   flush):
+                   flush, buffers):
+    """One level's sources, slab by slab, into ``group``; ``buffers`` holds the slab buffers of
+    the previous level (:meth:`SlabBuffers.reused`) and receives this level's."""
     g = group.create_group(level.label)
     write_level_attributes(g, time=level.time, grid=level.grid, units=level.units,
                            axis_order=level.axis_order)
@@ -265,9 +268,12 @@ def _level_sources(level, dtype, rows, group, compression, check, written, repor
     for q in _checked(level):  # the valid_mask, so that the output says where it holds NaN
         datasets[q] = g.create_dataset(q, shape=stored, dtype=np.uint8,
                                        chunks=(chunk_rows,) + stored[1:], compression=compression)
-    inputs = SlabBuffers(level, SOURCE_INPUTS, rows, dtype)
-    checked = SlabBuffers(level, _checked(level), rows, np.uint8)
-    outputs = SlabBuffers(level, SOURCE_OUTPUTS, rows, dtype)
+    inputs = buffers["inputs"] = SlabBuffers.reused(buffers.get("inputs"), level, SOURCE_INPUTS,
+                                                    rows, dtype)
+    checked = buffers["checked"] = SlabBuffers.reused(buffers.get("checked"), level,
+                                                      _checked(level), rows, np.uint8)
+    outputs = buffers["outputs"] = SlabBuffers.reused(buffers.get("outputs"), level,
+                                                      SOURCE_OUTPUTS, rows, dtype)
     low, high = report.energy_density_range
     if report.slabs == 0:
         report.rows_per_slab = rows  # as adjusted to whole chunks
