@@ -54,6 +54,8 @@ def test_levels_that_reuse_the_slab_buffers_match_the_in_memory_call(tmp_path, r
 
 
 def test_slab_buffers_are_reused_exactly_where_they_fit(tmp_path, rng):
+    import weakref
+
     from emsource.snapshot.slabs import SlabBuffers
 
     path = tmp_path / "snap.h5"
@@ -62,22 +64,29 @@ def test_slab_buffers_are_reused_exactly_where_they_fit(tmp_path, rng):
     large["time"] = 1.0
     large["grid"] = emsource.grid.UniformGrid((6, 5, 6), (0.0, 0.0, 0.0), (0.1, 0.1, 0.1))
     snapshot.write_snapshot(path, [small, large])
+    names = ("spatial_metric", "electric_field")
     with snapshot.open_snapshot(path) as snap:
         first, second = snap.levels
-        names = ("spatial_metric", "electric_field")
-        buffers = SlabBuffers(first, names, 4, np.float64)
-        assert SlabBuffers.reused(buffers, first, names, 3, np.float64) is buffers
-        assert SlabBuffers.reused(buffers, first, names, 5, np.float64) is not buffers  # rows
+        store = {}
+        buffers = SlabBuffers.reused(store, "b", first, names, 4, np.float64)
+        assert store["b"] is buffers and buffers.level is first
+
+        def again(level, rows, quantities=names, dtype=np.float64):
+            return SlabBuffers.reused(store, "b", level, quantities, rows, dtype)
+
+        assert again(first, 3) is buffers
         # planes of 20 points (first) and 30 (second): room for 4 x 20 = 80 points per component
-        assert SlabBuffers.reused(buffers, second, names, 3, np.float64) is not buffers  # 90
-        assert SlabBuffers.reused(buffers, second, names, 2, np.float64) is buffers  # 60
-        assert SlabBuffers.reused(buffers, first, names[:1], 4, np.float64) is not buffers
-        assert SlabBuffers.reused(buffers, first, names, 4, np.float32) is not buffers
-        assert SlabBuffers.reused(None, first, names, 4, np.float64).level is first
-        reused = SlabBuffers.reused(buffers, second, names, 2, np.float64)
-        assert reused.level is second
-        np.testing.assert_array_equal(reused.read("spatial_metric", 0, 2),
+        assert again(second, 2) is buffers and buffers.level is second  # 60 points
+        np.testing.assert_array_equal(buffers.read("spatial_metric", 0, 2),
                                       large["spatial_metric"][:, 0:2])
+        alive = weakref.ref(buffers)
+        del buffers
+        replaced = again(second, 3)  # 90 points: new buffers; the old ones are not kept
+        assert alive() is None and store["b"] is replaced
+        for changed in (dict(level=first, rows=3, quantities=names[:1]),
+                        dict(level=first, rows=3, dtype=np.float32)):
+            before = store["b"]
+            assert again(**changed) is not before
 
 
 def _write_big_snapshot(path, shape, rng):

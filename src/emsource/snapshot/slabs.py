@@ -89,20 +89,26 @@ class SlabBuffers:
                       for q in quantities}
 
     @classmethod
-    def reused(cls, previous, level, quantities, rows, dtype):
-        """``previous`` (the buffers of an earlier level, or None) made ready for ``level``
+    def reused(cls, store: dict, key, level, quantities, rows, dtype):
+        """The buffers kept in ``store[key]`` (by an earlier level), made ready for ``level``
         where they hold the same ``quantities`` in ``dtype`` with room for ``rows`` of its
-        planes, else new buffers. A series whose levels share a grid then allocates its buffers
-        once: fresh buffers are paid in page faults on first use (``emsource sources`` on a
-        128^3 file of 4 levels: 0.42 of its 0.54 s kernel stage, measured)."""
+        planes, else new buffers; kept in ``store[key]`` for the next level. A series whose
+        levels share a grid then allocates its buffers once: fresh buffers are paid in page
+        faults on first use (``emsource sources`` on a 128^3 file of 4 levels: 0.42 of its
+        0.54 s kernel stage, measured). Buffers that do not fit are dropped before the new ones
+        are allocated, so that at most one level's buffers are held (the memory bound)."""
+        previous = store.pop(key, None)
         if (previous is not None and previous.dtype == np.dtype(dtype)
                 and tuple(previous._flat) == tuple(quantities)
                 and all(a.size >= max(COMPONENTS[q], 1) * rows * level.plane_points
                         for q, a in previous._flat.items())):
             previous.level = level
             previous.rows = rows
-            return previous
-        return cls(level, quantities, rows, dtype)
+        else:
+            previous = None  # the last reference: freed before the allocation
+            previous = cls(level, quantities, rows, dtype)
+        store[key] = previous
+        return previous
 
     @property
     def nbytes(self) -> int:

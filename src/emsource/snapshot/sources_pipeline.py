@@ -268,12 +268,9 @@ def _level_sources(level, dtype, rows, group, compression, check, written, repor
     for q in _checked(level):  # the valid_mask, so that the output says where it holds NaN
         datasets[q] = g.create_dataset(q, shape=stored, dtype=np.uint8,
                                        chunks=(chunk_rows,) + stored[1:], compression=compression)
-    inputs = buffers["inputs"] = SlabBuffers.reused(buffers.get("inputs"), level, SOURCE_INPUTS,
-                                                    rows, dtype)
-    checked = buffers["checked"] = SlabBuffers.reused(buffers.get("checked"), level,
-                                                      _checked(level), rows, np.uint8)
-    outputs = buffers["outputs"] = SlabBuffers.reused(buffers.get("outputs"), level,
-                                                      SOURCE_OUTPUTS, rows, dtype)
+    inputs = SlabBuffers.reused(buffers, "inputs", level, SOURCE_INPUTS, rows, dtype)
+    checked = SlabBuffers.reused(buffers, "checked", level, _checked(level), rows, np.uint8)
+    outputs = SlabBuffers.reused(buffers, "outputs", level, SOURCE_OUTPUTS, rows, dtype)
     low, high = report.energy_density_range
     if report.slabs == 0:
         report.rows_per_slab = rows  # as adjusted to whole chunks
