@@ -243,6 +243,7 @@ CONFORMAL_SOURCES = {(d, form): _conformal_sources_for(d, form)
                      for d in DECOMPOSITIONS for form in INPUT_FORMS}
 #: The same drivers compiled for 512-bit vectors, for the line of a large grid whose component
 #: rows share cache sets (:data:`~.vector_loops.LINE_STEP_ROW_BYTES`): chi, 0.94 / 0.87 of the
-#: 256-bit time at 128^3 / 256^3 float64 (two threads, interleaved in one process).
+#: 256-bit time at 128^3 / 256^3 float64 in a probe, 0.954 / 0.944 in
+#: ``benchmarks/bench_forms.py --line-steps`` (two threads, interleaved in one process).
 CONFORMAL_SOURCES_LINE_STEPS = {(d, form): _conformal_sources_for(d, form, True)
                                 for d in DECOMPOSITIONS for form in INPUT_FORMS}

@@ -552,7 +552,8 @@ STRESS_ENERGY_FLAT = {(form, upper): _stress_energy_flat_for(form, upper)
                       for form in INPUT_FORMS for upper in (False, True)}
 #: The flat T_ab / T^ab drivers compiled for 512-bit vectors (as
 #: :data:`ADM_SOURCES_FLAT_LINE_STEPS`): 0.90 / 0.88 of the 256-bit time at 128^3 / 256^3
-#: float64 (T_ab, two threads, interleaved in one process).
+#: float64 in a probe, 0.966 / 0.949 in ``benchmarks/bench_forms.py --line-steps`` (T_ab, two
+#: threads, interleaved in one process).
 STRESS_ENERGY_FLAT_LINE_STEPS = {(form, upper): _stress_energy_flat_for(form, upper, True)
                                  for form in INPUT_FORMS for upper in (False, True)}
 #: The windowed T_ab / T^ab driver of each (input form, upper).

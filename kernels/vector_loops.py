@@ -62,8 +62,9 @@ ALIASING_BYTES = 4096
 #: benchmark runs): 96^3 1.02-1.05 / 1.05, 112^3 1.00 / 1.07, 120^3 0.98, 128^3 0.92-0.98
 #: (16 MiB rows) / 0.96-1.08 (8 MiB rows), 160^3 0.93-0.95 / 0.95, 192^3 0.92 / 0.90, 256^3
 #: 0.92-0.94 / 0.91-0.97: a gain from rows of about 16 MiB on, in either dtype; padded rows
-#: (no aliasing) 1.00-1.04 at every size. T_ab 0.90 / 0.88 and the conformal sources (chi)
-#: 0.94 / 0.87 at 128^3 / 256^3 float64; ideal MHD 1.00 (not given a line-step form).
+#: (no aliasing) 1.00-1.04 at every size. T_ab 0.90-0.97 / 0.88-0.95 and the conformal sources
+#: (chi) 0.94-0.95 / 0.87-0.94 at 128^3 / 256^3 float64 (a probe and ``bench_forms.py
+#: --line-steps``); ideal MHD 1.00 in a probe (not given a line-step form).
 LINE_STEP_ROW_BYTES = 2 ** 24
 
 
