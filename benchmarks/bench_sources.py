@@ -145,21 +145,21 @@ class SizeCases:
         inputs, out = self.layouts[layout]
         return lambda: emsource.adm_sources(*inputs, out=out, check=check)
 
-    def flat(self, layout):
-        inputs, out = self.layouts[layout]
-        views, flat = arg.kernel_views(list(inputs) + [a for a in out], inputs[1].shape[1:])
+    def flat(self, layout, whole_grids=False):
+        """The flat kernel views of the layout's arrays (``whole_grids`` as ``adm_sources``
+        passes them to its drivers; without, (ncomp, stride) blocks for the C kernel)."""
+        views, flat = arg.kernel_views(self.arrays(layout), self.shape, whole_grids=whole_grids)
         assert flat, layout
         return views
 
     def line_steps_chosen(self, layout):
         """Whether ``adm_sources`` takes the 512-bit line-step driver on this layout."""
-        views, flat = arg.kernel_views(self.arrays(layout), self.shape, whole_grids=True)
-        return flat and arg.takes_line_steps(views, self.shape)
+        return arg.takes_line_steps(self.flat(layout, whole_grids=True), self.shape)
 
     def default_driver(self, layout):
         """The default (256-bit) flat driver on the views ``adm_sources`` passes: timed beside
         the public call where the call takes the line-step driver instead."""
-        views, _ = arg.kernel_views(self.arrays(layout), self.shape, whole_grids=True)
+        views = self.flat(layout, whole_grids=True)
         constants = arg.kernel_constants(0, self.dtype, 1 / (4 * math.pi))
         driver = kernels.ADM_SOURCES_FLAT[0]
         return lambda: driver(views[0], arg.PACKED_METRIC_INDEX, *views[1:], *constants[1:],

@@ -63,8 +63,8 @@ from .electromagnetic import (
 )
 from .metric import inverse_metric, metric_factors
 from .point_checks import is_finite
-from .vector_loops import (count_flag, packed_rows, span_metric_fields, span_start, strip_count,
-                           strip_length, strip_range, window_column)
+from .vector_loops import (as_rows, count_flag, packed_rows, span_metric_fields, span_start,
+                           strip_count, strip_length, strip_range, window_column)
 
 
 @point_function
@@ -271,12 +271,12 @@ def _adm_sources_flat_for(form, line_steps=False):
         the two counts. The loop count is the scalar output's size: rows may be longer
         (padded)."""
         npoints = rho.size
-        gamma = gamma.reshape((gamma.shape[0], gamma.size // gamma.shape[0]))
-        E = E.reshape((E.shape[0], E.size // E.shape[0]))
-        B = B.reshape((B.shape[0], B.size // B.shape[0]))
+        gamma = as_rows(gamma)
+        E = as_rows(E)
+        B = as_rows(B)
         rho = rho.reshape(npoints)
-        S_i = S_i.reshape((S_i.shape[0], S_i.size // S_i.shape[0]))
-        S_ij = S_ij.reshape((S_ij.shape[0], S_ij.size // S_ij.shape[0]))
+        S_i = as_rows(S_i)
+        S_ij = as_rows(S_ij)
         S = S.reshape(npoints)
         bad_count = 0
         underflow_count = 0
@@ -431,11 +431,11 @@ def _stress_energy_flat_for(form, upper, line_steps=False):
         underflow_count = 0
         npoints = alpha.size
         alpha = alpha.reshape(npoints)
-        beta = beta.reshape((beta.shape[0], beta.size // beta.shape[0]))
-        gamma = gamma.reshape((gamma.shape[0], gamma.size // gamma.shape[0]))
-        E = E.reshape((E.shape[0], E.size // E.shape[0]))
-        B = B.reshape((B.shape[0], B.size // B.shape[0]))
-        T = T.reshape((T.shape[0], T.size // T.shape[0]))
+        beta = as_rows(beta)
+        gamma = as_rows(gamma)
+        E = as_rows(E)
+        B = as_rows(B)
+        T = as_rows(T)
         length = strip_length(npoints)
         for strip in prange(strip_count(npoints, length)):
             if line_steps:  # a constant: the branch is pruned where it is False

@@ -35,7 +35,7 @@ from ._compile import point_function
 
 __all__ = ["STRIP_POINTS", "SHORTEST_STRIP", "SMALL_GRID_STRIPS", "ALIASING_BYTES",
            "LINE_STEP_ROW_BYTES", "window_column", "span_start",
-           "packed_rows", "strip_length", "strip_count", "strip_range", "as_spans",
+           "packed_rows", "strip_length", "strip_count", "strip_range", "as_spans", "as_rows",
            "count_flag", "line_as_strips", "span_metric_fields"]
 
 #: Points per strip of a flat loop on a large grid: float32 counts per strip stay exact.
@@ -97,6 +97,14 @@ def as_spans(a):
     so that a driver over spans also takes whole arrays: the reshape costs nothing here and
     spares the caller one per array (about 0.1 us each on a small grid's call)."""
     return a.reshape(a.size)
+
+
+@point_function
+def as_rows(a):
+    """A C-contiguous array with its component axis first as the (ncomp, row length) array of
+    its rows (a view; an (ncomp, stride) block as it is), so that a flat driver also takes
+    whole (ncomp, *grid) arrays."""
+    return a.reshape((a.shape[0], a.size // a.shape[0]))
 
 
 @point_function
