@@ -63,8 +63,11 @@ from .electromagnetic import (
 )
 from .metric import inverse_metric, metric_factors
 from .point_checks import is_finite
-from .vector_loops import (as_rows, count_flag, packed_rows, span_metric_fields, span_start,
-                           strip_count, strip_length, strip_range, window_column)
+from .strip_buffers import strip_buffer
+from .streaming_stores import (LINE_BYTES, STREAMING_BUFFER_LANES, line_offset, rows_at_offset,
+                               store_fence, stream_line)
+from .vector_loops import (STRIP_POINTS, as_rows, count_flag, packed_rows, span_metric_fields,
+                           span_start, strip_count, strip_length, strip_range, window_column)
 
 
 @point_function
@@ -94,14 +97,21 @@ def _adm_values(gxx, gxy, gxz, gyy, gyz, gzz, f1, f2, f3, f4, f5, f6, form, coef
 
 
 @point_function
-def _adm_point(n, gamma, gidx, E, B, rho, S_i, S_ij, S, form, coef, half, tiny, pivot_floor):
-    """Write rho, S_i, S_ij, S at point ``n`` of (ncomp, npoints) arrays; return the check bits
-    of :func:`_adm_values`."""
-    r, sx, sy, sz, sxx, sxy, sxz, syy, syz, szz, status = _adm_values(
+def _adm_values_at(n, gamma, gidx, E, B, form, coef, half, tiny, pivot_floor):
+    """:func:`_adm_values` at point ``n`` of (ncomp, npoints) input arrays."""
+    return _adm_values(
         gamma[gidx[0], n], gamma[gidx[1], n], gamma[gidx[2], n],
         gamma[gidx[3], n], gamma[gidx[4], n], gamma[gidx[5], n],
         E[0, n], E[1, n], E[2, n], B[0, n], B[1, n], B[2, n],
         form, coef, half, tiny, pivot_floor)
+
+
+@point_function
+def _adm_point(n, gamma, gidx, E, B, rho, S_i, S_ij, S, form, coef, half, tiny, pivot_floor):
+    """Write rho, S_i, S_ij, S at point ``n`` of (ncomp, npoints) arrays; return the check bits
+    of :func:`_adm_values`."""
+    r, sx, sy, sz, sxx, sxy, sxz, syy, syz, szz, status = _adm_values_at(
+        n, gamma, gidx, E, B, form, coef, half, tiny, pivot_floor)
     rho[n] = r
     S[n] = r  # the electromagnetic stress-energy is traceless: S = gamma^ij S_ij = rho
     S_i[0, n] = sx
@@ -293,6 +303,86 @@ def _adm_sources_flat_for(form, line_steps=False):
         return bad_count, underflow_count
 
     return adm_sources_flat
+
+
+def _adm_sources_streaming_for(form):
+    """The streaming-store source driver of input form ``form``
+    (:data:`ADM_SOURCES_FLAT_STREAMING`)."""
+
+    @grid_kernel
+    def adm_sources_streaming(gamma, gidx, E, B, rho, S_i, S_ij, S, coef, half, tiny,
+                              pivot_floor, check):
+        """As the flat driver (same arguments, same values bit for bit), with every whole
+        cache line of the outputs written by a streaming store (:mod:`.streaming_stores`):
+        each task computes one line's points into a stack buffer, then streams that line of
+        the 11 output rows. The points before the first whole line and after the last are
+        stored the ordinary way. Returns (-1, -1) and writes nothing where the output rows do
+        not all start at the same offset within a cache line (nor on whole elements): the
+        caller then takes the flat driver."""
+        npoints = rho.size
+        gamma = as_rows(gamma)
+        E = as_rows(E)
+        B = as_rows(B)
+        rho = rho.reshape(npoints)
+        S = S.reshape(npoints)
+        S_i = as_rows(S_i)
+        S_ij = as_rows(S_ij)
+        rho_row = rho.reshape((1, npoints))
+        S_row = S.reshape((1, npoints))
+        offset = line_offset(rho_row, 0)
+        if not (rows_at_offset(rho_row, offset) and rows_at_offset(S_row, offset)
+                and rows_at_offset(S_i, offset) and rows_at_offset(S_ij, offset)):
+            return -1, -1
+        lanes = LINE_BYTES // rho.itemsize
+        head = min(npoints, (LINE_BYTES - offset) % LINE_BYTES // rho.itemsize)
+        lines = (npoints - head) // lanes
+        body_stop = head + lines * lanes
+        zero = half - half
+        one = half + half
+        bad_head, low_head = _adm_strip(np.uint64(0), np.uint64(head), gamma, gidx, E, B, rho,
+                                        S_i, S_ij, S, form, coef, half, tiny, pivot_floor)
+        bad_tail, low_tail = _adm_strip(np.uint64(body_stop), np.uint64(npoints), gamma, gidx,
+                                        E, B, rho, S_i, S_ij, S, form, coef, half, tiny,
+                                        pivot_floor)
+        bad_count = int(bad_head + bad_tail) if check else 0
+        underflow_count = int(low_head + low_tail) if check else 0
+        per_task = STRIP_POINTS // lanes
+        for task in prange(strip_count(lines, per_task)):
+            line_values = strip_buffer(10, STREAMING_BUFFER_LANES, rho)
+            first, last = strip_range(task, per_task, lines)
+            bad = zero
+            low = zero
+            for line in range(first, last):
+                start = np.uint64(head) + line * np.uint64(lanes)
+                for n in range(start, start + np.uint64(lanes)):
+                    r, sx, sy, sz, sxx, sxy, sxz, syy, syz, szz, status = _adm_values_at(
+                        n, gamma, gidx, E, B, form, coef, half, tiny, pivot_floor)
+                    m = n - start
+                    line_values[0, m] = r
+                    line_values[1, m] = sx
+                    line_values[2, m] = sy
+                    line_values[3, m] = sz
+                    line_values[4, m] = sxx
+                    line_values[5, m] = sxy
+                    line_values[6, m] = sxz
+                    line_values[7, m] = syy
+                    line_values[8, m] = syz
+                    line_values[9, m] = szz
+                    bad += count_flag(status & 1, one, zero)
+                    low += count_flag(status & 2, one, zero)
+                stream_line(rho_row, 0, start, line_values, 0)
+                stream_line(S_row, 0, start, line_values, 0)  # S = rho
+                for c in range(3):
+                    stream_line(S_i, c, start, line_values, 1 + c)
+                for c in range(6):
+                    stream_line(S_ij, c, start, line_values, 4 + c)
+            store_fence()
+            if check:
+                bad_count += int(bad)
+                underflow_count += int(low)
+        return bad_count, underflow_count
+
+    return adm_sources_streaming
 
 
 @point_function
@@ -559,6 +649,10 @@ STRESS_ENERGY_FLAT_LINE_STEPS = {(form, upper): _stress_energy_flat_for(form, up
 #: The windowed T_ab / T^ab driver of each (input form, upper).
 STRESS_ENERGY_WINDOW = {(form, upper): _stress_energy_window_for(form, upper)
                         for form in INPUT_FORMS for upper in (False, True)}
+#: The flat source drivers with streaming stores, by input form: taken on large grids
+#: (:data:`~.vector_loops.STREAMING_ROW_BYTES`; ``emsource._arguments.takes_streaming_stores``).
+ADM_SOURCES_FLAT_STREAMING = {form: _adm_sources_streaming_for(form)
+                              for form in INPUT_FORMS}
 
 
 @grid_kernel

@@ -34,7 +34,7 @@ import numpy as np
 from ._compile import point_function
 
 __all__ = ["STRIP_POINTS", "SHORTEST_STRIP", "SMALL_GRID_STRIPS", "ALIASING_BYTES",
-           "LINE_STEP_ROW_BYTES", "window_column", "span_start",
+           "LINE_STEP_ROW_BYTES", "STREAMING_ROW_BYTES", "window_column", "span_start",
            "packed_rows", "strip_length", "strip_count", "strip_range", "as_spans", "as_rows",
            "count_flag", "line_as_strips", "span_metric_fields"]
 
@@ -66,6 +66,14 @@ ALIASING_BYTES = 4096
 #: (chi) 0.94-0.95 / 0.87-0.94 at 128^3 / 256^3 float64 (a probe and ``bench_forms.py
 #: --line-steps``); ideal MHD 1.00 in a probe (not given a line-step form).
 LINE_STEP_ROW_BYTES = 2 ** 24
+#: Shortest output rows (bytes) on which a flat driver takes its streaming-store form
+#: (:mod:`.streaming_stores`): 2 MiB, a 64^3 float64 grid, where the 11 output rows of the
+#: sources (22 MiB) and their 12 input rows no longer fit together in a 32 MiB last-level cache.
+#: Measured with the cache flushed between calls the streaming form wins from 32^3 on (0.54-0.75
+#: of the C time), but there the ordinary stores leave the outputs in cache for the next
+#: consumer (the right-hand side that reads them): this threshold keeps those grids on ordinary
+#: stores. A judgement, not a measurement of a consumer; common practice for streaming stores.
+STREAMING_ROW_BYTES = 2 ** 21
 
 
 @point_function

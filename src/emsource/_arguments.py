@@ -17,7 +17,8 @@ from .grid_arrays import rows_of
 from .input_forms import FORMS
 from .kernels import input_checks
 from .kernels._compile import call_sharing_layouts
-from .kernels.vector_loops import ALIASING_BYTES, LINE_STEP_ROW_BYTES, line_as_strips
+from .kernels.vector_loops import (ALIASING_BYTES, LINE_STEP_ROW_BYTES, STREAMING_ROW_BYTES,
+                                   line_as_strips)
 
 #: Flat indices, into a full (3, 3) block seen as 9, of the packed (xx, xy, xz, yy, yz, zz).
 FULL_METRIC_INDEX = (0, 1, 2, 4, 5, 8)
@@ -452,6 +453,32 @@ def takes_line_steps(views, grid) -> bool:
         if view.size > npoints and view.strides[0] % ALIASING_BYTES:
             return False
     return True
+
+
+def takes_streaming_stores(grid, dtype) -> bool:
+    """Whether a flat driver should first try its streaming-store form
+    (:mod:`emsource.kernels.streaming_stores`) on ``grid``: rows of at least
+    :data:`~emsource.kernels.vector_loops.STREAMING_ROW_BYTES`. The driver itself checks that
+    the output rows share their offset within a cache line, which depends on addresses, not
+    on the shapes a call plan keeps."""
+    npoints = 1
+    for n in grid:
+        npoints *= n
+    return npoints * np.dtype(dtype).itemsize >= STREAMING_ROW_BYTES
+
+
+def flat_driver_tables(views, grid, default, line_steps=None, streaming=None) -> tuple:
+    """The tables of flat drivers (by form) that a call tries in turn, each until one returns
+    counts that are not negative: the streaming-store table where
+    :func:`takes_streaming_stores` (its drivers return (-1, -1), having written nothing, on
+    output rows not aligned alike), then the line-step table where :func:`takes_line_steps`,
+    or else ``default``. Shapes and strides only: a call plan keeps the answer."""
+    tables = ()
+    if streaming is not None and takes_streaming_stores(grid, views[0].dtype):
+        tables += (streaming,)
+    if line_steps is not None and takes_line_steps(views, grid):
+        return tables + (line_steps,)
+    return tables + (default,)
 
 
 def _c_strides(a: np.ndarray, grid) -> tuple:

@@ -272,9 +272,9 @@ def adm_sources(gamma, E, B, *, units="gaussian", field_index="upper",
         return result
     kernel_views, flat = arg.kernel_views([metric, e, b] + views, grid, whole_grids=True)
     constants = arg.kernel_constants(form, dtype, prefactor)
-    drivers = None if not flat else (kernels.ADM_SOURCES_FLAT_LINE_STEPS
-                                     if arg.takes_line_steps(kernel_views, grid)
-                                     else kernels.ADM_SOURCES_FLAT)
+    drivers = None if not flat else arg.flat_driver_tables(
+        kernel_views, grid, kernels.ADM_SOURCES_FLAT, kernels.ADM_SOURCES_FLAT_LINE_STEPS,
+        kernels.ADM_SOURCES_FLAT_STREAMING)
     if layout == "component_first" and key is not None:
         # Only now, after every check passed: a plan is what a full validation derived.
         _ADM_PLANS.put(key, FlatPlan.of(inputs + result, kernel_views, grid, dtype,
@@ -291,8 +291,8 @@ _INPUT_NAMES = ("gamma", "E", "B")
 
 
 def _run_adm_kernel(grid, dtype, gidx, constants, views, flat_drivers, check):
-    """One call of the source driver on kernel views: the flat loop (``flat_drivers`` the table
-    of flat drivers by form, default or line steps (:func:`emsource._arguments.takes_line_steps`);
+    """One call of the source driver on kernel views: the flat loop (``flat_drivers`` the tables
+    of flat drivers by form to try in turn, :func:`emsource._arguments.flat_driver_tables`;
     None for the other views), windowed loop or column loop; on counted bad points, the search
     for the first one and :class:`GridPointError`."""
     g, ev, bv, rho, s_i, s_ij, s = views
@@ -301,8 +301,10 @@ def _run_adm_kernel(grid, dtype, gidx, constants, views, flat_drivers, check):
     with kernel_call():
         spans = None if flat else arg.unit_stride_spans(views)
         if flat:
-            counts = flat_drivers[form](g, gidx, ev, bv, rho, s_i, s_ij, s, *physics,
-                                        bool(check))
+            for table in flat_drivers:  # a streaming driver declines with (-1, -1)
+                counts = table[form](g, gidx, ev, bv, rho, s_i, s_ij, s, *physics, bool(check))
+                if counts[0] >= 0:
+                    break
         elif spans is not None:  # windows contiguous along z (ghost zones sliced off)
             (g1, e1, b1, *outputs), steps, shape = spans
             counts = call_sharing_layouts(
@@ -391,9 +393,8 @@ def stress_energy_4d(alpha, beta, gamma, E, B, *, units="gaussian", index="lower
         return result
     views, flat = arg.kernel_views([lapse, shift, metric, e, b, t_view], grid, whole_grids=True)
     constants = arg.kernel_constants(form, dtype, prefactor) + (index == "upper",)
-    drivers = None if not flat else (kernels.STRESS_ENERGY_FLAT_LINE_STEPS
-                                     if arg.takes_line_steps(views, grid)
-                                     else kernels.STRESS_ENERGY_FLAT)
+    drivers = None if not flat else arg.flat_driver_tables(
+        views, grid, kernels.STRESS_ENERGY_FLAT, kernels.STRESS_ENERGY_FLAT_LINE_STEPS)
     if layout == "component_first" and flat and key is not None:
         # Only now, after every check passed: a plan is what a full validation derived.
         _STRESS_ENERGY_PLANS.put(key, FlatPlan.of(inputs + (result,), views, grid, dtype,
@@ -418,7 +419,10 @@ def _run_stress_energy_kernel(grid, dtype, gidx, constants, views, flat_drivers,
     with kernel_call():
         spans = None if flat else arg.unit_stride_spans(views)
         if flat:
-            counts = flat_drivers[form, upper](a, be, g, gidx, ev, bv, t, *physics, bool(check))
+            for table in flat_drivers:
+                counts = table[form, upper](a, be, g, gidx, ev, bv, t, *physics, bool(check))
+                if counts[0] >= 0:
+                    break
         elif spans is not None:  # windows contiguous along z (ghost zones sliced off)
             (a1, be1, g1, e1, b1, t1), steps, window = spans
             counts = call_sharing_layouts(

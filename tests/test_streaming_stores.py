@@ -1,0 +1,193 @@
+"""The streaming-store source drivers (kernels/streaming_stores.py, ``ADM_SOURCES_FLAT_STREAMING``).
+
+What could go wrong and is checked here: a line streamed to the wrong place or not at all
+(outputs compared with the ordinary flat driver on the same data, which the package checks
+against the 4D reference elsewhere, tests/test_vector_loops.py); the points before the first
+whole cache line or after the last lost or written twice (rows that start mid-line and grids
+that end mid-line); counts of bad points lost between the edges and the tasks (compared with
+NumPy's count); a streaming store to a line that is not 64-byte aligned, which faults on x86
+(the driver must decline rows not aligned alike, and leave them untouched); the public call
+taking the driver without the fallback (a misaligned ``out`` must still get correct values);
+and the hint not reaching the machine code (a driver that compiles to ordinary stores would
+pass every other test).
+"""
+
+import math
+import platform
+import re
+
+import numba
+import numpy as np
+import pytest
+
+import emsource
+import emsource.sources
+from emsource import _arguments as arg
+from emsource.grid_arrays import empty_grid_function
+from emsource.kernels import sources as kernels
+from emsource.kernels._compile import FASTMATH_FLAGS
+from emsource.kernels.streaming_stores import LINE_BYTES
+
+from conftest import assert_same_arithmetic, random_curved_data
+
+# 23 x 19 x 21 = 9177 points: several tasks of 1024 points, and a grid that ends mid-line.
+SHAPE = (23, 19, 21)
+
+
+def _rows_at(offset, shape, dtype, ncomp=None):
+    """Uninitialised (ncomp, row) block (or a (npoints,) row) whose every row starts ``offset``
+    bytes into a cache line: the kernel view of a grid function whose rows are so placed."""
+    dtype = np.dtype(dtype)
+    npoints = math.prod(shape)
+    row_bytes = -(-npoints * dtype.itemsize // LINE_BYTES) * LINE_BYTES
+    count = ncomp or 1
+    buffer = np.empty(count * row_bytes + 2 * LINE_BYTES, np.uint8)
+    start = (-buffer.ctypes.data) % LINE_BYTES + offset
+    rows = buffer[start:start + count * row_bytes].view(dtype).reshape(count, -1)
+    return rows if ncomp else rows[0, :npoints]
+
+
+def _outputs(shape, dtype, offsets=(0, 0, 0, 0)):
+    """rho, S_i, S_ij, S kernel views with rows at the given offsets into a line."""
+    return [_rows_at(offsets[0], shape, dtype), _rows_at(offsets[1], shape, dtype, 3),
+            _rows_at(offsets[2], shape, dtype, 6), _rows_at(offsets[3], shape, dtype)]
+
+
+def _run(table, form, arrays, outputs, dtype):
+    gamma, E, B = arrays
+    constants = arg.kernel_constants(form, np.dtype(dtype), 1 / (4 * math.pi))
+    return tuple(table[form](gamma, arg.PACKED_METRIC_INDEX, E, B, *outputs, *constants[1:],
+                             True))
+
+
+@pytest.mark.parametrize("dtype", [np.float64, np.float32])
+@pytest.mark.parametrize("form", sorted(kernels.INPUT_FORMS))
+@pytest.mark.parametrize("offset", [0, 16])
+def test_streaming_driver_equals_the_flat_driver_at_every_point_and_counts_alike(
+        rng, dtype, form, offset):
+    """Rows at the start of a line (a padded grid function) and 16 bytes into one (where a
+    large NumPy array's rows start): every output point equals the ordinary flat driver's up to
+    contraction (``assert_same_arithmetic``), the head before the first whole line and the tail
+    after the last included, and both counts are the flat driver's, the bad metrics counted
+    exactly (a third of the points, in the edges too)."""
+    _, _, gamma, E, B = random_curved_data(rng, SHAPE, dtype)
+    npoints = math.prod(SHAPE)
+    gamma, E, B = (a.reshape(-1, npoints) for a in (gamma, E, B))
+    bad = rng.random(npoints) < 0.3
+    lanes = LINE_BYTES // np.dtype(dtype).itemsize
+    bad[:lanes] = bad[-lanes:] = True  # whatever the head and tail, they hold bad points
+    gamma = gamma.copy()
+    gamma[0, bad] = -1.0
+    expected_outputs = _outputs(SHAPE, dtype)
+    expected = _run(kernels.ADM_SOURCES_FLAT, form, (gamma, E, B), expected_outputs, dtype)
+    streamed_outputs = _outputs(SHAPE, dtype, (offset,) * 4)
+    unwritten = np.finfo(dtype).max  # no output here reaches it (bad points give NaN)
+    for a in streamed_outputs:
+        a[...] = unwritten
+    counts = _run(kernels.ADM_SOURCES_FLAT_STREAMING, form, (gamma, E, B), streamed_outputs,
+                  dtype)
+    assert counts == expected and counts[0] == int(bad.sum())
+    for ours, theirs in zip(streamed_outputs, expected_outputs):
+        ours, theirs = ours[..., :npoints], theirs[..., :npoints]
+        assert not (ours == unwritten).any()
+        assert_same_arithmetic(ours[..., ~bad], theirs[..., ~bad])
+
+
+@pytest.mark.parametrize("offsets", [(0, 0, 16, 0), (8, 8, 8, 0), (4, 4, 4, 4)],
+                         ids=["one-array-apart", "one-row-apart", "not-on-elements"])
+def test_streaming_driver_declines_rows_not_aligned_alike_and_writes_nothing(rng, offsets):
+    """A streaming store to a line that is not 64-byte aligned faults, so the driver checks
+    every output row first: S_ij 16 bytes off the others, S 8 bytes off, or float64 rows 4
+    bytes into a line (not on whole elements) make it return (-1, -1) with the outputs as
+    they were, bit for bit."""
+    _, _, gamma, E, B = random_curved_data(rng, SHAPE)
+    npoints = math.prod(SHAPE)
+    arrays = [a.reshape(-1, npoints) for a in (gamma, E, B)]
+    outputs = _outputs(SHAPE, np.float64, offsets)
+    for a in outputs:
+        a[...] = rng.standard_normal(a.shape)
+    before = [a.copy() for a in outputs]
+    assert _run(kernels.ADM_SOURCES_FLAT_STREAMING, 0, arrays, outputs, np.float64) == (-1, -1)
+    for a, b in zip(outputs, before):
+        np.testing.assert_array_equal(a, b)
+
+
+@pytest.mark.skipif(platform.machine().lower() not in ("x86_64", "amd64"),
+                    reason="the instruction names checked are x86's")
+def test_streaming_driver_compiles_to_non_temporal_stores_and_a_fence(rng):
+    """The point of the driver is in its machine code: non-temporal vector stores (``vmovnt``
+    on x86) and the fence that orders them (``sfence``); the ordinary flat driver has neither.
+    A driver whose hint LLVM dropped would pass every value test above. (Serial, uncached
+    copies of both drivers: Numba shows no machine code of cached kernels.)"""
+    _, _, gamma, E, B = random_curved_data(rng, (4, 4, 4))
+    arrays = [a.reshape(-1, 64) for a in (gamma, E, B)]
+    options = dict(fastmath=set(FASTMATH_FLAGS), error_model="numpy")
+    code = {}
+    for name, table in (("streaming", kernels.ADM_SOURCES_FLAT_STREAMING),
+                        ("ordinary", kernels.ADM_SOURCES_FLAT)):
+        copy = numba.njit(**options)(table[0].py_func)
+        _run({0: copy}, 0, arrays, _outputs((4, 4, 4), np.float64), np.float64)
+        code[name] = copy.inspect_asm(copy.signatures[0])
+    assert len(re.findall(r"\bvmovnt\w*", code["streaming"])) >= 11  # one per output row
+    assert "sfence" in code["streaming"]
+    assert not re.findall(r"\bv?movnt\w*", code["ordinary"]) and "sfence" not in code["ordinary"]
+
+
+def test_streaming_stores_from_two_mebibyte_rows():
+    """The choice by size: rows of 2 MiB or more (64^3 float64, 81^3 float32) try the
+    streaming drivers; 63^3 float64 and 80^3 float32 (2.05 MB) do not."""
+    assert arg.takes_streaming_stores((64, 64, 64), np.float64)
+    assert not arg.takes_streaming_stores((63, 63, 63), np.float64)
+    assert arg.takes_streaming_stores((81, 81, 81), np.float32)
+    assert not arg.takes_streaming_stores((80, 80, 80), np.float32)
+
+
+class _Recorder:
+    """A driver table entry that records its calls and their counts."""
+
+    def __init__(self, real):
+        self.real = real
+        self.counts = []
+
+    def __call__(self, *arguments):
+        counts = self.real(*arguments)
+        self.counts.append(tuple(counts))
+        return counts
+
+
+def test_public_call_streams_into_padded_grid_functions_and_falls_back_on_misaligned_out(
+        rng, monkeypatch):
+    """With the size threshold lowered to 4 KiB, adm_sources on a 16^3 grid: into padded grid
+    functions (rows on line starts) the streaming driver runs, and a planned second call too;
+    into an ``out`` whose rho starts one element into a line it declines and the ordinary
+    driver fills the outputs. Both give the ordinary driver's values up to contraction."""
+    shape = (16, 16, 16)
+    _, _, gamma, E, B = random_curved_data(rng, shape)
+    expected = emsource.adm_sources(gamma, E, B)
+    monkeypatch.setattr(arg, "STREAMING_ROW_BYTES", 4096)
+    recorder = _Recorder(kernels.ADM_SOURCES_FLAT_STREAMING[0])
+    monkeypatch.setitem(kernels.ADM_SOURCES_FLAT_STREAMING, 0, recorder)
+    emsource.sources._ADM_PLANS.clear()
+
+    padded = emsource.AdmSources(empty_grid_function(shape), empty_grid_function((3,) + shape),
+                                 empty_grid_function((6,) + shape), empty_grid_function(shape))
+    emsource.adm_sources(gamma, E, B, out=padded)
+    emsource.adm_sources(gamma, E, B, out=padded)  # through the plan the first call stored
+    assert recorder.counts == [(0, 0), (0, 0)]
+    (plan,) = emsource.sources._ADM_PLANS._plans.values()
+    assert plan.extra[2] == (kernels.ADM_SOURCES_FLAT_STREAMING, kernels.ADM_SOURCES_FLAT)
+    for ours, theirs in zip(padded, expected):
+        assert_same_arithmetic(ours, theirs)
+
+    storage = np.empty(math.prod(shape) + LINE_BYTES // 8, np.float64)
+    start = (-storage.ctypes.data) % LINE_BYTES // 8 + 1  # one element into a line
+    misaligned = emsource.AdmSources(storage[start:start + math.prod(shape)].reshape(shape),
+                                     np.empty((3,) + shape), np.empty((6,) + shape),
+                                     np.empty(shape))
+    for a in misaligned:
+        a[...] = np.nan
+    emsource.adm_sources(gamma, E, B, out=misaligned)
+    assert recorder.counts[-1] == (-1, -1)
+    for ours, theirs in zip(misaligned, expected):
+        assert_same_arithmetic(ours, theirs)
+    emsource.sources._ADM_PLANS.clear()
