@@ -7,12 +7,14 @@ In one run and on the same threads it measures, per grid size (default 128^3, 13
   (a) a STREAM-style triad a = b + s c (bandwidth counted as 3 arrays moved, the usual way),
   (b) emsource.adm_sources on C-contiguous arrays and on padded grid functions
       (``emsource.grid_arrays``), the ghost-zone view of a 2^k + 6 grid (interior 2^k),
-      float32 on both layouts, and checks off; where the call takes the line-step driver
-      (512-bit vectors on large grids whose rows share cache sets: contiguous float64 at 128^3
-      and 256^3, float32 at 256^3),
-      the default 256-bit flat driver on the same views, timed beside it;
-      the same-traffic copy kernel (12 rows read, 11 written, no physics) on both layouts, the
-      ceiling of the access pattern; and a hand-written C + OpenMP kernel on the same arrays
+      float32 on both layouts, and checks off; where the call takes the streaming-store
+      driver (``emsource.kernels.streaming_stores``: rows of 2 MiB or more whose output rows
+      share their offset in a cache line), the driver it would take otherwise (line steps on
+      contiguous 2^k grids, else the default 256-bit driver) on the same views, timed beside it;
+      the same-traffic copy kernel (12 rows read, 11 written, no physics, ordinary stores) on
+      both layouts, the ceiling of the ordinary access pattern, and its streaming-store form
+      where the call streams, the ceiling of that one; and a hand-written C + OpenMP kernel on
+      the same arrays
       (``c_reference.py``, built now where a C compiler is found), with the time ratio
       emsource / C of each pair;
   (c) a plain-NumPy implementation of the same formulas (einsum, linalg.det), 128^3 float64,
@@ -41,6 +43,9 @@ import emsource
 from emsource import _arguments as arg
 from emsource.grid_arrays import grid_function_like
 from emsource.kernels import sources as kernels
+from emsource.kernels.streaming_stores import (STREAMING_BUFFER_LANES, line_extent, line_offset,
+                                               rows_at_offset, store_fence, stream_line)
+from emsource.kernels.strip_buffers import strip_buffer
 
 import c_reference
 
@@ -66,6 +71,46 @@ def _same_traffic_copy(gamma, E, B, rho, S_i, S_ij, S):
             S_i[c, n] = a
         for c in range(6):
             S_ij[c, n] = b
+
+
+@numba.njit(parallel=True, cache=True)
+def _same_traffic_streaming_copy(gamma, E, B, rho, S_i, S_ij, S):
+    """The same traffic with the outputs' whole cache lines written by streaming stores, as the
+    streaming source driver writes them (``emsource.kernels.streaming_stores``): the ceiling of
+    that driver's access pattern. Returns False, writing nothing, where the output rows do not
+    share their offset within a line (the driver then declines too)."""
+    npoints = rho.shape[0]
+    rho_row = rho.reshape((1, npoints))
+    S_row = S.reshape((1, npoints))
+    offset = line_offset(rho_row, 0)
+    if not (rows_at_offset(rho_row, offset) and rows_at_offset(S_row, offset)
+            and rows_at_offset(S_i, offset) and rows_at_offset(S_ij, offset)):
+        return False
+    head, lines, lanes = line_extent(offset, rho.itemsize, npoints)
+    for n in list(range(head)) + list(range(head + lines * lanes, npoints)):
+        rho[n] = S[n] = gamma[0, n] + E[0, n] + B[0, n]
+        for c in range(3):
+            S_i[c, n] = rho[n]
+        for c in range(6):
+            S_ij[c, n] = rho[n]
+    per_task = 1024 // lanes
+    for task in numba.prange((lines + per_task - 1) // per_task):
+        values = strip_buffer(2, STREAMING_BUFFER_LANES, rho)
+        for line in range(task * per_task, min(lines, task * per_task + per_task)):
+            start = np.uint64(head + line * lanes)
+            for n in range(start, start + np.uint64(lanes)):  # unsigned: vectorises
+                m = n - start
+                values[0, m] = (gamma[0, n] + gamma[1, n] + gamma[2, n] + gamma[3, n]
+                                + gamma[4, n] + gamma[5, n])
+                values[1, m] = E[0, n] + E[1, n] + E[2, n] + B[0, n] + B[1, n] + B[2, n]
+            stream_line(rho_row, 0, start, values, 0)
+            stream_line(S_row, 0, start, values, 1)
+            for c in range(3):
+                stream_line(S_i, c, start, values, 0)
+            for c in range(6):
+                stream_line(S_ij, c, start, values, 1)
+        store_fence()
+    return True
 
 
 def median_seconds(function, repeat):
@@ -152,18 +197,31 @@ class SizeCases:
         assert flat, layout
         return views
 
-    def line_steps_chosen(self, layout):
-        """Whether ``adm_sources`` takes the 512-bit line-step driver on this layout."""
-        return arg.takes_line_steps(self.flat(layout, whole_grids=True), self.shape)
+    def driver_tables(self, layout):
+        """The flat driver tables ``adm_sources`` tries in turn on this layout
+        (``emsource._arguments.flat_driver_tables``)."""
+        return arg.flat_driver_tables(self.flat(layout, whole_grids=True), self.shape,
+                                      kernels.ADM_SOURCES_FLAT, kernels.ADM_SOURCES_FLAT_LINE_STEPS,
+                                      kernels.ADM_SOURCES_FLAT_STREAMING)
 
-    def default_driver(self, layout):
-        """The default (256-bit) flat driver on the views ``adm_sources`` passes: timed beside
-        the public call where the call takes the line-step driver instead."""
+    def streams(self, layout):
+        """Whether ``adm_sources`` writes through the streaming driver on this layout (tried
+        first on large grids, declined where the output rows are not aligned alike)."""
+        if kernels.ADM_SOURCES_FLAT_STREAMING not in self.driver_tables(layout):
+            return False
+        return self.driver(layout, kernels.ADM_SOURCES_FLAT_STREAMING)()[0] >= 0
+
+    def driver(self, layout, table):
+        """A call of the form-0 driver of ``table`` on the views ``adm_sources`` passes."""
         views = self.flat(layout, whole_grids=True)
         constants = arg.kernel_constants(0, self.dtype, 1 / (4 * math.pi))
-        driver = kernels.ADM_SOURCES_FLAT[0]
-        return lambda: driver(views[0], arg.PACKED_METRIC_INDEX, *views[1:], *constants[1:],
-                              True)
+        return lambda: table[0](views[0], arg.PACKED_METRIC_INDEX, *views[1:], *constants[1:],
+                                True)
+
+    def ordinary_driver(self, layout):
+        """The driver ``adm_sources`` takes where it does not stream (line steps or the
+        default 256-bit driver): timed beside the public call where that call streams."""
+        return self.driver(layout, self.driver_tables(layout)[-1])
 
     def arrays(self, layout):
         inputs, out = self.layouts[layout]
@@ -172,6 +230,10 @@ class SizeCases:
     def copy(self, layout):
         views = self.flat(layout)
         return lambda: _same_traffic_copy(*views)
+
+    def streaming_copy(self, layout):
+        views = self.flat(layout)
+        return lambda: _same_traffic_streaming_copy(*views)
 
     def c(self, layout):
         views = self.flat(layout)
@@ -265,13 +327,18 @@ def main(argv=None):
             cases = {}
             for layout in ("contiguous", "padded"):
                 cases[("api", layout)] = (size.api(layout), size.bytes)
+                streams = size.streams(layout)
                 if size.dtype == np.float64:
                     cases[("copy", layout)] = (size.copy(layout), size.bytes)
+                    if streams:
+                        cases[("streaming copy", layout)] = (size.streaming_copy(layout),
+                                                             size.bytes)
                     if size.c_kernel is not None:
                         cases[("C", layout)] = (size.c(layout), size.bytes)
                     cases[("api, checks off", layout)] = (size.api(layout, False), size.bytes)
-                if size.line_steps_chosen(layout):
-                    cases[("256-bit driver", layout)] = (size.default_driver(layout), size.bytes)
+                if streams:
+                    cases[("ordinary driver", layout)] = (size.ordinary_driver(layout),
+                                                          size.bytes)
             measured = interleaved(cases, triad, args.repeat)
             for (what, layout), (seconds, share) in measured.items():
                 results[(np.dtype(dtype).name, what, layout)] = seconds
@@ -288,18 +355,25 @@ def main(argv=None):
             line = (f"  {layout}: kernel / copy kernel {1 / paired_ratio(api, results[('float64', 'copy', layout)]):.2f} "
                     f"(speed); float32 / float64 points per second {float_ratio:.2f} "
                     "(from the triad shares)")
+            if ("float64", "streaming copy", layout) in results:
+                streaming_copy = results[("float64", "streaming copy", layout)]
+                line += (f"; kernel / streaming copy {1 / paired_ratio(api, streaming_copy):.2f}"
+                         " (speed)")
             if ("float64", "C", layout) in results:
                 c_time = results[("float64", "C", layout)]
                 low, high = paired_quartiles(api, c_time)
                 line += (f"; time emsource / C {paired_ratio(api, c_time):.3f} "
                          f"(quartiles {low:.3f}-{high:.3f})")
             for dtype in ("float64", "float32"):
-                if (dtype, "256-bit driver", layout) in results:
-                    default = results[(dtype, "256-bit driver", layout)]
+                if (dtype, "ordinary driver", layout) in results:
+                    ordinary = results[(dtype, "ordinary driver", layout)]
                     api = results[(dtype, "api", layout)]
-                    low, high = paired_quartiles(api, default)
-                    line += (f"; {dtype} line steps / 256-bit driver {paired_ratio(api, default):.3f}"
-                             f" (quartiles {low:.3f}-{high:.3f})")
+                    low, high = paired_quartiles(api, ordinary)
+                    line += (f"; {dtype} streaming / ordinary driver "
+                             f"{paired_ratio(api, ordinary):.3f} (quartiles {low:.3f}-{high:.3f})")
+                    if dtype == "float64" and ("float64", "C", layout) in results:
+                        line += (f"; ordinary driver / C "
+                                 f"{paired_ratio(ordinary, results[('float64', 'C', layout)]):.3f}")
             print(line)
         print(f"  padded / contiguous time: kernel "
               f"{paired_ratio(results[('float64', 'api', 'padded')], results[('float64', 'api', 'contiguous')]):.2f}, "

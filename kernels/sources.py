@@ -64,7 +64,7 @@ from .electromagnetic import (
 from .metric import inverse_metric, metric_factors
 from .point_checks import is_finite
 from .strip_buffers import strip_buffer
-from .streaming_stores import (LINE_BYTES, STREAMING_BUFFER_LANES, line_offset, rows_at_offset,
+from .streaming_stores import (STREAMING_BUFFER_LANES, line_extent, line_offset, rows_at_offset,
                                store_fence, stream_line)
 from .vector_loops import (STRIP_POINTS, as_rows, count_flag, packed_rows, span_metric_fields,
                            span_start, strip_count, strip_length, strip_range, window_column)
@@ -191,15 +191,23 @@ def _stress_energy_values(gxx, gxy, gxz, gyy, gyz, gzz, f1, f2, f3, f4, f5, f6, 
 
 
 @point_function
-def _stress_energy_point(n, alpha, beta, gamma, gidx, E, B, T, form, coef, half, tiny,
-                         pivot_floor, upper):
-    """Write the 10 packed T_ab (or T^ab) of :func:`_stress_energy_values` at point ``n`` of
-    (ncomp, npoints) arrays; return the check bits."""
-    t0, t1, t2, t3, t4, t5, t6, t7, t8, t9, status = _stress_energy_values(
+def _stress_energy_values_at(n, alpha, beta, gamma, gidx, E, B, form, coef, half, tiny,
+                             pivot_floor, upper):
+    """:func:`_stress_energy_values` at point ``n`` of (ncomp, npoints) input arrays."""
+    return _stress_energy_values(
         gamma[gidx[0], n], gamma[gidx[1], n], gamma[gidx[2], n],
         gamma[gidx[3], n], gamma[gidx[4], n], gamma[gidx[5], n],
         E[0, n], E[1, n], E[2, n], B[0, n], B[1, n], B[2, n],
         alpha[n], beta[0, n], beta[1, n], beta[2, n], form, coef, half, tiny, pivot_floor, upper)
+
+
+@point_function
+def _stress_energy_point(n, alpha, beta, gamma, gidx, E, B, T, form, coef, half, tiny,
+                         pivot_floor, upper):
+    """Write the 10 packed T_ab (or T^ab) of :func:`_stress_energy_values` at point ``n`` of
+    (ncomp, npoints) arrays; return the check bits."""
+    t0, t1, t2, t3, t4, t5, t6, t7, t8, t9, status = _stress_energy_values_at(
+        n, alpha, beta, gamma, gidx, E, B, form, coef, half, tiny, pivot_floor, upper)
     T[0, n] = t0
     T[1, n] = t1
     T[2, n] = t2
@@ -333,9 +341,7 @@ def _adm_sources_streaming_for(form):
         if not (rows_at_offset(rho_row, offset) and rows_at_offset(S_row, offset)
                 and rows_at_offset(S_i, offset) and rows_at_offset(S_ij, offset)):
             return -1, -1
-        lanes = LINE_BYTES // rho.itemsize
-        head = min(npoints, (LINE_BYTES - offset) % LINE_BYTES // rho.itemsize)
-        lines = (npoints - head) // lanes
+        head, lines, lanes = line_extent(offset, rho.itemsize, npoints)
         body_stop = head + lines * lanes
         zero = half - half
         one = half + half
@@ -541,6 +547,74 @@ def _stress_energy_flat_for(form, upper, line_steps=False):
     return stress_energy_flat
 
 
+def _stress_energy_streaming_for(form, upper):
+    """The streaming-store T_ab (T^ab) driver of (``form``, ``upper``)
+    (:data:`STRESS_ENERGY_FLAT_STREAMING`), built as the sources' (:func:`_adm_sources_streaming_for`)."""
+
+    @grid_kernel
+    def stress_energy_streaming(alpha, beta, gamma, gidx, E, B, T, coef, half, tiny,
+                                pivot_floor, check):
+        """As the flat T_ab driver, with every whole cache line of the 10 output rows written
+        by a streaming store; (-1, -1) and nothing written where those rows do not share their
+        offset within a line (see :func:`_adm_sources_streaming_for`)."""
+        npoints = alpha.size
+        alpha = alpha.reshape(npoints)
+        beta = as_rows(beta)
+        gamma = as_rows(gamma)
+        E = as_rows(E)
+        B = as_rows(B)
+        T = as_rows(T)
+        offset = line_offset(T, 0)
+        if not rows_at_offset(T, offset):
+            return -1, -1
+        head, lines, lanes = line_extent(offset, T.itemsize, npoints)
+        body_stop = head + lines * lanes
+        zero = half - half
+        one = half + half
+        bad_head, low_head = _stress_energy_strip(
+            np.uint64(0), np.uint64(head), alpha, beta, gamma, gidx, E, B, T, form, coef, half,
+            tiny, pivot_floor, upper)
+        bad_tail, low_tail = _stress_energy_strip(
+            np.uint64(body_stop), np.uint64(npoints), alpha, beta, gamma, gidx, E, B, T, form,
+            coef, half, tiny, pivot_floor, upper)
+        bad_count = int(bad_head + bad_tail) if check else 0
+        underflow_count = int(low_head + low_tail) if check else 0
+        per_task = STRIP_POINTS // lanes
+        for task in prange(strip_count(lines, per_task)):
+            line_values = strip_buffer(10, STREAMING_BUFFER_LANES, T)
+            first, last = strip_range(task, per_task, lines)
+            bad = zero
+            low = zero
+            for line in range(first, last):
+                start = np.uint64(head) + line * np.uint64(lanes)
+                for n in range(start, start + np.uint64(lanes)):
+                    t0, t1, t2, t3, t4, t5, t6, t7, t8, t9, status = _stress_energy_values_at(
+                        n, alpha, beta, gamma, gidx, E, B, form, coef, half, tiny, pivot_floor,
+                        upper)
+                    m = n - start
+                    line_values[0, m] = t0
+                    line_values[1, m] = t1
+                    line_values[2, m] = t2
+                    line_values[3, m] = t3
+                    line_values[4, m] = t4
+                    line_values[5, m] = t5
+                    line_values[6, m] = t6
+                    line_values[7, m] = t7
+                    line_values[8, m] = t8
+                    line_values[9, m] = t9
+                    bad += count_flag(status & 1, one, zero)
+                    low += count_flag(status & 2, one, zero)
+                for c in range(10):
+                    stream_line(T, c, start, line_values, c)
+            store_fence()
+            if check:
+                bad_count += int(bad)
+                underflow_count += int(low)
+        return bad_count, underflow_count
+
+    return stress_energy_streaming
+
+
 @point_function
 def _stress_energy_window_column(alpha, beta, s1, gamma, metric_rows, E, e1, B, b1, T, t1, steps,
                                  i, j, nz, form, coef, half, tiny, pivot_floor, upper):
@@ -646,6 +720,9 @@ STRESS_ENERGY_FLAT = {(form, upper): _stress_energy_flat_for(form, upper)
 #: threads, interleaved in one process).
 STRESS_ENERGY_FLAT_LINE_STEPS = {(form, upper): _stress_energy_flat_for(form, upper, True)
                                  for form in INPUT_FORMS for upper in (False, True)}
+#: The flat T_ab / T^ab drivers with streaming stores (as :data:`ADM_SOURCES_FLAT_STREAMING`).
+STRESS_ENERGY_FLAT_STREAMING = {(form, upper): _stress_energy_streaming_for(form, upper)
+                                for form in INPUT_FORMS for upper in (False, True)}
 #: The windowed T_ab / T^ab driver of each (input form, upper).
 STRESS_ENERGY_WINDOW = {(form, upper): _stress_energy_window_for(form, upper)
                         for form in INPUT_FORMS for upper in (False, True)}

@@ -40,7 +40,8 @@ from numba.extending import intrinsic
 
 from ._compile import point_function
 
-__all__ = ["LINE_BYTES", "STREAMING_BUFFER_LANES", "stream_line", "store_fence", "line_offset", "rows_at_offset"]
+__all__ = ["LINE_BYTES", "STREAMING_BUFFER_LANES", "stream_line", "store_fence", "line_offset",
+           "rows_at_offset", "line_extent"]
 
 #: Bytes of one cache line, the unit of a streaming store (x86-64 and most 64-bit CPUs).
 LINE_BYTES = 64
@@ -146,3 +147,13 @@ def rows_at_offset(array, offset):
         if line_offset(array, row) != offset:
             return False
     return True
+
+
+@point_function
+def line_extent(offset, itemsize, npoints):
+    """(head, lines, lanes) of a row of ``npoints`` elements that starts ``offset`` bytes into a
+    cache line: ``head`` points before the first whole line, then ``lines`` whole lines of
+    ``lanes`` points; the points from ``head + lines * lanes`` on end mid-line."""
+    lanes = LINE_BYTES // itemsize
+    head = min(npoints, (LINE_BYTES - offset) % LINE_BYTES // itemsize)
+    return head, (npoints - head) // lanes, lanes

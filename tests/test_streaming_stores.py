@@ -21,6 +21,7 @@ import numpy as np
 import pytest
 
 import emsource
+import emsource.grid_arrays
 import emsource.sources
 from emsource import _arguments as arg
 from emsource.grid_arrays import empty_grid_function
@@ -91,6 +92,47 @@ def test_streaming_driver_equals_the_flat_driver_at_every_point_and_counts_alike
         ours, theirs = ours[..., :npoints], theirs[..., :npoints]
         assert not (ours == unwritten).any()
         assert_same_arithmetic(ours[..., ~bad], theirs[..., ~bad])
+
+
+@pytest.mark.parametrize("dtype", [np.float64, np.float32])
+@pytest.mark.parametrize("upper", [False, True])
+@pytest.mark.parametrize("offset", [0, 48])
+def test_streaming_spacetime_driver_equals_the_flat_driver_and_declines_misaligned_rows(
+        rng, dtype, upper, offset):
+    """T_ab and T^ab (contravariant fields): every point equals the ordinary flat driver's up
+    to contraction, head and tail included, and the counts are its counts (a lapse that is not
+    positive at a third of the points, the first and last line's points among them); with its
+    10 rows not aligned alike (contiguous rows of an odd length) the driver returns (-1, -1)
+    and leaves them as they were."""
+    alpha, beta, gamma, E, B = random_curved_data(rng, SHAPE, dtype)
+    npoints = math.prod(SHAPE)
+    alpha = alpha.reshape(npoints).copy()
+    beta, gamma, E, B = (a.reshape(-1, npoints) for a in (beta, gamma, E, B))
+    bad = rng.random(npoints) < 0.3
+    lanes = LINE_BYTES // np.dtype(dtype).itemsize
+    bad[:lanes] = bad[-lanes:] = True
+    alpha[bad] = -1.0
+    constants = arg.kernel_constants(0, np.dtype(dtype), 1 / (4 * math.pi))
+
+    def run(table, T):
+        return tuple(table[0, upper](alpha, beta, gamma, arg.PACKED_METRIC_INDEX, E, B, T,
+                                     *constants[1:], True))
+
+    expected_T = _rows_at(0, SHAPE, dtype, 10)
+    expected = run(kernels.STRESS_ENERGY_FLAT, expected_T)
+    T = _rows_at(offset, SHAPE, dtype, 10)
+    unwritten = np.finfo(dtype).max
+    T[...] = unwritten
+    counts = run(kernels.STRESS_ENERGY_FLAT_STREAMING, T)
+    assert counts == expected and counts[0] == int(bad.sum())
+    T, expected_T = T[:, :npoints], expected_T[:, :npoints]
+    assert not (T == unwritten).any()
+    assert_same_arithmetic(T[:, ~bad], expected_T[:, ~bad])
+
+    # C-contiguous rows of an odd number of points: each row starts at another offset.
+    shifted = np.ones((10, npoints), dtype)
+    assert run(kernels.STRESS_ENERGY_FLAT_STREAMING, shifted) == (-1, -1)
+    assert (shifted == 1.0).all()
 
 
 @pytest.mark.parametrize("offsets", [(0, 0, 16, 0), (8, 8, 8, 0), (4, 4, 4, 4)],
@@ -190,4 +232,48 @@ def test_public_call_streams_into_padded_grid_functions_and_falls_back_on_misali
     assert recorder.counts[-1] == (-1, -1)
     for ours, theirs in zip(misaligned, expected):
         assert_same_arithmetic(ours, theirs)
+
+    # Results the call allocates itself start on cache lines (C-contiguous), so they stream.
+    allocated = emsource.adm_sources(gamma, E, B)
+    assert recorder.counts[-1] == (0, 0)
+    for ours, theirs in zip(allocated, expected):
+        assert ours.flags.c_contiguous and ours.ctypes.data % LINE_BYTES == 0
+        assert_same_arithmetic(ours, theirs)
     emsource.sources._ADM_PLANS.clear()
+
+
+def test_public_spacetime_call_streams_where_it_allocates_and_into_padded_out(rng, monkeypatch):
+    """stress_energy_4d with the threshold lowered to 4 KiB on a 16^3 grid: its own result and
+    a padded ``out`` take the streaming driver (the plan keeps the streaming table first), and
+    both equal the ordinary driver's result up to contraction."""
+    shape = (16, 16, 16)
+    alpha, beta, gamma, E, B = random_curved_data(rng, shape)
+    expected = emsource.stress_energy_4d(alpha, beta, gamma, E, B)
+    monkeypatch.setattr(arg, "STREAMING_ROW_BYTES", 4096)
+    recorder = _Recorder(kernels.STRESS_ENERGY_FLAT_STREAMING[0, False])
+    monkeypatch.setitem(kernels.STRESS_ENERGY_FLAT_STREAMING, (0, False), recorder)
+    emsource.sources._STRESS_ENERGY_PLANS.clear()
+    allocated = emsource.stress_energy_4d(alpha, beta, gamma, E, B)
+    padded = empty_grid_function((10,) + shape)
+    emsource.stress_energy_4d(alpha, beta, gamma, E, B, out=padded)
+    emsource.stress_energy_4d(alpha, beta, gamma, E, B, out=padded)
+    assert recorder.counts == [(0, 0)] * 3
+    plans = list(emsource.sources._STRESS_ENERGY_PLANS._plans.values())
+    assert plans and all(plan.extra[2][0] is kernels.STRESS_ENERGY_FLAT_STREAMING
+                         for plan in plans)
+    assert_same_arithmetic(allocated, expected)
+    assert_same_arithmetic(padded, expected)
+    emsource.sources._STRESS_ENERGY_PLANS.clear()
+
+
+def test_line_aligned_allocation_is_an_ordinary_contiguous_array():
+    """empty_line_aligned: the asked shape and dtype, C-contiguous, writeable, its first
+    element on a line start, for shapes whose byte length is not a whole number of lines and
+    for an empty one."""
+    for shape, dtype in (((3, 5, 7, 9), np.float64), ((11,), np.float32), ((0, 4), np.float64)):
+        a = emsource.grid_arrays.empty_line_aligned(shape, dtype)
+        assert a.shape == shape and a.dtype == dtype and a.flags.c_contiguous
+        assert a.flags.writeable
+        assert a.size == 0 or a.ctypes.data % LINE_BYTES == 0  # (no element: no address)
+        a[...] = 1
+        assert a.sum() == a.size

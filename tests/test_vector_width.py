@@ -64,11 +64,15 @@ def test_the_loop_body_carries_the_width_attribute():
 
 
 def test_512_bit_registers_exactly_where_asked_and_the_host_has_them():
+    """Asked for, 512-bit arithmetic appears exactly where the host has it. Not asked for, the
+    width is LLVM's tuning for the host: 256 bits on the Intel parts this was first measured
+    on, 512 on an AMD Zen 4 (seen: ``vfmadd132pd`` on zmm registers in ``_default``), never
+    beyond the hardware."""
     _, wide_asm = _compiled(_wide)
     _, default_asm = _compiled(_default)
-    if not numba.config.CPU_FEATURES:  # LLVM's own tuning for the host: at most 256 bits
-        assert "zmm" not in default_asm
     assert ("zmm" in wide_asm) == _host_has_512_bit_vectors()
+    if not _host_has_512_bit_vectors():
+        assert "zmm" not in default_asm
 
 
 def _guarded(wide):

@@ -13,7 +13,7 @@ import numpy as np
 
 from ._threading import kernel_call
 from .errors import GridPointError
-from .grid_arrays import rows_of
+from .grid_arrays import empty_line_aligned, rows_of
 from .input_forms import FORMS
 from .kernels import input_checks
 from .kernels._compile import call_sharing_layouts
@@ -465,6 +465,13 @@ def takes_streaming_stores(grid, dtype) -> bool:
     for n in grid:
         npoints *= n
     return npoints * np.dtype(dtype).itemsize >= STREAMING_ROW_BYTES
+
+
+def result_allocator(grid, dtype):
+    """``np.empty``, or :func:`emsource.grid_arrays.empty_line_aligned` where the flat drivers
+    try their streaming form (:func:`takes_streaming_stores`), so that results the package
+    allocates on large grids start on cache lines and take it."""
+    return empty_line_aligned if takes_streaming_stores(grid, dtype) else np.empty
 
 
 def flat_driver_tables(views, grid, default, line_steps=None, streaming=None) -> tuple:

@@ -252,11 +252,12 @@ def adm_sources(gamma, E, B, *, units="gaussian", field_index="upper",
         function, gamma, E, B, units, field_index, layout)
     dtype = arg.common_dtype(function, ("gamma", "E", "B"), (gamma, E, B))
     if out is None:
+        empty = arg.result_allocator(grid, dtype)
         result = AdmSources(
-            np.empty(grid, dtype),
-            np.empty(arg.shape_for(grid, (3,), layout), dtype),
-            np.empty(arg.shape_for(grid, (6,), layout), dtype),
-            np.empty(grid, dtype),
+            empty(grid, dtype),
+            empty(arg.shape_for(grid, (3,), layout), dtype),
+            empty(arg.shape_for(grid, (6,), layout), dtype),
+            empty(grid, dtype),
         )
         views = [result.rho, arg.component_first(result.S_i, 1, layout),
                  arg.component_first(result.S_ij, 1, layout), result.S]
@@ -384,7 +385,7 @@ def stress_energy_4d(alpha, beta, gamma, E, B, *, units="gaussian", index="lower
      dtype) = spacetime_inputs(function, alpha, beta, gamma, E, B, units, field_index, layout)
     shape = arg.shape_for(grid, (10,), layout)
     if out is None:
-        result = np.empty(shape, dtype)
+        result = arg.result_allocator(grid, dtype)(shape, dtype)
         t_view = arg.component_first(result, 1, layout)
     else:
         result = out
@@ -394,7 +395,8 @@ def stress_energy_4d(alpha, beta, gamma, E, B, *, units="gaussian", index="lower
     views, flat = arg.kernel_views([lapse, shift, metric, e, b, t_view], grid, whole_grids=True)
     constants = arg.kernel_constants(form, dtype, prefactor) + (index == "upper",)
     drivers = None if not flat else arg.flat_driver_tables(
-        views, grid, kernels.STRESS_ENERGY_FLAT, kernels.STRESS_ENERGY_FLAT_LINE_STEPS)
+        views, grid, kernels.STRESS_ENERGY_FLAT, kernels.STRESS_ENERGY_FLAT_LINE_STEPS,
+        kernels.STRESS_ENERGY_FLAT_STREAMING)
     if layout == "component_first" and flat and key is not None:
         # Only now, after every check passed: a plan is what a full validation derived.
         _STRESS_ENERGY_PLANS.put(key, FlatPlan.of(inputs + (result,), views, grid, dtype,
