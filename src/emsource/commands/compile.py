@@ -6,7 +6,9 @@ on tiny grids in the common signatures: float64 and float32, contiguous, padded 
 functions (the sources' flat driver takes contiguous 3-D arrays whole and padded ones as rows:
 two signatures), ghost zones sliced off (the windowed drivers of the sources and T_ab; the
 column loops of the others) and component-last data (the column loops of the sources and T_ab);
-and the conformal sources of chi and E^i in float64 (one driver for contiguous data and windows).
+the streaming-store drivers that large grids take (sources on contiguous and padded arrays, T_ab on
+contiguous ones); and the conformal sources of chi and E^i in float64 (one driver for contiguous
+data and windows).
 With ``--diagnostics`` also the conservation and constraint kernels (float64, the difference
 orders share one signature), which take minutes.
 """
@@ -80,12 +82,39 @@ def common_signatures():
                           layout="component_last")))
         calls.append((f"energy fluxes, {name}",
                       lambda al=alpha, be=beta, ga=gamma, e=E, b=B: energy_fluxes(al, be, ga, e, b)))
+        calls.append((f"streaming drivers, {name}",
+                      lambda ga=gamma, e=E, b=B, p=padded, al=alpha, be=beta:
+                      _streaming_drivers(al, be, ga, e, b, p)))
     # The conformal sources of chi and E^i, float64: contiguous data and ghost-zone windows share
     # one compiled driver (emsource.kernels.conformal.CONFORMAL_SOURCES).
     _, _, gamma, E, B = _flat_space((6, 6, 6), np.float64)
     calls.append(("conformal sources, chi, float64",
                   lambda: conformal_sources(np.ones((6, 6, 6)), gamma, E, B, decomposition="chi")))
     return calls
+
+
+def _streaming_drivers(alpha, beta, gamma, E, B, padded):
+    """The streaming-store drivers that large grids take (from 2 MiB rows), called directly on
+    the kernel views the public calls would pass (a tiny grid never takes them itself):
+    sources on contiguous arrays and padded grid functions, T_ab on contiguous arrays."""
+    import emsource
+    from emsource import _arguments as arg
+    from emsource.grid_arrays import grid_function_like
+    from emsource.kernels import sources as kernels
+
+    grid = gamma.shape[1:]
+    constants = arg.kernel_constants(0, gamma.dtype, 1.0)[1:]
+    for inputs in ((gamma, E, B), padded):
+        outputs = list(emsource.adm_sources(*inputs))
+        if inputs is padded:
+            outputs = [grid_function_like(a) for a in outputs]
+        views, _ = arg.kernel_views(list(inputs) + outputs, grid, whole_grids=True)
+        kernels.ADM_SOURCES_FLAT_STREAMING[0](views[0], arg.PACKED_METRIC_INDEX, *views[1:],
+                                              *constants, True)
+    T = emsource.stress_energy_4d(alpha, beta, gamma, E, B)
+    views, _ = arg.kernel_views([alpha, beta, gamma, E, B, T], grid, whole_grids=True)
+    kernels.STRESS_ENERGY_FLAT_STREAMING[0, False](*views[:3], arg.PACKED_METRIC_INDEX,
+                                                   *views[3:], *constants, True)
 
 
 def _diagnostic_signatures():
