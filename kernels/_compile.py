@@ -17,8 +17,9 @@ Why these options:
 - ``error_model="numpy"``: division by zero gives inf/nan like NumPy instead of raising,
   so the loop body has no Python-exception branch and can vectorise.
 - Thread count is Numba's own (``NUMBA_NUM_THREADS``, ``numba.set_num_threads``).
-- Vector width is LLVM's choice for the host (256-bit on CPUs with 512-bit vectors, where LLVM
-  prefers 256); a kernel whose loops measured faster with 512-bit vectors asks for them in its
+- Vector width is LLVM's choice for the host (256-bit on the Intel CPUs with 512-bit vectors
+  this was first measured on, where LLVM prefers 256; 512-bit on an AMD Zen 4, LLVM target
+  ``znver4``); a kernel whose loops measured faster with 512-bit vectors asks for them in its
   parallel loop's body with :func:`prefer_512_bit_vectors` (per loop body, not per process).
 
 The disk cache and inlined point functions. Numba keys a cached kernel on the source of the

@@ -14,6 +14,8 @@ load near 1, a probe): time / C 0.47-0.75 from 32^3 to 262^3 (32, 48, 64, 96, 12
 0.54, 0.75, 0.67, 0.61, 0.56, 0.55, 0.47), where the ordinary driver ran at 0.94-1.15.
 A buffer of a whole strip per row (256 points) flushed line by line was slower than both (its
 copy loop cost 2.4 ns per point in cache); one line at a time keeps the buffer in registers.
+``benchmarks/bench_sources.py`` (README "Speed"): 0.68-0.69 of the ordinary driver's time on
+padded grid functions at 128, 134, 256 and 262^3, 0.69-0.74 of the C kernel's. (AMD EPYC, Zen 4.)
 
 Contract: :func:`stream_line` needs the destination line 64-byte aligned (the instruction faults
 otherwise). A driver therefore checks every output row with :func:`rows_at_offset` before it
