@@ -64,8 +64,8 @@ from .electromagnetic import (
 from .metric import inverse_metric, metric_factors
 from .point_checks import is_finite
 from .strip_buffers import strip_buffer
-from .streaming_stores import (STREAMING_BUFFER_LANES, line_extent, line_offset, rows_at_offset,
-                               store_fence, stream_line)
+from .streaming_stores import (STREAMING_BUFFER_LANES, buffer_ten, line_extent, line_offset,
+                               rows_at_offset, store_fence, stream_line)
 from .vector_loops import (STRIP_POINTS, as_rows, count_flag, packed_rows, span_metric_fields,
                            span_start, strip_count, strip_length, strip_range, window_column)
 
@@ -363,17 +363,8 @@ def _adm_sources_streaming_for(form):
                 for n in range(start, start + np.uint64(lanes)):
                     r, sx, sy, sz, sxx, sxy, sxz, syy, syz, szz, status = _adm_values_at(
                         n, gamma, gidx, E, B, form, coef, half, tiny, pivot_floor)
-                    m = n - start
-                    line_values[0, m] = r
-                    line_values[1, m] = sx
-                    line_values[2, m] = sy
-                    line_values[3, m] = sz
-                    line_values[4, m] = sxx
-                    line_values[5, m] = sxy
-                    line_values[6, m] = sxz
-                    line_values[7, m] = syy
-                    line_values[8, m] = syz
-                    line_values[9, m] = szz
+                    buffer_ten(line_values, n - start, r, sx, sy, sz, sxx, sxy, sxz, syy, syz,
+                               szz)
                     bad += count_flag(status & 1, one, zero)
                     low += count_flag(status & 2, one, zero)
                 stream_line(rho_row, 0, start, line_values, 0)
@@ -591,17 +582,7 @@ def _stress_energy_streaming_for(form, upper):
                     t0, t1, t2, t3, t4, t5, t6, t7, t8, t9, status = _stress_energy_values_at(
                         n, alpha, beta, gamma, gidx, E, B, form, coef, half, tiny, pivot_floor,
                         upper)
-                    m = n - start
-                    line_values[0, m] = t0
-                    line_values[1, m] = t1
-                    line_values[2, m] = t2
-                    line_values[3, m] = t3
-                    line_values[4, m] = t4
-                    line_values[5, m] = t5
-                    line_values[6, m] = t6
-                    line_values[7, m] = t7
-                    line_values[8, m] = t8
-                    line_values[9, m] = t9
+                    buffer_ten(line_values, n - start, t0, t1, t2, t3, t4, t5, t6, t7, t8, t9)
                     bad += count_flag(status & 1, one, zero)
                     low += count_flag(status & 2, one, zero)
                 for c in range(10):

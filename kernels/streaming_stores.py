@@ -43,7 +43,7 @@ from numba.extending import intrinsic
 from ._compile import point_function
 
 __all__ = ["LINE_BYTES", "STREAMING_BUFFER_LANES", "stream_line", "store_fence", "line_offset",
-           "rows_at_offset", "line_extent"]
+           "rows_at_offset", "line_extent", "buffer_ten"]
 
 #: Bytes of one cache line, the unit of a streaming store (x86-64 and most 64-bit CPUs).
 LINE_BYTES = 64
@@ -159,3 +159,19 @@ def line_extent(offset, itemsize, npoints):
     lanes = LINE_BYTES // itemsize
     head = min(npoints, (LINE_BYTES - offset) % LINE_BYTES // itemsize)
     return head, (npoints - head) // lanes, lanes
+
+
+@point_function
+def buffer_ten(buffer, m, v0, v1, v2, v3, v4, v5, v6, v7, v8, v9):
+    """Put ten output values of one point into column ``m`` of a driver's line buffer
+    (rows 0 to 9), in the order the driver streams them."""
+    buffer[0, m] = v0
+    buffer[1, m] = v1
+    buffer[2, m] = v2
+    buffer[3, m] = v3
+    buffer[4, m] = v4
+    buffer[5, m] = v5
+    buffer[6, m] = v6
+    buffer[7, m] = v7
+    buffer[8, m] = v8
+    buffer[9, m] = v9
