@@ -12,7 +12,9 @@ both constants in its loop (built here, compiled on first use), over arrays give
 contiguous data and padded rows as a line cut into strips, ghost-zone windows as columns (see
 :func:`_conformal_sources_for` and DEVELOPERS.md "Vectorised point loops").
 :func:`conformal_sources_grid` is the column loop over strided views, with the decomposition and
-form as run-time arguments, for every other layout. Both inline :func:`_conformal_values`.
+form as run-time arguments, for every other layout. :data:`CONFORMAL_SOURCES_STREAMING` holds
+flat drivers with streaming stores for large grids (:mod:`.streaming_stores`). All inline
+:func:`_conformal_values`.
 """
 
 from __future__ import annotations
@@ -26,7 +28,11 @@ from ._compile import grid_kernel, point_function, prefer_512_bit_vectors
 from .electromagnetic import fields_both_indices, point_is_valid, projections, sqrt_determinant
 from .metric import metric_at, metric_factors
 from .sources import INPUT_FORMS
-from .vector_loops import (as_spans, count_flag, packed_rows, span_metric_fields, span_start,
+from .streaming_stores import (STREAMING_BUFFER_LANES, buffer_ten, line_extent, line_offset,
+                               rows_at_offset, store_fence, stream_line)
+from .strip_buffers import strip_buffer
+from .vector_loops import (STRIP_POINTS, as_rows, as_spans, count_flag, packed_rows,
+                           span_metric_fields, span_start, strip_count, strip_range,
                            window_column)
 
 DECOMPOSITION_CHI = 0
@@ -233,6 +239,105 @@ def _conformal_sources_for(decomposition, form, line_steps=False):
     return conformal_sources_spans
 
 
+@point_function
+def _conformal_values_at(n, factor, tgamma, gidx, E, B, decomposition, form, coef, half, third,
+                         pivot_floor):
+    """:func:`_conformal_values` at point ``n`` of (npoints,) and (ncomp, row) arrays."""
+    return _conformal_values(
+        factor[n], tgamma[gidx[0], n], tgamma[gidx[1], n], tgamma[gidx[2], n],
+        tgamma[gidx[3], n], tgamma[gidx[4], n], tgamma[gidx[5], n], E[0, n], E[1, n], E[2, n],
+        B[0, n], B[1, n], B[2, n], decomposition, form, coef, half, third, pivot_floor)
+
+
+@point_function
+def _conformal_edge(start, stop, factor, tgamma, gidx, E, B, rho, S_i, S, A, decomposition,
+                    form, coef, half, third, pivot_floor):
+    """Points ``start`` to ``stop`` of (ncomp, row) arrays with ordinary stores (the head and
+    tail of a streaming driver's rows); returns their count of bad points."""
+    bad = 0
+    for n in range(start, stop):
+        r, sx, sy, sz, a0, a1, a2, a3, a4, a5, status = _conformal_values_at(
+            n, factor, tgamma, gidx, E, B, decomposition, form, coef, half, third, pivot_floor)
+        rho[n] = r
+        S[n] = r
+        S_i[0, n] = sx
+        S_i[1, n] = sy
+        S_i[2, n] = sz
+        A[0, n] = a0
+        A[1, n] = a1
+        A[2, n] = a2
+        A[3, n] = a3
+        A[4, n] = a4
+        A[5, n] = a5
+        bad += status
+    return bad
+
+
+def _conformal_streaming_for(decomposition, form):
+    """The streaming-store conformal-source driver of one (decomposition, input form)
+    (:data:`CONFORMAL_SOURCES_STREAMING`), built as the sources' streaming driver
+    (``kernels/sources.py`` ``_adm_sources_streaming_for``)."""
+
+    @grid_kernel
+    def conformal_sources_streaming(factor, tgamma, gidx, E, B, rho, S_i, S, A, coef,
+                                    pivot_floor, one, check):
+        """rho, S_i, S, A_ij over arrays of shape (ncomp, row length) and (npoints,), or
+        C-contiguous whole arrays (as the flat source driver takes them), every whole cache
+        line of the 11 output rows written by a streaming store (:mod:`.streaming_stores`);
+        returns the count of bad points, or -1 having written nothing where the output rows
+        do not share their offset within a cache line."""
+        npoints = rho.size
+        factor = factor.reshape(npoints)
+        tgamma = as_rows(tgamma)
+        E = as_rows(E)
+        B = as_rows(B)
+        rho = rho.reshape(npoints)
+        S = S.reshape(npoints)
+        S_i = as_rows(S_i)
+        A = as_rows(A)
+        rho_row = rho.reshape((1, npoints))
+        S_row = S.reshape((1, npoints))
+        offset = line_offset(rho_row, 0)
+        if not (rows_at_offset(rho_row, offset) and rows_at_offset(S_row, offset)
+                and rows_at_offset(S_i, offset) and rows_at_offset(A, offset)):
+            return -1
+        head, lines, lanes = line_extent(offset, rho.itemsize, npoints)
+        body_stop = head + lines * lanes
+        third = one / (one + one + one)
+        half = one / (one + one)
+        zero = half - half
+        edges = (_conformal_edge(0, head, factor, tgamma, gidx, E, B, rho, S_i, S, A,
+                                 decomposition, form, coef, half, third, pivot_floor)
+                 + _conformal_edge(body_stop, npoints, factor, tgamma, gidx, E, B, rho, S_i, S,
+                                   A, decomposition, form, coef, half, third, pivot_floor))
+        bad_count = edges if check else 0
+        per_task = STRIP_POINTS // lanes
+        for task in prange(strip_count(lines, per_task)):
+            line_values = strip_buffer(10, STREAMING_BUFFER_LANES, rho)
+            first, last = strip_range(task, per_task, lines)
+            bad = zero
+            for line in range(first, last):
+                start = np.uint64(head) + line * np.uint64(lanes)
+                for n in range(start, start + np.uint64(lanes)):
+                    r, sx, sy, sz, a0, a1, a2, a3, a4, a5, status = _conformal_values_at(
+                        n, factor, tgamma, gidx, E, B, decomposition, form, coef, half, third,
+                        pivot_floor)
+                    buffer_ten(line_values, n - start, r, sx, sy, sz, a0, a1, a2, a3, a4, a5)
+                    bad += count_flag(status, one, zero)
+                stream_line(rho_row, 0, start, line_values, 0)
+                stream_line(S_row, 0, start, line_values, 0)  # S = rho
+                for c in range(3):
+                    stream_line(S_i, c, start, line_values, 1 + c)
+                for c in range(6):
+                    stream_line(A, c, start, line_values, 4 + c)
+            store_fence()
+            if check:
+                bad_count += int(bad)
+        return bad_count
+
+    return conformal_sources_streaming
+
+
 # ------------------------------------------------ one driver per (decomposition, form)
 # The decomposition and the input form are constants in each of these drivers' loops (as the
 # input form in kernels/sources.py: LLVM does not unswitch a run-time branch of the point
@@ -247,3 +352,7 @@ CONFORMAL_SOURCES = {(d, form): _conformal_sources_for(d, form)
 #: ``benchmarks/bench_forms.py --line-steps`` (two threads, interleaved in one process).
 CONFORMAL_SOURCES_LINE_STEPS = {(d, form): _conformal_sources_for(d, form, True)
                                 for d in DECOMPOSITIONS for form in INPUT_FORMS}
+#: The flat drivers with streaming stores (:mod:`.streaming_stores`), for large grids whose
+#: rows do not alias (``emsource._arguments.flat_driver_tables``); compiled on first use.
+CONFORMAL_SOURCES_STREAMING = {(d, form): _conformal_streaming_for(d, form)
+                               for d in DECOMPOSITIONS for form in INPUT_FORMS}

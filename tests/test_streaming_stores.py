@@ -21,6 +21,7 @@ import numpy as np
 import pytest
 
 import emsource
+import emsource.conformal
 import emsource.grid_arrays
 import emsource.sources
 from emsource import _arguments as arg
@@ -193,7 +194,7 @@ class _Recorder:
 
     def __call__(self, *arguments):
         counts = self.real(*arguments)
-        self.counts.append(tuple(counts))
+        self.counts.append(tuple(counts) if isinstance(counts, tuple) else counts)
         return counts
 
 
@@ -277,3 +278,82 @@ def test_line_aligned_allocation_is_an_ordinary_contiguous_array():
         assert a.size == 0 or a.ctypes.data % LINE_BYTES == 0  # (no element: no address)
         a[...] = 1
         assert a.sum() == a.size
+
+
+@pytest.mark.parametrize("decomposition", ["chi", "w", "phi"])
+@pytest.mark.parametrize("offset", [0, 16])
+def test_streaming_conformal_driver_equals_the_ordinary_call_and_counts_bad_factors(
+        rng, decomposition, offset):
+    """The conformal sources' streaming driver (chi, W, phi; contravariant fields): every
+    output point equals the ordinary public call's up to contraction, head and tail included,
+    and its count of bad points is NumPy's count of conformal factors that are not positive
+    (chi, W) placed in the first and last line too; rows not aligned alike are declined (-1)
+    and left as they were."""
+    from emsource.conformal import conformal_sources
+    from emsource.kernels import conformal as conformal_kernels
+    from emsource.metric_forms import decomposition as find_decomposition
+
+    _, _, gamma, E, B = random_curved_data(rng, SHAPE)
+    npoints = math.prod(SHAPE)
+    factor = rng.uniform(0.5, 1.5, SHAPE) if decomposition != "phi" else rng.uniform(
+        -0.3, 0.3, SHAPE)
+    bad = np.zeros(npoints, bool)
+    if decomposition != "phi":
+        bad = rng.random(npoints) < 0.2
+        bad[:16] = bad[-16:] = True
+        factor.reshape(npoints)[bad] = -1.0
+    good = ~bad
+    expected = conformal_sources(np.where(bad.reshape(SHAPE), 1.0, factor), gamma, E, B,
+                                 decomposition=decomposition)
+    code = find_decomposition("test", decomposition).code
+    driver = conformal_kernels.CONFORMAL_SOURCES_STREAMING[code, kernels.FORM_CONTRAVARIANT]
+    physics = arg.kernel_scalars(np.dtype(np.float64), 1 / (4 * math.pi),
+                                 arg.pivot_floor(np.float64), 1)
+    rho, S = _rows_at(offset, SHAPE, np.float64), _rows_at(offset, SHAPE, np.float64)
+    S_i, A = _rows_at(offset, SHAPE, np.float64, 3), _rows_at(offset, SHAPE, np.float64, 6)
+    unwritten = np.finfo(np.float64).max
+    for a in (rho, S_i, S, A):
+        a[...] = unwritten
+    inputs = (factor.reshape(npoints), gamma.reshape(6, npoints), arg.PACKED_METRIC_INDEX,
+              E.reshape(3, npoints), B.reshape(3, npoints))
+    count = driver(*inputs, rho, S_i, S, A, *physics, True)
+    assert count == int(bad.sum())
+    for ours, theirs in zip((rho, S_i, S, A), expected):
+        ours = ours[..., :npoints]
+        assert not (ours == unwritten).any()
+        assert_same_arithmetic(ours[..., good], theirs.reshape(ours.shape)[..., good])
+
+    misaligned = [np.ones(npoints), np.ones((3, npoints)), np.ones(npoints), np.ones((6, npoints))]
+    assert driver(*inputs, *misaligned, *physics, True) == -1
+    assert all((a == 1.0).all() for a in misaligned)
+
+
+def test_public_conformal_call_streams_into_padded_out(rng, monkeypatch):
+    """conformal_sources (chi) with the threshold lowered to 4 KiB on a 16^3 grid: into padded
+    grid functions and into its own results it takes the streaming driver, and both equal the
+    ordinary call up to contraction; a bad chi is still reported with its count."""
+    from emsource.conformal import ConformalSources, conformal_sources
+    from emsource.kernels import conformal as conformal_kernels
+
+    shape = (16, 16, 16)
+    _, _, gamma, E, B = random_curved_data(rng, shape)
+    chi = rng.uniform(0.5, 1.5, shape)
+    expected = conformal_sources(chi, gamma, E, B, decomposition="chi")
+    monkeypatch.setattr(arg, "STREAMING_ROW_BYTES", 4096)
+    key = (conformal_kernels.DECOMPOSITION_CHI, kernels.FORM_CONTRAVARIANT)
+    recorder = _Recorder(conformal_kernels.CONFORMAL_SOURCES_STREAMING[key])
+    monkeypatch.setitem(conformal_kernels.CONFORMAL_SOURCES_STREAMING, key, recorder)
+    emsource.conformal._CONFORMAL_PLANS.clear()  # the call above planned the ordinary driver
+    padded = ConformalSources(empty_grid_function(shape), empty_grid_function((3,) + shape),
+                              empty_grid_function(shape), empty_grid_function((6,) + shape))
+    conformal_sources(chi, gamma, E, B, decomposition="chi", out=padded)
+    allocated = conformal_sources(chi, gamma, E, B, decomposition="chi")
+    assert recorder.counts == [0, 0]
+    for ours, mine, theirs in zip(padded, allocated, expected):
+        assert_same_arithmetic(ours, theirs)
+        assert_same_arithmetic(mine, theirs)
+    chi[3, 4, 5] = -1.0
+    with pytest.raises(emsource.GridPointError, match="1 of 4096 grid points"):
+        conformal_sources(chi, gamma, E, B, decomposition="chi", out=padded)
+    assert recorder.counts[-1] == 1
+    assert not emsource.conformal._CONFORMAL_PLANS._plans  # streamed calls store no plan

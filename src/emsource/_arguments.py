@@ -160,7 +160,8 @@ def outputs_or_new(function: str, kind, out, shapes: tuple, component_axes: tupl
     and ``dtype`` when ``out`` is None, else ``out`` (a ``kind`` or a plain tuple of as many
     arrays) checked by :func:`outputs` (component-first layout)."""
     if out is None:
-        return kind(*(np.empty(shape, dtype) for shape in shapes))
+        empty = result_allocator(shapes[0], dtype)
+        return kind(*(empty(shape, dtype) for shape in shapes))
     if not isinstance(out, tuple) or len(out) != len(kind._fields):
         article = "an" if kind.__name__[0] in "AEIOU" else "a"
         raise TypeError(f"{function}: out must be {article} {kind.__name__} or a tuple "
@@ -488,9 +489,16 @@ def flat_driver_tables(views, grid, default, line_steps=None, streaming=None) ->
     where on padded grid functions and on 134^3 / 262^3 it took 0.62-0.75 in both."""
     if line_steps is not None and takes_line_steps(views, grid):
         return (line_steps,)
-    if streaming is not None and takes_streaming_stores(grid, views[0].dtype):
+    if streaming is not None and tries_streaming(views, grid):
         return (streaming, default)
     return (default,)
+
+
+def tries_streaming(views, grid) -> bool:
+    """Whether a flat call on kernel ``views`` first tries a streaming-store driver: rows long
+    enough (:func:`takes_streaming_stores`) that do not alias (not :func:`takes_line_steps`;
+    see :func:`flat_driver_tables`)."""
+    return takes_streaming_stores(grid, views[0].dtype) and not takes_line_steps(views, grid)
 
 
 def _c_strides(a: np.ndarray, grid) -> tuple:

@@ -100,7 +100,10 @@ def _run_conformal_kernel(decomposition, form, gidx, arrays, grid, dtype, prefac
     the call is one line of points the spans the driver took and what else a plan keeps (the
     driver's dispatcher, the metric indices, its arguments after the arrays), else None, None.
 
-    C-contiguous data and padded rows are one line of points, cut into strips; views
+    Large grids whose rows do not alias first try the streaming-store driver
+    (:data:`emsource.kernels.conformal.CONFORMAL_SOURCES_STREAMING`,
+    :func:`emsource._arguments.tries_streaming`). C-contiguous data and padded rows are one
+    line of points, cut into strips; views
     contiguous along z (ghost zones sliced off) are windows: both go to the vectorised driver of
     (decomposition, form) over spans (:data:`emsource.kernels.conformal.CONFORMAL_SOURCES`,
     :func:`emsource._arguments.driver_spans`). Everything else (no unit stride along z,
@@ -108,6 +111,15 @@ def _run_conformal_kernel(decomposition, form, gidx, arrays, grid, dtype, prefac
     """
     views, flat = arg.kernel_views(arrays, grid, whole_grids=True)
     physics = arg.kernel_scalars(dtype, prefactor, arg.pivot_floor(dtype), 1)
+    if flat and arg.tries_streaming(views, grid):
+        # Large rows that do not alias: the streaming driver, unless it declines (output rows
+        # not aligned alike). No plan: on such grids a call's Python part is negligible.
+        f, metric, e, b, *outputs = views
+        with kernel_call():
+            count = kernels.CONFORMAL_SOURCES_STREAMING[decomposition, form](
+                f, metric, gidx, e, b, *outputs, *physics, bool(check))
+        if count >= 0:
+            return count, None, None
     found = arg.driver_spans(views, grid, flat)
     if found is None:  # the column loop, run-time decomposition and form; every mix of
         # strided inputs shares one specialisation
