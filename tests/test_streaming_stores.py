@@ -65,24 +65,27 @@ def _run(table, form, arrays, outputs, dtype):
 @pytest.mark.parametrize("dtype", [np.float64, np.float32])
 @pytest.mark.parametrize("form", sorted(kernels.INPUT_FORMS))
 @pytest.mark.parametrize("offset", [0, 16])
+@pytest.mark.parametrize("shape", [SHAPE, (1, 1, 5)], ids=["9177-points", "5-points"])
 def test_streaming_driver_equals_the_flat_driver_at_every_point_and_counts_alike(
-        rng, dtype, form, offset):
+        rng, dtype, form, offset, shape):
     """Rows at the start of a line (a padded grid function) and 16 bytes into one (where a
     large NumPy array's rows start): every output point equals the ordinary flat driver's up to
     contraction (``assert_same_arithmetic``), the head before the first whole line and the tail
     after the last included, and both counts are the flat driver's, the bad metrics counted
-    exactly (a third of the points, in the edges too)."""
-    _, _, gamma, E, B = random_curved_data(rng, SHAPE, dtype)
-    npoints = math.prod(SHAPE)
+    exactly (a third of the points, in the edges too). A row of 5 points holds no whole line:
+    all of it is head (or tail)."""
+    _, _, gamma, E, B = random_curved_data(rng, shape, dtype)
+    npoints = math.prod(shape)
     gamma, E, B = (a.reshape(-1, npoints) for a in (gamma, E, B))
     bad = rng.random(npoints) < 0.3
-    lanes = LINE_BYTES // np.dtype(dtype).itemsize
-    bad[:lanes] = bad[-lanes:] = True  # whatever the head and tail, they hold bad points
+    edge = min(LINE_BYTES // np.dtype(dtype).itemsize, npoints // 3)
+    bad[:edge] = bad[-edge:] = True  # whatever the head and tail, they hold bad points
+    bad[npoints // 2] = False  # and a good point is compared on every grid
     gamma = gamma.copy()
     gamma[0, bad] = -1.0
-    expected_outputs = _outputs(SHAPE, dtype)
+    expected_outputs = _outputs(shape, dtype)
     expected = _run(kernels.ADM_SOURCES_FLAT, form, (gamma, E, B), expected_outputs, dtype)
-    streamed_outputs = _outputs(SHAPE, dtype, (offset,) * 4)
+    streamed_outputs = _outputs(shape, dtype, (offset,) * 4)
     unwritten = np.finfo(dtype).max  # no output here reaches it (bad points give NaN)
     for a in streamed_outputs:
         a[...] = unwritten
