@@ -21,7 +21,11 @@ from ._compile import grid_kernel, point_function
 from .electromagnetic import fields_both_indices, point_is_valid, sqrt_determinant
 from .metric import contract_index, metric_at, metric_factors
 from .sources import INPUT_FORMS
-from .vector_loops import as_spans, count_flag, packed_rows, span_start, window_column
+from .streaming_stores import (STREAMING_BUFFER_LANES, buffer_ten, line_extent, line_offset,
+                               rows_at_offset, store_fence, stream_line)
+from .strip_buffers import strip_buffer
+from .vector_loops import (STRIP_POINTS, as_rows, as_spans, count_flag, packed_rows, span_start,
+                           strip_count, strip_range, window_column)
 
 VELOCITY_EULERIAN = 0
 VELOCITY_FOUR = 1
@@ -207,6 +211,103 @@ def _ideal_mhd_for(form, kind):
     return ideal_mhd_spans
 
 
+@point_function
+def _ideal_mhd_values_at(n, alpha, beta, gamma, gidx, B, V, form, kind, pivot_floor, one):
+    """:func:`_ideal_mhd_values` at point ``n`` of (npoints,) and (ncomp, row) arrays."""
+    return _ideal_mhd_values(
+        alpha[n], beta[0, n], beta[1, n], beta[2, n], gamma[gidx[0], n], gamma[gidx[1], n],
+        gamma[gidx[2], n], gamma[gidx[3], n], gamma[gidx[4], n], gamma[gidx[5], n], B[0, n],
+        B[1, n], B[2, n], V[0, n], V[1, n], V[2, n], form, kind, pivot_floor, one)
+
+
+@point_function
+def _ideal_mhd_edge(start, stop, alpha, beta, gamma, gidx, B, V, E, U, b, form, kind,
+                    pivot_floor, one):
+    """Points ``start`` to ``stop`` of (ncomp, row) arrays with ordinary stores (the head and
+    tail of the streaming driver's rows); returns their count of bad points."""
+    bad = 0
+    for n in range(start, stop):
+        e1, e2, e3, ut, u1, u2, u3, c0, c1, c2, c3, status = _ideal_mhd_values_at(
+            n, alpha, beta, gamma, gidx, B, V, form, kind, pivot_floor, one)
+        E[0, n] = e1
+        E[1, n] = e2
+        E[2, n] = e3
+        U[0, n] = ut
+        U[1, n] = u1
+        U[2, n] = u2
+        U[3, n] = u3
+        b[0, n] = c0
+        b[1, n] = c1
+        b[2, n] = c2
+        b[3, n] = c3
+        bad += status
+    return bad
+
+
+def _ideal_mhd_streaming_for(form, kind):
+    """The streaming-store ideal-MHD driver of one (input form, velocity kind)
+    (:data:`IDEAL_MHD_STREAMING`), built as the sources' streaming driver
+    (``kernels/sources.py`` ``_adm_sources_streaming_for``)."""
+
+    @grid_kernel
+    def ideal_mhd_streaming(alpha, beta, gamma, gidx, B, V, E, U, b, pivot_floor, one, check):
+        """E^i, u^a, b^a over arrays of shape (ncomp, row length) and (npoints,), or
+        C-contiguous whole arrays, every whole cache line of the 11 output rows written by a
+        streaming store (:mod:`.streaming_stores`); returns the count of bad points, or -1
+        having written nothing where the output rows do not share their offset within a
+        cache line."""
+        npoints = alpha.size
+        alpha = alpha.reshape(npoints)
+        beta = as_rows(beta)
+        gamma = as_rows(gamma)
+        B = as_rows(B)
+        V = as_rows(V)
+        E = as_rows(E)
+        U = as_rows(U)
+        b = as_rows(b)
+        offset = line_offset(E, 0)
+        if not (rows_at_offset(E, offset) and rows_at_offset(U, offset)
+                and rows_at_offset(b, offset)):
+            return -1
+        head, lines, lanes = line_extent(offset, E.itemsize, npoints)
+        body_stop = head + lines * lanes
+        zero = one - one
+        edges = (_ideal_mhd_edge(0, head, alpha, beta, gamma, gidx, B, V, E, U, b, form, kind,
+                                 pivot_floor, one)
+                 + _ideal_mhd_edge(body_stop, npoints, alpha, beta, gamma, gidx, B, V, E, U, b,
+                                   form, kind, pivot_floor, one))
+        bad_count = edges if check else 0
+        per_task = STRIP_POINTS // lanes
+        for task in prange(strip_count(lines, per_task)):
+            line_values = strip_buffer(11, STREAMING_BUFFER_LANES, E)
+            first, last = strip_range(task, per_task, lines)
+            bad = zero
+            for line in range(first, last):
+                start = np.uint64(head) + line * np.uint64(lanes)
+                for n in range(start, start + np.uint64(lanes)):
+                    e1, e2, e3, ut, u1, u2, u3, c0, c1, c2, c3, status = _ideal_mhd_values_at(
+                        n, alpha, beta, gamma, gidx, B, V, form, kind, pivot_floor, one)
+                    m = n - start
+                    buffer_ten(line_values, m, e1, e2, e3, ut, u1, u2, u3, c0, c1, c2)
+                    line_values[10, m] = c3
+                    bad += count_flag(status, one, zero)
+                for c in range(3):
+                    stream_line(E, c, start, line_values, c)
+                for c in range(4):
+                    stream_line(U, c, start, line_values, 3 + c)
+                    stream_line(b, c, start, line_values, 7 + c)
+            store_fence()
+            if check:
+                bad_count += int(bad)
+        return bad_count
+
+    return ideal_mhd_streaming
+
+
 #: The ideal-MHD driver of each (input form, velocity kind); each compiles on first use only.
 IDEAL_MHD = {(form, kind): _ideal_mhd_for(form, kind)
              for form in INPUT_FORMS for kind in (VELOCITY_EULERIAN, VELOCITY_FOUR)}
+#: The flat drivers with streaming stores (:mod:`.streaming_stores`), for large grids whose rows
+#: do not alias (``emsource._arguments.tries_streaming``); compiled on first use.
+IDEAL_MHD_STREAMING = {(form, kind): _ideal_mhd_streaming_for(form, kind)
+                       for form in INPUT_FORMS for kind in (VELOCITY_EULERIAN, VELOCITY_FOUR)}

@@ -168,24 +168,33 @@ def ideal_mhd_fields(alpha, beta, gamma, B, velocity, *, velocity_kind="eulerian
                                    whole_grids=True)
     kind = VELOCITY_KINDS[velocity_kind]
     physics = arg.kernel_scalars(dtype, arg.pivot_floor(dtype), 1)
-    found = arg.driver_spans(views, grid, flat)
-    if found is None:  # the column loop (run-time form and kind), one specialisation for
-        # every mix of strided inputs
+    count = -1  # the streaming driver's count where it ran and did not decline
+    if flat and arg.tries_streaming(views, grid):
+        # Large rows that do not alias: the streaming driver, which declines (-1) where the
+        # output rows are not aligned alike. No plan: there a call's Python part is negligible.
         with kernel_call():
-            count = call_sharing_layouts(
-                kernels.ideal_mhd_grid, (*views[:3], gidx, *views[3:], form.code, kind, *physics),
-                _DRIVER_INPUTS)
-    else:  # contiguous lines and ghost-zone windows: the vectorised driver of (form, kind)
-        spans, steps, shape, last = found
-        tail = (steps, shape, last, *physics)
-        arguments = (*spans[:3], gidx, *spans[3:], *tail, bool(check))
-        driver = shared_dispatcher(kernels.IDEAL_MHD[form.code, kind], arguments, _DRIVER_INPUTS)
-        with kernel_call():
-            count = driver(*arguments)
-        if flat and key is not None:  # after every check passed: a plan is what a full
-            # validation derived
-            _IDEAL_MHD_PLANS.put(key, FlatPlan.of(inputs + result, spans, grid, dtype,
-                                                  (driver, gidx, tail), outputs=3))
+            count = kernels.IDEAL_MHD_STREAMING[form.code, kind](
+                *views[:3], gidx, *views[3:], *physics, bool(check))
+    if count < 0:
+        found = arg.driver_spans(views, grid, flat)
+        if found is None:  # the column loop (run-time form and kind), one specialisation for
+            # every mix of strided inputs
+            with kernel_call():
+                count = call_sharing_layouts(
+                    kernels.ideal_mhd_grid,
+                    (*views[:3], gidx, *views[3:], form.code, kind, *physics), _DRIVER_INPUTS)
+        else:  # contiguous lines and ghost-zone windows: the vectorised driver of (form, kind)
+            spans, steps, shape, last = found
+            tail = (steps, shape, last, *physics)
+            arguments = (*spans[:3], gidx, *spans[3:], *tail, bool(check))
+            driver = shared_dispatcher(kernels.IDEAL_MHD[form.code, kind], arguments,
+                                       _DRIVER_INPUTS)
+            with kernel_call():
+                count = driver(*arguments)
+            if flat and key is not None:  # after every check passed: a plan is what a full
+                # validation derived
+                _IDEAL_MHD_PLANS.put(key, FlatPlan.of(inputs + result, spans, grid, dtype,
+                                                      (driver, gidx, tail), outputs=3))
     if check and count:
         _raise_for_bad_points(function, count, grid, lapse, shift, metric, gidx, b_in, v_in,
                               result, velocity_kind)
