@@ -5,6 +5,7 @@ Run:  python benchmarks/bench_forms.py [--points N] [--repeat N]
       python benchmarks/bench_forms.py --conformal [--ideal-mhd] [--points N] [--repeat N]
       python benchmarks/bench_forms.py --small-call [--calls N]
       python benchmarks/bench_forms.py --line-steps [--points N] [--repeat N]
+      python benchmarks/bench_forms.py --streaming [--points N] [--repeat N]
 
 For a float64 grid of N^3 points (default 96) it prints, as medians of interleaved runs (each
 kernel timing right after a STREAM-style triad, read as a share of it; the machine is shared):
@@ -29,6 +30,14 @@ column loop.
 stress_energy_4d (T_ab) and conformal_sources (chi) that a call on large C-contiguous float64
 grids takes (compiled for 512-bit vectors, ``emsource._arguments.takes_line_steps``) against the
 default 256-bit drivers on the same views, interleaved, each right after a triad.
+
+``--streaming`` measures instead, at 128^3 and 200^3 (or N^3), each public call that has a
+streaming-store driver (adm_sources, stress_energy_4d, conformal_sources, ideal_mhd_fields) into
+padded grid functions and into C-contiguous arrays, against the same call with the streaming
+size threshold out of reach (the driver it takes otherwise), interleaved, each right after a
+triad. The "streams" column says whether the call tries the streaming driver (rows of 2 MiB
+that do not alias; contiguous 128^3 float64 rows alias, so there both columns are the same
+driver).
 
 ``--small-call`` measures instead the per-call time of each public source call an evolution loop
 makes at every right-hand side (adm_sources, the reference; conformal_sources; stress_energy_4d;
@@ -411,6 +420,81 @@ def line_steps_section(sizes, repeat):
         del gamma, E, B, chi, gamma_tilde, alpha, beta, adm_out, t_out, conformal_out, calls
 
 
+def _without_streaming(call):
+    """``call`` made with the streaming drivers' size threshold out of reach: the driver the
+    call takes otherwise (plans dropped before each call: a streamed call stores none, an
+    ordinary one would be found by the next streamed call)."""
+    caches = _plan_caches()
+
+    def ordinary():
+        saved = arg.STREAMING_ROW_BYTES
+        arg.STREAMING_ROW_BYTES = 1 << 62
+        try:
+            _dropping_plans(call, caches)()
+        finally:
+            arg.STREAMING_ROW_BYTES = saved
+    return ordinary
+
+
+def streaming_section(sizes, repeat):
+    """Each public call that has a streaming-store driver (``emsource.kernels.streaming_stores``)
+    against the same call with streaming out of reach: adm_sources, stress_energy_4d (T_ab),
+    conformal_sources (chi), ideal_mhd_fields (Eulerian velocity); float64, into padded grid
+    functions and into C-contiguous arrays, plans dropped before every call of either kind."""
+    print(f"emsource {emsource.__version__}, {numba.get_num_threads()} threads, float64, "
+          f"medians of {repeat}, each run right after a triad; time ratios paired within a group")
+    triad = Triad()
+    caches = _plan_caches()
+    for n in sizes:
+        shape = (n,) * 3
+        gamma, E, B, chi, gamma_tilde, alpha, beta, velocity = state_fields(shape)
+        print(f"\n{n}^3 ({_load()} before)")
+        print(f"{'call':30s} {'layout':>10s} {'streams':>8s} {'% triad':>8s} {'ordinary':>9s} "
+              f"{'time streaming / ordinary':>26s} {'quartiles':>12s}")
+        for layout in ("padded", "contiguous"):
+            arrays = {"gamma": gamma, "E": E, "B": B, "chi": chi, "gamma_tilde": gamma_tilde,
+                      "alpha": alpha, "beta": beta, "velocity": velocity}
+            if layout == "padded":
+                arrays = {name: padded_copy(a) for name, a in arrays.items()}
+            a = arrays
+            adm_out = emsource.adm_sources(a["gamma"], a["E"], a["B"])
+            t_out = emsource.stress_energy_4d(a["alpha"], a["beta"], a["gamma"], a["E"], a["B"])
+            c_out = conformal_sources(a["chi"], a["gamma_tilde"], a["E"], a["B"],
+                                      decomposition="chi")
+            m_out = ideal_mhd_fields(a["alpha"], a["beta"], a["gamma"], a["B"], a["velocity"])
+            if layout == "padded":
+                adm_out = type(adm_out)(*(padded_copy(x) for x in adm_out))
+                t_out = padded_copy(t_out)
+                c_out = type(c_out)(*(padded_copy(x) for x in c_out))
+                m_out = type(m_out)(*(padded_copy(x) for x in m_out))
+            calls = {
+                "adm_sources": (ADM_ROWS, lambda: emsource.adm_sources(
+                    a["gamma"], a["E"], a["B"], out=adm_out)),
+                "stress_energy_4d (T_ab)": (16 + 10, lambda: emsource.stress_energy_4d(
+                    a["alpha"], a["beta"], a["gamma"], a["E"], a["B"], out=t_out)),
+                "conformal_sources (chi)": (CONFORMAL_ROWS, lambda: conformal_sources(
+                    a["chi"], a["gamma_tilde"], a["E"], a["B"], decomposition="chi",
+                    out=c_out)),
+                "ideal_mhd_fields (eulerian)": (16 + 11, lambda: ideal_mhd_fields(
+                    a["alpha"], a["beta"], a["gamma"], a["B"], a["velocity"], out=m_out)),
+            }
+            for name, (rows, call) in calls.items():
+                nbytes = rows * 8 * n ** 3
+                cases = {"streaming": (_dropping_plans(call, caches), nbytes),
+                         "ordinary": (_without_streaming(call), nbytes)}
+                measured = interleaved(cases, triad, repeat)
+                streamed, ordinary = measured["streaming"][0], measured["ordinary"][0]
+                low, high = paired_quartiles(streamed, ordinary)
+                views, _ = arg.kernel_views([a["gamma"]], shape)
+                print(f"{name:30s} {layout:>10s} {str(arg.tries_streaming(views, shape)):>8s} "
+                      f"{100 * measured['streaming'][1]:7.0f}% "
+                      f"{100 * measured['ordinary'][1]:8.0f}% "
+                      f"{paired_ratio(streamed, ordinary):26.3f} {low:5.3f}-{high:5.3f}")
+            del adm_out, t_out, c_out, m_out, calls, arrays, a
+        print(f"({_load()} after)")
+        del gamma, E, B, chi, gamma_tilde, alpha, beta, velocity
+
+
 def small_call_section(calls, rounds=15):
     """Per-call CPU time of the public calls on 8^3 (module docstring, ``--small-call``)."""
     numba.set_num_threads(1)
@@ -456,7 +540,13 @@ def main(argv=None):
                         help="timed calls per case with --small-call (default 30000)")
     parser.add_argument("--line-steps", action="store_true",
                         help="line-step against default drivers at 128^3 and 256^3 (or N^3)")
+    parser.add_argument("--streaming", action="store_true",
+                        help="each call with and without its streaming-store driver, 128^3 "
+                             "and 200^3 (or N^3)")
     args = parser.parse_args(argv)
+    if args.streaming:
+        streaming_section((args.points,) if args.points else (128, 200), args.repeat)
+        return
     if args.small_call:
         small_call_section(args.calls)
         return
