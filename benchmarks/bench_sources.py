@@ -46,6 +46,7 @@ from emsource.kernels import sources as kernels
 from emsource.kernels.streaming_stores import (STREAMING_BUFFER_LANES, line_extent, line_offset,
                                                rows_at_offset, store_fence, stream_line)
 from emsource.kernels.strip_buffers import strip_buffer
+from emsource.kernels.vector_loops import STRIP_POINTS
 
 import c_reference
 
@@ -93,7 +94,7 @@ def _same_traffic_streaming_copy(gamma, E, B, rho, S_i, S_ij, S):
             S_i[c, n] = rho[n]
         for c in range(6):
             S_ij[c, n] = rho[n]
-    per_task = 1024 // lanes
+    per_task = STRIP_POINTS // lanes  # the tasks of the streaming driver
     for task in numba.prange((lines + per_task - 1) // per_task):
         values = strip_buffer(2, STREAMING_BUFFER_LANES, rho)
         for line in range(task * per_task, min(lines, task * per_task + per_task)):

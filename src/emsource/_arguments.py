@@ -487,9 +487,10 @@ def flat_driver_tables(views, grid, default, line_steps=None, streaming=None) ->
     streaming driver took 1.05 / 1.25 of the ordinary driver's time in one run and 0.65 / 0.52
     in another (same benchmark, same day: which physical pages the rows get seems to decide),
     where on padded grid functions and on 134^3 / 262^3 it took 0.62-0.75 in both."""
-    if line_steps is not None and takes_line_steps(views, grid):
+    aliasing = takes_line_steps(views, grid)
+    if line_steps is not None and aliasing:
         return (line_steps,)
-    if streaming is not None and tries_streaming(views, grid):
+    if streaming is not None and not aliasing and takes_streaming_stores(grid, views[0].dtype):
         return (streaming, default)
     return (default,)
 
